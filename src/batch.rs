@@ -1,0 +1,387 @@
+//! The broadcasting engine: operands in, one row kernel called per broadcast
+//! row, results out. Every element-wise function of every model goes through
+//! here, so broadcasting, dtype handling, layout independence, parallelism
+//! and the reporting of bad rows are written once.
+//!
+//! An operand is an array whose last `core` axes belong to one item (1 for a
+//! point `(..., d)`, 0 for a scalar `(...)`); the leading axes broadcast like
+//! NumPy. The kernel sees each item as a contiguous `&[f64]` whatever the
+//! memory layout or dtype of the input (f32 inputs are widened on the fly),
+//! and writes one output item. Rows are independent, so results are
+//! bit-identical for any number of threads.
+
+use ndarray::{ArrayD, ArrayViewD, IxDyn};
+use rayon::prelude::*;
+use std::sync::Mutex;
+
+use crate::error::{Error, Fault, Result, RowFault};
+
+/// Borrowed input data, float64 or float32, any strides.
+#[derive(Clone)]
+pub enum Data<'a> {
+    F64(ArrayViewD<'a, f64>),
+    F32(ArrayViewD<'a, f32>),
+}
+
+impl<'a> Data<'a> {
+    pub fn shape(&self) -> &[usize] {
+        match self {
+            Data::F64(a) => a.shape(),
+            Data::F32(a) => a.shape(),
+        }
+    }
+    pub fn is_f32(&self) -> bool {
+        matches!(self, Data::F32(_))
+    }
+}
+
+impl<'a> From<ArrayViewD<'a, f64>> for Data<'a> {
+    fn from(a: ArrayViewD<'a, f64>) -> Self {
+        Data::F64(a)
+    }
+}
+
+impl<'a> From<ArrayViewD<'a, f32>> for Data<'a> {
+    fn from(a: ArrayViewD<'a, f32>) -> Self {
+        Data::F32(a)
+    }
+}
+
+/// Whether an operand carries points (last axis) or scalars.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub enum Core {
+    Point,
+    Scalar,
+}
+
+/// One named operand of an element-wise function.
+#[derive(Clone)]
+pub struct Operand<'a> {
+    pub name: &'static str,
+    pub data: Data<'a>,
+    pub core: Core,
+}
+
+impl<'a> Operand<'a> {
+    pub fn point(name: &'static str, data: impl Into<Data<'a>>) -> Self {
+        Operand { name, data: data.into(), core: Core::Point }
+    }
+    pub fn scalar(name: &'static str, data: impl Into<Data<'a>>) -> Self {
+        Operand { name, data: data.into(), core: Core::Scalar }
+    }
+    fn lead_shape(&self) -> &[usize] {
+        let s = self.data.shape();
+        match self.core {
+            Core::Point => &s[..s.len() - 1],
+            Core::Scalar => s,
+        }
+    }
+}
+
+/// A float64 or float32 result.
+#[derive(Debug, Clone, PartialEq)]
+pub enum Output {
+    F64(ArrayD<f64>),
+    F32(ArrayD<f32>),
+}
+
+impl Output {
+    pub fn shape(&self) -> &[usize] {
+        match self {
+            Output::F64(a) => a.shape(),
+            Output::F32(a) => a.shape(),
+        }
+    }
+    /// The result as float64 (a copy when it is float32).
+    pub fn into_f64(self) -> ArrayD<f64> {
+        match self {
+            Output::F64(a) => a,
+            Output::F32(a) => a.mapv(f64::from),
+        }
+    }
+}
+
+/// The result dtype policy, written once: float32 when every array operand is
+/// float32, float64 otherwise.
+pub fn wants_f32(ops: &[Operand]) -> bool {
+    !ops.is_empty() && ops.iter().all(|o| o.data.is_f32())
+}
+
+/// Shapes of the operands checked and broadcast; `d` is the common point
+/// dimension (0 when no operand is a point).
+pub struct Layout {
+    pub lead: Vec<usize>,
+    pub d: usize,
+}
+
+/// Checks point dimensions and broadcasts the leading shapes (NumPy rules).
+pub fn layout(ops: &[Operand]) -> Result<Layout> {
+    let mut d: Option<(usize, &str)> = None;
+    for o in ops {
+        if o.core == Core::Point {
+            let s = o.data.shape();
+            if s.is_empty() {
+                return Err(Error::Value(format!(
+                    "{} must have at least one dimension: points lie along the last axis, shape (..., d)",
+                    o.name
+                )));
+            }
+            let dd = s[s.len() - 1];
+            if dd == 0 {
+                return Err(Error::Value(format!(
+                    "{} has points of dimension 0; the last axis must have length d >= 1",
+                    o.name
+                )));
+            }
+            match d {
+                None => d = Some((dd, o.name)),
+                Some((d0, n0)) if d0 != dd => {
+                    return Err(Error::Value(format!(
+                        "mismatched point dimension: {n0} has d = {d0} but {} has d = {dd}",
+                        o.name
+                    )))
+                }
+                _ => {}
+            }
+        }
+    }
+    let nd = ops.iter().map(|o| o.lead_shape().len()).max().unwrap_or(0);
+    let mut lead = vec![1usize; nd];
+    for o in ops {
+        let ls = o.lead_shape();
+        let off = nd - ls.len();
+        for (i, &n) in ls.iter().enumerate() {
+            let cur = &mut lead[off + i];
+            if *cur == 1 {
+                *cur = n;
+            } else if n != 1 && n != *cur {
+                let shapes: Vec<String> =
+                    ops.iter().map(|o| format!("{} {:?}", o.name, o.lead_shape())).collect();
+                return Err(Error::Value(format!(
+                    "leading shapes cannot be broadcast together: {}",
+                    shapes.join(", ")
+                )));
+            }
+        }
+    }
+    Ok(Layout { lead, d: d.map(|x| x.0).unwrap_or(0) })
+}
+
+/// Raw access to one operand in the broadcast frame.
+struct Access {
+    ptr: *const u8,
+    f32: bool,
+    /// Element strides of the broadcast leading axes (0 where broadcast).
+    lead_strides: Vec<isize>,
+    /// Element stride along the point axis.
+    core_stride: isize,
+    /// Items per row: d for points, 1 for scalars.
+    len: usize,
+    /// The operand's own leading shape, aligned right in the broadcast frame.
+    own_lead: Vec<usize>,
+}
+
+// The pointers come from views borrowed for the whole call; kernels only read.
+unsafe impl Send for Access {}
+unsafe impl Sync for Access {}
+
+impl Access {
+    fn new(o: &Operand, nd: usize, d: usize) -> Access {
+        let (ptr, f32, shape, strides): (*const u8, bool, Vec<usize>, Vec<isize>) = match &o.data
+        {
+            Data::F64(a) => (a.as_ptr() as *const u8, false, a.shape().to_vec(), a.strides().to_vec()),
+            Data::F32(a) => (a.as_ptr() as *const u8, true, a.shape().to_vec(), a.strides().to_vec()),
+        };
+        let (nlead, core_stride, len) = match o.core {
+            Core::Point => (shape.len() - 1, strides[shape.len() - 1], d),
+            Core::Scalar => (shape.len(), 0, 1),
+        };
+        let off = nd - nlead;
+        let mut lead_strides = vec![0isize; nd];
+        for i in 0..nlead {
+            lead_strides[off + i] = if shape[i] == 1 { 0 } else { strides[i] };
+        }
+        let mut own_lead = vec![1usize; nd];
+        own_lead[off..].copy_from_slice(&shape[..nlead]);
+        Access { ptr, f32, lead_strides, core_stride, len, own_lead }
+    }
+
+    /// The row at broadcast multi-index `idx`, as a contiguous f64 slice
+    /// (borrowed in place when possible, else copied into `buf`).
+    #[inline]
+    unsafe fn row<'b>(&self, idx: &[usize], buf: &'b mut Vec<f64>) -> &'b [f64] {
+        let mut off: isize = 0;
+        for (i, s) in idx.iter().zip(&self.lead_strides) {
+            off += *i as isize * *s;
+        }
+        buf.clear();
+        if self.f32 {
+            let p = (self.ptr as *const f32).offset(off);
+            for j in 0..self.len {
+                buf.push(f64::from(*p.offset(j as isize * self.core_stride)));
+            }
+        } else {
+            let p = (self.ptr as *const f64).offset(off);
+            if self.core_stride == 1 || self.len == 1 {
+                // Borrow in place: no copy for contiguous rows.
+                return std::slice::from_raw_parts(p, self.len);
+            }
+            for j in 0..self.len {
+                buf.push(*p.offset(j as isize * self.core_stride));
+            }
+        }
+        &buf[..]
+    }
+
+    /// The operand's own row number (flat, C order) for a broadcast index.
+    fn own_row(&self, idx: &[usize]) -> (usize, Vec<usize>) {
+        let mut flat = 0usize;
+        let mut own = Vec::new();
+        for (k, &n) in self.own_lead.iter().enumerate() {
+            let i = if n == 1 { 0 } else { idx[k] };
+            flat = flat * n + i;
+            own.push(i);
+        }
+        (flat, own)
+    }
+}
+
+/// Rows per parallel task: large enough to amortise scheduling, small enough
+/// to balance. Independent of the thread count, so results never depend on it.
+fn chunk_rows(n: usize, work_per_row: usize) -> usize {
+    let target = 16_384 / work_per_row.max(1);
+    target.clamp(16, 1 << 16).min(n.max(1))
+}
+
+fn unravel(mut r: usize, shape: &[usize], idx: &mut [usize]) {
+    for k in (0..shape.len()).rev() {
+        let n = shape[k];
+        idx[k] = r % n;
+        r /= n;
+    }
+}
+
+#[inline]
+fn advance(idx: &mut [usize], shape: &[usize]) {
+    for k in (0..shape.len()).rev() {
+        idx[k] += 1;
+        if idx[k] < shape[k] {
+            return;
+        }
+        idx[k] = 0;
+    }
+}
+
+fn format_fault(ops: &[Operand], acc: &[Access], f: RowFault, own: &[usize], nd: usize) -> Error {
+    let o = &ops[f.arg];
+    let nlead = o.lead_shape().len();
+    let own = &own[nd - nlead..];
+    let what = match o.core {
+        Core::Point => "point",
+        Core::Scalar => "value",
+    };
+    let _ = acc;
+    let place = match own.len() {
+        0 => format!("{} (a single {what})", o.name),
+        1 => format!("{}: row {}", o.name, own[0]),
+        _ => format!(
+            "{}: row ({})",
+            o.name,
+            own.iter().map(|i| i.to_string()).collect::<Vec<_>>().join(", ")
+        ),
+    };
+    Error::Value(format!("{place} {}", f.fault.describe()))
+}
+
+/// Calls `kernel(rows, out_row)` for every broadcast row and collects the
+/// results into an array of shape `lead + out_core(d)`.
+///
+/// `work_per_row` is a rough cost in flops, used only to size parallel
+/// chunks. On a fault, reports the first failing operand (in argument order)
+/// at its first failing row, counted in that operand's own shape.
+pub fn map_rows<K>(
+    ops: &[Operand],
+    out_core: &dyn Fn(usize) -> Vec<usize>,
+    work_per_row: usize,
+    kernel: K,
+) -> Result<Output>
+where
+    K: Fn(&[&[f64]], &mut [f64]) -> std::result::Result<(), RowFault> + Sync,
+{
+    let lay = layout(ops)?;
+    let nd = lay.lead.len();
+    let n: usize = lay.lead.iter().product();
+    let oc = out_core(lay.d);
+    let out_len: usize = oc.iter().product();
+    let mut shape = lay.lead.clone();
+    shape.extend_from_slice(&oc);
+    let f32_out = wants_f32(ops);
+    let acc: Vec<Access> = ops.iter().map(|o| Access::new(o, nd, lay.d)).collect();
+    let mut out = vec![0f64; n * out_len];
+    let first_fault: Mutex<Option<(usize, usize, RowFault, Vec<usize>)>> = Mutex::new(None);
+
+    let run_chunk = |start: usize, block: &mut [f64]| {
+        let mut idx = vec![0usize; nd];
+        unravel(start, &lay.lead, &mut idx);
+        let mut bufs: Vec<Vec<f64>> = acc.iter().map(|a| Vec::with_capacity(a.len)).collect();
+        let mut local: Option<(usize, usize, RowFault, Vec<usize>)> = None;
+        for orow in block.chunks_exact_mut(out_len.max(1)) {
+            let res = {
+                let mut rows: [&[f64]; 8] = [&[]; 8];
+                let mut it = bufs.iter_mut();
+                for (j, a) in acc.iter().enumerate() {
+                    let b = it.next().unwrap();
+                    // SAFETY: idx is within the broadcast shape, so every
+                    // offset is inside the operand's borrowed view.
+                    rows[j] = unsafe { a.row(&idx, b) };
+                }
+                kernel(&rows[..acc.len()], orow)
+            };
+            if let Err(f) = res {
+                let (flat, own) = acc[f.arg].own_row(&idx);
+                let key = (f.arg, flat);
+                if local.as_ref().map_or(true, |l| key < (l.0, l.1)) {
+                    local = Some((f.arg, flat, f, own));
+                }
+            }
+            advance(&mut idx, &lay.lead);
+        }
+        if let Some(l) = local {
+            let mut g = first_fault.lock().unwrap_or_else(|e| e.into_inner());
+            if g.as_ref().map_or(true, |x| (l.0, l.1) < (x.0, x.1)) {
+                *g = Some(l);
+            }
+        }
+    };
+
+    assert!(ops.len() <= 8, "at most 8 operands");
+    if n > 0 && out_len > 0 {
+        let rows_per = chunk_rows(n, work_per_row.max(1) * lay.d.max(1));
+        if n <= rows_per {
+            run_chunk(0, &mut out);
+        } else {
+            out.par_chunks_mut(rows_per * out_len)
+                .enumerate()
+                .for_each(|(c, block)| run_chunk(c * rows_per, block));
+        }
+    } else if n > 0 {
+        // Zero-sized outputs still validate every row.
+        let mut empty: Vec<f64> = Vec::new();
+        let _ = &mut empty;
+    }
+    if let Some((_, _, f, own)) = first_fault.into_inner().unwrap_or_else(|e| e.into_inner()) {
+        return Err(format_fault(ops, &acc, f, &own, nd));
+    }
+    let out = ArrayD::from_shape_vec(IxDyn(&shape), out).expect("shape matches length");
+    Ok(if f32_out { Output::F32(out.mapv(|v| v as f32)) } else { Output::F64(out) })
+}
+
+/// A kernel error for a scalar operand that must be finite.
+#[inline]
+pub fn finite_scalar(arg: usize, v: f64) -> std::result::Result<f64, RowFault> {
+    if v.is_finite() {
+        Ok(v)
+    } else {
+        Err(RowFault::new(arg, Fault::NonFinite))
+    }
+}

@@ -1,0 +1,81 @@
+//! The core error type. The binding layer maps it to Python exceptions in one
+//! place: `Value` becomes `ValueError`, `Type` becomes `TypeError`.
+
+use std::fmt;
+
+#[derive(Debug, Clone, PartialEq)]
+pub enum Error {
+    /// Bad values: shapes, domains, parameters.
+    Value(String),
+    /// Bad types: dtypes that cannot become float64, non-numeric arguments.
+    Type(String),
+}
+
+impl fmt::Display for Error {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        match self {
+            Error::Value(m) | Error::Type(m) => f.write_str(m),
+        }
+    }
+}
+
+impl std::error::Error for Error {}
+
+pub type Result<T> = std::result::Result<T, Error>;
+
+pub(crate) fn value_err<T>(msg: impl Into<String>) -> Result<T> {
+    Err(Error::Value(msg.into()))
+}
+
+/// What is wrong with one row of one operand, found inside a row kernel.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub enum Fault {
+    /// NaN or infinity among the coordinates (or the scalar).
+    NonFinite,
+    /// A ball point on or outside the sphere of radius R; carries |x|/R - 1
+    /// (0 when the point is on the sphere to working precision).
+    OutsideBall(f64),
+    /// A velocity at or above the speed of light; carries |v|/c - 1.
+    AtOrAboveLight(f64),
+    /// A hyperboloid point whose x0 <= 0 or that is off the sheet beyond the
+    /// tolerance; carries the relative defect.
+    OffHyperboloid(f64),
+    /// A half-space point with last coordinate <= 0.
+    NotInHalfSpace,
+}
+
+impl Fault {
+    pub fn describe(&self) -> String {
+        match *self {
+            Fault::NonFinite => "contains NaN or infinity".to_string(),
+            Fault::OutsideBall(e) => format!(
+                "is on or outside the ball (|x|/R - 1 = {e:.3e}); points must lie strictly \
+                 inside the ball of radius R = 1/sqrt(-curvature) (project() repairs drifted points)"
+            ),
+            Fault::AtOrAboveLight(e) => {
+                format!("has speed at or above c (|v|/c - 1 = {e:.3e})")
+            }
+            Fault::OffHyperboloid(e) => format!(
+                "is not on the upper sheet of the hyperboloid (relative defect {e:.3e}); \
+                 project() repairs drifted points"
+            ),
+            Fault::NotInHalfSpace => {
+                "has last coordinate <= 0 (outside the upper half-space)".to_string()
+            }
+        }
+    }
+}
+
+/// A fault in operand number `arg` of a row kernel.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct RowFault {
+    pub arg: usize,
+    pub fault: Fault,
+}
+
+impl RowFault {
+    #[inline]
+    pub fn new(arg: usize, fault: Fault) -> RowFault {
+        RowFault { arg, fault }
+    }
+}

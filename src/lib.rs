@@ -1,0 +1,17 @@
+//! gyrokit: exact, fast gyrovector and hyperbolic-geometry operations.
+//!
+//! The numerical core is plain Rust over slices and `ndarray` views; the
+//! optional `python` feature adds the pyo3 bindings (`gyrokit._native`).
+
+pub mod ball;
+pub mod batch;
+pub mod error;
+pub mod klein;
+pub mod numeric;
+pub mod poincare;
+
+pub use ball::Curvature;
+pub use error::{Error, Result};
+
+#[cfg(feature = "python")]
+mod py;

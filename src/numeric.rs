@@ -1,0 +1,225 @@
+//! Shared numerics: error-free transformations, compensated sums and dot
+//! products, and transcendental forms that keep their digits where the
+//! textbook ones lose them. Every model module uses these; none re-derives
+//! them.
+//!
+//! Notation used across the crate: `kappa = -K > 0`; the ball radius is
+//! `R = 1/sqrt(kappa)`; the *gap* of a ball point is `g = 1 - kappa |x|^2`,
+//! which goes to zero at the boundary.
+
+/// Error-free sum (Knuth's TwoSum): `a + b = s + e` exactly.
+#[inline(always)]
+pub fn two_sum(a: f64, b: f64) -> (f64, f64) {
+    let s = a + b;
+    let bb = s - a;
+    let e = (a - (s - bb)) + (b - bb);
+    (s, e)
+}
+
+/// Error-free product with a fused multiply-add: `a * b = p + e` exactly.
+#[inline(always)]
+pub fn two_prod(a: f64, b: f64) -> (f64, f64) {
+    let p = a * b;
+    let e = a.mul_add(b, -p);
+    (p, e)
+}
+
+/// A double-double number `hi + lo` with `|lo| <= ulp(hi)/2` (after
+/// normalisation); about 32 significant digits.
+#[derive(Clone, Copy, Debug, Default, PartialEq)]
+pub struct DD {
+    pub hi: f64,
+    pub lo: f64,
+}
+
+impl DD {
+    #[inline(always)]
+    pub fn new(hi: f64, lo: f64) -> DD {
+        let (h, l) = two_sum(hi, lo);
+        DD { hi: h, lo: l }
+    }
+    #[inline(always)]
+    pub fn from(x: f64) -> DD {
+        DD { hi: x, lo: 0.0 }
+    }
+    #[inline(always)]
+    pub fn value(self) -> f64 {
+        self.hi + self.lo
+    }
+    #[inline(always)]
+    pub fn add(self, o: DD) -> DD {
+        let (s, e) = two_sum(self.hi, o.hi);
+        DD::new(s, e + self.lo + o.lo)
+    }
+    #[inline(always)]
+    pub fn sub(self, o: DD) -> DD {
+        self.add(DD { hi: -o.hi, lo: -o.lo })
+    }
+    #[inline(always)]
+    pub fn mul_f64(self, b: f64) -> DD {
+        let (p, e) = two_prod(self.hi, b);
+        DD::new(p, e + self.lo * b)
+    }
+    #[inline(always)]
+    pub fn mul(self, o: DD) -> DD {
+        let (p, e) = two_prod(self.hi, o.hi);
+        DD::new(p, e + (self.hi * o.lo + self.lo * o.hi))
+    }
+}
+
+/// `sum x_i^2` in double-double.
+#[inline]
+pub fn sumsq_dd(x: &[f64]) -> DD {
+    let mut hi = 0.0;
+    let mut lo = 0.0;
+    for &v in x {
+        let (p, pe) = two_prod(v, v);
+        let (s, se) = two_sum(hi, p);
+        hi = s;
+        lo += pe + se;
+    }
+    DD::new(hi, lo)
+}
+
+/// `sum x_i y_i` in double-double (the Ogita–Rump–Oishi Dot2 algorithm
+/// without the final rounding).
+#[inline]
+pub fn dot_dd(x: &[f64], y: &[f64]) -> DD {
+    let mut hi = 0.0;
+    let mut lo = 0.0;
+    for (&a, &b) in x.iter().zip(y) {
+        let (p, pe) = two_prod(a, b);
+        let (s, se) = two_sum(hi, p);
+        hi = s;
+        lo += pe + se;
+    }
+    DD::new(hi, lo)
+}
+
+/// `sum x_i y_i` as accurate as if computed in twice the working precision,
+/// then rounded (Dot2).
+#[inline]
+pub fn dot2(x: &[f64], y: &[f64]) -> f64 {
+    dot_dd(x, y).value()
+}
+
+/// Plain sum of squares (for quantities whose relative accuracy suffices).
+#[inline]
+pub fn sumsq(x: &[f64]) -> f64 {
+    x.iter().map(|v| v * v).sum()
+}
+
+/// The gap `1 - kappa |x|^2` in double-double. The sum of squares is
+/// compensated: a plain float64 sum is ~10% wrong at 1 - |x|/R = 1e-15.
+#[inline]
+pub fn gap_dd(kappa: f64, x: &[f64]) -> DD {
+    let q = sumsq_dd(x).mul_f64(kappa);
+    DD::from(1.0).sub(q)
+}
+
+/// The gap `1 - kappa |x|^2`, correctly computed then rounded once.
+#[inline]
+pub fn gap(kappa: f64, x: &[f64]) -> f64 {
+    gap_dd(kappa, x).value()
+}
+
+/// `sum (x_i + sy y_i)(x_i - sy y_i) = |x|^2 - |y|^2`, exact to double-double
+/// accuracy however close `x` is to `-sy y` (both factors are formed
+/// error-free). `sy` is +1 or -1.
+#[inline]
+pub fn diff_of_squares(x: &[f64], y: &[f64], sy: f64) -> f64 {
+    let mut acc = DD::default();
+    for (&a, &b) in x.iter().zip(y) {
+        let (sh, sl) = two_sum(a, sy * b);
+        let (dh, dl) = two_sum(a, -sy * b);
+        acc = acc.add(DD { hi: sh, lo: sl }.mul(DD { hi: dh, lo: dl }));
+    }
+    acc.value()
+}
+
+/// `x . (x + sy y)` with the sum formed error-free, then a compensated dot.
+#[inline]
+pub fn dot_with_sum(x: &[f64], y: &[f64], sy: f64) -> f64 {
+    let mut acc = DD::default();
+    for (&a, &b) in x.iter().zip(y) {
+        let (sh, sl) = two_sum(a, sy * b);
+        acc = acc.add(DD { hi: sh, lo: sl }.mul_f64(a));
+    }
+    acc.value()
+}
+
+/// `artanh(t)` for `t = sqrt(kappa)|x|` given its gap `g = 1 - t^2`, without
+/// forming `1 - t` (which has no digits left near the boundary):
+/// `artanh t = log1p(2 t (1 + t) / g) / 2`.
+#[inline]
+pub fn artanh_from_gap(t: f64, g: f64) -> f64 {
+    0.5 * (2.0 * t * (1.0 + t) / g).ln_1p()
+}
+
+/// The factor `f` with `r ⊗ x = f x` (Möbius and Einstein scalar
+/// multiplication share it): `f = tanh(r artanh t) / t`, `t = sqrt(kappa)|x|`.
+/// `g` is the gap of `x`.
+#[inline]
+pub fn radial_scale_factor(r: f64, t: f64, g: f64) -> f64 {
+    if t == 0.0 {
+        // The limit t -> 0 of tanh(r artanh t)/t.
+        return r;
+    }
+    let a = artanh_from_gap(t, g);
+    (r * a).tanh() / t
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn two_sum_and_two_prod_are_exact() {
+        // common practice: the error terms recover what rounding dropped
+        let (s, e) = two_sum(1.0, 1e-20);
+        assert_eq!(s, 1.0);
+        assert_eq!(e, 1e-20);
+        let a = 1.0 + f64::EPSILON;
+        let (p, e) = two_prod(a, a);
+        assert_eq!(p, 1.0 + 2.0 * f64::EPSILON);
+        assert_eq!(e, f64::EPSILON * f64::EPSILON);
+    }
+
+    #[test]
+    fn gap_keeps_digits_at_the_boundary() {
+        // x = (1 - 2^-50) e_1: 1 - x^2 = 2^-49 - 2^-100 exactly.
+        let x = [1.0 - 2f64.powi(-50), 0.0];
+        let g = gap(1.0, &x);
+        let exact = 2f64.powi(-49) - 2f64.powi(-100);
+        assert!(((g - exact) / exact).abs() < 1e-15);
+        // Split over two coordinates the plain sum loses it; dd does not.
+        let a = 0.6f64;
+        let b = (1.0 - a * a - 1e-15).sqrt();
+        let g = gap(1.0, &[a, b]);
+        let q = sumsq_dd(&[a, b]);
+        assert!((g - (1.0 - q.hi - q.lo)).abs() < 1e-30);
+    }
+
+    #[test]
+    fn diff_of_squares_is_exact_for_near_opposite_points() {
+        let x = [0.3, -0.7];
+        let y = [-0.3 + 1e-13, 0.7 + 3e-14];
+        // |x|^2 - |y|^2 computed by hand in exact rational steps:
+        // (x+y).(x-y) with x+y = (1e-13, -3e-14) (exact: Sterbenz)
+        let d = diff_of_squares(&x, &y, 1.0);
+        let s = [x[0] + y[0], x[1] + y[1]];
+        let m = DD::new(x[0], 0.0).sub(DD::new(y[0], 0.0)).mul_f64(s[0]).add(
+            DD::new(x[1], 0.0).sub(DD::new(y[1], 0.0)).mul_f64(s[1]),
+        );
+        assert!(((d - m.value()) / d).abs() < 1e-15);
+    }
+
+    #[test]
+    fn radial_scale_matches_closed_forms() {
+        // 2 ⊗ x for K = -1 has norm 2t/(1+t^2) (doubling formula of tanh).
+        let t: f64 = 0.5;
+        let f = radial_scale_factor(2.0, t, 1.0 - t * t);
+        assert!((f * t - 2.0 * t / (1.0 + t * t)).abs() < 1e-15);
+        assert_eq!(radial_scale_factor(3.0, 0.0, 1.0), 3.0);
+    }
+}
