@@ -21,14 +21,20 @@ use crate::error::{Error, Fault, Result, RowFault};
 pub enum Data<'a> {
     F64(ArrayViewD<'a, f64>),
     F32(ArrayViewD<'a, f32>),
+    /// float64 values from a bare Python number: read like `F64`, but (like
+    /// NumPy's weak scalars) not counted when choosing the result dtype.
+    Weak(ArrayViewD<'a, f64>),
 }
 
 impl<'a> Data<'a> {
     pub fn shape(&self) -> &[usize] {
         match self {
-            Data::F64(a) => a.shape(),
+            Data::F64(a) | Data::Weak(a) => a.shape(),
             Data::F32(a) => a.shape(),
         }
+    }
+    pub fn is_weak(&self) -> bool {
+        matches!(self, Data::Weak(_))
     }
     pub fn is_f32(&self) -> bool {
         matches!(self, Data::F32(_))
@@ -104,7 +110,8 @@ impl Output {
 /// The result dtype policy, written once: float32 when every array operand is
 /// float32, float64 otherwise.
 pub fn wants_f32(ops: &[Operand]) -> bool {
-    !ops.is_empty() && ops.iter().all(|o| o.data.is_f32())
+    let mut strong = ops.iter().filter(|o| !o.data.is_weak()).peekable();
+    strong.peek().is_some() && strong.all(|o| o.data.is_f32())
 }
 
 /// Shapes of the operands checked and broadcast; `d` is the common point
@@ -189,7 +196,9 @@ impl Access {
     fn new(o: &Operand, nd: usize, d: usize) -> Access {
         let (ptr, f32, shape, strides): (*const u8, bool, Vec<usize>, Vec<isize>) = match &o.data
         {
-            Data::F64(a) => (a.as_ptr() as *const u8, false, a.shape().to_vec(), a.strides().to_vec()),
+            Data::F64(a) | Data::Weak(a) => {
+                (a.as_ptr() as *const u8, false, a.shape().to_vec(), a.strides().to_vec())
+            }
             Data::F32(a) => (a.as_ptr() as *const u8, true, a.shape().to_vec(), a.strides().to_vec()),
         };
         let (nlead, core_stride, len) = match o.core {
@@ -364,10 +373,6 @@ where
                 .enumerate()
                 .for_each(|(c, block)| run_chunk(c * rows_per, block));
         }
-    } else if n > 0 {
-        // Zero-sized outputs still validate every row.
-        let mut empty: Vec<f64> = Vec::new();
-        let _ = &mut empty;
     }
     if let Some((_, _, f, own)) = first_fault.into_inner().unwrap_or_else(|e| e.into_inner()) {
         return Err(format_fault(ops, &acc, f, &own, nd));

@@ -1,0 +1,97 @@
+//! Array coercion, written once: anything `np.asarray` turns into real
+//! numbers becomes a borrowed float64 or float32 view; everything else is a
+//! `TypeError` naming the argument.
+
+use numpy::{PyArrayDyn, PyArrayMethods, PyReadonlyArrayDyn};
+use pyo3::exceptions::PyTypeError;
+use pyo3::prelude::*;
+use pyo3::sync::PyOnceLock;
+use pyo3::types::{PyBool, PyFloat, PyInt};
+
+use crate::batch::Data;
+use crate::error::Error;
+
+/// An input held for the duration of a call.
+pub enum Held<'py> {
+    F64(PyReadonlyArrayDyn<'py, f64>),
+    F32(PyReadonlyArrayDyn<'py, f32>),
+}
+
+/// A coerced argument: its data, and whether it came from a bare Python
+/// number (which does not take part in choosing the result dtype, like
+/// NumPy's weak scalars).
+pub struct Arg<'py> {
+    pub held: Held<'py>,
+    pub weak: bool,
+}
+
+impl<'py> Arg<'py> {
+    pub fn data(&self) -> Data<'_> {
+        match &self.held {
+            Held::F64(a) if self.weak => Data::Weak(a.as_array()),
+            Held::F64(a) => Data::F64(a.as_array()),
+            Held::F32(a) => Data::F32(a.as_array()),
+        }
+    }
+}
+
+static ASARRAY: PyOnceLock<Py<PyAny>> = PyOnceLock::new();
+
+fn asarray<'py>(py: Python<'py>) -> PyResult<&'py Bound<'py, PyAny>> {
+    ASARRAY.import(py, "numpy", "asarray")
+}
+
+/// Coerces `ob` (argument `name`) to a float64 or float32 array.
+pub fn coerce<'py>(py: Python<'py>, name: &str, ob: &Bound<'py, PyAny>) -> PyResult<Arg<'py>> {
+    if let Ok(a) = ob.cast::<PyArrayDyn<f64>>() {
+        return Ok(Arg { held: Held::F64(a.try_readonly()?), weak: false });
+    }
+    if let Ok(a) = ob.cast::<PyArrayDyn<f32>>() {
+        return Ok(Arg { held: Held::F32(a.try_readonly()?), weak: false });
+    }
+    let weak = (ob.is_instance_of::<PyFloat>() || ob.is_instance_of::<PyInt>())
+        && !ob.is_instance_of::<PyBool>();
+    let arr = asarray(py)?.call1((ob,)).map_err(|e| {
+        PyTypeError::new_err(format!("{name} must be an array of real numbers: {e}"))
+    })?;
+    let dtype = arr.getattr("dtype")?;
+    let kind: String = dtype.getattr("kind")?.extract()?;
+    let itemsize: usize = dtype.getattr("itemsize")?.extract()?;
+    let target = match (kind.as_str(), itemsize) {
+        ("f", 8) => None,
+        ("f", 4) => {
+            let a = arr.cast::<PyArrayDyn<f32>>()?;
+            return Ok(Arg { held: Held::F32(a.try_readonly()?), weak });
+        }
+        ("f", _) | ("i", _) | ("u", _) => Some("float64"),
+        _ => {
+            let s: String = dtype.str()?.extract()?;
+            return Err(Error::Type(format!(
+                "{name} has dtype {s}; expected real numbers (float64, float32 or integers)"
+            ))
+            .into());
+        }
+    };
+    let arr = match target {
+        Some(t) => arr.call_method1("astype", (t,))?,
+        None => arr,
+    };
+    let a = arr.cast::<PyArrayDyn<f64>>()?.clone();
+    Ok(Arg { held: Held::F64(a.try_readonly()?), weak })
+}
+
+
+/// Hands a core result to Python: an ndarray without copying, or a NumPy
+/// scalar for 0-d results (like NumPy's ufuncs).
+pub fn to_py(py: Python<'_>, out: crate::batch::Output) -> PyResult<Py<PyAny>> {
+    use numpy::IntoPyArray;
+    let arr: Bound<'_, PyAny> = match out {
+        crate::batch::Output::F64(a) => a.into_pyarray(py).into_any(),
+        crate::batch::Output::F32(a) => a.into_pyarray(py).into_any(),
+    };
+    let nd: usize = arr.getattr("ndim")?.extract()?;
+    if nd == 0 {
+        return Ok(arr.get_item(())?.unbind());
+    }
+    Ok(arr.unbind())
+}

@@ -1,0 +1,26 @@
+//! The pyo3 layer: converts arguments, releases the GIL around the core
+//! kernels, and maps core errors to Python exceptions. No numerics here.
+
+use pyo3::exceptions::{PyTypeError, PyValueError};
+use pyo3::prelude::*;
+
+use crate::error::Error;
+
+mod algebra;
+mod coerce;
+
+impl From<Error> for PyErr {
+    fn from(e: Error) -> PyErr {
+        match e {
+            Error::Value(m) => PyValueError::new_err(m),
+            Error::Type(m) => PyTypeError::new_err(m),
+        }
+    }
+}
+
+#[pymodule]
+fn _native(m: &Bound<'_, PyModule>) -> PyResult<()> {
+    algebra::register(m)?;
+    m.add("__version__", env!("CARGO_PKG_VERSION"))?;
+    Ok(())
+}

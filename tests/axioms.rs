@@ -1,0 +1,3 @@
+use proptest::prelude::*;
+#[test]
+fn placeholder() { let _ = gyrokit::Curvature::new(-1.0).unwrap(); let _ = any::<u8>(); }
