@@ -50,16 +50,18 @@ impl Default for Curvature {
 /// Checks that `x` is finite and strictly inside the ball, returning its gap
 /// `1 - kappa |x|^2` in double-double. The tolerance is zero: a point whose
 /// compensated gap is <= 0 is rejected (it is on the sphere or outside).
-#[inline]
+#[inline(always)]
 pub fn checked_gap(c: &Curvature, x: &[f64]) -> std::result::Result<DD, Fault> {
-    let mut finite = true;
-    for v in x {
-        finite &= v.is_finite();
-    }
-    if !finite {
-        return Err(Fault::NonFinite);
-    }
     let g = gap_dd(c.kappa, x);
+    // NaN or infinite coordinates make the sum of squares non-finite; so do
+    // finite coordinates too large to square (which are outside anyway).
+    if !g.hi.is_finite() {
+        return Err(if x.iter().all(|v| v.is_finite()) {
+            Fault::OutsideBall(f64::INFINITY)
+        } else {
+            Fault::NonFinite
+        });
+    }
     if g.hi > 0.0 {
         Ok(g)
     } else {
@@ -69,7 +71,7 @@ pub fn checked_gap(c: &Curvature, x: &[f64]) -> std::result::Result<DD, Fault> {
 }
 
 /// Checks that every coordinate is finite.
-#[inline]
+#[inline(always)]
 pub fn check_finite(x: &[f64]) -> std::result::Result<(), Fault> {
     if x.iter().all(|v| v.is_finite()) {
         Ok(())

@@ -258,8 +258,8 @@ impl Access {
 /// Rows per parallel task: large enough to amortise scheduling, small enough
 /// to balance. Independent of the thread count, so results never depend on it.
 fn chunk_rows(n: usize, work_per_row: usize) -> usize {
-    let target = 16_384 / work_per_row.max(1);
-    target.clamp(16, 1 << 16).min(n.max(1))
+    let target = (1usize << 17) / work_per_row.max(1);
+    target.clamp(64, 1 << 16).min(n.max(1))
 }
 
 fn unravel(mut r: usize, shape: &[usize], idx: &mut [usize]) {
@@ -302,6 +302,51 @@ fn format_fault(ops: &[Operand], acc: &[Access], f: RowFault, own: &[usize], nd:
     Error::Value(format!("{place} {}", f.fault.describe()))
 }
 
+/// A fault located: (argument, its own flat row, the fault, its own index).
+type FaultAt = (usize, usize, RowFault, Vec<usize>);
+
+/// The row loop of one chunk. Always inlined, so that it is compiled inside
+/// the feature-enabled copy chosen by `simd::dispatch`, kernel included.
+#[inline(always)]
+fn run_chunk<K>(
+    acc: &[Access],
+    lead: &[usize],
+    out_len: usize,
+    kernel: &K,
+    start: usize,
+    block: &mut [f64],
+) -> Option<FaultAt>
+where
+    K: Fn(&[&[f64]], &mut [f64]) -> std::result::Result<(), RowFault>,
+{
+    let mut idx = vec![0usize; lead.len()];
+    unravel(start, lead, &mut idx);
+    let mut bufs: [Vec<f64>; 8] = Default::default();
+    for (b, a) in bufs.iter_mut().zip(acc) {
+        b.reserve(a.len);
+    }
+    let mut local: Option<FaultAt> = None;
+    for orow in block.chunks_exact_mut(out_len) {
+        let res = {
+            let mut rows: [&[f64]; 8] = [&[]; 8];
+            for ((r, a), b) in rows.iter_mut().zip(acc).zip(bufs.iter_mut()) {
+                // SAFETY: idx is within the broadcast shape, so every offset
+                // is inside the operand's borrowed view.
+                *r = unsafe { a.row(&idx, b) };
+            }
+            kernel(&rows[..acc.len()], orow)
+        };
+        if let Err(f) = res {
+            let (flat, own) = acc[f.arg].own_row(&idx);
+            if local.as_ref().map_or(true, |l| (f.arg, flat) < (l.0, l.1)) {
+                local = Some((f.arg, flat, f, own));
+            }
+        }
+        advance(&mut idx, lead);
+    }
+    local
+}
+
 /// Calls `kernel(rows, out_row)` for every broadcast row and collects the
 /// results into an array of shape `lead + out_core(d)`.
 ///
@@ -327,51 +372,33 @@ where
     let f32_out = wants_f32(ops);
     let acc: Vec<Access> = ops.iter().map(|o| Access::new(o, nd, lay.d)).collect();
     let mut out = vec![0f64; n * out_len];
-    let first_fault: Mutex<Option<(usize, usize, RowFault, Vec<usize>)>> = Mutex::new(None);
+    let first_fault: Mutex<Option<FaultAt>> = Mutex::new(None);
 
-    let run_chunk = |start: usize, block: &mut [f64]| {
-        let mut idx = vec![0usize; nd];
-        unravel(start, &lay.lead, &mut idx);
-        let mut bufs: Vec<Vec<f64>> = acc.iter().map(|a| Vec::with_capacity(a.len)).collect();
-        let mut local: Option<(usize, usize, RowFault, Vec<usize>)> = None;
-        for orow in block.chunks_exact_mut(out_len.max(1)) {
-            let res = {
-                let mut rows: [&[f64]; 8] = [&[]; 8];
-                let mut it = bufs.iter_mut();
-                for (j, a) in acc.iter().enumerate() {
-                    let b = it.next().unwrap();
-                    // SAFETY: idx is within the broadcast shape, so every
-                    // offset is inside the operand's borrowed view.
-                    rows[j] = unsafe { a.row(&idx, b) };
-                }
-                kernel(&rows[..acc.len()], orow)
-            };
-            if let Err(f) = res {
-                let (flat, own) = acc[f.arg].own_row(&idx);
-                let key = (f.arg, flat);
-                if local.as_ref().map_or(true, |l| key < (l.0, l.1)) {
-                    local = Some((f.arg, flat, f, own));
-                }
-            }
-            advance(&mut idx, &lay.lead);
-        }
-        if let Some(l) = local {
+    let merge = |l: Option<FaultAt>| {
+        if let Some(l) = l {
             let mut g = first_fault.lock().unwrap_or_else(|e| e.into_inner());
             if g.as_ref().map_or(true, |x| (l.0, l.1) < (x.0, x.1)) {
                 *g = Some(l);
             }
         }
     };
+    let (acc_r, lead_r, kern_r) = (&acc[..], &lay.lead[..], &kernel);
 
     assert!(ops.len() <= 8, "at most 8 operands");
     if n > 0 && out_len > 0 {
         let rows_per = chunk_rows(n, work_per_row.max(1) * lay.d.max(1));
+        let fast = crate::simd::has_fma();
+        let run = |start: usize, block: &mut [f64]| {
+            merge(crate::simd::dispatch(fast, || {
+                run_chunk(acc_r, lead_r, out_len, kern_r, start, block)
+            }))
+        };
         if n <= rows_per {
-            run_chunk(0, &mut out);
+            run(0, &mut out);
         } else {
             out.par_chunks_mut(rows_per * out_len)
                 .enumerate()
-                .for_each(|(c, block)| run_chunk(c * rows_per, block));
+                .for_each(|(c, block)| run(c * rows_per, block));
         }
     }
     if let Some((_, _, f, own)) = first_fault.into_inner().unwrap_or_else(|e| e.into_inner()) {

@@ -50,7 +50,7 @@ impl Fault {
             Fault::NonFinite => "contains NaN or infinity".to_string(),
             Fault::OutsideBall(e) => format!(
                 "is on or outside the ball (|x|/R - 1 = {e:.3e}); points must lie strictly \
-                 inside the ball of radius R = 1/sqrt(-curvature) (project() repairs drifted points)"
+                 inside the ball of radius R = 1/sqrt(-curvature)"
             ),
             Fault::AtOrAboveLight(e) => {
                 format!("has speed at or above c (|v|/c - 1 = {e:.3e})")

@@ -20,15 +20,13 @@ use crate::poincare::{self, gap_of, with_scratch};
 /// `(a s + kappa (u.s)/(1 + a) u) / ((g_u + g_v)/2 + kappa |s|^2/2)`;
 /// `u.s` is summed with `s` formed error-free. Returns the gap of the
 /// result, `g_u g_v / (1 + kappa u.v)^2`.
-#[inline]
+#[inline(always)]
 pub fn add_g(c: &Curvature, u: &[f64], gu: f64, v: &[f64], gv: f64, sv: f64, out: &mut [f64]) -> f64 {
     let k = c.kappa;
-    let mut ss = 0.0;
     for i in 0..u.len() {
-        let s = u[i] + sv * v[i];
-        out[i] = s;
-        ss += s * s;
+        out[i] = u[i] + sv * v[i];
     }
+    let ss = sumsq(out);
     let us = dot_with_sum(u, v, sv);
     let a = gu.sqrt();
     let den = 0.5 * (gu + gv) + 0.5 * k * ss;
@@ -51,7 +49,7 @@ pub fn sub(c: &Curvature, u: &[f64], v: &[f64], out: &mut [f64]) {
 }
 
 /// Einstein scalar multiplication; the same radial law as Möbius.
-#[inline]
+#[inline(always)]
 pub fn scale_g(c: &Curvature, r: f64, x: &[f64], gx: f64, out: &mut [f64]) {
     poincare::scale_g(c, r, x, gx, out)
 }
@@ -66,7 +64,7 @@ pub fn scale(c: &Curvature, r: f64, x: &[f64], out: &mut [f64]) {
 /// sqrt(g_k)`). Their sum is formed from `u + v` without cancellation:
 /// `p_u + p_v = ((1 + a_v) s - kappa (|u|^2 - |v|^2)/(a_u + a_v) v) /
 /// ((1 + a_u)(1 + a_v))`.
-#[inline]
+#[inline(always)]
 pub fn gyration_g(c: &Curvature, u: &[f64], gu: f64, v: &[f64], gv: f64, w: &[f64], out: &mut [f64]) {
     let n = u.len();
     let k = c.kappa;
@@ -98,7 +96,7 @@ pub fn gyration(c: &Curvature, u: &[f64], v: &[f64], w: &[f64], out: &mut [f64])
 /// rewritten through `s = a + b` and `sqrt(g_b) - sqrt(g_a) = kappa (|a|^2 -
 /// |b|^2)/(sqrt(g_a) + sqrt(g_b))` so that nearly opposite points near the
 /// boundary keep their digits.
-#[inline]
+#[inline(always)]
 pub fn midpoint_g(c: &Curvature, a: &[f64], ga: f64, b: &[f64], gb: f64, out: &mut [f64]) {
     let k = c.kappa;
     let ra = ga.sqrt();
@@ -118,7 +116,7 @@ pub fn midpoint(c: &Curvature, a: &[f64], b: &[f64], out: &mut [f64]) {
 }
 
 /// `|u|/R` for a Klein point, for callers that need the rapidity.
-#[inline]
+#[inline(always)]
 pub fn speed_ratio(c: &Curvature, u: &[f64]) -> f64 {
     (c.kappa * sumsq(u)).sqrt()
 }
@@ -131,7 +129,7 @@ fn point_out(d: usize) -> Vec<usize> {
 
 fn add_like<'a>(c: Curvature, x: Data<'a>, y: Data<'a>, sy: f64) -> Result<Output> {
     let ops = [Operand::point("x", x), Operand::point("y", y)];
-    map_rows(&ops, &point_out, 16, |r, out| {
+    map_rows(&ops, &point_out, 16, #[inline(always)] |r, out| {
         let gx = gap_of!(&c, r[0], 0);
         let gy = gap_of!(&c, r[1], 1);
         add_g(&c, r[0], gx, r[1], gy, sy, out);
@@ -152,7 +150,7 @@ pub fn sub_arrays<'a>(c: Curvature, x: Data<'a>, y: Data<'a>) -> Result<Output> 
 /// Batched Einstein scalar multiplication `r ⊗ x`.
 pub fn scale_arrays<'a>(c: Curvature, r: Data<'a>, x: Data<'a>) -> Result<Output> {
     let ops = [Operand::scalar("r", r), Operand::point("x", x)];
-    map_rows(&ops, &point_out, 12, |rows, out| {
+    map_rows(&ops, &point_out, 12, #[inline(always)] |rows, out| {
         let r = finite_scalar(0, rows[0][0])?;
         let gx = gap_of!(&c, rows[1], 1);
         scale_g(&c, r, rows[1], gx, out);
@@ -163,7 +161,7 @@ pub fn scale_arrays<'a>(c: Curvature, r: Data<'a>, x: Data<'a>) -> Result<Output
 /// Batched Einstein gyration `gyr[a, b] v`.
 pub fn gyration_arrays<'a>(c: Curvature, a: Data<'a>, b: Data<'a>, v: Data<'a>) -> Result<Output> {
     let ops = [Operand::point("a", a), Operand::point("b", b), Operand::point("v", v)];
-    map_rows(&ops, &point_out, 40, |r, out| {
+    map_rows(&ops, &point_out, 40, #[inline(always)] |r, out| {
         let ga = gap_of!(&c, r[0], 0);
         let gb = gap_of!(&c, r[1], 1);
         check_finite(r[2]).map_err(|f| RowFault::new(2, f))?;
@@ -175,7 +173,7 @@ pub fn gyration_arrays<'a>(c: Curvature, a: Data<'a>, b: Data<'a>, v: Data<'a>) 
 /// Batched Einstein midpoint of `x` and `y`.
 pub fn midpoint_arrays<'a>(c: Curvature, x: Data<'a>, y: Data<'a>) -> Result<Output> {
     let ops = [Operand::point("x", x), Operand::point("y", y)];
-    map_rows(&ops, &point_out, 20, |r, out| {
+    map_rows(&ops, &point_out, 20, #[inline(always)] |r, out| {
         let gx = gap_of!(&c, r[0], 0);
         let gy = gap_of!(&c, r[1], 1);
         midpoint_g(&c, r[0], gx, r[1], gy, out);

@@ -9,6 +9,7 @@ pub mod error;
 pub mod klein;
 pub mod numeric;
 pub mod poincare;
+pub mod simd;
 
 pub use ball::Curvature;
 pub use error::{Error, Result};

@@ -67,58 +67,105 @@ impl DD {
     }
 }
 
-/// `sum x_i^2` in double-double.
-#[inline]
-pub fn sumsq_dd(x: &[f64]) -> DD {
-    let mut hi = 0.0;
-    let mut lo = 0.0;
-    for &v in x {
-        let (p, pe) = two_prod(v, v);
-        let (s, se) = two_sum(hi, p);
-        hi = s;
-        lo += pe + se;
-    }
-    DD::new(hi, lo)
+/// Four independent double-double accumulators, so that the error-free
+/// sums run in parallel lanes (a single chain is latency-bound at ~12 cycles
+/// per term). The lanes are combined in a fixed order: results depend only
+/// on the inputs, never on threads or CPU features.
+#[derive(Clone, Copy, Default)]
+struct Lanes {
+    hi: [f64; 4],
+    lo: [f64; 4],
 }
 
-/// `sum x_i y_i` in double-double (the Ogita–Rump–Oishi Dot2 algorithm
-/// without the final rounding).
-#[inline]
-pub fn dot_dd(x: &[f64], y: &[f64]) -> DD {
-    let mut hi = 0.0;
-    let mut lo = 0.0;
-    for (&a, &b) in x.iter().zip(y) {
-        let (p, pe) = two_prod(a, b);
-        let (s, se) = two_sum(hi, p);
-        hi = s;
-        lo += pe + se;
+impl Lanes {
+    #[inline(always)]
+    fn add_products(&mut self, a: &[f64; 4], b: &[f64; 4]) {
+        for l in 0..4 {
+            let (p, pe) = two_prod(a[l], b[l]);
+            let (s, se) = two_sum(self.hi[l], p);
+            self.hi[l] = s;
+            self.lo[l] += pe + se;
+        }
     }
-    DD::new(hi, lo)
+    #[inline(always)]
+    fn total(self) -> DD {
+        let a = DD::new(self.hi[0], self.lo[0]).add(DD::new(self.hi[1], self.lo[1]));
+        let b = DD::new(self.hi[2], self.lo[2]).add(DD::new(self.hi[3], self.lo[3]));
+        a.add(b)
+    }
+}
+
+#[inline(always)]
+fn dot_lanes(x: &[f64], y: &[f64]) -> DD {
+    let n = x.len().min(y.len());
+    let (x, y) = (&x[..n], &y[..n]);
+    let mut acc = Lanes::default();
+    let mut xc = x.chunks_exact(4);
+    let mut yc = y.chunks_exact(4);
+    for (a, b) in (&mut xc).zip(&mut yc) {
+        let a: [f64; 4] = [a[0], a[1], a[2], a[3]];
+        let b: [f64; 4] = [b[0], b[1], b[2], b[3]];
+        acc.add_products(&a, &b);
+    }
+    let (xr, yr) = (xc.remainder(), yc.remainder());
+    if !xr.is_empty() {
+        let mut a = [0.0; 4];
+        let mut b = [0.0; 4];
+        a[..xr.len()].copy_from_slice(xr);
+        b[..yr.len()].copy_from_slice(yr);
+        acc.add_products(&a, &b);
+    }
+    acc.total()
+}
+
+/// `sum x_i^2` in double-double.
+#[inline(always)]
+pub fn sumsq_dd(x: &[f64]) -> DD {
+    dot_lanes(x, x)
+}
+
+/// `sum x_i y_i` in double-double (the Ogita–Rump–Oishi Dot2 algorithm,
+/// in four lanes, without the final rounding).
+#[inline(always)]
+pub fn dot_dd(x: &[f64], y: &[f64]) -> DD {
+    dot_lanes(x, y)
 }
 
 /// `sum x_i y_i` as accurate as if computed in twice the working precision,
 /// then rounded (Dot2).
-#[inline]
+#[inline(always)]
 pub fn dot2(x: &[f64], y: &[f64]) -> f64 {
     dot_dd(x, y).value()
 }
 
-/// Plain sum of squares (for quantities whose relative accuracy suffices).
-#[inline]
+/// Plain sum of squares, for quantities whose relative accuracy suffices
+/// (all terms are positive). Four lanes, fixed combination order, so the
+/// compiler can vectorise it and the result never depends on the CPU path.
+#[inline(always)]
 pub fn sumsq(x: &[f64]) -> f64 {
-    x.iter().map(|v| v * v).sum()
+    let mut acc = [0.0f64; 4];
+    let mut c = x.chunks_exact(4);
+    for q in &mut c {
+        for l in 0..4 {
+            acc[l] += q[l] * q[l];
+        }
+    }
+    for (l, v) in c.remainder().iter().enumerate() {
+        acc[l] += v * v;
+    }
+    (acc[0] + acc[1]) + (acc[2] + acc[3])
 }
 
 /// The gap `1 - kappa |x|^2` in double-double. The sum of squares is
 /// compensated: a plain float64 sum is ~10% wrong at 1 - |x|/R = 1e-15.
-#[inline]
+#[inline(always)]
 pub fn gap_dd(kappa: f64, x: &[f64]) -> DD {
     let q = sumsq_dd(x).mul_f64(kappa);
     DD::from(1.0).sub(q)
 }
 
 /// The gap `1 - kappa |x|^2`, correctly computed then rounded once.
-#[inline]
+#[inline(always)]
 pub fn gap(kappa: f64, x: &[f64]) -> f64 {
     gap_dd(kappa, x).value()
 }
@@ -126,7 +173,7 @@ pub fn gap(kappa: f64, x: &[f64]) -> f64 {
 /// `sum (x_i + sy y_i)(x_i - sy y_i) = |x|^2 - |y|^2`, exact to double-double
 /// accuracy however close `x` is to `-sy y` (both factors are formed
 /// error-free). `sy` is +1 or -1.
-#[inline]
+#[inline(always)]
 pub fn diff_of_squares(x: &[f64], y: &[f64], sy: f64) -> f64 {
     let mut acc = DD::default();
     for (&a, &b) in x.iter().zip(y) {
@@ -138,7 +185,7 @@ pub fn diff_of_squares(x: &[f64], y: &[f64], sy: f64) -> f64 {
 }
 
 /// `x . (x + sy y)` with the sum formed error-free, then a compensated dot.
-#[inline]
+#[inline(always)]
 pub fn dot_with_sum(x: &[f64], y: &[f64], sy: f64) -> f64 {
     let mut acc = DD::default();
     for (&a, &b) in x.iter().zip(y) {
@@ -151,7 +198,7 @@ pub fn dot_with_sum(x: &[f64], y: &[f64], sy: f64) -> f64 {
 /// `artanh(t)` for `t = sqrt(kappa)|x|` given its gap `g = 1 - t^2`, without
 /// forming `1 - t` (which has no digits left near the boundary):
 /// `artanh t = log1p(2 t (1 + t) / g) / 2`.
-#[inline]
+#[inline(always)]
 pub fn artanh_from_gap(t: f64, g: f64) -> f64 {
     0.5 * (2.0 * t * (1.0 + t) / g).ln_1p()
 }
@@ -159,7 +206,7 @@ pub fn artanh_from_gap(t: f64, g: f64) -> f64 {
 /// The factor `f` with `r ⊗ x = f x` (Möbius and Einstein scalar
 /// multiplication share it): `f = tanh(r artanh t) / t`, `t = sqrt(kappa)|x|`.
 /// `g` is the gap of `x`.
-#[inline]
+#[inline(always)]
 pub fn radial_scale_factor(r: f64, t: f64, g: f64) -> f64 {
     if t == 0.0 {
         // The limit t -> 0 of tanh(r artanh t)/t.

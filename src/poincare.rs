@@ -20,20 +20,18 @@ use crate::numeric::{diff_of_squares, dot2, gap, radial_scale_factor, sumsq};
 /// |x|^2 |y|^2` and the numerator `g_x s + kappa |s|^2 x` equals the
 /// textbook `(1 + 2 kappa x.y + kappa |y|^2) x + g_x y`; both are sums of
 /// terms without cancellation when `x ≈ -y`.
-#[inline]
+#[inline(always)]
 pub fn add_g(c: &Curvature, x: &[f64], gx: f64, y: &[f64], gy: f64, sy: f64, out: &mut [f64]) -> f64 {
     let k = c.kappa;
-    let mut ss = 0.0;
-    for i in 0..x.len() {
-        let s = x[i] + sy * y[i];
-        out[i] = s;
-        ss += s * s;
+    for ((o, &a), &b) in out.iter_mut().zip(x).zip(y) {
+        *o = a + sy * b;
     }
+    let ss = sumsq(out);
     let den = gx * gy + k * ss;
     let a = gx / den;
     let b = k * ss / den;
-    for i in 0..x.len() {
-        out[i] = a * out[i] + b * x[i];
+    for (o, &xi) in out.iter_mut().zip(x) {
+        *o = a * *o + b * xi;
     }
     gx * gy / den
 }
@@ -53,7 +51,7 @@ pub fn sub(c: &Curvature, x: &[f64], y: &[f64], out: &mut [f64]) {
 /// `kappa (|x|^2 - |y|^2) x + g_x s` with `|x|^2 - |y|^2 = (x - y).(x + y)`
 /// formed error-free: when both points are near the boundary the
 /// denominator is tiny and the numerator must carry all its digits.
-#[inline]
+#[inline(always)]
 pub fn coadd_g(c: &Curvature, x: &[f64], gx: f64, y: &[f64], gy: f64, out: &mut [f64]) {
     let k = c.kappa;
     let ds = diff_of_squares(x, y, 1.0);
@@ -74,7 +72,7 @@ pub fn coadd(c: &Curvature, x: &[f64], y: &[f64], out: &mut [f64]) {
 /// with `artanh` taken from the gap (no `1 - |x|/R`). Returns the gap of the
 /// result. Results farther than about 18.4 R from the origin round onto the
 /// sphere in float64 (1 - |r ⊗ x|/R < 1.1e-16 is not representable).
-#[inline]
+#[inline(always)]
 pub fn scale_g(c: &Curvature, r: f64, x: &[f64], gx: f64, out: &mut [f64]) {
     let t = (c.kappa * sumsq(x)).sqrt();
     let f = radial_scale_factor(r, t, gx);
@@ -95,7 +93,7 @@ pub fn scale(c: &Curvature, r: f64, x: &[f64], out: &mut [f64]) {
 /// `A - B = kappa g_v (s.w) + kappa^2 |s|^2 (v.w)`,
 /// `B = kappa g_u (v.w) - kappa (s.w)`, `D = g_u g_v + kappa |s|^2`,
 /// which keeps its digits when `v ≈ -u` near the boundary.
-#[inline]
+#[inline(always)]
 pub fn gyration_s(
     c: &Curvature,
     u: &[f64],
@@ -119,7 +117,7 @@ pub fn gyration_s(
 }
 
 /// `gyr[u, v] w` for points `u`, `v` with gaps `gu`, `gv`.
-#[inline]
+#[inline(always)]
 pub fn gyration_g(c: &Curvature, u: &[f64], gu: f64, v: &[f64], gv: f64, w: &[f64], out: &mut [f64]) {
     with_scratch(u.len(), |s| {
         for i in 0..u.len() {
@@ -140,15 +138,17 @@ pub fn gyration(c: &Curvature, u: &[f64], v: &[f64], w: &[f64], out: &mut [f64])
 /// `E = g_a + g_b - g_a g_b`. The square root is the exact gap of `a ⊞ b`
 /// times `E` (from `1 + cosh d(a, b)`), so no gap is recomputed from rounded
 /// coordinates.
-#[inline]
+#[inline(always)]
 pub fn midpoint_g(c: &Curvature, a: &[f64], ga: f64, b: &[f64], gb: f64, out: &mut [f64]) {
     let k = c.kappa;
     let ds = diff_of_squares(a, b, 1.0);
     let mut dab = 0.0;
-    for i in 0..a.len() {
-        let t = a[i] - b[i];
-        dab += t * t;
-    }
+    with_scratch(a.len(), |t| {
+        for i in 0..a.len() {
+            t[i] = a[i] - b[i];
+        }
+        dab = sumsq(t);
+    });
     let p = ga * gb;
     let e = ga + gb - p;
     let den = e + (p * (p + k * dab)).sqrt();
@@ -166,7 +166,7 @@ pub fn midpoint(c: &Curvature, a: &[f64], b: &[f64], out: &mut [f64]) {
 
 /// Runs `f` with a zeroed scratch buffer of length `n` (on the stack when
 /// small).
-#[inline]
+#[inline(always)]
 pub(crate) fn with_scratch<R>(n: usize, f: impl FnOnce(&mut [f64]) -> R) -> R {
     if n <= 32 {
         let mut buf = [0f64; 32];
@@ -202,7 +202,7 @@ pub fn sub_arrays<'a>(c: Curvature, x: Data<'a>, y: Data<'a>) -> Result<Output> 
 
 fn add_like<'a>(c: Curvature, x: Data<'a>, y: Data<'a>, sy: f64) -> Result<Output> {
     let ops = [Operand::point("x", x), Operand::point("y", y)];
-    map_rows(&ops, &point_out, 12, |r, out| {
+    map_rows(&ops, &point_out, 12, #[inline(always)] |r, out| {
         let gx = gap_of!(&c, r[0], 0);
         let gy = gap_of!(&c, r[1], 1);
         add_g(&c, r[0], gx, r[1], gy, sy, out);
@@ -213,7 +213,7 @@ fn add_like<'a>(c: Curvature, x: Data<'a>, y: Data<'a>, sy: f64) -> Result<Outpu
 /// Batched `x ⊞ y`.
 pub fn coadd_arrays<'a>(c: Curvature, x: Data<'a>, y: Data<'a>) -> Result<Output> {
     let ops = [Operand::point("x", x), Operand::point("y", y)];
-    map_rows(&ops, &point_out, 30, |r, out| {
+    map_rows(&ops, &point_out, 30, #[inline(always)] |r, out| {
         let gx = gap_of!(&c, r[0], 0);
         let gy = gap_of!(&c, r[1], 1);
         coadd_g(&c, r[0], gx, r[1], gy, out);
@@ -224,7 +224,7 @@ pub fn coadd_arrays<'a>(c: Curvature, x: Data<'a>, y: Data<'a>) -> Result<Output
 /// Batched `r ⊗ x`; `r` broadcasts against the leading axes of `x`.
 pub fn scale_arrays<'a>(c: Curvature, r: Data<'a>, x: Data<'a>) -> Result<Output> {
     let ops = [Operand::scalar("r", r), Operand::point("x", x)];
-    map_rows(&ops, &point_out, 12, |rows, out| {
+    map_rows(&ops, &point_out, 12, #[inline(always)] |rows, out| {
         let r = finite_scalar(0, rows[0][0])?;
         let gx = gap_of!(&c, rows[1], 1);
         scale_g(&c, r, rows[1], gx, out);
@@ -235,7 +235,7 @@ pub fn scale_arrays<'a>(c: Curvature, r: Data<'a>, x: Data<'a>) -> Result<Output
 /// Batched `gyr[a, b] v`; `v` is any finite vector (gyrations are linear).
 pub fn gyration_arrays<'a>(c: Curvature, a: Data<'a>, b: Data<'a>, v: Data<'a>) -> Result<Output> {
     let ops = [Operand::point("a", a), Operand::point("b", b), Operand::point("v", v)];
-    map_rows(&ops, &point_out, 30, |r, out| {
+    map_rows(&ops, &point_out, 30, #[inline(always)] |r, out| {
         let ga = gap_of!(&c, r[0], 0);
         let gb = gap_of!(&c, r[1], 1);
         check_finite(r[2]).map_err(|f| RowFault::new(2, f))?;
@@ -247,7 +247,7 @@ pub fn gyration_arrays<'a>(c: Curvature, a: Data<'a>, b: Data<'a>, v: Data<'a>) 
 /// Batched gyromidpoint of `x` and `y`.
 pub fn midpoint_arrays<'a>(c: Curvature, x: Data<'a>, y: Data<'a>) -> Result<Output> {
     let ops = [Operand::point("x", x), Operand::point("y", y)];
-    map_rows(&ops, &point_out, 30, |r, out| {
+    map_rows(&ops, &point_out, 30, #[inline(always)] |r, out| {
         let gx = gap_of!(&c, r[0], 0);
         let gy = gap_of!(&c, r[1], 1);
         midpoint_g(&c, r[0], gx, r[1], gy, out);
