@@ -104,16 +104,55 @@ pub fn gyration_s(
     w: &[f64],
     out: &mut [f64],
 ) {
+    // The map is linear in w: work on w scaled by a power of two (exact) so
+    // that intermediate products cannot overflow for |w| near f64::MAX or
+    // lose digits to underflow for tiny w.
+    let e = scale_exponent(w);
+    let (up, down) = (pow2(-e), pow2(e));
     let k = c.kappa;
     let ss = sumsq(s);
-    let sw = dot2(s, w);
-    let vw = dot2(v, w);
-    let den = gu * gv + k * ss;
-    let cu = 2.0 * (k * gv * sw + k * k * ss * vw) / den;
-    let cs = 2.0 * (k * gu * vw - k * sw) / den;
-    for i in 0..w.len() {
-        out[i] = w[i] + (cu * u[i] + cs * s[i]);
+    let mut sw = 0.0;
+    let mut vw = 0.0;
+    with_scratch(w.len(), |ws| {
+        for (o, &x) in ws.iter_mut().zip(w) {
+            *o = x * up;
+        }
+        sw = dot2(s, ws);
+        vw = dot2(v, ws);
+        let den = gu * gv + k * ss;
+        let cu = 2.0 * (k * gv * sw + k * k * ss * vw) / den;
+        let cs = 2.0 * (k * gu * vw - k * sw) / den;
+        for i in 0..w.len() {
+            out[i] = (ws[i] + (cu * u[i] + cs * s[i])) * down;
+        }
+    });
+}
+
+/// The exponent `e` with `max |w_i| / 2^e` in [0.5, 1) when `w` is very
+/// large or very small, else 0 (no scaling for ordinary vectors).
+#[inline(always)]
+pub(crate) fn scale_exponent(w: &[f64]) -> i32 {
+    let m = w.iter().fold(0.0f64, |a, &b| a.max(b.abs()));
+    if (1e-150..=1e150).contains(&m) || m == 0.0 {
+        0
+    } else {
+        // frexp: m = f 2^e with f in [0.5, 1).
+        let bits = m.to_bits();
+        let raw = ((bits >> 52) & 0x7ff) as i32;
+        if raw == 0 {
+            // subnormal
+            -1021 - (m.to_bits().leading_zeros() as i32 - 12)
+        } else {
+            raw - 1022
+        }
     }
+}
+
+/// `2^e` exactly, for |e| <= 1022.
+#[inline(always)]
+pub(crate) fn pow2(e: i32) -> f64 {
+    let e = e.clamp(-1022, 1023);
+    f64::from_bits(((e + 1023) as u64) << 52)
 }
 
 /// `gyr[u, v] w` for points `u`, `v` with gaps `gu`, `gv`.

@@ -6,7 +6,7 @@ use numpy::{PyArrayDyn, PyArrayMethods, PyReadonlyArrayDyn};
 use pyo3::exceptions::PyTypeError;
 use pyo3::prelude::*;
 use pyo3::sync::PyOnceLock;
-use pyo3::types::{PyBool, PyFloat, PyInt};
+use pyo3::types::{PyFloat, PyInt};
 
 use crate::batch::Data;
 use crate::error::Error;
@@ -49,17 +49,25 @@ pub fn coerce<'py>(py: Python<'py>, name: &str, ob: &Bound<'py, PyAny>) -> PyRes
     if let Ok(a) = ob.cast::<PyArrayDyn<f32>>() {
         return Ok(Arg { held: Held::F32(a.try_readonly()?), weak: false });
     }
-    let weak = (ob.is_instance_of::<PyFloat>() || ob.is_instance_of::<PyInt>())
-        && !ob.is_instance_of::<PyBool>();
+    // Only exact Python floats and ints are weak: NumPy scalars such as
+    // np.float64(2.0) (a float subclass) keep their dtype, as in NEP 50.
+    let weak = ob.is_exact_instance_of::<PyFloat>() || ob.is_exact_instance_of::<PyInt>();
     let arr = asarray(py)?.call1((ob,)).map_err(|e| {
         PyTypeError::new_err(format!("{name} must be an array of real numbers: {e}"))
     })?;
     let dtype = arr.getattr("dtype")?;
     let kind: String = dtype.getattr("kind")?.extract()?;
     let itemsize: usize = dtype.getattr("itemsize")?.extract()?;
+    let native: bool = dtype.getattr("isnative")?.extract()?;
     let target = match (kind.as_str(), itemsize) {
-        ("f", 8) => None,
+        ("f", 8) if native => None,
+        ("f", 4) if native => {
+            let a = arr.cast::<PyArrayDyn<f32>>()?;
+            return Ok(Arg { held: Held::F32(a.try_readonly()?), weak });
+        }
         ("f", 4) => {
+            // Non-native byte order: swap into a native float32 copy.
+            let arr = arr.call_method1("astype", ("=f4",))?;
             let a = arr.cast::<PyArrayDyn<f32>>()?;
             return Ok(Arg { held: Held::F32(a.try_readonly()?), weak });
         }
