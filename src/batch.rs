@@ -362,6 +362,21 @@ pub fn map_rows<K>(
 where
     K: Fn(&[&[f64]], &mut [f64]) -> std::result::Result<(), RowFault> + Sync,
 {
+    map_rows_with(ops, out_core, work_per_row, false, kernel)
+}
+
+/// [`map_rows`] with `force_f64` set when an input that is not a broadcast
+/// operand (a matrix, say) is float64, so the result must be float64 too.
+pub fn map_rows_with<K>(
+    ops: &[Operand],
+    out_core: &dyn Fn(usize) -> Vec<usize>,
+    work_per_row: usize,
+    force_f64: bool,
+    kernel: K,
+) -> Result<Output>
+where
+    K: Fn(&[&[f64]], &mut [f64]) -> std::result::Result<(), RowFault> + Sync,
+{
     let lay = layout(ops)?;
     let nd = lay.lead.len();
     let n: usize = lay.lead.iter().product();
@@ -369,7 +384,7 @@ where
     let out_len: usize = oc.iter().product();
     let mut shape = lay.lead.clone();
     shape.extend_from_slice(&oc);
-    let f32_out = wants_f32(ops);
+    let f32_out = wants_f32(ops) && !force_f64;
     let acc: Vec<Access> = ops.iter().map(|o| Access::new(o, nd, lay.d)).collect();
     let mut out = vec![0f64; n * out_len];
     let first_fault: Mutex<Option<FaultAt>> = Mutex::new(None);

@@ -42,6 +42,11 @@ pub enum Fault {
     OffHyperboloid(f64),
     /// A half-space point with last coordinate <= 0.
     NotInHalfSpace,
+    /// The result of a valid input overflows float64.
+    Overflow,
+    /// The converted point is too close to the sphere for float64 in the
+    /// target ball model (it rounds onto the sphere).
+    Unrepresentable(&'static str),
 }
 
 impl Fault {
@@ -55,9 +60,18 @@ impl Fault {
             Fault::AtOrAboveLight(e) => {
                 format!("has speed at or above c (|v|/c - 1 = {e:.3e})")
             }
+            Fault::OffHyperboloid(e) if e.is_nan() => {
+                "has x0 <= 0 (not on the upper sheet of the hyperboloid)".to_string()
+            }
             Fault::OffHyperboloid(e) => format!(
-                "is not on the upper sheet of the hyperboloid (relative defect {e:.3e}); \
-                 project() repairs drifted points"
+                "is off the hyperboloid <x,x> = 1/K: x0 differs from sqrt(1/-K + |x_1..d|^2) \
+                 by {e:.3e} relative (tolerance 1e-6); hyperboloid.project() repairs drifted points"
+            ),
+            Fault::Overflow => "gives a result that overflows float64".to_string(),
+            Fault::Unrepresentable(m) => format!(
+                "cannot be represented in the {m} model in float64: its image lies within \
+                 1.1e-16 R of the sphere and rounds onto it (the Klein ball holds points up to \
+                 about 18 R from the origin, the Poincaré ball up to about 37 R)"
             ),
             Fault::NotInHalfSpace => {
                 "has last coordinate <= 0 (outside the upper half-space)".to_string()

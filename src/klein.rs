@@ -11,7 +11,10 @@
 use crate::ball::{check_finite, checked_gap, Curvature};
 use crate::batch::{finite_scalar, map_rows, Data, Operand, Output};
 use crate::error::{Result, RowFault};
-use crate::numeric::{diff_of_squares, dot_with_sum, gap, sumsq};
+use crate::numeric::{
+    artanh_from_gap, diff_of_squares, dist_sq, distance_from_half_delta, dot2, dot_with_sum, gap, sech2,
+    sumsq,
+};
 use crate::poincare::{self, gap_of, with_scratch};
 
 /// Einstein addition `u ⊕ (sv v)` (`sv = -1` gives `u ⊖ v`):
@@ -121,6 +124,120 @@ pub fn speed_ratio(c: &Curvature, u: &[f64]) -> f64 {
     (c.kappa * sumsq(u)).sqrt()
 }
 
+// ------------------------------------------------------- model layer
+
+/// Hyperbolic distance in the Klein ball. From `cosh(d/R) = (1 - kappa k.l)
+/// / sqrt(g_k g_l)` and `1 - kappa k.l = (g_k + g_l)/2 + kappa |k - l|^2/2`:
+/// `delta sqrt(g_k g_l) = ((sqrt g_k - sqrt g_l)^2 + kappa |k - l|^2)/2`, a
+/// sum of squares, with `sqrt g_l - sqrt g_k = kappa (|k|^2 - |l|^2) /
+/// (sqrt g_k + sqrt g_l)` formed error-free.
+#[inline(always)]
+pub fn distance_g(c: &Curvature, k: &[f64], gk: f64, l: &[f64], gl: f64) -> f64 {
+    let (ra, rb) = (gk.sqrt(), gl.sqrt());
+    let dg = c.kappa * diff_of_squares(k, l, 1.0) / (ra + rb);
+    let half_delta = (dg * dg + c.kappa * dist_sq(k, l)) / (4.0 * ra * rb);
+    distance_from_half_delta(c.radius, half_delta)
+}
+
+/// Hyperbolic distance between two Klein points.
+pub fn distance(c: &Curvature, k: &[f64], l: &[f64]) -> f64 {
+    distance_g(c, k, gap(c.kappa, k), l, gap(c.kappa, l))
+}
+
+/// The differential at the origin of the
+/// left translation `z -> x ⊕ z` (from the Einstein addition formula):
+/// `J_x w = a w - kappa (x.w) a/(1 + a) x` with `a = sqrt(g_x) = 1/γ_x`.
+#[inline(always)]
+fn jacobian(c: &Curvature, x: &[f64], gx: f64, w: &[f64], out: &mut [f64]) {
+    let a = gx.sqrt();
+    let f = c.kappa * dot2(x, w) * a / (1.0 + a);
+    for i in 0..x.len() {
+        out[i] = a * w[i] - f * x[i];
+    }
+}
+
+/// The inverse of [`jacobian`]: `J_x^{-1} v = v/a + kappa (x.v)/(a^2 (1 + a)) x`.
+#[inline(always)]
+fn jacobian_inv(c: &Curvature, x: &[f64], gx: f64, v: &[f64], out: &mut [f64]) {
+    let a = gx.sqrt();
+    let f = c.kappa * dot2(x, v) / (gx * (1.0 + a));
+    for i in 0..x.len() {
+        out[i] = v[i] / a + f * x[i];
+    }
+}
+
+/// `exp_x(v) = x ⊕ exp_0(J_x^{-1} v)`, `exp_0(w) = R tanh(|w|/R) w/|w|`
+/// (the Klein metric is Euclidean at the origin); the gap of `exp_0(w)`,
+/// `sech^2(|w|/R)`, is carried into the addition.
+#[inline(always)]
+pub fn exp_map_g(c: &Curvature, x: &[f64], gx: f64, v: &[f64], out: &mut [f64]) {
+    with_scratch(x.len(), |w| {
+        jacobian_inv(c, x, gx, v, w);
+        let n = sumsq(w).sqrt();
+        if n == 0.0 {
+            out.copy_from_slice(x);
+            return;
+        }
+        let b = c.sqrt_kappa * n;
+        let f = b.tanh() / b;
+        w.iter_mut().for_each(|o| *o *= f);
+        add_g(c, x, gx, w, sech2(b), 1.0, out);
+    })
+}
+
+/// `log_x(y) = J_x(R artanh(|u|/R) u/|u|)`, `u = ⊖x ⊕ y`, with `artanh`
+/// from the exact gap of `u`.
+#[inline(always)]
+pub fn log_map_g(c: &Curvature, x: &[f64], gx: f64, y: &[f64], gy: f64, out: &mut [f64]) {
+    with_scratch(x.len(), |w| {
+        // ⊖x ⊕ y = -(x ⊖ y): Einstein addition is odd.
+        let gu = add_g(c, x, gx, y, gy, -1.0, w);
+        let t = c.sqrt_kappa * sumsq(w).sqrt();
+        if t == 0.0 {
+            out.iter_mut().for_each(|o| *o = 0.0);
+            return;
+        }
+        let f = -artanh_from_gap(t, gu) / t;
+        w.iter_mut().for_each(|o| *o *= f);
+        jacobian(c, x, gx, w, out);
+    })
+}
+
+/// Parallel transport from `x` to `y`: `J_y gyr[y, ⊖x] J_x^{-1} v` (left
+/// translation to the origin, the gyration, translation out).
+#[inline(always)]
+pub fn transport_g(c: &Curvature, x: &[f64], gx: f64, y: &[f64], gy: f64, v: &[f64], out: &mut [f64]) {
+    let n = x.len();
+    with_scratch(3 * n, |buf| {
+        let (w, rest) = buf.split_at_mut(n);
+        let (nx, r) = rest.split_at_mut(n);
+        jacobian_inv(c, x, gx, v, w);
+        for i in 0..n {
+            nx[i] = -x[i];
+        }
+        gyration_g(c, y, gy, nx, gx, w, r);
+        jacobian(c, y, gy, r, out);
+    })
+}
+
+/// The point at fraction `t` of the geodesic (a straight chord) from `x` to
+/// `y`: `x ⊕ (t ⊗ (⊖x ⊕ y))`, gaps carried.
+#[inline(always)]
+pub fn geodesic_g(c: &Curvature, x: &[f64], gx: f64, y: &[f64], gy: f64, t: f64, out: &mut [f64]) {
+    with_scratch(x.len(), |w| {
+        let gu = add_g(c, x, gx, y, gy, -1.0, w); // w = -u
+        let tu = c.sqrt_kappa * sumsq(w).sqrt();
+        if tu == 0.0 {
+            out.copy_from_slice(x);
+            return;
+        }
+        let b = t * artanh_from_gap(tu, gu);
+        let f = -b.tanh() / tu;
+        w.iter_mut().for_each(|o| *o *= f);
+        add_g(c, x, gx, w, sech2(b), 1.0, out);
+    })
+}
+
 // ---------------------------------------------------------------- batched
 
 fn point_out(d: usize) -> Vec<usize> {
@@ -179,4 +296,95 @@ pub fn midpoint_arrays<'a>(c: Curvature, x: Data<'a>, y: Data<'a>) -> Result<Out
         midpoint_g(&c, r[0], gx, r[1], gy, out);
         Ok(())
     })
+}
+
+fn no_core(_: usize) -> Vec<usize> {
+    Vec::new()
+}
+
+/// Batched Klein distance `(..., d), (..., d) -> (...)`.
+pub fn distance_arrays<'a>(c: Curvature, x: Data<'a>, y: Data<'a>) -> Result<Output> {
+    let ops = [Operand::point("x", x), Operand::point("y", y)];
+    map_rows(&ops, &no_core, 16, #[inline(always)] |r, out| {
+        let gx = gap_of!(&c, r[0], 0);
+        let gy = gap_of!(&c, r[1], 1);
+        out[0] = distance_g(&c, r[0], gx, r[1], gy);
+        Ok(())
+    })
+}
+
+/// Batched exponential map; `base = None` is the origin.
+pub fn exp_map_arrays<'a>(c: Curvature, v: Data<'a>, base: Option<Data<'a>>) -> Result<Output> {
+    match base {
+        None => {
+            let ops = [Operand::point("v", v)];
+            map_rows(&ops, &point_out, 16, #[inline(always)] |r, out| {
+                check_finite(r[0]).map_err(|f| RowFault::new(0, f))?;
+                with_scratch(r[0].len(), |z| exp_map_g(&c, z, 1.0, r[0], out));
+                Ok(())
+            })
+        }
+        Some(b) => {
+            let ops = [Operand::point("v", v), Operand::point("base", b)];
+            map_rows(&ops, &point_out, 24, #[inline(always)] |r, out| {
+                check_finite(r[0]).map_err(|f| RowFault::new(0, f))?;
+                let gb = gap_of!(&c, r[1], 1);
+                exp_map_g(&c, r[1], gb, r[0], out);
+                Ok(())
+            })
+        }
+    }
+}
+
+/// Batched logarithmic map; `base = None` is the origin.
+pub fn log_map_arrays<'a>(c: Curvature, y: Data<'a>, base: Option<Data<'a>>) -> Result<Output> {
+    match base {
+        None => {
+            let ops = [Operand::point("y", y)];
+            map_rows(&ops, &point_out, 16, #[inline(always)] |r, out| {
+                let gy = gap_of!(&c, r[0], 0);
+                with_scratch(r[0].len(), |z| log_map_g(&c, z, 1.0, r[0], gy, out));
+                Ok(())
+            })
+        }
+        Some(b) => {
+            let ops = [Operand::point("y", y), Operand::point("base", b)];
+            map_rows(&ops, &point_out, 24, #[inline(always)] |r, out| {
+                let gy = gap_of!(&c, r[0], 0);
+                let gb = gap_of!(&c, r[1], 1);
+                log_map_g(&c, r[1], gb, r[0], gy, out);
+                Ok(())
+            })
+        }
+    }
+}
+
+/// Batched parallel transport of `v` from `start` to `end`.
+pub fn transport_arrays<'a>(c: Curvature, v: Data<'a>, start: Data<'a>, end: Data<'a>) -> Result<Output> {
+    let ops = [Operand::point("v", v), Operand::point("start", start), Operand::point("end", end)];
+    map_rows(&ops, &point_out, 60, #[inline(always)] |r, out| {
+        check_finite(r[0]).map_err(|f| RowFault::new(0, f))?;
+        let gs = gap_of!(&c, r[1], 1);
+        let ge = gap_of!(&c, r[2], 2);
+        transport_g(&c, r[1], gs, r[2], ge, r[0], out);
+        Ok(())
+    })
+}
+
+/// Batched geodesic interpolation; `t` broadcasts against the leading axes.
+pub fn geodesic_arrays<'a>(c: Curvature, x: Data<'a>, y: Data<'a>, t: Data<'a>) -> Result<Output> {
+    let ops = [Operand::point("x", x), Operand::point("y", y), Operand::scalar("t", t)];
+    map_rows(&ops, &point_out, 30, #[inline(always)] |r, out| {
+        let gx = gap_of!(&c, r[0], 0);
+        let gy = gap_of!(&c, r[1], 1);
+        let t = finite_scalar(2, r[2][0])?;
+        geodesic_g(&c, r[0], gx, r[1], gy, t, out);
+        Ok(())
+    })
+}
+
+/// Batched projection into the ball of radius `(1 - margin) R` (the same
+/// repair as in the Poincaré ball: both models share the ball).
+pub fn project_arrays<'a>(c: Curvature, x: Data<'a>, margin: f64) -> Result<Output> {
+    poincare::project_arrays(c, x, margin)
 }

@@ -6,6 +6,9 @@
 pub mod ball;
 pub mod batch;
 pub mod error;
+pub mod halfspace;
+pub mod hyperboloid;
+pub mod convert;
 pub mod klein;
 pub mod numeric;
 pub mod poincare;

@@ -156,6 +156,43 @@ pub fn sumsq(x: &[f64]) -> f64 {
     (acc[0] + acc[1]) + (acc[2] + acc[3])
 }
 
+/// `|x - y|^2` (differences formed directly from the inputs, exact for
+/// nearby points by Sterbenz's lemma), four lanes.
+#[inline(always)]
+pub fn dist_sq(x: &[f64], y: &[f64]) -> f64 {
+    let mut acc = [0.0f64; 4];
+    let mut xc = x.chunks_exact(4);
+    let mut yc = y.chunks_exact(4);
+    for (a, b) in (&mut xc).zip(&mut yc) {
+        for l in 0..4 {
+            let t = a[l] - b[l];
+            acc[l] += t * t;
+        }
+    }
+    for (l, (a, b)) in xc.remainder().iter().zip(yc.remainder()).enumerate() {
+        let t = a - b;
+        acc[l] += t * t;
+    }
+    (acc[0] + acc[1]) + (acc[2] + acc[3])
+}
+
+/// `1/cosh(a)^2`, the gap of the point at hyperbolic radius `2a` (in units of
+/// R) from the origin, without overflow for large `a`:
+/// `4 e / (1 + e)^2` with `e = exp(-2|a|)`.
+#[inline(always)]
+pub fn sech2(a: f64) -> f64 {
+    let e = (-2.0 * a.abs()).exp();
+    4.0 * e / ((1.0 + e) * (1.0 + e))
+}
+
+/// `1 + delta = cosh(d/R)`: distance from `delta/2 = sinh(d/(2R))^2` via
+/// `d = 2R asinh(sqrt(delta/2))`, with no `arccosh(1 + delta)` (which
+/// returns 0 for delta below 1e-16).
+#[inline(always)]
+pub fn distance_from_half_delta(radius: f64, half_delta: f64) -> f64 {
+    2.0 * radius * half_delta.sqrt().asinh()
+}
+
 /// The gap `1 - kappa |x|^2` in double-double. The sum of squares is
 /// compensated: a plain float64 sum is ~10% wrong at 1 - |x|/R = 1e-15.
 #[inline(always)]
@@ -193,6 +230,33 @@ pub fn dot_with_sum(x: &[f64], y: &[f64], sy: f64) -> f64 {
         acc = acc.add(DD { hi: sh, lo: sl }.mul_f64(a));
     }
     acc.value()
+}
+
+/// `|x ∧ y|^2 = |x|^2 |y|^2 - (x.y)^2`, the squared area spanned by `x` and
+/// `y`, accurate to a few ulps even for nearly parallel vectors: in
+/// double-double when the vectors are far from parallel, else as the sum of
+/// squared 2x2 minors `x_i y_j - x_j y_i`, each formed error-free.
+#[inline(always)]
+pub fn wedge_sq(x: &[f64], y: &[f64]) -> f64 {
+    let xx = sumsq_dd(x);
+    let yy = sumsq_dd(y);
+    let xy = dot_dd(x, y);
+    let w = xx.mul(yy).sub(xy.mul(xy));
+    let scale = xx.hi * yy.hi;
+    if w.hi > 1e-12 * scale {
+        return w.value();
+    }
+    let n = x.len().min(y.len());
+    let mut acc = 0.0;
+    for i in 0..n {
+        for j in (i + 1)..n {
+            let (p, pe) = two_prod(x[i], y[j]);
+            let (q, qe) = two_prod(x[j], y[i]);
+            let m = DD::new(p, pe).sub(DD::new(q, qe)).value();
+            acc += m * m;
+        }
+    }
+    acc
 }
 
 /// `artanh(t)` for `t = sqrt(kappa)|x|` given its gap `g = 1 - t^2`, without

@@ -9,9 +9,12 @@
 //! batched form over arrays.
 
 use crate::ball::{check_finite, checked_gap, Curvature};
-use crate::batch::{finite_scalar, map_rows, Data, Operand, Output};
+use crate::batch::{finite_scalar, map_rows, map_rows_with, Data, Operand, Output};
 use crate::error::{Result, RowFault};
-use crate::numeric::{diff_of_squares, dot2, gap, radial_scale_factor, sumsq};
+use crate::numeric::{
+    artanh_from_gap, diff_of_squares, dist_sq, distance_from_half_delta, dot2, gap, gap_dd,
+    radial_scale_factor, sech2, sumsq,
+};
 
 /// `x ⊕ (sy y)` (Möbius addition; `sy = -1` gives `x ⊖ y`). Returns the gap
 /// of the result, `g_x g_y / D`, exact to rounding.
@@ -203,6 +206,147 @@ pub fn midpoint(c: &Curvature, a: &[f64], b: &[f64], out: &mut [f64]) {
     midpoint_g(c, a, gap(c.kappa, a), b, gap(c.kappa, b), out);
 }
 
+// ------------------------------------------------------- model layer
+
+/// Hyperbolic distance `d = 2R asinh(sqrt(kappa |x - y|^2 / (g_x g_y)))`:
+/// `cosh(d/R) = 1 + 2 kappa |x - y|^2/(g_x g_y)` (the Poincaré distance
+/// formula) taken through asinh, so that points 1e-12 apart keep their
+/// digits, with `x - y` formed from the inputs and the gaps carried.
+#[inline(always)]
+pub fn distance_g(c: &Curvature, x: &[f64], gx: f64, y: &[f64], gy: f64) -> f64 {
+    distance_from_half_delta(c.radius, c.kappa * dist_sq(x, y) / (gx * gy))
+}
+
+/// Hyperbolic distance between two ball points.
+pub fn distance(c: &Curvature, x: &[f64], y: &[f64]) -> f64 {
+    distance_g(c, x, gap(c.kappa, x), y, gap(c.kappa, y))
+}
+
+/// The exponential map `exp_x(v) = x ⊕ tanh(sqrt(kappa) |v| / g_x) v /
+/// (sqrt(kappa) |v|)` (conformal factor `lambda_x = 2/g_x`). The gap of the
+/// translated tangent point, `sech^2(sqrt(kappa)|v|/g_x)`, is passed to the
+/// addition exactly. Returns the gap of the result.
+#[inline(always)]
+pub fn exp_map_g(c: &Curvature, x: &[f64], gx: f64, v: &[f64], out: &mut [f64]) -> f64 {
+    let n = sumsq(v).sqrt();
+    if n == 0.0 {
+        out.copy_from_slice(x);
+        return gx;
+    }
+    let a = c.sqrt_kappa * n / gx;
+    let f = a.tanh() / (c.sqrt_kappa * n);
+    let gw = sech2(a);
+    with_scratch(v.len(), |w| {
+        for (o, &vi) in w.iter_mut().zip(v) {
+            *o = f * vi;
+        }
+        add_g(c, x, gx, w, gw, 1.0, out)
+    })
+}
+
+/// The logarithmic map `log_x(y) = g_x artanh(sqrt(kappa)|u|) u / (sqrt(kappa)|u|)`,
+/// `u = (-x) ⊕ y`, with `artanh` taken from the exact gap of `u`
+/// (`g_x g_y / D`), never from `1 - |u|`.
+#[inline(always)]
+pub fn log_map_g(c: &Curvature, x: &[f64], gx: f64, y: &[f64], gy: f64, out: &mut [f64]) {
+    // (-x) ⊕ y = -(x ⊖ y): Möbius addition is odd.
+    let gu = add_g(c, x, gx, y, gy, -1.0, out);
+    let t = c.sqrt_kappa * sumsq(out).sqrt();
+    if t == 0.0 {
+        out.iter_mut().for_each(|o| *o = 0.0);
+        return;
+    }
+    let f = -gx * artanh_from_gap(t, gu) / t;
+    out.iter_mut().for_each(|o| *o *= f);
+}
+
+/// Parallel transport of `v` from `x` to `y` along the geodesic:
+/// `(g_y/g_x) gyr[y, ⊖x] v` (the conformal factor ratio times the gyration),
+/// with `y - x` formed from the inputs.
+#[inline(always)]
+pub fn transport_g(c: &Curvature, x: &[f64], gx: f64, y: &[f64], gy: f64, v: &[f64], out: &mut [f64]) {
+    let n = x.len();
+    with_scratch(2 * n, |buf| {
+        let (nx, s) = buf.split_at_mut(n);
+        for i in 0..n {
+            nx[i] = -x[i];
+            s[i] = y[i] - x[i];
+        }
+        gyration_s(c, y, gy, nx, gx, s, v, out);
+    });
+    let r = gy / gx;
+    out.iter_mut().for_each(|o| *o *= r);
+}
+
+/// The point at fraction `t` of the geodesic from `x` to `y`:
+/// `x ⊕ (t ⊗ ((-x) ⊕ y))`, with the gaps of both intermediate points carried
+/// exactly (the gap of `t ⊗ u` is `sech^2(t artanh(sqrt(kappa)|u|))`).
+#[inline(always)]
+pub fn geodesic_g(c: &Curvature, x: &[f64], gx: f64, y: &[f64], gy: f64, t: f64, out: &mut [f64]) {
+    let gu = add_g(c, x, gx, y, gy, -1.0, out); // out = -u
+    let tu = c.sqrt_kappa * sumsq(out).sqrt();
+    if tu == 0.0 {
+        out.copy_from_slice(x);
+        return;
+    }
+    let b = t * artanh_from_gap(tu, gu);
+    let f = -b.tanh() / tu;
+    let gw = sech2(b);
+    with_scratch(x.len(), |w| {
+        for (o, &ui) in w.iter_mut().zip(out.iter()) {
+            *o = f * ui;
+        }
+        add_g(c, x, gx, w, gw, 1.0, out);
+    });
+}
+
+/// Pulls a point whose norm exceeds `(1 - margin) R` back onto that sphere
+/// along its ray; points inside it are returned unchanged. `margin` is
+/// checked by the caller (0 < margin < 1, 1 - margin < 1).
+#[inline(always)]
+pub fn project(c: &Curvature, x: &[f64], margin: f64, out: &mut [f64]) {
+    let lim = 1.0 - margin;
+    let g = gap_dd(c.kappa, x);
+    // |x|/R > lim  <=>  g < 1 - lim^2 = margin (2 - margin)
+    if g.hi >= margin * (2.0 - margin) {
+        out.copy_from_slice(x);
+        return;
+    }
+    let q = (1.0 - g.value()).sqrt(); // |x|/R
+    let mut f = lim / q;
+    loop {
+        for (o, &xi) in out.iter_mut().zip(x) {
+            *o = f * xi;
+        }
+        if gap_dd(c.kappa, out).hi > 0.0 {
+            break;
+        }
+        // Rounding landed on the sphere: step inward by one ulp of f.
+        f = f64::from_bits(f.to_bits() - 1);
+    }
+}
+
+/// The Möbius matrix-vector product `M ⊗ x = R tanh(|Mx|/|x| artanh(|x|/R))
+/// Mx/|Mx|` (zero when `Mx = 0`); `m` is row-major `(d_out, d_in)`. Results
+/// within 1.1e-16 R of the sphere are not representable and round onto it.
+#[inline(always)]
+pub fn matvec_g(c: &Curvature, m: &[f64], x: &[f64], gx: f64, out: &mut [f64]) {
+    let din = x.len();
+    for (o, row) in out.iter_mut().zip(m.chunks_exact(din)) {
+        *o = dot2(row, x);
+    }
+    let nmx = sumsq(out).sqrt();
+    let nx = sumsq(x).sqrt();
+    let t = c.sqrt_kappa * nx;
+    if nmx == 0.0 || t == 0.0 {
+        out.iter_mut().for_each(|o| *o = 0.0);
+        return;
+    }
+    let a = artanh_from_gap(t, gx);
+    let f = c.radius * (nmx / nx * a).tanh() / nmx;
+    out.iter_mut().for_each(|o| *o *= f);
+}
+
 /// Runs `f` with a zeroed scratch buffer of length `n` (on the stack when
 /// small).
 #[inline(always)]
@@ -290,6 +434,147 @@ pub fn midpoint_arrays<'a>(c: Curvature, x: Data<'a>, y: Data<'a>) -> Result<Out
         let gx = gap_of!(&c, r[0], 0);
         let gy = gap_of!(&c, r[1], 1);
         midpoint_g(&c, r[0], gx, r[1], gy, out);
+        Ok(())
+    })
+}
+
+fn no_core(_: usize) -> Vec<usize> {
+    Vec::new()
+}
+
+/// Batched distance `(..., d), (..., d) -> (...)`.
+pub fn distance_arrays<'a>(c: Curvature, x: Data<'a>, y: Data<'a>) -> Result<Output> {
+    let ops = [Operand::point("x", x), Operand::point("y", y)];
+    map_rows(&ops, &no_core, 12, #[inline(always)] |r, out| {
+        let gx = gap_of!(&c, r[0], 0);
+        let gy = gap_of!(&c, r[1], 1);
+        out[0] = distance_g(&c, r[0], gx, r[1], gy);
+        Ok(())
+    })
+}
+
+/// Batched exponential map; `base = None` is the origin.
+pub fn exp_map_arrays<'a>(c: Curvature, v: Data<'a>, base: Option<Data<'a>>) -> Result<Output> {
+    match base {
+        None => {
+            let ops = [Operand::point("v", v)];
+            map_rows(&ops, &point_out, 16, #[inline(always)] |r, out| {
+                check_finite(r[0]).map_err(|f| RowFault::new(0, f))?;
+                with_scratch(r[0].len(), |z| exp_map_g(&c, z, 1.0, r[0], out));
+                Ok(())
+            })
+        }
+        Some(b) => {
+            let ops = [Operand::point("v", v), Operand::point("base", b)];
+            map_rows(&ops, &point_out, 20, #[inline(always)] |r, out| {
+                check_finite(r[0]).map_err(|f| RowFault::new(0, f))?;
+                let gb = gap_of!(&c, r[1], 1);
+                exp_map_g(&c, r[1], gb, r[0], out);
+                Ok(())
+            })
+        }
+    }
+}
+
+/// Batched logarithmic map; `base = None` is the origin.
+pub fn log_map_arrays<'a>(c: Curvature, y: Data<'a>, base: Option<Data<'a>>) -> Result<Output> {
+    match base {
+        None => {
+            let ops = [Operand::point("y", y)];
+            map_rows(&ops, &point_out, 16, #[inline(always)] |r, out| {
+                let gy = gap_of!(&c, r[0], 0);
+                with_scratch(r[0].len(), |z| log_map_g(&c, z, 1.0, r[0], gy, out));
+                Ok(())
+            })
+        }
+        Some(b) => {
+            let ops = [Operand::point("y", y), Operand::point("base", b)];
+            map_rows(&ops, &point_out, 20, #[inline(always)] |r, out| {
+                let gy = gap_of!(&c, r[0], 0);
+                let gb = gap_of!(&c, r[1], 1);
+                log_map_g(&c, r[1], gb, r[0], gy, out);
+                Ok(())
+            })
+        }
+    }
+}
+
+/// Batched parallel transport of `v` from `start` to `end`.
+pub fn transport_arrays<'a>(c: Curvature, v: Data<'a>, start: Data<'a>, end: Data<'a>) -> Result<Output> {
+    let ops = [Operand::point("v", v), Operand::point("start", start), Operand::point("end", end)];
+    map_rows(&ops, &point_out, 40, #[inline(always)] |r, out| {
+        check_finite(r[0]).map_err(|f| RowFault::new(0, f))?;
+        let gs = gap_of!(&c, r[1], 1);
+        let ge = gap_of!(&c, r[2], 2);
+        transport_g(&c, r[1], gs, r[2], ge, r[0], out);
+        Ok(())
+    })
+}
+
+/// Batched geodesic interpolation; `t` broadcasts against the leading axes.
+pub fn geodesic_arrays<'a>(c: Curvature, x: Data<'a>, y: Data<'a>, t: Data<'a>) -> Result<Output> {
+    let ops = [Operand::point("x", x), Operand::point("y", y), Operand::scalar("t", t)];
+    map_rows(&ops, &point_out, 30, #[inline(always)] |r, out| {
+        let gx = gap_of!(&c, r[0], 0);
+        let gy = gap_of!(&c, r[1], 1);
+        let t = finite_scalar(2, r[2][0])?;
+        geodesic_g(&c, r[0], gx, r[1], gy, t, out);
+        Ok(())
+    })
+}
+
+/// Checks a projection margin: finite, in (0, 1), and with `1 - margin < 1`.
+pub fn check_margin(margin: f64) -> Result<()> {
+    if margin.is_finite() && margin > 0.0 && margin < 1.0 && 1.0 - margin < 1.0 {
+        Ok(())
+    } else {
+        crate::error::value_err(format!(
+            "margin must satisfy 1.1e-16 < margin < 1 (so that 1 - margin < 1 in float64), got {margin}"
+        ))
+    }
+}
+
+/// Batched projection into the ball of radius `(1 - margin) R`.
+pub fn project_arrays<'a>(c: Curvature, x: Data<'a>, margin: f64) -> Result<Output> {
+    check_margin(margin)?;
+    let ops = [Operand::point("x", x)];
+    map_rows(&ops, &point_out, 8, #[inline(always)] |r, out| {
+        check_finite(r[0]).map_err(|f| RowFault::new(0, f))?;
+        project(&c, r[0], margin, out);
+        Ok(())
+    })
+}
+
+/// Batched Möbius matrix-vector product; `m` is `(d_out, d_in)`.
+pub fn matvec_arrays<'a>(c: Curvature, m: Data<'a>, x: Data<'a>) -> Result<Output> {
+    let ms = m.shape().to_vec();
+    if ms.len() != 2 || ms[0] == 0 || ms[1] == 0 {
+        return crate::error::value_err(format!(
+            "m must be a matrix of shape (d_out, d_in) with d_out, d_in >= 1, got shape {ms:?}"
+        ));
+    }
+    let (dout, din) = (ms[0], ms[1]);
+    let mm: Vec<f64> = match &m {
+        Data::F64(a) | Data::Weak(a) => a.iter().copied().collect(),
+        Data::F32(a) => a.iter().map(|&v| f64::from(v)).collect(),
+    };
+    if let Some(i) = mm.iter().position(|v| !v.is_finite()) {
+        return crate::error::value_err(format!("m: row {} contains NaN or infinity", i / din));
+    }
+    let xs = x.shape();
+    if xs.last().copied() != Some(din) {
+        return crate::error::value_err(format!(
+            "m has shape ({dout}, {din}) but x has points of dimension {}",
+            xs.last().map_or("none".to_string(), |v| v.to_string())
+        ));
+    }
+    let m_f32 = m.is_f32();
+    let ops = [Operand::point("x", x)];
+    // The dtype policy counts m too: float32 only if m is float32 as well.
+    let force_f64 = !m_f32 && !m.is_weak();
+    map_rows_with(&ops, &|_| vec![dout], 2 * dout + 10, force_f64, #[inline(always)] |r, out| {
+        let gx = gap_of!(&c, r[0], 0);
+        matvec_g(&c, &mm, r[0], gx, out);
         Ok(())
     })
 }

@@ -12,9 +12,35 @@ Submodules:
     The Poincaré ball, Möbius gyrovector space.
 ``gyrokit.klein``
     The Beltrami–Klein ball, Einstein gyrovector space.
+``gyrokit.hyperboloid``
+    The hyperboloid (Lorentz) model, points ``(..., d + 1)``.
+``gyrokit.halfspace``
+    The upper half-space model.
 """
 
-from . import klein, poincare
-from ._native import __version__
+from __future__ import annotations
 
-__all__ = ["poincare", "klein", "__version__"]
+from typing import Any
+
+from . import halfspace, hyperboloid, klein, poincare
+from ._native import __version__
+from . import _native
+
+MODELS = ("poincare", "klein", "hyperboloid", "halfspace")
+
+
+def convert(x: Any, src: str, dst: str, *, curvature: float = -1.0) -> Any:
+    """Convert points between models; ``src``, ``dst`` in ``MODELS``.
+
+    Signature ``(..., n) -> (..., m)``: hyperboloid points have ``d + 1``
+    coordinates, the others ``d``. The maps go through the Poincaré point and
+    its exact gap ``1 - |p|^2/R^2``, so points within 1e-15 R of the sphere
+    convert to relative accuracy ~1e-16 (hyperboloid coordinates up to
+    ~1e15 R). Distances are preserved. Points that map beyond the float64
+    range (e.g. half-space points with ``y_d`` below ~1e-300 R, going to the
+    hyperboloid) raise ``ValueError``.
+    """
+    return _native.convert(x, src, dst, curvature)
+
+
+__all__ = ["poincare", "klein", "hyperboloid", "halfspace", "convert", "MODELS", "__version__"]

@@ -13,7 +13,10 @@ from typing import Any
 
 from . import _native
 
-__all__ = ["add", "sub", "scale", "gyration", "midpoint"]
+__all__ = [
+    "add", "sub", "scale", "gyration", "midpoint",
+    "distance", "exp_map", "log_map", "transport", "geodesic", "project",
+]
 
 
 def add(x: Any, y: Any, *, curvature: float = -1.0) -> Any:
@@ -62,3 +65,46 @@ def midpoint(x: Any, y: Any, *, curvature: float = -1.0) -> Any:
     Möbius gyromidpoint of the Poincaré images, the geodesic midpoint.
     """
     return _native.klein_midpoint(x, y, curvature)
+
+
+def distance(x: Any, y: Any, *, curvature: float = -1.0) -> Any:
+    """Hyperbolic distance in the Klein ball, signature ``(..., d), (..., d) -> (...)``.
+
+    ``cosh(d/R) = (1 - kappa <x,y>)/sqrt(g_x g_y)``, evaluated as a sum of
+    squares (exact for nearly coincident points and near the sphere).
+    """
+    return _native.klein_distance(x, y, curvature)
+
+
+def exp_map(v: Any, base: Any = None, *, curvature: float = -1.0) -> Any:
+    """Exponential map at ``base`` (origin when None) in the Klein ball.
+
+    Signature ``(..., d), (..., d) -> (..., d)``. Tangent vectors are ambient
+    vectors with the Klein metric (Euclidean at the origin).
+    ``exp_x(v) = x ⊕ exp_0(J_x^{-1} v)`` with ``J_x`` the differential of
+    ``z -> x ⊕ z`` at 0.
+    """
+    return _native.klein_exp_map(v, base, curvature)
+
+
+def log_map(y: Any, base: Any = None, *, curvature: float = -1.0) -> Any:
+    """Logarithmic map at ``base`` (origin when None), inverse of :func:`exp_map`."""
+    return _native.klein_log_map(y, base, curvature)
+
+
+def transport(v: Any, start: Any, end: Any, *, curvature: float = -1.0) -> Any:
+    """Parallel transport of tangent ``v`` from ``start`` to ``end`` (Klein ball)."""
+    return _native.klein_transport(v, start, end, curvature)
+
+
+def geodesic(x: Any, y: Any, t: Any, *, curvature: float = -1.0) -> Any:
+    """The point at fraction ``t`` of the geodesic (a straight chord) from ``x`` to ``y``.
+
+    Signature ``(..., d), (..., d), (...) -> (..., d)``.
+    """
+    return _native.klein_geodesic(x, y, t, curvature)
+
+
+def project(x: Any, margin: float = 1e-12, *, curvature: float = -1.0) -> Any:
+    """Explicit repair into the ball of radius ``(1 - margin) R``; see :func:`gyrokit.poincare.project`."""
+    return _native.klein_project(x, margin, curvature)

@@ -19,7 +19,10 @@ from typing import Any
 
 from . import _native
 
-__all__ = ["add", "sub", "coadd", "scale", "gyration", "midpoint"]
+__all__ = [
+    "add", "sub", "coadd", "scale", "gyration", "midpoint",
+    "distance", "exp_map", "log_map", "transport", "geodesic", "project", "matvec",
+]
 
 
 def add(x: Any, y: Any, *, curvature: float = -1.0) -> Any:
@@ -88,3 +91,78 @@ def midpoint(x: Any, y: Any, *, curvature: float = -1.0) -> Any:
     geodesic segment from ``x`` to ``y``, equidistant from both.
     """
     return _native.poincare_midpoint(x, y, curvature)
+
+
+def distance(x: Any, y: Any, *, curvature: float = -1.0) -> Any:
+    """Hyperbolic distance, signature ``(..., d), (..., d) -> (...)``.
+
+    ``d = 2R asinh(sqrt(kappa) |x - y| / sqrt(g_x g_y))`` with
+    ``g = 1 - kappa |x|^2`` in double-double: the same value as
+    ``R arccosh(1 + 2 kappa |x-y|^2 / (g_x g_y))`` but exact to a few ulps for
+    points 1e-12 apart (where the arccosh form returns 0) and for points
+    within 1e-15 R of the sphere. 0-d results come back as NumPy scalars.
+    """
+    return _native.poincare_distance(x, y, curvature)
+
+
+def exp_map(v: Any, base: Any = None, *, curvature: float = -1.0) -> Any:
+    """Exponential map ``exp_base(v)``, signature ``(..., d), (..., d) -> (..., d)``.
+
+    ``v`` is a tangent vector at ``base`` in ambient coordinates (the
+    Riemannian norm is ``2|v|/(1 - kappa |base|^2)``); ``base=None`` is the
+    origin. ``exp_x(v) = x ⊕ tanh(sqrt(kappa)|v|/g_x) v/(sqrt(kappa)|v|)``.
+    Results farther than about 37 R (hyperbolic) from the origin round onto the
+    sphere: float64 cannot hold ``1 - |x|/R < 1.1e-16``.
+    """
+    return _native.poincare_exp_map(v, base, curvature)
+
+
+def log_map(y: Any, base: Any = None, *, curvature: float = -1.0) -> Any:
+    """Logarithmic map ``log_base(y)``, the inverse of :func:`exp_map`.
+
+    Signature ``(..., d), (..., d) -> (..., d)``; ``base=None`` is the origin.
+    Its Riemannian norm equals ``distance(base, y)``.
+    """
+    return _native.poincare_log_map(y, base, curvature)
+
+
+def transport(v: Any, start: Any, end: Any, *, curvature: float = -1.0) -> Any:
+    """Parallel transport of tangent ``v`` at ``start`` to ``end`` along the geodesic.
+
+    Signature ``(..., d) x 3 -> (..., d)``:
+    ``(g_end/g_start) gyr[end, -start] v``. Preserves Riemannian norms and
+    inner products.
+    """
+    return _native.poincare_transport(v, start, end, curvature)
+
+
+def geodesic(x: Any, y: Any, t: Any, *, curvature: float = -1.0) -> Any:
+    """The point at fraction ``t`` of the geodesic from ``x`` to ``y``.
+
+    Signature ``(..., d), (..., d), (...) -> (..., d)``; ``t`` broadcasts
+    against the leading axes (``t`` outside [0, 1] extrapolates).
+    ``x ⊕ (t ⊗ ((-x) ⊕ y))``; ``t = 0.5`` gives :func:`midpoint`.
+    """
+    return _native.poincare_geodesic(x, y, t, curvature)
+
+
+def project(x: Any, margin: float = 1e-12, *, curvature: float = -1.0) -> Any:
+    """Explicit repair: pull points with ``|x| > (1 - margin) R`` back to that radius.
+
+    Signature ``(..., d) -> (..., d)``. Points inside radius
+    ``(1 - margin) R`` are returned unchanged (bit for bit); others are
+    rescaled along their ray (points outside the ball included). No other
+    function ever does this silently: they reject points on or outside the
+    sphere. ``margin`` must satisfy ``1.1e-16 < margin < 1``.
+    """
+    return _native.poincare_project(x, margin, curvature)
+
+
+def matvec(m: Any, x: Any, *, curvature: float = -1.0) -> Any:
+    """Möbius matrix-vector product ``M ⊗ x = R tanh(|Mx|/|x| artanh(|x|/R)) Mx/|Mx|``.
+
+    ``m`` has shape ``(d_out, d_in)``; signature ``(..., d_in) -> (..., d_out)``.
+    Zero when ``Mx = 0``. ``(rM) ⊗ x = r ⊗ (M ⊗ x)`` and
+    ``(M N) ⊗ x = M ⊗ (N ⊗ x)``.
+    """
+    return _native.poincare_matvec(m, x, curvature)

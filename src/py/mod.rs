@@ -8,6 +8,7 @@ use crate::error::Error;
 
 mod algebra;
 mod coerce;
+mod models;
 
 impl From<Error> for PyErr {
     fn from(e: Error) -> PyErr {
@@ -21,6 +22,7 @@ impl From<Error> for PyErr {
 #[pymodule]
 fn _native(m: &Bound<'_, PyModule>) -> PyResult<()> {
     algebra::register(m)?;
+    models::register(m)?;
     m.add("__version__", env!("CARGO_PKG_VERSION"))?;
     Ok(())
 }

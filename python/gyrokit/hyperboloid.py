@@ -1,0 +1,71 @@
+"""The hyperboloid (Lorentz) model of curvature K < 0.
+
+Points have shape ``(..., d + 1)`` with ``x0`` first, ``-x0^2 + |x_s|^2 =
+1/K = -R^2`` and ``x0 > 0``. A point is read through its spatial part
+``x_s``: ``x0`` is checked against ``R sqrt(1 + |x_s|^2/R^2)`` with a
+relative tolerance of 1e-6 (loose enough for float32 embeddings) and then
+recomputed. Tangent vectors are ``(d + 1)``-vectors Minkowski-orthogonal to
+their base point; they too are read through their spatial part (``v0`` is
+implied by tangency). Use :func:`project` to repair points that drifted.
+"""
+
+from __future__ import annotations
+
+from typing import Any
+
+from . import _native
+
+__all__ = ["distance", "exp_map", "log_map", "transport", "geodesic", "project", "inner"]
+
+
+def distance(x: Any, y: Any, *, curvature: float = -1.0) -> Any:
+    """Hyperbolic distance ``R arccosh(-<x, y>_L / R^2)``, signature ``(..., d+1) x 2 -> (...)``.
+
+    Evaluated through the law of cosines in two non-negative terms
+    (``cosh(r_x - r_y) - 1`` and ``kappa (|x_s||y_s| - x_s.y_s)``, the latter
+    from exact 2x2 minors when the points are nearly collinear with the
+    origin), so nearly coincident points far from the origin keep their digits.
+    """
+    return _native.hyperboloid_distance(x, y, curvature)
+
+
+def exp_map(v: Any, base: Any = None, *, curvature: float = -1.0) -> Any:
+    """``exp_x(v) = cosh(|v|/R) x + R sinh(|v|/R) v/|v|``; ``base=None`` is ``(R, 0, ..., 0)``.
+
+    Signature ``(..., d+1), (..., d+1) -> (..., d+1)``. ``|v|`` is the
+    Minkowski norm, computed as a sum of squares from the spatial parts.
+    Results that overflow float64 raise ``ValueError``.
+    """
+    return _native.hyperboloid_exp_map(v, base, curvature)
+
+
+def log_map(y: Any, base: Any = None, *, curvature: float = -1.0) -> Any:
+    """Logarithmic map at ``base`` (origin when None), the inverse of :func:`exp_map`."""
+    return _native.hyperboloid_log_map(y, base, curvature)
+
+
+def transport(v: Any, start: Any, end: Any, *, curvature: float = -1.0) -> Any:
+    """Parallel transport ``v + <end, v>_L / (R^2 - <start, end>_L) (start + end)``.
+
+    Signature ``(..., d+1) x 3 -> (..., d+1)``.
+    """
+    return _native.hyperboloid_transport(v, start, end, curvature)
+
+
+def geodesic(x: Any, y: Any, t: Any, *, curvature: float = -1.0) -> Any:
+    """The point at fraction ``t`` of the geodesic from ``x`` to ``y``: ``exp_x(t log_x(y))``."""
+    return _native.hyperboloid_geodesic(x, y, t, curvature)
+
+
+def project(x: Any, *, curvature: float = -1.0) -> Any:
+    """Repair: recompute ``x0 = R sqrt(1 + |x_s|^2/R^2)`` from the spatial part.
+
+    Points are never rescaled by ``sqrt(-<x,x>_L)``, which moves far points
+    by about 1e-4 in hyperbolic distance.
+    """
+    return _native.hyperboloid_project(x, curvature)
+
+
+def inner(u: Any, v: Any) -> Any:
+    """Minkowski inner product ``-u0 v0 + u_s . v_s`` (compensated), ``(..., d+1) x 2 -> (...)``."""
+    return _native.hyperboloid_inner(u, v)

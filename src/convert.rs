@@ -1,0 +1,165 @@
+//! Conversions between the four models, through one hub: the Poincaré point
+//! together with its exact gap `g = 1 - kappa |p|^2`. Each model has one map
+//! into the hub and one out of it, written so that the gap is derived
+//! exactly rather than recomputed from rounded coordinates:
+//!
+//! * Klein `k`: `p = k/(1 + sqrt(g_k))`, `g = 2 sqrt(g_k)/(1 + sqrt(g_k))`;
+//!   back `k = 2p/(2 - g)`.
+//! * hyperboloid `(x0, x_s)`: `c = sqrt(1 + kappa |x_s|^2)`, `p = x_s/(1 + c)`,
+//!   `g = 2/(1 + c)`; back `x0 = R (2 - g)/g`, `x_s = 2p/g`.
+//! * half-space `y` (the inversion in the sphere about the ball's south pole,
+//!   scaled so that the origin maps to `(0, ..., 0, R)`):
+//!   `D = kappa |y'|^2 + (1 + sqrt(kappa) y_d)^2`, `p' = 2y'/D`,
+//!   `p_d = R (1 - kappa |y|^2)/D`, `g = 4 sqrt(kappa) y_d / D`; back with
+//!   `E = kappa |p'|^2 + (1 + sqrt(kappa) p_d)^2`, `y' = 2p'/E`, `y_d = R g/E`,
+//!   where `1 + sqrt(kappa) p_d = (g + kappa |p'|^2)/(1 - sqrt(kappa) p_d)`
+//!   near the south pole.
+
+use crate::ball::{checked_gap, Curvature};
+use crate::batch::{map_rows, Data, Operand, Output};
+use crate::error::{value_err, Error, Fault, Result, RowFault};
+use crate::numeric::{gap_dd, sumsq};
+use crate::poincare::with_scratch;
+use crate::{halfspace, hyperboloid};
+
+/// The four models.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub enum Model {
+    Poincare,
+    Klein,
+    Hyperboloid,
+    HalfSpace,
+}
+
+impl Model {
+    pub const NAMES: [&'static str; 4] = ["poincare", "klein", "hyperboloid", "halfspace"];
+
+    /// Parses a model name (argument `arg` in messages).
+    pub fn parse(name: &str, arg: &str) -> Result<Model> {
+        match name {
+            "poincare" => Ok(Model::Poincare),
+            "klein" => Ok(Model::Klein),
+            "hyperboloid" => Ok(Model::Hyperboloid),
+            "halfspace" => Ok(Model::HalfSpace),
+            _ => Err(Error::Value(format!(
+                "{arg} must be one of {:?}, got {name:?}",
+                Model::NAMES
+            ))),
+        }
+    }
+
+    /// Coordinates per point for ball dimension `d`.
+    pub fn width(self, d: usize) -> usize {
+        if self == Model::Hyperboloid {
+            d + 1
+        } else {
+            d
+        }
+    }
+}
+
+/// Reads a point of `src` into the hub: writes `p` (length d) and returns
+/// the gap.
+#[inline(always)]
+pub fn to_hub(src: Model, k: &Curvature, x: &[f64], p: &mut [f64]) -> std::result::Result<f64, Fault> {
+    match src {
+        Model::Poincare => {
+            let g = checked_gap(k, x)?.value();
+            p.copy_from_slice(x);
+            Ok(g)
+        }
+        Model::Klein => {
+            let a = checked_gap(k, x)?.value().sqrt();
+            for (o, &v) in p.iter_mut().zip(x) {
+                *o = v / (1.0 + a);
+            }
+            Ok(2.0 * a / (1.0 + a))
+        }
+        Model::Hyperboloid => {
+            let c = hyperboloid::read_point(k, x)?;
+            for (o, &v) in p.iter_mut().zip(&x[1..]) {
+                *o = v / (1.0 + c);
+            }
+            Ok(2.0 / (1.0 + c))
+        }
+        Model::HalfSpace => {
+            halfspace::read_point(x)?;
+            let n = x.len() - 1;
+            let yd = x[n];
+            let one = 1.0 + k.sqrt_kappa * yd;
+            let den = k.kappa * sumsq(&x[..n]) + one * one;
+            for i in 0..n {
+                p[i] = 2.0 * x[i] / den;
+            }
+            p[n] = k.radius * gap_dd(k.kappa, x).value() / den;
+            Ok(4.0 * k.sqrt_kappa * yd / den)
+        }
+    }
+}
+
+/// Writes the hub point `(p, g)` in `dst` coordinates.
+#[inline(always)]
+pub fn from_hub(dst: Model, k: &Curvature, p: &[f64], g: f64, out: &mut [f64]) {
+    match dst {
+        Model::Poincare => out.copy_from_slice(p),
+        Model::Klein => {
+            let f = 2.0 / (2.0 - g);
+            for (o, &v) in out.iter_mut().zip(p) {
+                *o = f * v;
+            }
+        }
+        Model::Hyperboloid => {
+            out[0] = k.radius * (2.0 - g) / g;
+            for (o, &v) in out[1..].iter_mut().zip(p) {
+                *o = 2.0 * v / g;
+            }
+        }
+        Model::HalfSpace => {
+            let n = p.len() - 1;
+            let pd = k.sqrt_kappa * p[n];
+            let side = k.kappa * sumsq(&p[..n]);
+            let one = if pd >= 0.0 { 1.0 + pd } else { (g + side) / (1.0 - pd) };
+            let e = side + one * one;
+            for i in 0..n {
+                out[i] = 2.0 * p[i] / e;
+            }
+            out[n] = k.radius * g / e;
+        }
+    }
+}
+
+/// Batched conversion of points from `src` to `dst`.
+pub fn convert_arrays<'a>(k: Curvature, x: Data<'a>, src: Model, dst: Model) -> Result<Output> {
+    let w = x.shape().last().copied().unwrap_or(0);
+    if src == Model::Hyperboloid && w < 2 {
+        return value_err(format!(
+            "x: hyperboloid points have d + 1 >= 2 coordinates (x0 first), got {w}"
+        ));
+    }
+    let d = if src == Model::Hyperboloid { w.saturating_sub(1) } else { w };
+    let ops = [Operand::point("x", x)];
+    map_rows(&ops, &|_| vec![dst.width(d)], 20, #[inline(always)] |r, out| {
+        with_scratch(d, |p| {
+            let g = to_hub(src, &k, r[0], p).map_err(|f| RowFault::new(0, f))?;
+            if src == dst {
+                out.copy_from_slice(r[0]);
+            } else {
+                from_hub(dst, &k, p, g, out);
+            }
+            match dst {
+                Model::Poincare | Model::Klein => {
+                    if gap_dd(k.kappa, out).hi <= 0.0 {
+                        let name = if dst == Model::Klein { "Klein" } else { "Poincaré" };
+                        return Err(RowFault::new(0, Fault::Unrepresentable(name)));
+                    }
+                }
+                _ => {
+                    if !out.iter().all(|v| v.is_finite()) {
+                        return Err(RowFault::new(0, Fault::Overflow));
+                    }
+                }
+            }
+            Ok(())
+        })
+    })
+}

@@ -1,0 +1,299 @@
+//! The hyperboloid (Lorentz) model: points `x = (x0, x_1..d)` with
+//! `-x0^2 + |x_s|^2 = 1/K = -R^2` and `x0 > 0`, shape `(..., d + 1)`.
+//!
+//! float64 points sit about one ulp off the sheet, so a point is read
+//! through its spatial part `x_s` (x0 recomputed as `R sqrt(1 + kappa |x_s|^2)`),
+//! and a tangent vector through its spatial part (`v0 = x_s . v_s / x0`, from
+//! tangency). Distances use the hyperbolic law of cosines split into two
+//! non-negative terms, so neither nearly coincident points far from the
+//! origin nor large distances lose digits:
+//! `cosh(d/R) - 1 = (cosh(r_x - r_y) - 1) + kappa (|x_s||y_s| - x_s.y_s)`.
+
+use crate::ball::Curvature;
+use crate::batch::{finite_scalar, map_rows, Data, Operand, Output};
+use crate::error::{Fault, Result, RowFault};
+use crate::numeric::{diff_of_squares, distance_from_half_delta, dot2, dot_dd, sumsq, two_prod, wedge_sq, DD};
+use crate::poincare::with_scratch;
+
+/// Relative tolerance on x0 when reading a point (loose enough for float32
+/// embeddings, whose x0 is off by ~1e-7 after rounding).
+pub const SHEET_TOLERANCE: f64 = 1e-6;
+
+/// Checks a point and returns `c = sqrt(1 + kappa |x_s|^2) = x0/R` computed
+/// from the spatial part.
+#[inline(always)]
+pub fn read_point(k: &Curvature, x: &[f64]) -> std::result::Result<f64, Fault> {
+    if !x.iter().all(|v| v.is_finite()) {
+        return Err(Fault::NonFinite);
+    }
+    let cx = (1.0 + k.kappa * sumsq(&x[1..])).sqrt();
+    if !(x[0] > 0.0) {
+        return Err(Fault::OffHyperboloid(f64::NAN));
+    }
+    let defect = (x[0] * k.sqrt_kappa - cx).abs() / cx;
+    if defect > SHEET_TOLERANCE {
+        return Err(Fault::OffHyperboloid(defect));
+    }
+    Ok(cx)
+}
+
+/// `cosh(d/R) - 1` halved, from spatial parts and their `c = x0/R`.
+#[inline(always)]
+pub fn half_delta(k: &Curvature, xs: &[f64], cx: f64, ys: &[f64], cy: f64) -> f64 {
+    let kk = k.kappa;
+    let nx = sumsq(xs).sqrt();
+    let ny = sumsq(ys).sqrt();
+    // sinh(r_x - r_y) = a c_y - b c_x = (a^2 - b^2)/(a c_y + b c_x), a = sinh r_x.
+    let den = k.sqrt_kappa * (nx * cy + ny * cx);
+    let a = if den > 0.0 { kk * diff_of_squares(xs, ys, 1.0) / den } else { 0.0 };
+    let t1 = a * a / (1.0 + (1.0 + a * a).sqrt()); // cosh(r_x - r_y) - 1
+    let p = dot2(xs, ys);
+    let t2 = if p <= 0.0 {
+        kk * (nx * ny - p)
+    } else {
+        kk * wedge_sq(xs, ys) / (nx * ny + p)
+    };
+    0.5 * (t1 + t2)
+}
+
+/// Hyperbolic distance between two hyperboloid points (spatial parts).
+#[inline(always)]
+pub fn distance_s(k: &Curvature, xs: &[f64], cx: f64, ys: &[f64], cy: f64) -> f64 {
+    distance_from_half_delta(k.radius, half_delta(k, xs, cx, ys, cy))
+}
+
+/// Writes the point with spatial part `ys` (x0 recomputed).
+#[inline(always)]
+fn write_point(k: &Curvature, ys: &[f64], out: &mut [f64]) {
+    out[1..].copy_from_slice(ys);
+    out[0] = k.radius * (1.0 + k.kappa * sumsq(ys)).sqrt();
+}
+
+/// `exp_x(v) = cosh(|v|/R) x + R sinh(|v|/R) v/|v|`, with the Minkowski norm
+/// of `v` taken as `|v|^2 = (|v_s|^2 + kappa |x_s ∧ v_s|^2)/c_x^2` (a sum of
+/// squares; the raw `|v_s|^2 - v0^2` cancels by ~1e-16 x0^2). Writes the
+/// spatial part into `ys`.
+#[inline(always)]
+fn exp_spatial(k: &Curvature, xs: &[f64], cx: f64, vs: &[f64], ys: &mut [f64]) {
+    let n2 = (sumsq(vs) + k.kappa * wedge_sq(xs, vs)) / (cx * cx);
+    let b = k.sqrt_kappa * n2.sqrt(); // |v|/R
+    if b == 0.0 {
+        ys.copy_from_slice(xs);
+        return;
+    }
+    let (ch, sh) = (b.cosh(), b.sinh() / b);
+    for i in 0..xs.len() {
+        ys[i] = ch * xs[i] + sh * vs[i];
+    }
+}
+
+/// `log_x(y) = d (y - (1 + delta) x) / |y - (1 + delta) x|`, spatial part
+/// `(y_s - x_s) - delta x_s` (the difference formed from the inputs), norm
+/// factor `asinh(sqrt h)/sqrt(h (1 + h))` with `h = delta/2`. Writes the full
+/// (d + 1)-vector.
+#[inline(always)]
+fn log_full(k: &Curvature, xs: &[f64], cx: f64, ys: &[f64], cy: f64, out: &mut [f64]) {
+    let h = half_delta(k, xs, cx, ys, cy);
+    let f = if h > 0.0 { h.sqrt().asinh() / (h * (1.0 + h)).sqrt() } else { 1.0 };
+    let ws = &mut out[1..];
+    for i in 0..xs.len() {
+        ws[i] = f * ((ys[i] - xs[i]) - 2.0 * h * xs[i]);
+    }
+    out[0] = dot2(xs, &out[1..]) / (k.radius * cx);
+}
+
+/// Parallel transport `v + <y, v>_L / (R^2 (2 + delta)) (x + y)` with
+/// `<y, v>_L = <y - x, v>_L` (tangency at x) and `y0 - x0` from the
+/// difference of squares. Writes the full (d + 1)-vector.
+#[inline(always)]
+fn transport_full(k: &Curvature, xs: &[f64], cx: f64, ys: &[f64], cy: f64, vs: &[f64], out: &mut [f64]) {
+    let r = k.radius;
+    let v0 = dot2(xs, vs) / (r * cx);
+    let dy0 = r * k.kappa * diff_of_squares(ys, xs, 1.0) / (cx + cy); // y0 - x0
+    let mut dv = 0.0;
+    for i in 0..xs.len() {
+        dv += (ys[i] - xs[i]) * vs[i];
+    }
+    let yv = dv - dy0 * v0;
+    let h = half_delta(k, xs, cx, ys, cy);
+    let coef = k.kappa * yv / (2.0 + 2.0 * h);
+    let ps = &mut out[1..];
+    for i in 0..xs.len() {
+        ps[i] = vs[i] + coef * (xs[i] + ys[i]);
+    }
+    out[0] = dot2(ys, &out[1..]) / (r * cy);
+}
+
+/// Geodesic point `exp_x(t log_x(y))`: spatial part
+/// `cosh(t D) x_s + sinh(t D)/(2 sqrt(h (1 + h))) ((y_s - x_s) - 2 h x_s)`,
+/// `D = d/R = 2 asinh(sqrt h)`.
+#[inline(always)]
+fn geodesic_spatial(k: &Curvature, xs: &[f64], cx: f64, ys: &[f64], cy: f64, t: f64, out: &mut [f64]) {
+    let h = half_delta(k, xs, cx, ys, cy);
+    if h == 0.0 {
+        out.copy_from_slice(xs);
+        return;
+    }
+    let dd = 2.0 * h.sqrt().asinh();
+    let (ch, sh) = ((t * dd).cosh(), (t * dd).sinh() / (2.0 * (h * (1.0 + h)).sqrt()));
+    for i in 0..xs.len() {
+        out[i] = ch * xs[i] + sh * ((ys[i] - xs[i]) - 2.0 * h * xs[i]);
+    }
+}
+
+/// The Minkowski inner product `-u0 v0 + u_s . v_s`, compensated.
+#[inline(always)]
+pub fn inner(u: &[f64], v: &[f64]) -> f64 {
+    let s = dot_dd(&u[1..], &v[1..]);
+    let (p, e) = two_prod(u[0], v[0]);
+    s.sub(DD::new(p, e)).value()
+}
+
+// ---------------------------------------------------------------- batched
+
+macro_rules! point_of {
+    ($k:expr, $row:expr, $arg:expr) => {
+        read_point($k, $row).map_err(|f| RowFault::new($arg, f))?
+    };
+}
+
+fn check_dim(ops: &[Operand]) -> Result<()> {
+    for o in ops {
+        if let Some(&n) = o.data.shape().last() {
+            if n < 2 {
+                return crate::error::value_err(format!(
+                    "{}: hyperboloid points have d + 1 >= 2 coordinates (x0 first), got {n}",
+                    o.name
+                ));
+            }
+        }
+    }
+    Ok(())
+}
+
+fn same(d: usize) -> Vec<usize> {
+    vec![d]
+}
+
+fn finite_out(out: &[f64], arg: usize) -> std::result::Result<(), RowFault> {
+    if out.iter().all(|v| v.is_finite()) {
+        Ok(())
+    } else {
+        Err(RowFault::new(arg, Fault::Overflow))
+    }
+}
+
+/// Batched distance `(..., d+1), (..., d+1) -> (...)`.
+pub fn distance_arrays<'a>(k: Curvature, x: Data<'a>, y: Data<'a>) -> Result<Output> {
+    let ops = [Operand::point("x", x), Operand::point("y", y)];
+    check_dim(&ops)?;
+    map_rows(&ops, &|_| Vec::new(), 20, #[inline(always)] |r, out| {
+        let cx = point_of!(&k, r[0], 0);
+        let cy = point_of!(&k, r[1], 1);
+        out[0] = distance_s(&k, &r[0][1..], cx, &r[1][1..], cy);
+        Ok(())
+    })
+}
+
+/// Batched exponential map; `base = None` is the origin `(R, 0, ..., 0)`.
+pub fn exp_map_arrays<'a>(k: Curvature, v: Data<'a>, base: Option<Data<'a>>) -> Result<Output> {
+    let has_base = base.is_some();
+    let mut ops = vec![Operand::point("v", v)];
+    if let Some(b) = base {
+        ops.push(Operand::point("base", b));
+    }
+    check_dim(&ops)?;
+    map_rows(&ops, &same, 30, #[inline(always)] |r, out| {
+        crate::ball::check_finite(r[0]).map_err(|f| RowFault::new(0, f))?;
+        let n = r[0].len() - 1;
+        with_scratch(2 * n, |buf| {
+            let (zero, ys) = buf.split_at_mut(n);
+            let (xs, cx) = if has_base {
+                let cx = point_of!(&k, r[1], 1);
+                (&r[1][1..], cx)
+            } else {
+                (&zero[..], 1.0)
+            };
+            exp_spatial(&k, xs, cx, &r[0][1..], ys);
+            write_point(&k, ys, out);
+            finite_out(out, 0)
+        })
+    })
+}
+
+/// Batched logarithmic map; `base = None` is the origin.
+pub fn log_map_arrays<'a>(k: Curvature, y: Data<'a>, base: Option<Data<'a>>) -> Result<Output> {
+    let has_base = base.is_some();
+    let mut ops = vec![Operand::point("y", y)];
+    if let Some(b) = base {
+        ops.push(Operand::point("base", b));
+    }
+    check_dim(&ops)?;
+    map_rows(&ops, &same, 30, #[inline(always)] |r, out| {
+        let cy = point_of!(&k, r[0], 0);
+        let n = r[0].len() - 1;
+        with_scratch(n, |zero| {
+            let (xs, cx) = if has_base {
+                let cx = point_of!(&k, r[1], 1);
+                (&r[1][1..], cx)
+            } else {
+                (&zero[..], 1.0)
+            };
+            log_full(&k, xs, cx, &r[0][1..], cy, out);
+            Ok(())
+        })
+    })
+}
+
+/// Batched parallel transport of tangent `v` from `start` to `end`.
+pub fn transport_arrays<'a>(k: Curvature, v: Data<'a>, start: Data<'a>, end: Data<'a>) -> Result<Output> {
+    let ops = [Operand::point("v", v), Operand::point("start", start), Operand::point("end", end)];
+    check_dim(&ops)?;
+    map_rows(&ops, &same, 40, #[inline(always)] |r, out| {
+        crate::ball::check_finite(r[0]).map_err(|f| RowFault::new(0, f))?;
+        let cx = point_of!(&k, r[1], 1);
+        let cy = point_of!(&k, r[2], 2);
+        transport_full(&k, &r[1][1..], cx, &r[2][1..], cy, &r[0][1..], out);
+        Ok(())
+    })
+}
+
+/// Batched geodesic interpolation; `t` broadcasts against the leading axes.
+pub fn geodesic_arrays<'a>(k: Curvature, x: Data<'a>, y: Data<'a>, t: Data<'a>) -> Result<Output> {
+    let ops = [Operand::point("x", x), Operand::point("y", y), Operand::scalar("t", t)];
+    check_dim(&ops[..2])?;
+    map_rows(&ops, &same, 30, #[inline(always)] |r, out| {
+        let cx = point_of!(&k, r[0], 0);
+        let cy = point_of!(&k, r[1], 1);
+        let t = finite_scalar(2, r[2][0])?;
+        let n = r[0].len() - 1;
+        with_scratch(n, |ys| {
+            geodesic_spatial(&k, &r[0][1..], cx, &r[1][1..], cy, t, ys);
+            write_point(&k, ys, out);
+        });
+        finite_out(out, 2)
+    })
+}
+
+/// Batched repair: x0 recomputed from the spatial part (a point is never
+/// rescaled: rescaling by sqrt(-<x,x>) moves far points by ~1e-4).
+pub fn project_arrays<'a>(k: Curvature, x: Data<'a>) -> Result<Output> {
+    let ops = [Operand::point("x", x)];
+    check_dim(&ops)?;
+    map_rows(&ops, &same, 4, #[inline(always)] |r, out| {
+        crate::ball::check_finite(&r[0][1..]).map_err(|f| RowFault::new(0, f))?;
+        write_point(&k, &r[0][1..], out);
+        finite_out(out, 0)
+    })
+}
+
+/// Batched Minkowski inner product `(..., d+1), (..., d+1) -> (...)`.
+pub fn inner_arrays<'a>(u: Data<'a>, v: Data<'a>) -> Result<Output> {
+    let ops = [Operand::point("u", u), Operand::point("v", v)];
+    map_rows(&ops, &|_| Vec::new(), 8, #[inline(always)] |r, out| {
+        crate::ball::check_finite(r[0]).map_err(|f| RowFault::new(0, f))?;
+        crate::ball::check_finite(r[1]).map_err(|f| RowFault::new(1, f))?;
+        out[0] = inner(r[0], r[1]);
+        Ok(())
+    })
+}
