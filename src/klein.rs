@@ -8,7 +8,7 @@
 //! Poincaré points (Ungar's isomorphism `p -> 2 ⊗ p`); it is computed there,
 //! one formula in one place.
 
-use crate::ball::{check_finite, checked_gap, Curvature};
+use crate::ball::{check_finite, checked_gap, keep_inside, Curvature};
 use crate::batch::{finite_scalar, map_rows, Data, Operand, Output};
 use crate::error::{Result, RowFault};
 use crate::numeric::{
@@ -250,6 +250,7 @@ fn add_like<'a>(c: Curvature, x: Data<'a>, y: Data<'a>, sy: f64) -> Result<Outpu
         let gx = gap_of!(&c, r[0], 0);
         let gy = gap_of!(&c, r[1], 1);
         add_g(&c, r[0], gx, r[1], gy, sy, out);
+        keep_inside(&c, out);
         Ok(())
     })
 }
@@ -271,6 +272,7 @@ pub fn scale_arrays<'a>(c: Curvature, r: Data<'a>, x: Data<'a>) -> Result<Output
         let r = finite_scalar(0, rows[0][0])?;
         let gx = gap_of!(&c, rows[1], 1);
         scale_g(&c, r, rows[1], gx, out);
+        keep_inside(&c, out);
         Ok(())
     })
 }
@@ -294,6 +296,7 @@ pub fn midpoint_arrays<'a>(c: Curvature, x: Data<'a>, y: Data<'a>) -> Result<Out
         let gx = gap_of!(&c, r[0], 0);
         let gy = gap_of!(&c, r[1], 1);
         midpoint_g(&c, r[0], gx, r[1], gy, out);
+        keep_inside(&c, out);
         Ok(())
     })
 }
@@ -321,6 +324,7 @@ pub fn exp_map_arrays<'a>(c: Curvature, v: Data<'a>, base: Option<Data<'a>>) -> 
             map_rows(&ops, &point_out, 16, #[inline(always)] |r, out| {
                 check_finite(r[0]).map_err(|f| RowFault::new(0, f))?;
                 with_scratch(r[0].len(), |z| exp_map_g(&c, z, 1.0, r[0], out));
+        keep_inside(&c, out);
                 Ok(())
             })
         }
@@ -330,6 +334,7 @@ pub fn exp_map_arrays<'a>(c: Curvature, v: Data<'a>, base: Option<Data<'a>>) -> 
                 check_finite(r[0]).map_err(|f| RowFault::new(0, f))?;
                 let gb = gap_of!(&c, r[1], 1);
                 exp_map_g(&c, r[1], gb, r[0], out);
+        keep_inside(&c, out);
                 Ok(())
             })
         }
@@ -379,6 +384,7 @@ pub fn geodesic_arrays<'a>(c: Curvature, x: Data<'a>, y: Data<'a>, t: Data<'a>) 
         let gy = gap_of!(&c, r[1], 1);
         let t = finite_scalar(2, r[2][0])?;
         geodesic_g(&c, r[0], gx, r[1], gy, t, out);
+        keep_inside(&c, out);
         Ok(())
     })
 }

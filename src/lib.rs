@@ -11,8 +11,10 @@ pub mod hyperboloid;
 pub mod convert;
 pub mod klein;
 pub mod numeric;
+pub mod pairwise;
 pub mod poincare;
 pub mod simd;
+pub mod vptree;
 
 pub use ball::Curvature;
 pub use error::{Error, Result};

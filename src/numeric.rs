@@ -280,6 +280,52 @@ pub fn radial_scale_factor(r: f64, t: f64, g: f64) -> f64 {
     (r * a).tanh() / t
 }
 
+/// `ln(1 + u)` for `u >= 0`, branch-free and table-free so that it
+/// vectorises: the exponent is split off with integer operations, and the
+/// mantissa logarithm uses the classic `s = f/(2 + f)` series (the fdlibm
+/// argument reduction and minimax coefficients). The rounding error of
+/// `w = 1 + u` is recovered exactly (`c = u - (w - 1)`) and folded into the
+/// reduced argument, so the result is within ~1 ulp of `ln(1 + u)` even for
+/// tiny `u`. One division, no calls.
+#[inline(always)]
+pub fn log1p_fast(u: f64) -> f64 {
+    const LN2_HI: f64 = 6.93147180369123816490e-01;
+    const LN2_LO: f64 = 1.90821492927058770002e-10;
+    const LG1: f64 = 6.666666666666735130e-01;
+    const LG2: f64 = 3.999999999940941908e-01;
+    const LG3: f64 = 2.857142874366239149e-01;
+    const LG4: f64 = 2.222219843214978396e-01;
+    const LG5: f64 = 1.818357216161805012e-01;
+    const LG6: f64 = 1.531383769920937332e-01;
+    const LG7: f64 = 1.479819860511658591e-01;
+    let w = 1.0 + u;
+    let c = u - (w - 1.0); // exact rounding error of 1 + u
+    // Reduce w = 2^k m with m in [sqrt(2)/2, sqrt(2)).
+    let ix = w.to_bits().wrapping_add(0x3ff0_0000_0000_0000 - 0x3fe6_a09e_667f_3bcd);
+    let kbits = (ix >> 52) | 0x4330_0000_0000_0000;
+    let k = f64::from_bits(kbits) - 4503599627370496.0 - 1023.0;
+    let m = f64::from_bits((ix & 0x000f_ffff_ffff_ffff) + 0x3fe6_a09e_667f_3bcd);
+    // f = m - 1 (exact), plus the rounding error of w scaled by 2^-k.
+    let scale = f64::from_bits(((1023i64 - k as i64) as u64) << 52);
+    let f = (m - 1.0) + c * scale;
+    let s = f / (2.0 + f);
+    let z = s * s;
+    let w2 = z * z;
+    let t1 = w2 * (LG2 + w2 * (LG4 + w2 * LG6));
+    let t2 = z * (LG1 + w2 * (LG3 + w2 * (LG5 + w2 * LG7)));
+    let r = t2 + t1;
+    let hfsq = 0.5 * f * f;
+    k * LN2_HI - ((hfsq - (s * (hfsq + r) + k * LN2_LO)) - f)
+}
+
+/// `arccosh(1 + 2h) = 2 asinh(sqrt(h))` for `h >= 0` as
+/// `log1p(2h + 2 sqrt(h (1 + h)))`, with [`log1p_fast`]: one square root and
+/// one division.
+#[inline(always)]
+pub fn acosh1p2_fast(h: f64) -> f64 {
+    log1p_fast(2.0 * h + 2.0 * (h * (1.0 + h)).sqrt())
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -323,6 +369,28 @@ mod tests {
             DD::new(x[1], 0.0).sub(DD::new(y[1], 0.0)).mul_f64(s[1]),
         );
         assert!(((d - m.value()) / d).abs() < 1e-15);
+    }
+
+    #[test]
+    fn log1p_fast_matches_std_within_two_ulps() {
+        // reference: Rust std ln_1p (libm); common practice
+        let mut u = 1e-300;
+        while u < 1e300 {
+            for v in [u, u * 1.37, u * 2.9, u * 7.1] {
+                let a = log1p_fast(v);
+                let b = v.ln_1p();
+                let ulp = f64::EPSILON * b.abs().max(f64::MIN_POSITIVE);
+                assert!((a - b).abs() <= 2.0 * ulp, "u = {v}: {a} vs {b}");
+            }
+            u *= 10.0;
+        }
+        assert_eq!(log1p_fast(0.0), 0.0);
+        // 2 asinh(sqrt h) identity (handbook)
+        for h in [1e-30, 1e-12, 0.3, 5.0, 1e20] {
+            let a = acosh1p2_fast(h);
+            let b = 2.0 * h.sqrt().asinh();
+            assert!((a - b).abs() <= 4.0 * f64::EPSILON * b, "h = {h}: {a} vs {b}");
+        }
     }
 
     #[test]

@@ -8,7 +8,7 @@
 //! operations and by the Klein model), a per-point convenience form, and a
 //! batched form over arrays.
 
-use crate::ball::{check_finite, checked_gap, Curvature};
+use crate::ball::{check_finite, checked_gap, keep_inside, Curvature};
 use crate::batch::{finite_scalar, map_rows, map_rows_with, Data, Operand, Output};
 use crate::error::{Result, RowFault};
 use crate::numeric::{
@@ -389,6 +389,7 @@ fn add_like<'a>(c: Curvature, x: Data<'a>, y: Data<'a>, sy: f64) -> Result<Outpu
         let gx = gap_of!(&c, r[0], 0);
         let gy = gap_of!(&c, r[1], 1);
         add_g(&c, r[0], gx, r[1], gy, sy, out);
+        keep_inside(&c, out);
         Ok(())
     })
 }
@@ -400,6 +401,7 @@ pub fn coadd_arrays<'a>(c: Curvature, x: Data<'a>, y: Data<'a>) -> Result<Output
         let gx = gap_of!(&c, r[0], 0);
         let gy = gap_of!(&c, r[1], 1);
         coadd_g(&c, r[0], gx, r[1], gy, out);
+        keep_inside(&c, out);
         Ok(())
     })
 }
@@ -411,6 +413,7 @@ pub fn scale_arrays<'a>(c: Curvature, r: Data<'a>, x: Data<'a>) -> Result<Output
         let r = finite_scalar(0, rows[0][0])?;
         let gx = gap_of!(&c, rows[1], 1);
         scale_g(&c, r, rows[1], gx, out);
+        keep_inside(&c, out);
         Ok(())
     })
 }
@@ -434,6 +437,7 @@ pub fn midpoint_arrays<'a>(c: Curvature, x: Data<'a>, y: Data<'a>) -> Result<Out
         let gx = gap_of!(&c, r[0], 0);
         let gy = gap_of!(&c, r[1], 1);
         midpoint_g(&c, r[0], gx, r[1], gy, out);
+        keep_inside(&c, out);
         Ok(())
     })
 }
@@ -461,6 +465,7 @@ pub fn exp_map_arrays<'a>(c: Curvature, v: Data<'a>, base: Option<Data<'a>>) -> 
             map_rows(&ops, &point_out, 16, #[inline(always)] |r, out| {
                 check_finite(r[0]).map_err(|f| RowFault::new(0, f))?;
                 with_scratch(r[0].len(), |z| exp_map_g(&c, z, 1.0, r[0], out));
+        keep_inside(&c, out);
                 Ok(())
             })
         }
@@ -470,6 +475,7 @@ pub fn exp_map_arrays<'a>(c: Curvature, v: Data<'a>, base: Option<Data<'a>>) -> 
                 check_finite(r[0]).map_err(|f| RowFault::new(0, f))?;
                 let gb = gap_of!(&c, r[1], 1);
                 exp_map_g(&c, r[1], gb, r[0], out);
+        keep_inside(&c, out);
                 Ok(())
             })
         }
@@ -519,6 +525,7 @@ pub fn geodesic_arrays<'a>(c: Curvature, x: Data<'a>, y: Data<'a>, t: Data<'a>) 
         let gy = gap_of!(&c, r[1], 1);
         let t = finite_scalar(2, r[2][0])?;
         geodesic_g(&c, r[0], gx, r[1], gy, t, out);
+        keep_inside(&c, out);
         Ok(())
     })
 }
@@ -575,6 +582,7 @@ pub fn matvec_arrays<'a>(c: Curvature, m: Data<'a>, x: Data<'a>) -> Result<Outpu
     map_rows_with(&ops, &|_| vec![dout], 2 * dout + 10, force_f64, #[inline(always)] |r, out| {
         let gx = gap_of!(&c, r[0], 0);
         matvec_g(&c, &mm, r[0], gx, out);
+        keep_inside(&c, out);
         Ok(())
     })
 }

@@ -7,7 +7,8 @@ use pyo3::prelude::*;
 use crate::error::Error;
 
 mod algebra;
-mod coerce;
+pub(crate) mod coerce;
+mod index;
 mod models;
 
 impl From<Error> for PyErr {
@@ -23,6 +24,7 @@ impl From<Error> for PyErr {
 fn _native(m: &Bound<'_, PyModule>) -> PyResult<()> {
     algebra::register(m)?;
     models::register(m)?;
+    index::register(m)?;
     m.add("__version__", env!("CARGO_PKG_VERSION"))?;
     Ok(())
 }

@@ -1,0 +1,1 @@
+//! Exact metric-tree neighbour index (to be written).
