@@ -81,16 +81,24 @@ pub fn check_finite(x: &[f64]) -> std::result::Result<(), Fault> {
 }
 
 /// Keeps a computed ball point strictly inside: a result whose exact value
-/// lies inside the ball can round onto (or one ulp past) the sphere when it
-/// is within ~1e-16 R of it. Such a result is pulled in by a few ulps along
-/// its ray to the nearest float64 point inside, so it can be fed back into
-/// any function. Cheap: a plain sum of squares decides whether the
-/// double-double check is needed at all.
+/// lies inside the ball but within ~1e-16 R of the sphere (or beyond what
+/// float64 can resolve) can round onto or past it. It is moved along its ray
+/// to the largest float64 radius inside, so it can be fed back into any
+/// function. Cheap: a plain sum of squares decides whether the double-double
+/// check is needed at all.
 #[inline(always)]
 pub fn keep_inside(c: &Curvature, out: &mut [f64]) {
     if c.kappa * crate::numeric::sumsq(out) < 1.0 - 1e-12 {
         return;
     }
+    let g = crate::numeric::gap_dd(c.kappa, out);
+    if g.hi > 0.0 {
+        return;
+    }
+    // Rescale to radius just below R, then step inward ulp by ulp.
+    let q = (1.0 - g.value()).sqrt();
+    let f = (1.0 - f64::EPSILON) / q;
+    out.iter_mut().for_each(|o| *o *= f);
     let shrink = 1.0 - f64::EPSILON / 2.0;
     let mut guard = 0;
     while crate::numeric::gap_dd(c.kappa, out).hi <= 0.0 && guard < 64 {

@@ -12,7 +12,9 @@
 use crate::ball::Curvature;
 use crate::batch::{finite_scalar, map_rows, Data, Operand, Output};
 use crate::error::{Fault, Result, RowFault};
-use crate::numeric::{diff_of_squares, distance_from_half_delta, dot2, dot_dd, sumsq, two_prod, wedge_sq, DD};
+use crate::numeric::{
+    diff_of_squares, distance_from_half_delta, dot2, dot_dd, geodesic_weights, sumsq, two_prod, wedge_sq, DD,
+};
 use crate::poincare::with_scratch;
 
 /// Relative tolerance on x0 when reading a point (loose enough for float32
@@ -124,20 +126,15 @@ fn transport_full(k: &Curvature, xs: &[f64], cx: f64, ys: &[f64], cy: f64, vs: &
     out[0] = dot2(ys, &out[1..]) / (r * cy);
 }
 
-/// Geodesic point `exp_x(t log_x(y))`: spatial part
-/// `cosh(t D) x_s + sinh(t D)/(2 sqrt(h (1 + h))) ((y_s - x_s) - 2 h x_s)`,
-/// `D = d/R = 2 asinh(sqrt h)`.
+/// Geodesic point `(sinh((1 - t) D) x + sinh(t D) y)/sinh(D)`, spatial
+/// part, with the weights in their non-overflowing, non-cancelling form
+/// (`exp_x(t log_x(y))` cancels like e^{2r} for far points).
 #[inline(always)]
 fn geodesic_spatial(k: &Curvature, xs: &[f64], cx: f64, ys: &[f64], cy: f64, t: f64, out: &mut [f64]) {
     let h = half_delta(k, xs, cx, ys, cy);
-    if h == 0.0 {
-        out.copy_from_slice(xs);
-        return;
-    }
-    let dd = 2.0 * h.sqrt().asinh();
-    let (ch, sh) = ((t * dd).cosh(), (t * dd).sinh() / (2.0 * (h * (1.0 + h)).sqrt()));
+    let (a, b) = geodesic_weights(t, 2.0 * h.sqrt().asinh());
     for i in 0..xs.len() {
-        out[i] = ch * xs[i] + sh * ((ys[i] - xs[i]) - 2.0 * h * xs[i]);
+        out[i] = a * xs[i] + b * ys[i];
     }
 }
 

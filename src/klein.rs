@@ -12,8 +12,8 @@ use crate::ball::{check_finite, checked_gap, keep_inside, Curvature};
 use crate::batch::{finite_scalar, map_rows, Data, Operand, Output};
 use crate::error::{Result, RowFault};
 use crate::numeric::{
-    artanh_from_gap, diff_of_squares, dist_sq, distance_from_half_delta, dot2, dot_with_sum, gap, sech2,
-    sumsq,
+    artanh_from_gap, diff_of_squares, dist_sq, distance_from_half_delta, dot2, dot_with_sum, gap,
+    geodesic_weights, sech2, sumsq,
 };
 use crate::poincare::{self, gap_of, with_scratch};
 
@@ -221,21 +221,19 @@ pub fn transport_g(c: &Curvature, x: &[f64], gx: f64, y: &[f64], gy: f64, v: &[f
 }
 
 /// The point at fraction `t` of the geodesic (a straight chord) from `x` to
-/// `y`: `x ⊕ (t ⊗ (⊖x ⊕ y))`, gaps carried.
+/// `y`, in closed form through the hyperboloid (`x_H = (R, x)/sqrt(g_x)`):
+/// `(a sqrt(g_y) x + b sqrt(g_x) y) / (a sqrt(g_y) + b sqrt(g_x))` with the
+/// geodesic weights `(a, b)` of `D = d(x, y)/R`.
 #[inline(always)]
 pub fn geodesic_g(c: &Curvature, x: &[f64], gx: f64, y: &[f64], gy: f64, t: f64, out: &mut [f64]) {
-    with_scratch(x.len(), |w| {
-        let gu = add_g(c, x, gx, y, gy, -1.0, w); // w = -u
-        let tu = c.sqrt_kappa * sumsq(w).sqrt();
-        if tu == 0.0 {
-            out.copy_from_slice(x);
-            return;
-        }
-        let b = t * artanh_from_gap(tu, gu);
-        let f = -b.tanh() / tu;
-        w.iter_mut().for_each(|o| *o *= f);
-        add_g(c, x, gx, w, sech2(b), 1.0, out);
-    })
+    let big_d = distance_g(c, x, gx, y, gy) * c.sqrt_kappa;
+    let (a, b) = geodesic_weights(t, big_d);
+    let (ca, cb) = (a * gy.sqrt(), b * gx.sqrt());
+    let den = ca + cb;
+    let (fa, fb) = (ca / den, cb / den);
+    for i in 0..x.len() {
+        out[i] = fa * x[i] + fb * y[i];
+    }
 }
 
 // ---------------------------------------------------------------- batched

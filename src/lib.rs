@@ -10,6 +10,7 @@ pub mod halfspace;
 pub mod hyperboloid;
 pub mod convert;
 pub mod klein;
+pub mod neighbors;
 pub mod numeric;
 pub mod pairwise;
 pub mod poincare;

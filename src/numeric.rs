@@ -185,6 +185,21 @@ pub fn sech2(a: f64) -> f64 {
     4.0 * e / ((1.0 + e) * (1.0 + e))
 }
 
+/// The weights `(a, b) = (sinh((1 - t) D), sinh(t D)) / sinh(D)` of the
+/// geodesic point `a x + b y` on the hyperboloid (`D = d/R`), in a form that
+/// neither overflows nor cancels for large `D`:
+/// `sinh(s D)/sinh(D) = e^{(s - 1) D} expm1(-2 s D) / expm1(-2 D)`; for
+/// `D = 0` the limit `(1 - t, t)`.
+#[inline(always)]
+pub fn geodesic_weights(t: f64, big_d: f64) -> (f64, f64) {
+    if big_d == 0.0 {
+        return (1.0 - t, t);
+    }
+    let den = (-2.0 * big_d).exp_m1();
+    let w = |s: f64| ((s - 1.0) * big_d).exp() * (-2.0 * s * big_d).exp_m1() / den;
+    (w(1.0 - t), w(t))
+}
+
 /// `1 + delta = cosh(d/R)`: distance from `delta/2 = sinh(d/(2R))^2` via
 /// `d = 2R asinh(sqrt(delta/2))`, with no `arccosh(1 + delta)` (which
 /// returns 0 for delta below 1e-16).
@@ -302,11 +317,12 @@ pub fn log1p_fast(u: f64) -> f64 {
     let c = u - (w - 1.0); // exact rounding error of 1 + u
     // Reduce w = 2^k m with m in [sqrt(2)/2, sqrt(2)).
     let ix = w.to_bits().wrapping_add(0x3ff0_0000_0000_0000 - 0x3fe6_a09e_667f_3bcd);
-    let kbits = (ix >> 52) | 0x4330_0000_0000_0000;
-    let k = f64::from_bits(kbits) - 4503599627370496.0 - 1023.0;
+    let e = ix >> 52; // biased exponent: k = e - 1023
+    let k = f64::from_bits(e | 0x4330_0000_0000_0000) - 4503599627370496.0 - 1023.0;
     let m = f64::from_bits((ix & 0x000f_ffff_ffff_ffff) + 0x3fe6_a09e_667f_3bcd);
-    // f = m - 1 (exact), plus the rounding error of w scaled by 2^-k.
-    let scale = f64::from_bits(((1023i64 - k as i64) as u64) << 52);
+    // f = m - 1 (exact), plus the rounding error of w scaled by 2^-k (all
+    // integer work in u64 lanes, so the function vectorises).
+    let scale = f64::from_bits((2046u64.wrapping_sub(e)) << 52);
     let f = (m - 1.0) + c * scale;
     let s = f / (2.0 + f);
     let z = s * s;

@@ -13,7 +13,7 @@ use crate::batch::{finite_scalar, map_rows, map_rows_with, Data, Operand, Output
 use crate::error::{Result, RowFault};
 use crate::numeric::{
     artanh_from_gap, diff_of_squares, dist_sq, distance_from_half_delta, dot2, gap, gap_dd,
-    radial_scale_factor, sech2, sumsq,
+    geodesic_weights, radial_scale_factor, sech2, sumsq,
 };
 
 /// `x ⊕ (sy y)` (Möbius addition; `sy = -1` gives `x ⊖ y`). Returns the gap
@@ -278,26 +278,23 @@ pub fn transport_g(c: &Curvature, x: &[f64], gx: f64, y: &[f64], gy: f64, v: &[f
     out.iter_mut().for_each(|o| *o *= r);
 }
 
-/// The point at fraction `t` of the geodesic from `x` to `y`:
-/// `x ⊕ (t ⊗ ((-x) ⊕ y))`, with the gaps of both intermediate points carried
-/// exactly (the gap of `t ⊗ u` is `sech^2(t artanh(sqrt(kappa)|u|))`).
+/// The point at fraction `t` of the geodesic from `x` to `y` (equal to
+/// `x ⊕ (t ⊗ ((-x) ⊕ y))`), in closed form through the hyperboloid: with
+/// `(a, b)` the geodesic weights of `D = d(x, y)/R`,
+/// `p = 2 (a g_y x + b g_x y) / (g_x g_y + a (2 - g_x) g_y + b (2 - g_y) g_x)`.
+/// For `t` in [0, 1] every term is non-negative except where the result is
+/// near the origin, so no intermediate point near the sphere is ever rounded
+/// (the composition form rounds `(-x) ⊕ y`, which can sit 1e-24 from it).
 #[inline(always)]
 pub fn geodesic_g(c: &Curvature, x: &[f64], gx: f64, y: &[f64], gy: f64, t: f64, out: &mut [f64]) {
-    let gu = add_g(c, x, gx, y, gy, -1.0, out); // out = -u
-    let tu = c.sqrt_kappa * sumsq(out).sqrt();
-    if tu == 0.0 {
-        out.copy_from_slice(x);
-        return;
+    let h = c.kappa * dist_sq(x, y) / (gx * gy);
+    let (a, b) = geodesic_weights(t, 2.0 * h.sqrt().asinh());
+    let (ca, cb) = (a * gy, b * gx);
+    let den = gx * gy + ca * (2.0 - gx) + cb * (2.0 - gy);
+    let (fa, fb) = (2.0 * ca / den, 2.0 * cb / den);
+    for i in 0..x.len() {
+        out[i] = fa * x[i] + fb * y[i];
     }
-    let b = t * artanh_from_gap(tu, gu);
-    let f = -b.tanh() / tu;
-    let gw = sech2(b);
-    with_scratch(x.len(), |w| {
-        for (o, &ui) in w.iter_mut().zip(out.iter()) {
-            *o = f * ui;
-        }
-        add_g(c, x, gx, w, gw, 1.0, out);
-    });
 }
 
 /// Pulls a point whose norm exceeds `(1 - margin) R` back onto that sphere

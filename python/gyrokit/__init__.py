@@ -23,6 +23,7 @@ from __future__ import annotations
 from typing import Any
 
 from . import halfspace, hyperboloid, klein, poincare
+from .neighbors import condensed_distances, distance_matrix, knn, radius_neighbors
 from ._native import __version__
 from . import _native
 
@@ -43,4 +44,7 @@ def convert(x: Any, src: str, dst: str, *, curvature: float = -1.0) -> Any:
     return _native.convert(x, src, dst, curvature)
 
 
-__all__ = ["poincare", "klein", "hyperboloid", "halfspace", "convert", "MODELS", "__version__"]
+__all__ = [
+    "poincare", "klein", "hyperboloid", "halfspace", "convert", "MODELS",
+    "distance_matrix", "condensed_distances", "knn", "radius_neighbors", "__version__",
+]

@@ -10,6 +10,7 @@ mod algebra;
 pub(crate) mod coerce;
 mod index;
 mod models;
+mod neighbors;
 
 impl From<Error> for PyErr {
     fn from(e: Error) -> PyErr {
@@ -25,6 +26,7 @@ fn _native(m: &Bound<'_, PyModule>) -> PyResult<()> {
     algebra::register(m)?;
     models::register(m)?;
     index::register(m)?;
+    neighbors::register(m)?;
     m.add("__version__", env!("CARGO_PKG_VERSION"))?;
     Ok(())
 }

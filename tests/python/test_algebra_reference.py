@@ -1,9 +1,10 @@
 """Accuracy and algebra of gyrokit's gyrovector operations.
 
-1. Accuracy against 50-digit mpmath evaluations of the textbook definitions
-   (``mp_reference``), on random points, near-boundary points, nearly
-   coincident and nearly opposite pairs, for several curvatures and
-   dimensions. Run with ``-s`` to see the worst measured error per function.
+1. Accuracy against mpmath evaluations of the textbook definitions
+   (``mp_reference``; 50 digits, raised until the value stops moving), on
+   random points, near-boundary points, nearly coincident and nearly
+   opposite pairs, for several curvatures and dimensions. Run with ``-s`` to
+   see the worst measured error per function.
 2. Closed forms from the literature (complex Möbius form, relativistic
    velocity addition, repeated addition, the radial scalar law, the
    Poincaré -> Klein isomorphism).
@@ -50,8 +51,9 @@ BOUNDARY_GAPS = [1e-6, 1e-9, 1e-12, 1e-15]
 REL_BOUND = 1e-12
 # Results nearer the sphere than this (1 - |r|/R) cannot be represented as a
 # float64 point strictly inside the ball (the spacing of doubles just below 1
-# is 1.1e-16): the library documents that they round onto the sphere. Such
-# rows are skipped, not scored.
+# is 1.1e-16): the library documents that they round onto the sphere
+# (measured: on it or up to ~5e-16 R beyond it, normwise error still ~5e-16).
+# Such rows are skipped, not scored.
 UNREPRESENTABLE_GAP = 2.0**-52
 # Absolute floor (in units of R) for the relative-error denominator when the
 # exact result is (nearly) the origin.
@@ -198,7 +200,7 @@ def _print_worst_errors():
     if not WORST:
         return
     groups = ["random", "boundary", "coincident", "opposite"]
-    lines = ["", "worst normwise relative error vs 50-digit mpmath (bound %.0e):" % REL_BOUND]
+    lines = ["", "worst normwise relative error vs mpmath (converged, >= 50 digits; bound %.0e):" % REL_BOUND]
     lines.append("%-19s" % "function" + "".join("%12s" % g for g in groups))
     for name in FUNCTIONS:
         row = "%-19s" % name
@@ -294,7 +296,6 @@ def test_reference_gyration_agrees_with_closed_form(case):
         for j in range(0, len(a), 4):
             exact = _ungar_gyration(a[j], b[j], v[j], K)
             conv = ref.converged(ref.mobius_gyration, a[j], b[j], v[j], curvature=K)
-            assert ref.rel_error([float(x) for x in conv], exact, 1e-15 * R) < 1e-15
             with ref.mp.workdps(200):
                 diff = max(abs(p - q) for p, q in zip(conv, exact))
                 assert diff < ref.mpf(10) ** -28 * R, (K, j)
@@ -408,7 +409,7 @@ def test_scalar_law(space, curvature, d):
     got = mod.scale(r, x, curvature=curvature)
     err = np.linalg.norm(got - want, axis=1) / np.linalg.norm(want, axis=1)
     assert np.max(err) < 1e-12
-    # r broadcasting against x[..., 0]: a scalar r and a (n, 1)-shaped x stack.
+    # common practice: a scalar r and an array of equal r give identical rows.
     assert np.allclose(mod.scale(0.5, x, curvature=curvature)[:5],
                        mod.scale(np.full(5, 0.5), x[:5], curvature=curvature), rtol=0, atol=0)
     # 0 ⊗ x = 0, 1 ⊗ x = x.
@@ -475,6 +476,13 @@ def ball_batches(draw, count: int, extra_vectors: int = 0):
     pts = 0.9 * R * raw / np.maximum(norms, 1.0)
     pts[count:] *= 3.0 / 0.9
     return curvature, [pts[i] for i in range(count + extra_vectors)]
+
+
+def _safe_norm(x: np.ndarray) -> np.ndarray:
+    """Row norms that neither underflow nor overflow."""
+    m = np.max(np.abs(x), axis=-1)
+    safe = np.where(m > 0, m, 1.0)
+    return m * np.linalg.norm(x / safe[..., None], axis=-1)
 
 
 def _assert_close(a, b, R, what):
@@ -567,8 +575,11 @@ def test_gyrations_are_linear_isometries(space, batch):
     gv = mod.gyration(a, b, v, **c)
     lhs = np.sum(gu * gv, axis=-1)
     rhs = np.sum(u * v, axis=-1)
-    scale = np.linalg.norm(u, axis=-1) * np.linalg.norm(v, axis=-1) + 1e-300
-    assert np.all(np.abs(lhs - rhs) <= TOL * scale), "inner product not preserved"
+    # |u||v| without underflow (hypothesis likes 1e-290-sized coordinates);
+    # 1e-320: products that land in the subnormal range are only accurate
+    # to the absolute spacing of subnormals.
+    scale = _safe_norm(u) * _safe_norm(v)
+    assert np.all(np.abs(lhs - rhs) <= TOL * scale + 1e-320), "inner product not preserved"
     _assert_close(mod.gyration(b, a, gu, **c), u, R, "gyr[b,a] gyr[a,b] u = u")
     lin = mod.gyration(a, b, 2.5 * u - 0.75 * v, **c)
     _assert_close(lin, 2.5 * gu - 0.75 * gv, R, "linearity")
@@ -612,7 +623,8 @@ def test_scalar_distributive_and_associative_laws(space, batch, r1, r2):
     # associative law).
     curvature, (a,) = batch
     mod, R, c = getattr(gk, space), _radius(curvature), {"curvature": curvature}
-    # Keep |r ⊗ a| clear of the float64 boundary: |r| artanh(0.9) <= 4.4.
+    # |r1 + r2| <= 6 and |a| <= 0.9 R keep every r ⊗ a at least 4.5e-8 R
+    # inside the sphere (tanh(6 artanh 0.9)), where the laws are well conditioned.
     _assert_close(
         mod.scale(r1 + r2, a, **c),
         mod.add(mod.scale(r1, a, **c), mod.scale(r2, a, **c), **c),

@@ -1,0 +1,422 @@
+//! Distance matrices, condensed distances, brute-force k nearest neighbours
+//! and radius queries over prepared point sets.
+//!
+//! The Poincaré and half-space kernels are register-tiled: 4 rows against a
+//! panel of 8 packed columns, squared differences accumulated in coordinate
+//! order (no Gram-matrix shortcut: `|x|^2 + |y|^2 - 2 x.y` loses every digit
+//! for close pairs), then `h = |x - y|^2 a_x a_y s` and one transcendental,
+//! `R acosh(1 + 2h)`, per pair. Rankings use `h` itself (monotone in the
+//! distance), so neighbour search needs no transcendental per pair. Every
+//! path evaluates `h` in the same order as `Prepared::half_delta`, so the
+//! matrix, the neighbour functions and the metric tree report bit-identical
+//! distances. Rows are processed in parallel strips whose size does not
+//! depend on the thread count: results are bit-identical for any number of
+//! threads.
+
+use rayon::prelude::*;
+
+use crate::convert::Model;
+use crate::error::{value_err, Result};
+use crate::numeric::acosh1p2_fast;
+use crate::pairwise::{scaled_h, Prepared};
+use crate::simd;
+
+/// Output element types.
+pub trait Store: Copy + Send + Sync + Default + 'static {
+    fn from_f64(v: f64) -> Self;
+}
+impl Store for f64 {
+    #[inline(always)]
+    fn from_f64(v: f64) -> Self {
+        v
+    }
+}
+impl Store for f32 {
+    #[inline(always)]
+    fn from_f64(v: f64) -> Self {
+        v as f32
+    }
+}
+
+const LANES: usize = 8;
+const ROWS: usize = 4;
+/// Rows per parallel task.
+const STRIP: usize = 32;
+
+/// Columns packed in panels of 8: `panels[p][k][l]` is coordinate `k` of
+/// point `8p + l`; padding columns have factor 0 (their `h` is 0 and is
+/// never stored).
+struct Packed {
+    w: usize,
+    m: usize,
+    panels: Vec<f64>,
+    aux: Vec<f64>,
+}
+
+impl Packed {
+    fn new(y: &Prepared) -> Packed {
+        let (w, m) = (y.w, y.n);
+        let np = m.div_ceil(LANES);
+        let mut panels = vec![0f64; np * w * LANES];
+        let mut aux = vec![0f64; np * LANES];
+        for j in 0..m {
+            let (p, l) = (j / LANES, j % LANES);
+            for k in 0..w {
+                panels[(p * w + k) * LANES + l] = y.coords[j * w + k];
+            }
+            aux[p * LANES + l] = y.aux[j];
+        }
+        Packed { w, m, panels, aux }
+    }
+    fn npanels(&self) -> usize {
+        self.m.div_ceil(LANES)
+    }
+    #[inline(always)]
+    fn panel(&self, p: usize) -> (&[f64], &[f64; LANES]) {
+        let a: &[f64; LANES] = self.aux[p * LANES..(p + 1) * LANES].try_into().unwrap();
+        (&self.panels[p * self.w * LANES..(p + 1) * self.w * LANES], a)
+    }
+}
+
+/// `h` for `R` rows starting at `i0` against one packed panel.
+#[inline(always)]
+fn tile_h<const R: usize>(x: &Prepared, i0: usize, panel: &[f64], ay: &[f64; LANES], s: f64, acc: &mut [[f64; LANES]; R]) {
+    let w = x.w;
+    *acc = [[0f64; LANES]; R];
+    for k in 0..w {
+        let yk: &[f64; LANES] = panel[k * LANES..(k + 1) * LANES].try_into().unwrap();
+        for r in 0..R {
+            let xv = x.coords[(i0 + r) * w + k];
+            for l in 0..LANES {
+                let t = xv - yk[l];
+                acc[r][l] += t * t;
+            }
+        }
+    }
+    for r in 0..R {
+        let ax = x.aux[i0 + r];
+        for l in 0..LANES {
+            acc[r][l] = scaled_h(acc[r][l], ax, ay[l], s);
+        }
+    }
+}
+
+/// The model constant `s` of the tiled models, or None for the generic ones.
+fn tile_scale(x: &Prepared) -> Option<f64> {
+    match x.model {
+        Model::Poincare => Some(x.curvature.kappa),
+        Model::HalfSpace => Some(0.25),
+        _ => None,
+    }
+}
+
+/// Calls `f(i, j0, hs)` for rows `rows` of `x` against all of `y`, where
+/// `hs[l]` is `h(i, j0 + l)` for the (up to 8) columns of one panel. Columns
+/// beyond `y.n` are not reported.
+#[inline(always)]
+fn for_each_h(x: &Prepared, y: &Prepared, packed: Option<&Packed>, rows: std::ops::Range<usize>, mut f: impl FnMut(usize, usize, &[f64; LANES], usize)) {
+    match (tile_scale(x), packed) {
+        (Some(s), Some(pk)) => {
+            for p in 0..pk.npanels() {
+                let (panel, ay) = pk.panel(p);
+                let j0 = p * LANES;
+                let valid = (y.n - j0).min(LANES);
+                let mut i = rows.start;
+                let mut h = [[0f64; LANES]; ROWS];
+                let mut h1 = [[0f64; LANES]; 1];
+                while i + ROWS <= rows.end {
+                    tile_h::<ROWS>(x, i, panel, ay, s, &mut h);
+                    for r in 0..ROWS {
+                        f(i + r, j0, &h[r], valid);
+                    }
+                    i += ROWS;
+                }
+                while i < rows.end {
+                    tile_h::<1>(x, i, panel, ay, s, &mut h1);
+                    f(i, j0, &h1[0], valid);
+                    i += 1;
+                }
+            }
+        }
+        _ => {
+            let mut buf = [0f64; LANES];
+            for i in rows {
+                let mut j0 = 0;
+                while j0 < y.n {
+                    let valid = (y.n - j0).min(LANES);
+                    for l in 0..LANES {
+                        buf[l] = if l < valid { x.half_delta(i, y, j0 + l) } else { 0.0 };
+                    }
+                    f(i, j0, &buf, valid);
+                    j0 += LANES;
+                }
+            }
+        }
+    }
+}
+
+fn check_pair(x: &Prepared, y: &Prepared, names: (&str, &str)) -> Result<()> {
+    x.check_compatible(y, names)
+}
+
+/// Fills `out` (row-major `x.n x y.n`) with all pairwise distances.
+pub fn distance_matrix_into<T: Store>(x: &Prepared, y: &Prepared, out: &mut [T]) -> Result<()> {
+    check_pair(x, y, ("x", "y"))?;
+    let (n, m) = (x.n, y.n);
+    if out.len() != n * m {
+        return value_err(format!("out must have shape ({n}, {m})"));
+    }
+    if n == 0 || m == 0 {
+        return Ok(());
+    }
+    let packed = tile_scale(x).map(|_| Packed::new(y));
+    let radius = x.curvature.radius;
+    let fast = simd::has_fma();
+    out.par_chunks_mut(STRIP * m).enumerate().for_each(|(s, block)| {
+        let r0 = s * STRIP;
+        let r1 = (r0 + STRIP).min(n);
+        simd::dispatch(fast, || {
+            for_each_h(x, y, packed.as_ref(), r0..r1, #[inline(always)] |i, j0, hs, valid| {
+                // All 8 lanes at once (padding lanes have h = 0), so the
+                // transcendental vectorises; only valid lanes are stored.
+                let mut dv = [0f64; LANES];
+                for l in 0..LANES {
+                    dv[l] = radius * acosh1p2_fast(hs[l]);
+                }
+                let at = (i - r0) * m + j0;
+                if valid == LANES {
+                    // Fixed length: plain stores, not a memcpy call per tile row.
+                    let row: &mut [T; LANES] = (&mut block[at..at + LANES]).try_into().unwrap();
+                    for l in 0..LANES {
+                        row[l] = T::from_f64(dv[l]);
+                    }
+                } else {
+                    for l in 0..valid {
+                        block[at + l] = T::from_f64(dv[l]);
+                    }
+                }
+            })
+        })
+    });
+    Ok(())
+}
+
+/// The upper triangle (i < j) of the distance matrix of `x` with itself,
+/// row-major, length n (n - 1) / 2.
+pub fn condensed_into<T: Store>(x: &Prepared, out: &mut [T]) -> Result<()> {
+    let n = x.n;
+    if out.len() != n * n.saturating_sub(1) / 2 {
+        return value_err("out has the wrong length for a condensed distance vector");
+    }
+    if n < 2 {
+        return Ok(());
+    }
+    let packed = tile_scale(x).map(|_| Packed::new(x));
+    let radius = x.curvature.radius;
+    let fast = simd::has_fma();
+    // Split the output at strip boundaries: row i starts at i n - i (i + 1)/2.
+    let start = |i: usize| i * n - i * (i + 1) / 2;
+    let mut pieces: Vec<(usize, &mut [T])> = Vec::new();
+    let mut rest: &mut [T] = out;
+    let mut r0 = 0;
+    while r0 < n {
+        let r1 = (r0 + STRIP).min(n);
+        let len = start(r1) - start(r0);
+        let (a, b) = rest.split_at_mut(len);
+        pieces.push((r0, a));
+        rest = b;
+        r0 = r1;
+    }
+    pieces.into_par_iter().for_each(|(r0, block)| {
+        let r1 = (r0 + STRIP).min(n);
+        let base = start(r0);
+        simd::dispatch(fast, || {
+            for_each_h(x, x, packed.as_ref(), r0..r1, #[inline(always)] |i, j0, hs, valid| {
+                if j0 + valid <= i + 1 {
+                    return;
+                }
+                let mut dv = [0f64; LANES];
+                for l in 0..LANES {
+                    dv[l] = radius * acosh1p2_fast(hs[l]);
+                }
+                for l in 0..valid {
+                    let j = j0 + l;
+                    if j > i {
+                        block[start(i) + (j - i - 1) - base] = T::from_f64(dv[l]);
+                    }
+                }
+            })
+        })
+    });
+    Ok(())
+}
+
+/// A bounded, sorted candidate list: the `k` smallest `(h, j)` seen so far.
+struct TopK {
+    h: Vec<f64>,
+    j: Vec<usize>,
+    k: usize,
+}
+
+impl TopK {
+    fn new(k: usize) -> TopK {
+        TopK { h: Vec::with_capacity(k + 1), j: Vec::with_capacity(k + 1), k }
+    }
+    #[inline(always)]
+    fn worst(&self) -> f64 {
+        if self.h.len() < self.k {
+            f64::INFINITY
+        } else {
+            self.h[self.k - 1]
+        }
+    }
+    #[inline(always)]
+    fn push(&mut self, h: f64, j: usize) {
+        if self.h.len() == self.k {
+            let (wh, wj) = (self.h[self.k - 1], self.j[self.k - 1]);
+            if h > wh || (h == wh && j > wj) {
+                return;
+            }
+            self.h.pop();
+            self.j.pop();
+        }
+        // insertion keeping (h, j) ascending
+        let mut pos = self.h.len();
+        while pos > 0 && (self.h[pos - 1] > h || (self.h[pos - 1] == h && self.j[pos - 1] > j)) {
+            pos -= 1;
+        }
+        self.h.insert(pos, h);
+        self.j.insert(pos, j);
+    }
+}
+
+/// Final ordering of neighbour lists: by distance, then index.
+fn sort_pairs(d: &mut [f64], j: &mut [i64]) {
+    let mut v: Vec<(f64, i64)> = d.iter().copied().zip(j.iter().copied()).collect();
+    v.sort_by(|a, b| a.0.total_cmp(&b.0).then(a.1.cmp(&b.1)));
+    for (t, (a, b)) in v.into_iter().enumerate() {
+        d[t] = a;
+        j[t] = b;
+    }
+}
+
+/// Brute-force `k` nearest neighbours of every row of `x` among the rows of
+/// `y`; with `exclude_self`, `x` and `y` are the same set and row `i` never
+/// lists itself. Returns row-major `(n, k)` indices and distances, each row
+/// ascending by (distance, index). Memory: O(n k) plus one tile per thread.
+pub fn knn(x: &Prepared, y: &Prepared, k: usize, exclude_self: bool) -> Result<(Vec<i64>, Vec<f64>)> {
+    check_pair(x, y, ("x", "y"))?;
+    let avail = if exclude_self { y.n.saturating_sub(1) } else { y.n };
+    if k == 0 {
+        return value_err("k must be at least 1");
+    }
+    if k > avail {
+        return value_err(format!(
+            "k = {k} is larger than the number of candidate points ({avail}{})",
+            if exclude_self { ", self-matches excluded" } else { "" }
+        ));
+    }
+    let n = x.n;
+    let mut idx = vec![0i64; n * k];
+    let mut dist = vec![0f64; n * k];
+    if n == 0 {
+        return Ok((idx, dist));
+    }
+    let packed = tile_scale(x).map(|_| Packed::new(y));
+    let radius = x.curvature.radius;
+    let fast = simd::has_fma();
+    idx.par_chunks_mut(STRIP * k)
+        .zip(dist.par_chunks_mut(STRIP * k))
+        .enumerate()
+        .for_each(|(s, (ib, db))| {
+            let r0 = s * STRIP;
+            let r1 = (r0 + STRIP).min(n);
+            let mut tops: Vec<TopK> = (r0..r1).map(|_| TopK::new(k)).collect();
+            simd::dispatch(fast, || {
+                for_each_h(x, y, packed.as_ref(), r0..r1, #[inline(always)] |i, j0, hs, valid| {
+                    let t = &mut tops[i - r0];
+                    let mut worst = t.worst();
+                    for (l, &h) in hs[..valid].iter().enumerate() {
+                        if h <= worst {
+                            let j = j0 + l;
+                            if exclude_self && j == i {
+                                continue;
+                            }
+                            t.push(h, j);
+                            worst = t.worst();
+                        }
+                    }
+                })
+            });
+            for (r, t) in tops.into_iter().enumerate() {
+                let (ir, dr) = (&mut ib[r * k..(r + 1) * k], &mut db[r * k..(r + 1) * k]);
+                for c in 0..k {
+                    ir[c] = t.j[c] as i64;
+                    dr[c] = radius * acosh1p2_fast(t.h[c]);
+                }
+                sort_pairs(dr, ir);
+            }
+        });
+    Ok((idx, dist))
+}
+
+/// All rows of `y` within distance `r` of each row of `x` (inclusive), as a
+/// CSR triple `(indptr, indices, distances)`, each row sorted by (distance,
+/// index). With `exclude_self`, row `i` never lists itself.
+pub fn radius_neighbors(x: &Prepared, y: &Prepared, r: f64, exclude_self: bool) -> Result<(Vec<i64>, Vec<i64>, Vec<f64>)> {
+    check_pair(x, y, ("x", "y"))?;
+    if !(r >= 0.0) || r.is_infinite() {
+        return value_err(format!("r must be a finite distance >= 0, got {r}"));
+    }
+    let n = x.n;
+    let radius = x.curvature.radius;
+    // h at distance r, with slack: candidates are confirmed by their distance.
+    let hr = {
+        let s = (r / (2.0 * radius)).sinh();
+        s * s * (1.0 + 1e-12) + f64::MIN_POSITIVE
+    };
+    let packed = tile_scale(x).map(|_| Packed::new(y));
+    let fast = simd::has_fma();
+    let nstrips = n.div_ceil(STRIP);
+    let parts: Vec<Vec<(Vec<i64>, Vec<f64>)>> = (0..nstrips)
+        .into_par_iter()
+        .map(|s| {
+            let r0 = s * STRIP;
+            let r1 = (r0 + STRIP).min(n);
+            let mut rows: Vec<(Vec<i64>, Vec<f64>)> = (r0..r1).map(|_| (Vec::new(), Vec::new())).collect();
+            simd::dispatch(fast, || {
+                for_each_h(x, y, packed.as_ref(), r0..r1, #[inline(always)] |i, j0, hs, valid| {
+                    for (l, &h) in hs[..valid].iter().enumerate() {
+                        if h <= hr {
+                            let j = j0 + l;
+                            if exclude_self && j == i {
+                                continue;
+                            }
+                            let d = radius * acosh1p2_fast(h);
+                            if d <= r {
+                                let row = &mut rows[i - r0];
+                                row.0.push(j as i64);
+                                row.1.push(d);
+                            }
+                        }
+                    }
+                })
+            });
+            for row in rows.iter_mut() {
+                sort_pairs(&mut row.1, &mut row.0);
+            }
+            rows
+        })
+        .collect();
+    let mut indptr = Vec::with_capacity(n + 1);
+    indptr.push(0i64);
+    let total: usize = parts.iter().flatten().map(|r| r.0.len()).sum();
+    let mut indices = Vec::with_capacity(total);
+    let mut dists = Vec::with_capacity(total);
+    for (ji, di) in parts.into_iter().flatten() {
+        indices.extend_from_slice(&ji);
+        dists.extend_from_slice(&di);
+        indptr.push(indices.len() as i64);
+    }
+    Ok((indptr, indices, dists))
+}
