@@ -404,7 +404,7 @@ where
         let rows_per = chunk_rows(n, work_per_row.max(1) * lay.d.max(1));
         let fast = crate::simd::has_fma();
         let run = |start: usize, block: &mut [f64]| {
-            merge(crate::simd::dispatch(fast, || {
+            merge(crate::simd::dispatch(fast, #[inline(always)] || {
                 run_chunk(acc_r, lead_r, out_len, kern_r, start, block)
             }))
         };

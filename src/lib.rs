@@ -14,6 +14,7 @@ pub mod neighbors;
 pub mod numeric;
 pub mod pairwise;
 pub mod poincare;
+pub mod relativity;
 pub mod simd;
 pub mod vptree;
 

@@ -83,10 +83,12 @@ impl Packed {
 fn tile_h<const R: usize>(x: &Prepared, i0: usize, panel: &[f64], ay: &[f64; LANES], s: f64, acc: &mut [[f64; LANES]; R]) {
     let w = x.w;
     *acc = [[0f64; LANES]; R];
-    for k in 0..w {
-        let yk: &[f64; LANES] = panel[k * LANES..(k + 1) * LANES].try_into().unwrap();
+    let xr: [&[f64]; R] = std::array::from_fn(|r| &x.coords[(i0 + r) * w..(i0 + r + 1) * w]);
+    for (k, yk) in panel.chunks_exact(LANES).enumerate().take(w) {
+        let yk: &[f64; LANES] = yk.try_into().unwrap();
         for r in 0..R {
-            let xv = x.coords[(i0 + r) * w + k];
+            // SAFETY: k < w = xr[r].len() (the panel holds w groups of LANES).
+            let xv = unsafe { *xr[r].get_unchecked(k) };
             for l in 0..LANES {
                 let t = xv - yk[l];
                 acc[r][l] += t * t;
@@ -175,7 +177,7 @@ pub fn distance_matrix_into<T: Store>(x: &Prepared, y: &Prepared, out: &mut [T])
     out.par_chunks_mut(STRIP * m).enumerate().for_each(|(s, block)| {
         let r0 = s * STRIP;
         let r1 = (r0 + STRIP).min(n);
-        simd::dispatch(fast, || {
+        simd::dispatch(fast, #[inline(always)] || {
             for_each_h(x, y, packed.as_ref(), r0..r1, #[inline(always)] |i, j0, hs, valid| {
                 // All 8 lanes at once (padding lanes have h = 0), so the
                 // transcendental vectorises; only valid lanes are stored.
@@ -230,7 +232,7 @@ pub fn condensed_into<T: Store>(x: &Prepared, out: &mut [T]) -> Result<()> {
     pieces.into_par_iter().for_each(|(r0, block)| {
         let r1 = (r0 + STRIP).min(n);
         let base = start(r0);
-        simd::dispatch(fast, || {
+        simd::dispatch(fast, #[inline(always)] || {
             for_each_h(x, x, packed.as_ref(), r0..r1, #[inline(always)] |i, j0, hs, valid| {
                 if j0 + valid <= i + 1 {
                     return;
@@ -332,7 +334,7 @@ pub fn knn(x: &Prepared, y: &Prepared, k: usize, exclude_self: bool) -> Result<(
             let r0 = s * STRIP;
             let r1 = (r0 + STRIP).min(n);
             let mut tops: Vec<TopK> = (r0..r1).map(|_| TopK::new(k)).collect();
-            simd::dispatch(fast, || {
+            simd::dispatch(fast, #[inline(always)] || {
                 for_each_h(x, y, packed.as_ref(), r0..r1, #[inline(always)] |i, j0, hs, valid| {
                     let t = &mut tops[i - r0];
                     let mut worst = t.worst();
@@ -384,7 +386,7 @@ pub fn radius_neighbors(x: &Prepared, y: &Prepared, r: f64, exclude_self: bool) 
             let r0 = s * STRIP;
             let r1 = (r0 + STRIP).min(n);
             let mut rows: Vec<(Vec<i64>, Vec<f64>)> = (r0..r1).map(|_| (Vec::new(), Vec::new())).collect();
-            simd::dispatch(fast, || {
+            simd::dispatch(fast, #[inline(always)] || {
                 for_each_h(x, y, packed.as_ref(), r0..r1, #[inline(always)] |i, j0, hs, valid| {
                     for (l, &h) in hs[..valid].iter().enumerate() {
                         if h <= hr {

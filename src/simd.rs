@@ -5,32 +5,86 @@
 //! same operations in the same order (FMA is exactly rounded either way, and
 //! no contraction of `a * b + c` is allowed), so results are bit-identical.
 
-/// Whether the AVX2+FMA copy can run here (cached by std).
-#[inline]
-pub fn has_fma() -> bool {
-    #[cfg(target_arch = "x86_64")]
-    {
-        std::arch::is_x86_feature_detected!("avx2") && std::arch::is_x86_feature_detected!("fma")
-    }
-    #[cfg(not(target_arch = "x86_64"))]
-    {
-        false
-    }
+/// The instruction-set tiers, best first.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub enum Tier {
+    /// AVX-512 (F, DQ, VL) with FMA: 8 doubles per register.
+    Avx512,
+    /// AVX2 with FMA: 4 doubles per register.
+    Avx2,
+    /// The x86-64 (SSE2) or other baseline.
+    Baseline,
 }
 
-/// Runs `f` in the fastest copy the CPU supports (`fast` from [`has_fma`]).
-/// `f` is inlined into the feature-enabled function, so everything it
-/// inlines is compiled for that target.
+/// The best tier this CPU runs (std caches the detection). The environment
+/// variable `GYROKIT_SIMD` (`avx512`, `avx2`, `baseline`) caps it, so tests
+/// can check that every tier gives identical results.
+pub fn best_tier() -> Tier {
+    static TIER: std::sync::OnceLock<Tier> = std::sync::OnceLock::new();
+    *TIER.get_or_init(|| {
+        let cap = match std::env::var("GYROKIT_SIMD").as_deref() {
+            Ok("baseline") => Tier::Baseline,
+            Ok("avx2") => Tier::Avx2,
+            _ => Tier::Avx512,
+        };
+        let hw = detect();
+        let rank = |t: Tier| match t {
+            Tier::Avx512 => 2,
+            Tier::Avx2 => 1,
+            Tier::Baseline => 0,
+        };
+        if rank(cap) < rank(hw) {
+            cap
+        } else {
+            hw
+        }
+    })
+}
+
+fn detect() -> Tier {
+    #[cfg(target_arch = "x86_64")]
+    {
+        use std::arch::is_x86_feature_detected as has;
+        if has!("avx512f") && has!("avx512dq") && has!("avx512vl") && has!("avx2") && has!("fma") {
+            return Tier::Avx512;
+        }
+        if has!("avx2") && has!("fma") {
+            return Tier::Avx2;
+        }
+    }
+    Tier::Baseline
+}
+
+/// Whether a vector tier is available (kept for callers that only ask
+/// whether to leave the baseline).
+#[inline]
+pub fn has_fma() -> bool {
+    best_tier() != Tier::Baseline
+}
+
+/// Runs `f` in the best copy the CPU supports. `f` is inlined into the
+/// feature-enabled function, so everything it inlines is compiled for that
+/// target.
 #[inline(always)]
 pub fn dispatch<R>(fast: bool, f: impl FnOnce() -> R) -> R {
     #[cfg(target_arch = "x86_64")]
     {
         if fast {
-            // SAFETY: `fast` is true only when the CPU has AVX2 and FMA.
-            return unsafe { avx2_fma(f) };
+            match best_tier() {
+                // SAFETY: the tier was detected on this CPU.
+                Tier::Avx512 => return unsafe { avx512(f) },
+                Tier::Avx2 => return unsafe { avx2_fma(f) },
+                Tier::Baseline => {}
+            }
         }
     }
     let _ = fast;
+    f()
+}
+
+#[cfg(target_arch = "x86_64")]
+#[target_feature(enable = "avx512f,avx512dq,avx512vl,avx2,fma")]
+unsafe fn avx512<R>(f: impl FnOnce() -> R) -> R {
     f()
 }
 

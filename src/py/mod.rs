@@ -11,6 +11,7 @@ pub(crate) mod coerce;
 mod index;
 mod models;
 mod neighbors;
+mod relativity;
 
 impl From<Error> for PyErr {
     fn from(e: Error) -> PyErr {
@@ -27,6 +28,7 @@ fn _native(m: &Bound<'_, PyModule>) -> PyResult<()> {
     models::register(m)?;
     index::register(m)?;
     neighbors::register(m)?;
+    relativity::register(m)?;
     m.add("__version__", env!("CARGO_PKG_VERSION"))?;
     Ok(())
 }

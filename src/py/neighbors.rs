@@ -73,16 +73,33 @@ fn distance_matrix<'py>(
         }
         _ => {
             if f32_out {
-                let mut v = vec![0f32; n * m];
-                py.detach(|| neighbors::distance_matrix_into(&px, pyo.as_ref().unwrap_or(&px), &mut v))?;
-                Ok(ndarray::Array2::from_shape_vec((n, m), v).expect("shape").into_pyarray(py).into_any().unbind())
+                let arr = fresh::<f32>(py, n, m);
+                {
+                    let mut rw = arr.readwrite();
+                    let sl = rw.as_slice_mut().expect("fresh arrays are contiguous");
+                    py.detach(|| neighbors::distance_matrix_into(&px, pyo.as_ref().unwrap_or(&px), sl))?;
+                }
+                Ok(arr.into_any().unbind())
             } else {
-                let mut v = vec![0f64; n * m];
-                py.detach(|| neighbors::distance_matrix_into(&px, pyo.as_ref().unwrap_or(&px), &mut v))?;
-                Ok(ndarray::Array2::from_shape_vec((n, m), v).expect("shape").into_pyarray(py).into_any().unbind())
+                let arr = fresh::<f64>(py, n, m);
+                {
+                    let mut rw = arr.readwrite();
+                    let sl = rw.as_slice_mut().expect("fresh arrays are contiguous");
+                    py.detach(|| neighbors::distance_matrix_into(&px, pyo.as_ref().unwrap_or(&px), sl))?;
+                }
+                Ok(arr.into_any().unbind())
             }
         }
     }
+}
+
+/// A new C-contiguous `(n, m)` array, not zero-filled: the kernels write
+/// every element before anything reads it (zero-filling 32 MB costs as much
+/// as a d = 2 distance matrix of that size).
+fn fresh<T: numpy::Element>(py: Python<'_>, n: usize, m: usize) -> Bound<'_, PyArray2<T>> {
+    // SAFETY: every element is written by distance_matrix_into before the
+    // array is handed to Python; on error the array is dropped unread.
+    unsafe { PyArray2::<T>::new(py, [n, m], false) }
 }
 
 fn check_out(shape: &[usize], contiguous: bool, n: usize, m: usize) -> PyResult<()> {

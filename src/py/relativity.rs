@@ -1,0 +1,6 @@
+//! pyo3 wrappers for relativistic velocities (to be written).
+use pyo3::prelude::*;
+
+pub fn register(_m: &Bound<'_, PyModule>) -> PyResult<()> {
+    Ok(())
+}

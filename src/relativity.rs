@@ -1,0 +1,1 @@
+//! Relativistic velocities in physical units (to be written).
