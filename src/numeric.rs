@@ -274,6 +274,28 @@ pub fn wedge_sq(x: &[f64], y: &[f64]) -> f64 {
     acc
 }
 
+/// `(a ∧ b) . (a ∧ c) = |a|^2 (b.c) - (a.b)(a.c)`, from 2x2 minors formed
+/// error-free, so it keeps its digits when `b` or `c` is nearly parallel to
+/// `a` (where the right-hand side cancels).
+#[inline(always)]
+pub fn wedge_dot(a: &[f64], b: &[f64], c: &[f64]) -> f64 {
+    let n = a.len();
+    let mut acc = DD::default();
+    for i in 0..n {
+        for j in (i + 1)..n {
+            let (p, pe) = two_prod(a[i], b[j]);
+            let (q, qe) = two_prod(a[j], b[i]);
+            let m1 = DD::new(p, pe).sub(DD::new(q, qe)).value();
+            let (p, pe) = two_prod(a[i], c[j]);
+            let (q, qe) = two_prod(a[j], c[i]);
+            let m2 = DD::new(p, pe).sub(DD::new(q, qe)).value();
+            let (t, te) = two_prod(m1, m2);
+            acc = acc.add(DD::new(t, te));
+        }
+    }
+    acc.value()
+}
+
 /// `artanh(t)` for `t = sqrt(kappa)|x|` given its gap `g = 1 - t^2`, without
 /// forming `1 - t` (which has no digits left near the boundary):
 /// `artanh t = log1p(2 t (1 + t) / g) / 2`.

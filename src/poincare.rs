@@ -541,6 +541,8 @@ pub fn check_margin(margin: f64) -> Result<()> {
 /// Batched projection into the ball of radius `(1 - margin) R`.
 pub fn project_arrays<'a>(c: Curvature, x: Data<'a>, margin: f64) -> Result<Output> {
     check_margin(margin)?;
+    // A float32 result must still be inside after rounding to float32.
+    let margin = if x.is_f32() { margin.max(4.0 * f32::EPSILON as f64) } else { margin };
     let ops = [Operand::point("x", x)];
     map_rows(&ops, &point_out, 8, #[inline(always)] |r, out| {
         check_finite(r[0]).map_err(|f| RowFault::new(0, f))?;
