@@ -13,10 +13,8 @@ use crate::ball::Curvature;
 use crate::batch::{finite_scalar, map_rows, Data, Operand, Output};
 use crate::error::{Fault, Result, RowFault};
 use crate::numeric::{
-    distance_from_half_delta, dot2, dot_dd, geodesic_weights, sumsq, two_prod, wedge_dot, wedge_sq, DD,
+    diff_of_squares, distance_from_half_delta, dot2, dot_dd, geodesic_weights, sumsq, two_prod, wedge_sq, DD,
 };
-#[allow(unused_imports)]
-use crate::numeric::diff_of_squares;
 use crate::poincare::with_scratch;
 
 /// Relative tolerance on x0 when reading a point (loose enough for float32
@@ -106,39 +104,25 @@ fn log_full(k: &Curvature, xs: &[f64], cx: f64, ys: &[f64], cy: f64, out: &mut [
     out[0] = dot2(xs, &out[1..]) / (k.radius * cx);
 }
 
-/// Parallel transport along the geodesic, by decomposition: with `e` the
-/// unit tangent at `x` toward `y` and `e'` the unit tangent at `y` pointing
-/// away from `x` (both from the accurate log maps), `P(v) = v - a e + a e'`,
-/// `a = <v, e>_L = (R^2 v_s.e_s + (x_s ∧ v_s).(x_s ∧ e_s)) / x0^2`. The
-/// textbook `v + <y, v>_L/(R^2 - <x, y>_L) (x + y)` cancels like
-/// `e^{r_x + r_y}` in `<y, v>_L` for points far from the origin.
+/// Parallel transport `v + <y, v>_L / (R^2 (2 + delta)) (x + y)` with
+/// `<y, v>_L = <y - x, v>_L` (tangency at x) and `y0 - x0` from the
+/// difference of squares. Writes the full (d + 1)-vector.
 #[inline(always)]
 fn transport_full(k: &Curvature, xs: &[f64], cx: f64, ys: &[f64], cy: f64, vs: &[f64], out: &mut [f64]) {
-    let n = xs.len();
     let r = k.radius;
-    let h = half_delta(k, xs, cx, ys, cy);
-    if h == 0.0 {
-        out[1..].copy_from_slice(vs);
-        out[0] = dot2(ys, vs) / (r * cy);
-        return;
+    let v0 = dot2(xs, vs) / (r * cx);
+    let dy0 = r * k.kappa * diff_of_squares(ys, xs, 1.0) / (cx + cy); // y0 - x0
+    let mut dv = 0.0;
+    for i in 0..xs.len() {
+        dv += (ys[i] - xs[i]) * vs[i];
     }
-    let d = distance_from_half_delta(r, h);
-    with_scratch(2 * (n + 1), |buf| {
-        let (e, e2) = buf.split_at_mut(n + 1);
-        log_full(k, xs, cx, ys, cy, e);
-        log_full(k, ys, cy, xs, cx, e2);
-        let (es, e2s) = (&mut e[1..], &mut e2[1..]);
-        for i in 0..n {
-            es[i] /= d;
-            e2s[i] /= -d;
-        }
-        let x02 = r * r * cx * cx;
-        let a = (r * r * dot2(vs, es) + wedge_dot(xs, vs, es)) / x02;
-        let ps = &mut out[1..];
-        for i in 0..n {
-            ps[i] = (vs[i] - a * es[i]) + a * e2s[i];
-        }
-    });
+    let yv = dv - dy0 * v0;
+    let h = half_delta(k, xs, cx, ys, cy);
+    let coef = k.kappa * yv / (2.0 + 2.0 * h);
+    let ps = &mut out[1..];
+    for i in 0..xs.len() {
+        ps[i] = vs[i] + coef * (xs[i] + ys[i]);
+    }
     out[0] = dot2(ys, &out[1..]) / (r * cy);
 }
 
