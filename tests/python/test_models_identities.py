@@ -912,7 +912,7 @@ def test_transport_is_an_isometry_and_invertible(model, case):
     assert_close_values(err, np.zeros(N), rel * nu, f"{model}: transport y -> x of transport x -> y")
 
 
-@pytest.mark.parametrize("model", MANIFOLD_MODELS)
+@pytest.mark.parametrize("model", _known(MANIFOLD_MODELS, _TRANSPORT_FAR))
 @SETTINGS
 @given(case=CASES)
 def test_transport_of_log_is_minus_log(model, case):
