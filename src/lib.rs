@@ -8,6 +8,7 @@ pub mod batch;
 pub mod error;
 pub mod halfspace;
 pub mod hyperboloid;
+pub mod centroids;
 pub mod convert;
 pub mod klein;
 pub mod neighbors;

@@ -24,6 +24,8 @@ from typing import Any
 
 from . import halfspace, hyperboloid, klein, poincare
 from .neighbors import condensed_distances, distance_matrix, knn, radius_neighbors
+from ._index import NeighborIndex
+from .centroids import ConvergenceWarning, FrechetMean, einstein_midpoint, frechet_mean, frechet_variance
 from ._native import __version__
 from . import _native
 
@@ -46,5 +48,7 @@ def convert(x: Any, src: str, dst: str, *, curvature: float = -1.0) -> Any:
 
 __all__ = [
     "poincare", "klein", "hyperboloid", "halfspace", "convert", "MODELS",
-    "distance_matrix", "condensed_distances", "knn", "radius_neighbors", "__version__",
+    "distance_matrix", "condensed_distances", "knn", "radius_neighbors",
+    "NeighborIndex", "frechet_mean", "einstein_midpoint", "frechet_variance", "FrechetMean", "ConvergenceWarning",
+    "__version__",
 ]

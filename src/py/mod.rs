@@ -7,6 +7,7 @@ use pyo3::prelude::*;
 use crate::error::Error;
 
 mod algebra;
+mod centroids;
 pub(crate) mod coerce;
 mod index;
 mod models;
@@ -25,6 +26,7 @@ impl From<Error> for PyErr {
 #[pymodule]
 fn _native(m: &Bound<'_, PyModule>) -> PyResult<()> {
     algebra::register(m)?;
+    centroids::register(m)?;
     models::register(m)?;
     index::register(m)?;
     neighbors::register(m)?;
