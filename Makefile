@@ -33,7 +33,9 @@ py-test: build
 test: rust-test py-test
 
 bench: build
-	$(VPY) benches/bench.py
+	$(VPY) benches/bench.py --single-thread
+	$(VPY) benches/bench_index.py
+	$(VPY) benches/bench_centroids.py
 
 clean:
 	rm -rf $(VENV) target

@@ -62,14 +62,57 @@ def bench_add():
     print(f"poincare.gyration          : gyrokit {t_g*1e3:7.1f} ms   ratio vs NumPy add formula = {t_g/t_np:.3f}")
 
 
-BENCHES = {"add": bench_add}
+def numpy_distance_matrix(x, y):
+    """The NumPy broadcasting formula arccosh(1 + 2|x-y|^2/((1-|x|^2)(1-|y|^2)))."""
+    d2 = np.sum((x[:, None, :] - y[None, :, :]) ** 2, axis=-1)
+    gx = 1 - np.sum(x * x, axis=1)
+    gy = 1 - np.sum(y * y, axis=1)
+    return np.arccosh(1 + 2 * d2 / (gx[:, None] * gy[None, :]))
+
+
+def bench_matrix():
+    from scipy.spatial.distance import cdist
+
+    rng = np.random.default_rng(11)
+    n = 2000
+    for d in (2, 16, 128):
+        x = ball_points(rng, n, d)
+        t_gk = best_of(lambda: gk.distance_matrix(x), repeat=7)
+        t_cd = best_of(lambda: cdist(x, x), repeat=7)
+        line = (f"distance_matrix n=m={n} d={d:3d}: gyrokit {t_gk*1e3:7.1f} ms   cdist {t_cd*1e3:7.1f} ms"
+                f"   ratio gyrokit/cdist = {t_gk/t_cd:.2f}")
+        if d <= 16:
+            t_np = best_of(lambda: numpy_distance_matrix(x, x), repeat=2)
+            line += f"   NumPy formula {t_np*1e3:7.1f} ms (gyrokit {t_np/t_gk:.0f}x faster)"
+        print(line)
+
+
+def bench_knn():
+    rng = np.random.default_rng(12)
+    n, d, k = 4000, 16, 10
+    x = ball_points(rng, n, d)
+    t_dm = best_of(lambda: gk.distance_matrix(x), repeat=5)
+    t_kn = best_of(lambda: gk.knn(x, k), repeat=5)
+    print(f"knn n={n} d={d} k={k}: {t_kn*1e3:7.1f} ms; distance_matrix {t_dm*1e3:7.1f} ms;"
+          f" knn pair throughput = {t_dm/t_kn*100:.0f}% of distance_matrix")
+
+
+BENCHES = {"add": bench_add, "matrix": bench_matrix, "knn": bench_knn}
 
 
 def main(argv):
-    names = argv or list(BENCHES)
-    print(f"threads: RAYON_NUM_THREADS={os.environ.get('RAYON_NUM_THREADS', 'all')}, cpus={os.cpu_count()}")
+    names = [a for a in argv if a in BENCHES] or list(BENCHES)
+    load = os.getloadavg()[0] if hasattr(os, "getloadavg") else float("nan")
+    print(f"threads: RAYON_NUM_THREADS={os.environ.get('RAYON_NUM_THREADS', 'all')}, cpus={os.cpu_count()},"
+          f" load average {load:.2f}")
     for name in names:
         BENCHES[name]()
+    if "--single-thread" in argv and os.environ.get("RAYON_NUM_THREADS") != "1":
+        import subprocess
+
+        env = dict(os.environ, RAYON_NUM_THREADS="1")
+        print("--- again with one thread ---", flush=True)
+        subprocess.run([sys.executable, __file__, *names], env=env, check=True)
 
 
 if __name__ == "__main__":

@@ -91,7 +91,7 @@ fn tile_h<const R: usize>(x: &Prepared, i0: usize, panel: &[f64], ay: &[f64; LAN
             let xv = unsafe { *xr[r].get_unchecked(k) };
             for l in 0..LANES {
                 let t = xv - yk[l];
-                acc[r][l] += t * t;
+                acc[r][l] = t.mul_add(t, acc[r][l]);
             }
         }
     }

@@ -26,10 +26,10 @@ use crate::{halfspace, hyperboloid};
 /// kernels use, so that every path gives bit-identical distances.
 #[inline(always)]
 pub fn seq_dist_sq(x: &[f64], y: &[f64]) -> f64 {
-    let mut acc = 0.0;
+    let mut acc = 0.0f64;
     for (a, b) in x.iter().zip(y) {
         let t = a - b;
-        acc += t * t;
+        acc = t.mul_add(t, acc);
     }
     acc
 }
