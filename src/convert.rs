@@ -139,7 +139,7 @@ pub fn convert_arrays<'a>(k: Curvature, x: Data<'a>, src: Model, dst: Model) -> 
     let d = if src == Model::Hyperboloid { w.saturating_sub(1) } else { w };
     let ops = [Operand::point("x", x)];
     map_rows(&ops, &|_| vec![dst.width(d)], 20, #[inline(always)] |r, out| {
-        with_scratch(d, |p| {
+        with_scratch(d, #[inline(always)] |p| {
             let g = to_hub(src, &k, r[0], p).map_err(|f| RowFault::new(0, f))?;
             if src == dst {
                 out.copy_from_slice(r[0]);

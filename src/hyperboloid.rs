@@ -203,7 +203,7 @@ pub fn exp_map_arrays<'a>(k: Curvature, v: Data<'a>, base: Option<Data<'a>>) -> 
     map_rows(&ops, &same, 30, #[inline(always)] |r, out| {
         crate::ball::check_finite(r[0]).map_err(|f| RowFault::new(0, f))?;
         let n = r[0].len() - 1;
-        with_scratch(2 * n, |buf| {
+        with_scratch(2 * n, #[inline(always)] |buf| {
             let (zero, ys) = buf.split_at_mut(n);
             let (xs, cx) = if has_base {
                 let cx = point_of!(&k, r[1], 1);
@@ -229,7 +229,7 @@ pub fn log_map_arrays<'a>(k: Curvature, y: Data<'a>, base: Option<Data<'a>>) -> 
     map_rows(&ops, &same, 30, #[inline(always)] |r, out| {
         let cy = point_of!(&k, r[0], 0);
         let n = r[0].len() - 1;
-        with_scratch(n, |zero| {
+        with_scratch(n, #[inline(always)] |zero| {
             let (xs, cx) = if has_base {
                 let cx = point_of!(&k, r[1], 1);
                 (&r[1][1..], cx)
@@ -264,7 +264,7 @@ pub fn geodesic_arrays<'a>(k: Curvature, x: Data<'a>, y: Data<'a>, t: Data<'a>) 
         let cy = point_of!(&k, r[1], 1);
         let t = finite_scalar(2, r[2][0])?;
         let n = r[0].len() - 1;
-        with_scratch(n, |ys| {
+        with_scratch(n, #[inline(always)] |ys| {
             geodesic_spatial(&k, &r[0][1..], cx, &r[1][1..], cy, t, ys);
             write_point(&k, ys, out);
         });

@@ -76,7 +76,7 @@ pub fn gyration_g(c: &Curvature, u: &[f64], gu: f64, v: &[f64], gv: f64, w: &[f6
     let ds = diff_of_squares(u, v, 1.0);
     let q = 1.0 / ((1.0 + au) * (1.0 + av));
     let cv = k * ds / (au + av);
-    with_scratch(3 * n, |buf| {
+    with_scratch(3 * n, #[inline(always)] |buf| {
         let (pu, rest) = buf.split_at_mut(n);
         let (pv, sp) = rest.split_at_mut(n);
         for i in 0..n {
@@ -171,7 +171,7 @@ fn jacobian_inv(c: &Curvature, x: &[f64], gx: f64, v: &[f64], out: &mut [f64]) {
 /// `sech^2(|w|/R)`, is carried into the addition.
 #[inline(always)]
 pub fn exp_map_g(c: &Curvature, x: &[f64], gx: f64, v: &[f64], out: &mut [f64]) {
-    with_scratch(x.len(), |w| {
+    with_scratch(x.len(), #[inline(always)] |w| {
         jacobian_inv(c, x, gx, v, w);
         let n = sumsq(w).sqrt();
         if n == 0.0 {
@@ -189,7 +189,7 @@ pub fn exp_map_g(c: &Curvature, x: &[f64], gx: f64, v: &[f64], out: &mut [f64]) 
 /// from the exact gap of `u`.
 #[inline(always)]
 pub fn log_map_g(c: &Curvature, x: &[f64], gx: f64, y: &[f64], gy: f64, out: &mut [f64]) {
-    with_scratch(x.len(), |w| {
+    with_scratch(x.len(), #[inline(always)] |w| {
         // ⊖x ⊕ y = -(x ⊖ y): Einstein addition is odd.
         let gu = add_g(c, x, gx, y, gy, -1.0, w);
         let t = c.sqrt_kappa * sumsq(w).sqrt();
@@ -208,7 +208,7 @@ pub fn log_map_g(c: &Curvature, x: &[f64], gx: f64, y: &[f64], gy: f64, out: &mu
 #[inline(always)]
 pub fn transport_g(c: &Curvature, x: &[f64], gx: f64, y: &[f64], gy: f64, v: &[f64], out: &mut [f64]) {
     let n = x.len();
-    with_scratch(3 * n, |buf| {
+    with_scratch(3 * n, #[inline(always)] |buf| {
         let (w, rest) = buf.split_at_mut(n);
         let (nx, r) = rest.split_at_mut(n);
         jacobian_inv(c, x, gx, v, w);
@@ -321,7 +321,7 @@ pub fn exp_map_arrays<'a>(c: Curvature, v: Data<'a>, base: Option<Data<'a>>) -> 
             let ops = [Operand::point("v", v)];
             map_rows(&ops, &point_out, 16, #[inline(always)] |r, out| {
                 check_finite(r[0]).map_err(|f| RowFault::new(0, f))?;
-                with_scratch(r[0].len(), |z| exp_map_g(&c, z, 1.0, r[0], out));
+                with_scratch(r[0].len(), #[inline(always)] |z| exp_map_g(&c, z, 1.0, r[0], out));
         keep_inside(&c, out);
                 Ok(())
             })
@@ -346,7 +346,7 @@ pub fn log_map_arrays<'a>(c: Curvature, y: Data<'a>, base: Option<Data<'a>>) -> 
             let ops = [Operand::point("y", y)];
             map_rows(&ops, &point_out, 16, #[inline(always)] |r, out| {
                 let gy = gap_of!(&c, r[0], 0);
-                with_scratch(r[0].len(), |z| log_map_g(&c, z, 1.0, r[0], gy, out));
+                with_scratch(r[0].len(), #[inline(always)] |z| log_map_g(&c, z, 1.0, r[0], gy, out));
                 Ok(())
             })
         }

@@ -116,7 +116,7 @@ pub fn gyration_s(
     let ss = sumsq(s);
     let mut sw = 0.0;
     let mut vw = 0.0;
-    with_scratch(w.len(), |ws| {
+    with_scratch(w.len(), #[inline(always)] |ws| {
         for (o, &x) in ws.iter_mut().zip(w) {
             *o = x * up;
         }
@@ -161,7 +161,7 @@ pub(crate) fn pow2(e: i32) -> f64 {
 /// `gyr[u, v] w` for points `u`, `v` with gaps `gu`, `gv`.
 #[inline(always)]
 pub fn gyration_g(c: &Curvature, u: &[f64], gu: f64, v: &[f64], gv: f64, w: &[f64], out: &mut [f64]) {
-    with_scratch(u.len(), |s| {
+    with_scratch(u.len(), #[inline(always)] |s| {
         for i in 0..u.len() {
             s[i] = u[i] + v[i];
         }
@@ -185,7 +185,7 @@ pub fn midpoint_g(c: &Curvature, a: &[f64], ga: f64, b: &[f64], gb: f64, out: &m
     let k = c.kappa;
     let ds = diff_of_squares(a, b, 1.0);
     let mut dab = 0.0;
-    with_scratch(a.len(), |t| {
+    with_scratch(a.len(), #[inline(always)] |t| {
         for i in 0..a.len() {
             t[i] = a[i] - b[i];
         }
@@ -236,7 +236,7 @@ pub fn exp_map_g(c: &Curvature, x: &[f64], gx: f64, v: &[f64], out: &mut [f64]) 
     let a = c.sqrt_kappa * n / gx;
     let f = a.tanh() / (c.sqrt_kappa * n);
     let gw = sech2(a);
-    with_scratch(v.len(), |w| {
+    with_scratch(v.len(), #[inline(always)] |w| {
         for (o, &vi) in w.iter_mut().zip(v) {
             *o = f * vi;
         }
@@ -266,7 +266,7 @@ pub fn log_map_g(c: &Curvature, x: &[f64], gx: f64, y: &[f64], gy: f64, out: &mu
 #[inline(always)]
 pub fn transport_g(c: &Curvature, x: &[f64], gx: f64, y: &[f64], gy: f64, v: &[f64], out: &mut [f64]) {
     let n = x.len();
-    with_scratch(2 * n, |buf| {
+    with_scratch(2 * n, #[inline(always)] |buf| {
         let (nx, s) = buf.split_at_mut(n);
         for i in 0..n {
             nx[i] = -x[i];
@@ -461,7 +461,7 @@ pub fn exp_map_arrays<'a>(c: Curvature, v: Data<'a>, base: Option<Data<'a>>) -> 
             let ops = [Operand::point("v", v)];
             map_rows(&ops, &point_out, 16, #[inline(always)] |r, out| {
                 check_finite(r[0]).map_err(|f| RowFault::new(0, f))?;
-                with_scratch(r[0].len(), |z| exp_map_g(&c, z, 1.0, r[0], out));
+                with_scratch(r[0].len(), #[inline(always)] |z| exp_map_g(&c, z, 1.0, r[0], out));
         keep_inside(&c, out);
                 Ok(())
             })
@@ -486,7 +486,7 @@ pub fn log_map_arrays<'a>(c: Curvature, y: Data<'a>, base: Option<Data<'a>>) -> 
             let ops = [Operand::point("y", y)];
             map_rows(&ops, &point_out, 16, #[inline(always)] |r, out| {
                 let gy = gap_of!(&c, r[0], 0);
-                with_scratch(r[0].len(), |z| log_map_g(&c, z, 1.0, r[0], gy, out));
+                with_scratch(r[0].len(), #[inline(always)] |z| log_map_g(&c, z, 1.0, r[0], gy, out));
                 Ok(())
             })
         }

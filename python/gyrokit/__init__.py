@@ -16,13 +16,16 @@ Submodules:
     The hyperboloid (Lorentz) model, points ``(..., d + 1)``.
 ``gyrokit.halfspace``
     The upper half-space model.
+``gyrokit.relativity``
+    Relativistic velocities in physical units (Einstein addition, Thomas
+    rotation, boosts, precession).
 """
 
 from __future__ import annotations
 
 from typing import Any
 
-from . import halfspace, hyperboloid, klein, poincare
+from . import halfspace, hyperboloid, klein, poincare, relativity
 from .neighbors import condensed_distances, distance_matrix, knn, radius_neighbors
 from ._index import NeighborIndex
 from .centroids import ConvergenceWarning, FrechetMean, einstein_midpoint, frechet_mean, frechet_variance
@@ -47,7 +50,7 @@ def convert(x: Any, src: str, dst: str, *, curvature: float = -1.0) -> Any:
 
 
 __all__ = [
-    "poincare", "klein", "hyperboloid", "halfspace", "convert", "MODELS",
+    "poincare", "klein", "hyperboloid", "halfspace", "relativity", "convert", "MODELS",
     "distance_matrix", "condensed_distances", "knn", "radius_neighbors",
     "NeighborIndex", "frechet_mean", "einstein_midpoint", "frechet_variance", "FrechetMean", "ConvergenceWarning",
     "__version__",

@@ -1,0 +1,323 @@
+"""k-means clustering in hyperbolic space (Lloyd's algorithm with Fréchet means).
+
+:class:`KMeans` follows the usual estimator conventions (``fit`` returns
+``self``, fitted attributes end in ``_``, ``get_params``/``set_params``).
+It works directly in the coordinates of the input model (``"poincare"``,
+``"klein"``, ``"hyperboloid"`` or ``"halfspace"``): distances are exact
+hyperbolic distances and cluster centres are Fréchet means, so the result
+does not depend on the model the data is given in (up to rounding).
+
+Algorithm (per run; the best of ``n_init`` runs by inertia is kept):
+
+1. Seeding. ``init="k-means++"``: the first centre is a uniformly chosen
+   point; each further centre is a point drawn with probability
+   proportional to its squared hyperbolic distance to the nearest centre
+   chosen so far (D^2 sampling, Arthur & Vassilvitskii 2007). If every
+   point already coincides with a centre, the next one is drawn uniformly
+   from the points not chosen yet. ``init="random"``: ``n_clusters``
+   distinct points chosen uniformly. An ``(n_clusters, width)`` array:
+   those centres (then a single run).
+2. Assignment: every point goes to its nearest centre by exact hyperbolic
+   distance, ties to the lower centre index (:func:`gyrokit.knn`).
+3. Empty clusters (a centre with no points, e.g. duplicate centres):
+   handled deterministically, in increasing cluster index. Among the points
+   whose cluster holds at least two points, the one farthest from its
+   centre (lowest index on ties) is moved into the empty cluster and
+   becomes its centre. This never raises the inertia and never empties
+   another cluster.
+4. Update: every centre becomes the Fréchet mean of its points, all clusters
+   in one pass (:func:`gyrokit.frechet_mean` with ``labels``).
+5. Repeat 2-4 until the labels stop changing, or the total hyperbolic
+   movement of the centres ``sum_j d(c_j, c_j')`` is at most ``tol``, or
+   ``max_iter`` updates were made. A final assignment makes ``labels_`` and
+   ``inertia_`` consistent with ``cluster_centers_``.
+
+The inertia (sum of squared hyperbolic distances to the assigned centre)
+never rises: for fixed labels the Fréchet mean minimises each cluster's sum,
+the empty-cluster repair only lowers it, and reassignment to the nearest
+centre never increases it. ``inertia_history_`` records it after every
+assignment of the kept run (``inertia_history_[-1] == inertia_``).
+"""
+
+from __future__ import annotations
+
+import numbers
+from typing import Any, Dict, List, Optional, Tuple
+
+import numpy as np
+
+from . import _native, halfspace, hyperboloid, klein, poincare
+from .centroids import frechet_mean
+from .neighbors import distance_matrix, knn
+
+__all__ = ["KMeans", "NotFittedError"]
+
+_MODELS = ("poincare", "klein", "hyperboloid", "halfspace")
+_INITS = ("k-means++", "random")
+
+
+class NotFittedError(ValueError, AttributeError):
+    """``predict``/``transform``/``score`` called before ``fit``."""
+
+
+def _int_param(name: str, value: Any, low: int) -> int:
+    if isinstance(value, bool) or not isinstance(value, numbers.Integral):
+        raise TypeError(f"{name} must be an integer, got {value!r}")
+    if value < low:
+        raise ValueError(f"{name} must be >= {low}, got {value}")
+    return int(value)
+
+
+class KMeans:
+    """k-means clustering with hyperbolic distances and Fréchet-mean centres.
+
+    Parameters
+    ----------
+    n_clusters : int, default 8
+        Number of clusters (1 <= n_clusters <= number of points).
+    model : {"poincare", "klein", "hyperboloid", "halfspace"}
+        Model the points (and the returned centres) are given in.
+    curvature : float, default -1.0
+        Sectional curvature K < 0.
+    init : "k-means++", "random" or array (n_clusters, width)
+        Seeding; see the module docstring.
+    n_init : int, default 4
+        Number of seeded runs; the one with the lowest inertia is kept
+        (ignored, i.e. 1, when ``init`` is an array).
+    max_iter : int, default 100
+        Maximum number of Lloyd updates per run.
+    tol : float, default 1e-10
+        Stop when the total hyperbolic centre movement of an update is at
+        most ``tol`` (or when the labels stop changing).
+    random_state : None, int or numpy.random.Generator
+        Source of randomness (``numpy.random.default_rng(random_state)``);
+        an int gives reproducible results.
+
+    Attributes
+    ----------
+    cluster_centers_ : (n_clusters, width) array, in the input model.
+    labels_ : (n,) int64 array, index of each point's nearest centre.
+    inertia_ : float, sum of squared hyperbolic distances to the assigned centre.
+    n_iter_ : int, number of Lloyd updates of the kept run.
+    inertia_history_ : list of float, inertia after every assignment of the kept run.
+    n_features_in_ : int, width of the points seen in ``fit``.
+    """
+
+    def __init__(
+        self,
+        n_clusters: int = 8,
+        *,
+        model: str = "poincare",
+        curvature: float = -1.0,
+        init: Any = "k-means++",
+        n_init: int = 4,
+        max_iter: int = 100,
+        tol: float = 1e-10,
+        random_state: Any = None,
+    ) -> None:
+        self.n_clusters = n_clusters
+        self.model = model
+        self.curvature = curvature
+        self.init = init
+        self.n_init = n_init
+        self.max_iter = max_iter
+        self.tol = tol
+        self.random_state = random_state
+
+    # ------------------------------------------------------------------ params
+    _PARAM_NAMES = ("n_clusters", "model", "curvature", "init", "n_init", "max_iter", "tol", "random_state")
+
+    def get_params(self, deep: bool = True) -> Dict[str, Any]:
+        """The constructor parameters as a dict."""
+        return {name: getattr(self, name) for name in self._PARAM_NAMES}
+
+    def set_params(self, **params: Any) -> "KMeans":
+        """Sets constructor parameters; unknown names raise ``ValueError``."""
+        for name, value in params.items():
+            if name not in self._PARAM_NAMES:
+                raise ValueError(f"invalid parameter {name!r} for KMeans; valid parameters: {list(self._PARAM_NAMES)}")
+            setattr(self, name, value)
+        return self
+
+    def __repr__(self) -> str:
+        args = ", ".join(f"{k}={v!r}" for k, v in self.get_params().items() if not isinstance(v, np.ndarray))
+        return f"KMeans({args})"
+
+    def _check_params(self) -> None:
+        _int_param("n_clusters", self.n_clusters, 1)
+        _int_param("n_init", self.n_init, 1)
+        _int_param("max_iter", self.max_iter, 1)
+        if not isinstance(self.model, str) or self.model not in _MODELS:
+            raise ValueError(f"model must be one of {list(_MODELS)}, got {self.model!r}")
+        try:
+            k = float(self.curvature)
+        except (TypeError, ValueError):
+            raise TypeError(f"curvature must be a number, got {self.curvature!r}") from None
+        if not (np.isfinite(k) and k < 0):
+            raise ValueError(f"curvature must be finite and < 0, got {self.curvature!r}")
+        try:
+            tol = float(self.tol)
+        except (TypeError, ValueError):
+            raise TypeError(f"tol must be a number, got {self.tol!r}") from None
+        if not tol >= 0:
+            raise ValueError(f"tol must be >= 0, got {self.tol!r}")
+        if isinstance(self.init, str):
+            if self.init not in _INITS:
+                raise ValueError(f"init must be one of {list(_INITS)} or an array of centres, got {self.init!r}")
+
+    # ------------------------------------------------------------------ data
+    def _points(self, X: Any, name: str = "X") -> np.ndarray:
+        """``X`` as a validated float64 (n, width) array of the model's points."""
+        a = np.asarray(X)
+        if a.dtype.kind not in "biuf":
+            raise TypeError(f"{name} must be an array of real numbers, got dtype {a.dtype}")
+        a = np.ascontiguousarray(a, dtype=np.float64)
+        if a.ndim != 2:
+            raise ValueError(f"{name} must be a 2-D array of points (n, width); got shape {a.shape}")
+        if a.shape[0] == 0:
+            raise ValueError(f"{name} is empty: k-means needs at least one point")
+        try:
+            # One validating pass (NaN/inf, outside the ball, off the hyperboloid, ...).
+            _native.einstein_midpoint(a, None, None, self.model, float(self.curvature))
+        except ValueError as e:
+            raise ValueError(f"{name} is not a valid array of {self.model} points: {e}") from None
+        return a
+
+    def _assign(self, X: np.ndarray, centers: np.ndarray) -> Tuple[np.ndarray, np.ndarray]:
+        """Nearest centre (ties to the lower index) and its distance, per point."""
+        idx, dist = knn(X, 1, centers, model=self.model, curvature=float(self.curvature))
+        return idx[:, 0], dist[:, 0]
+
+    def _dist_to(self, X: np.ndarray, c: np.ndarray) -> np.ndarray:
+        return distance_matrix(X, c[None, :], model=self.model, curvature=float(self.curvature))[:, 0]
+
+    # ------------------------------------------------------------------ seeding
+    def _kmeanspp(self, X: np.ndarray, rng: np.random.Generator) -> np.ndarray:
+        n, k = X.shape[0], int(self.n_clusters)
+        chosen = [int(rng.integers(n))]
+        d2 = self._dist_to(X, X[chosen[0]]) ** 2
+        for _ in range(1, k):
+            total = float(d2.sum())
+            if total > 0.0:
+                cum = np.cumsum(d2)
+                i = int(np.searchsorted(cum, rng.random() * cum[-1], side="right"))
+                if i >= n or d2[i] == 0.0:  # rounding at the very top of the range
+                    i = int(np.flatnonzero(d2 > 0.0)[-1])
+            else:  # every point coincides with a chosen centre
+                free = np.setdiff1d(np.arange(n), chosen)
+                i = int(free[rng.integers(free.size)])
+            chosen.append(i)
+            np.minimum(d2, self._dist_to(X, X[i]) ** 2, out=d2)
+        return X[chosen].copy()
+
+    def _seed(self, X: np.ndarray, rng: np.random.Generator) -> np.ndarray:
+        if self.init == "k-means++":
+            return self._kmeanspp(X, rng)
+        return X[rng.choice(X.shape[0], size=int(self.n_clusters), replace=False)].copy()
+
+    # ------------------------------------------------------------------ Lloyd
+    @staticmethod
+    def _repair_empty(labels: np.ndarray, dist: np.ndarray, X: np.ndarray, centers: np.ndarray, k: int) -> None:
+        """Deterministic empty-cluster repair, in place (see the module docstring)."""
+        counts = np.bincount(labels, minlength=k)
+        for j in np.flatnonzero(counts == 0):
+            movable = counts[labels] >= 2
+            cand = np.where(movable, dist, -np.inf)
+            i = int(np.argmax(cand))
+            counts[labels[i]] -= 1
+            counts[j] += 1
+            labels[i] = j
+            dist[i] = 0.0
+            centers[j] = X[i]
+
+    def _center_shift(self, a: np.ndarray, b: np.ndarray) -> float:
+        d = _native_distance(self.model, a, b, float(self.curvature))
+        return float(np.sum(d))
+
+    def _lloyd(self, X: np.ndarray, centers: np.ndarray) -> Tuple[np.ndarray, np.ndarray, float, int, List[float]]:
+        k = centers.shape[0]
+        labels, dist = self._assign(X, centers)
+        history = [float(np.dot(dist, dist))]
+        n_iter = 0
+        for _ in range(int(self.max_iter)):
+            self._repair_empty(labels, dist, X, centers, k)
+            res = frechet_mean(X, labels=labels, model=self.model, curvature=float(self.curvature))
+            # After the repair every cluster has points: rows are clusters 0..k-1.
+            new_centers = np.asarray(res.mean, dtype=np.float64)
+            shift = self._center_shift(centers, new_centers)
+            centers = new_centers
+            n_iter += 1
+            new_labels, dist = self._assign(X, centers)
+            history.append(float(np.dot(dist, dist)))
+            unchanged = bool(np.array_equal(new_labels, labels))
+            labels = new_labels
+            if unchanged or shift <= float(self.tol):
+                break
+        return centers, labels, history[-1], n_iter, history
+
+    # ------------------------------------------------------------------ API
+    def fit(self, X: Any, y: Any = None) -> "KMeans":
+        """Clusters ``X`` ((n, width) points of ``model``); returns ``self``."""
+        self._check_params()
+        X = self._points(X)
+        n, k = X.shape[0], int(self.n_clusters)
+        if k > n:
+            raise ValueError(f"n_clusters={k} is larger than the number of points ({n})")
+        if isinstance(self.init, str):
+            n_init = int(self.n_init)
+            given = None
+        else:
+            given = self._points(self.init, "init")
+            if given.shape != (k, X.shape[1]):
+                raise ValueError(f"init must have shape (n_clusters, width) = {(k, X.shape[1])}; got {given.shape}")
+            n_init = 1
+        rng = np.random.default_rng(self.random_state)
+        best = None
+        for _ in range(n_init):
+            centers = given.copy() if given is not None else self._seed(X, rng)
+            run = self._lloyd(X, centers)
+            if best is None or run[2] < best[2]:
+                best = run
+        assert best is not None
+        self.cluster_centers_, self.labels_, self.inertia_, self.n_iter_, self.inertia_history_ = best
+        self.labels_ = self.labels_.astype(np.int64, copy=False)
+        self.n_features_in_ = X.shape[1]
+        return self
+
+    def _check_fitted(self, X: Any) -> np.ndarray:
+        if not hasattr(self, "cluster_centers_"):
+            raise NotFittedError("this KMeans instance is not fitted yet; call fit(X) first")
+        X = self._points(X)
+        if X.shape[1] != self.n_features_in_:
+            raise ValueError(f"X has {X.shape[1]} coordinates per point but KMeans was fitted with {self.n_features_in_}")
+        return X
+
+    def predict(self, X: Any) -> np.ndarray:
+        """Index of the nearest cluster centre of each point (ties to the lower index)."""
+        X = self._check_fitted(X)
+        return self._assign(X, self.cluster_centers_)[0]
+
+    def fit_predict(self, X: Any, y: Any = None) -> np.ndarray:
+        """``fit(X)`` and return ``labels_``."""
+        return self.fit(X).labels_
+
+    def transform(self, X: Any) -> np.ndarray:
+        """Hyperbolic distances from each point to each centre, ``(n, n_clusters)``."""
+        X = self._check_fitted(X)
+        return distance_matrix(X, self.cluster_centers_, model=self.model, curvature=float(self.curvature))
+
+    def fit_transform(self, X: Any, y: Any = None) -> np.ndarray:
+        """``fit(X)`` and return ``transform(X)``."""
+        return self.fit(X).transform(X)
+
+    def score(self, X: Any, y: Any = None) -> float:
+        """Minus the inertia of ``X`` about the fitted centres (higher is better)."""
+        X = self._check_fitted(X)
+        dist = self._assign(X, self.cluster_centers_)[1]
+        return -float(np.dot(dist, dist))
+
+
+def _native_distance(model: str, a: np.ndarray, b: np.ndarray, curvature: float) -> np.ndarray:
+    """Row-wise distances ``d(a_i, b_i)`` in ``model``."""
+    mod = {"poincare": poincare, "klein": klein, "hyperboloid": hyperboloid, "halfspace": halfspace}[model]
+    return mod.distance(a, b, curvature=curvature)
