@@ -253,7 +253,14 @@ pub fn condensed_into<T: Store>(x: &Prepared, out: &mut [T]) -> Result<()> {
     Ok(())
 }
 
-/// A bounded, sorted candidate list: the `k` smallest `(h, j)` seen so far.
+/// Relative slack on `h` within which candidates count as possible ties:
+/// `h` ranks exactly like the distance except where two distances round to
+/// the same float64 (or swap by an ulp) while their `h` differ in the last
+/// bits. Such near-ties are kept and settled by (distance, index).
+const TIE_SLACK: f64 = 1e-13;
+
+/// A sorted candidate list: the `k` smallest `(h, j)` seen so far, plus any
+/// candidates within `TIE_SLACK` of the k-th (possible ties at the boundary).
 struct TopK {
     h: Vec<f64>,
     j: Vec<usize>,
@@ -262,33 +269,34 @@ struct TopK {
 
 impl TopK {
     fn new(k: usize) -> TopK {
-        TopK { h: Vec::with_capacity(k + 1), j: Vec::with_capacity(k + 1), k }
+        TopK { h: Vec::with_capacity(k + 2), j: Vec::with_capacity(k + 2), k }
     }
+    /// Candidates with `h` above this can never enter.
     #[inline(always)]
     fn worst(&self) -> f64 {
         if self.h.len() < self.k {
             f64::INFINITY
         } else {
-            self.h[self.k - 1]
+            self.h[self.k - 1] * (1.0 + TIE_SLACK)
         }
     }
     #[inline(always)]
     fn push(&mut self, h: f64, j: usize) {
-        if self.h.len() == self.k {
-            let (wh, wj) = (self.h[self.k - 1], self.j[self.k - 1]);
-            if h > wh || (h == wh && j > wj) {
-                return;
-            }
-            self.h.pop();
-            self.j.pop();
+        if h > self.worst() {
+            return;
         }
-        // insertion keeping (h, j) ascending
         let mut pos = self.h.len();
         while pos > 0 && (self.h[pos - 1] > h || (self.h[pos - 1] == h && self.j[pos - 1] > j)) {
             pos -= 1;
         }
         self.h.insert(pos, h);
         self.j.insert(pos, j);
+        // Drop tail entries no longer within the tie slack of the k-th.
+        let lim = self.worst();
+        while self.h.len() > self.k && *self.h.last().unwrap() > lim {
+            self.h.pop();
+            self.j.pop();
+        }
     }
 }
 
@@ -351,12 +359,12 @@ pub fn knn(x: &Prepared, y: &Prepared, k: usize, exclude_self: bool) -> Result<(
                 })
             });
             for (r, t) in tops.into_iter().enumerate() {
-                let (ir, dr) = (&mut ib[r * k..(r + 1) * k], &mut db[r * k..(r + 1) * k]);
-                for c in 0..k {
-                    ir[c] = t.j[c] as i64;
-                    dr[c] = radius * acosh1p2_fast(t.h[c]);
-                }
-                sort_pairs(dr, ir);
+                // Settle by (distance, index) over the k and their near-ties.
+                let mut dd: Vec<f64> = t.h.iter().map(|&h| radius * acosh1p2_fast(h)).collect();
+                let mut jj: Vec<i64> = t.j.iter().map(|&j| j as i64).collect();
+                sort_pairs(&mut dd, &mut jj);
+                ib[r * k..(r + 1) * k].copy_from_slice(&jj[..k]);
+                db[r * k..(r + 1) * k].copy_from_slice(&dd[..k]);
             }
         });
     Ok((idx, dist))
@@ -367,8 +375,8 @@ pub fn knn(x: &Prepared, y: &Prepared, k: usize, exclude_self: bool) -> Result<(
 /// index). With `exclude_self`, row `i` never lists itself.
 pub fn radius_neighbors(x: &Prepared, y: &Prepared, r: f64, exclude_self: bool) -> Result<(Vec<i64>, Vec<i64>, Vec<f64>)> {
     check_pair(x, y, ("x", "y"))?;
-    if !(r >= 0.0) || r.is_infinite() {
-        return value_err(format!("r must be a finite distance >= 0, got {r}"));
+    if !(r >= 0.0) {
+        return value_err(format!("r must be a distance >= 0, got {r}"));
     }
     let n = x.n;
     let radius = x.curvature.radius;
