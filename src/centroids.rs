@@ -23,22 +23,23 @@ use crate::ball::Curvature;
 use crate::batch::Data;
 use crate::convert::{from_hub, to_hub, Model};
 use crate::error::{Error, Result};
-use crate::numeric::{artanh_from_gap, sech2, sumsq};
+use crate::numeric::{log1p_fast, sech2, sumsq};
 use crate::poincare;
 
 /// Points per reduction chunk (fixed: results never depend on threads).
 const CHUNK: usize = 2048;
 
 /// Points of any model read into the unit Poincaré ball with their gaps.
-pub struct UnitPoints {
+/// Poincaré float64 input of curvature -1 in C order is borrowed, not copied.
+pub struct UnitPoints<'a> {
     pub n: usize,
     pub d: usize,
-    pub p: Vec<f64>,
+    pub p: std::borrow::Cow<'a, [f64]>,
     pub g: Vec<f64>,
 }
 
 /// Reads `(n, width)` points of `model` (validated, rows named in errors).
-pub fn unit_points(model: Model, k: &Curvature, name: &str, x: &Data) -> Result<UnitPoints> {
+pub fn unit_points<'a>(model: Model, k: &Curvature, name: &str, x: &'a Data) -> Result<UnitPoints<'a>> {
     let shape = x.shape().to_vec();
     if shape.len() != 2 {
         return Err(Error::Value(format!("{name} must be a 2-D array of points (n, d); got shape {shape:?}")));
@@ -50,6 +51,31 @@ pub fn unit_points(model: Model, k: &Curvature, name: &str, x: &Data) -> Result<
     }
     if n == 0 {
         return Err(Error::Value(format!("{name} is empty: a centroid needs at least one point")));
+    }
+    if model == Model::Poincare && k.kappa == 1.0 {
+        if let Data::F64(a) | Data::Weak(a) = x {
+            if let Some(sl) = a.as_slice() {
+                let mut g = vec![0f64; n];
+                let bad: Vec<Option<(usize, crate::error::Fault)>> = g
+                    .par_chunks_mut(CHUNK)
+                    .enumerate()
+                    .map(|(c, gc)| {
+                        for (r, gr) in gc.iter_mut().enumerate() {
+                            let i = c * CHUNK + r;
+                            match crate::ball::checked_gap(k, &sl[i * d..(i + 1) * d]) {
+                                Ok(v) => *gr = v.value(),
+                                Err(f) => return Some((i, f)),
+                            }
+                        }
+                        None
+                    })
+                    .collect();
+                if let Some((i, f)) = bad.into_iter().flatten().next() {
+                    return Err(Error::Value(format!("{name}: row {i} {}", f.describe())));
+                }
+                return Ok(UnitPoints { n, d, p: std::borrow::Cow::Borrowed(sl), g });
+            }
+        }
     }
     let mut p = vec![0f64; n * d];
     let mut g = vec![0f64; n];
@@ -97,7 +123,7 @@ pub fn unit_points(model: Model, k: &Curvature, name: &str, x: &Data) -> Result<
     if let Some((i, f)) = res.into_iter().flatten().next() {
         return Err(Error::Value(format!("{name}: row {i} {}", f.describe())));
     }
-    Ok(UnitPoints { n, d, p, g })
+    Ok(UnitPoints { n, d, p: std::borrow::Cow::Owned(p), g })
 }
 
 /// Checks weights: length n, finite, non-negative.
@@ -112,6 +138,26 @@ pub fn check_weights(w: &[f64], n: usize) -> Result<()> {
         )));
     }
     Ok(())
+}
+
+/// Checked weights divided by their maximum (the means are invariant under
+/// scaling, and this keeps sums of weighted squares from under- or
+/// overflowing for weights like 1e-200 or 1e300).
+fn normalized(weights: Option<&[f64]>, n: usize) -> Result<Option<Vec<f64>>> {
+    match weights {
+        None => Ok(None),
+        Some(w) => {
+            check_weights(w, n)?;
+            let m = w.iter().fold(0.0f64, |a, &b| a.max(b));
+            if m == 0.0 {
+                return Ok(Some(w.to_vec()));
+            }
+            // A power of two: exact, so any subset scaled by a different
+            // power gives bit-identical means (per-label = separate means).
+            let f = crate::poincare::pow2(-crate::poincare::scale_exponent_of(m));
+            Ok(Some(w.iter().map(|v| v * f).collect()))
+        }
+    }
 }
 
 /// Groups: the sorted distinct labels and, for each, the point indices in
@@ -139,23 +185,34 @@ pub fn groups(labels: Option<&[i64]>, n: usize) -> Result<(Vec<i64>, Vec<Vec<usi
     }
 }
 
-/// Unit-ball Einstein midpoint of the members (with their weights), as a
-/// Poincaré point and its gap: `m_K = sum w 2p/g / sum w (2 - g)/g`.
-fn einstein_unit(pts: &UnitPoints, idx: &[usize], w: Option<&[f64]>) -> Option<(Vec<f64>, f64)> {
+/// The Einstein sums `(sum w 2p'/g', sum w (2 - g')/g')` of the members
+/// translated by `-c` (`p' = (-c) ⊕ p`, exact gap carried; `c = None` is no
+/// translation).
+fn einstein_sums(pts: &UnitPoints, idx: &[usize], w: Option<&[f64]>, c: Option<(&[f64], f64)>) -> (Vec<f64>, f64) {
     let d = pts.d;
+    let unit = Curvature::default();
     let parts: Vec<(Vec<f64>, f64)> = idx
         .par_chunks(CHUNK)
         .map(|ch| {
             let mut num = vec![0f64; d];
             let mut den = 0.0;
+            let mut q = vec![0f64; d];
             for &i in ch {
                 let wi = w.map_or(1.0, |w| w[i]);
                 if wi == 0.0 {
                     continue;
                 }
-                let g = pts.g[i];
+                let p = &pts.p[i * d..(i + 1) * d];
+                let g = match c {
+                    None => {
+                        q.copy_from_slice(p);
+                        pts.g[i]
+                    }
+                    Some((cv, cg)) => poincare::add_g(&unit, cv, cg, p, pts.g[i], -1.0, &mut q),
+                };
+                // (-c) ⊕ p = -(c ⊖ p): the sign is restored below.
                 let f = wi * 2.0 / g;
-                for (a, &b) in num.iter_mut().zip(&pts.p[i * d..(i + 1) * d]) {
+                for (a, &b) in num.iter_mut().zip(q.iter()) {
                     *a += f * b;
                 }
                 den += wi * (2.0 - g) / g;
@@ -169,15 +226,48 @@ fn einstein_unit(pts: &UnitPoints, idx: &[usize], w: Option<&[f64]>) -> Option<(
         num.iter_mut().zip(&a).for_each(|(x, y)| *x += y);
         den += b;
     }
+    if c.is_some() {
+        num.iter_mut().for_each(|v| *v = -*v);
+    }
+    (num, den)
+}
+
+/// Klein sums to the Poincaré point with its gap.
+fn einstein_point(mut num: Vec<f64>, den: f64) -> (Vec<f64>, f64) {
+    num.iter_mut().for_each(|v| *v /= den);
+    let gk = (1.0 - crate::numeric::sumsq_dd(&num).value()).max(0.0);
+    let a = gk.sqrt();
+    num.iter_mut().for_each(|v| *v /= 1.0 + a);
+    (num, 2.0 * a / (1.0 + a))
+}
+
+/// Unit-ball Einstein midpoint of the members (with their weights), as a
+/// Poincaré point and its exact gap. The direct sums cancel when the result
+/// lies far from the origin (its Klein gap, `1 - |m_K|^2`, is a difference of
+/// nearly equal numbers), so then the members are translated by a member
+/// `c` first (`(-c) ⊕ x`, gaps carried), averaged near the origin, and the
+/// result translated back: the gyrocentroid commutes with gyrotranslations
+/// (Ungar).
+fn einstein_unit(pts: &UnitPoints, idx: &[usize], w: Option<&[f64]>) -> Option<(Vec<f64>, f64)> {
+    let d = pts.d;
+    let (num, den) = einstein_sums(pts, idx, w, None);
     if !(den > 0.0) {
         return None;
     }
-    num.iter_mut().for_each(|v| *v /= den);
-    // Klein -> Poincaré (unit ball), gap carried.
-    let gk = (1.0 - sumsq(&num)).max(0.0);
-    let a = gk.sqrt();
-    num.iter_mut().for_each(|v| *v /= 1.0 + a);
-    Some((num, 2.0 * a / (1.0 + a)))
+    let (m, g) = einstein_point(num, den);
+    // The Klein gap 1 - |m_K|^2 loses ~eps/g_K relative; accept the direct
+    // result only where that is negligible (g_K > 0.1 <=> Poincaré gap > ~0.46).
+    if g > 0.5 {
+        return Some((m, g));
+    }
+    let i0 = *idx.iter().find(|&&i| w.map_or(1.0, |w| w[i]) > 0.0)?;
+    let c = &pts.p[i0 * d..(i0 + 1) * d];
+    let gc = pts.g[i0];
+    let (num, den) = einstein_sums(pts, idx, w, Some((c, gc)));
+    let (m2, g2) = einstein_point(num, den);
+    let mut out = vec![0f64; d];
+    let g = poincare::add_g(&Curvature::default(), c, gc, &m2, g2, 1.0, &mut out);
+    Some((out, g))
 }
 
 /// Gradient, Hessian and objective at `mu` (unit ball) over the members.
@@ -225,9 +315,10 @@ fn stats(pts: &UnitPoints, idx: &[usize], w: Option<&[f64]>, mu: &[f64], gmu: f6
                         st.hscal += wi;
                         continue;
                     }
-                    let dist = 2.0 * artanh_from_gap(t, gy);
-                    let e = (-2.0 * dist).exp();
-                    let c = dist * (1.0 + e) / -(-2.0 * dist).exp_m1(); // d coth d
+                    // d = 2 artanh t, from the gap (fast compensated log1p).
+                    let dist = log1p_fast(2.0 * t * (1.0 + t) / gy);
+                    // d coth d with coth(2 artanh t) = (1 + t^2)/(2t): no exp.
+                    let c = dist * (1.0 + t2) / (2.0 * t);
                     st.f += wi * dist * dist;
                     st.hscal += wi * c;
                     let fg = wi * dist / t;
@@ -235,11 +326,11 @@ fn stats(pts: &UnitPoints, idx: &[usize], w: Option<&[f64]>, mu: &[f64], gmu: f6
                         st.grad[j] += fg * y[j];
                     }
                     let fh = wi * (1.0 - c) / t2;
-                    for r in 0..d {
+                    // Full outer product (vectorises better than a triangle).
+                    for (r, row) in st.hout.chunks_exact_mut(d).enumerate() {
                         let yr = fh * y[r];
-                        let row = &mut st.hout[r * d..(r + 1) * d];
-                        for s in r..d {
-                            row[s] += yr * y[s];
+                        for (o, &ys) in row.iter_mut().zip(y.iter()) {
+                            *o = yr.mul_add(ys, *o);
                         }
                     }
                 }
@@ -265,7 +356,8 @@ fn newton_step(st: &Stats, d: usize) -> Vec<f64> {
     let mut a = vec![0f64; d * d];
     for r in 0..d {
         for s in r..d {
-            let v = st.hout[r * d + s] + if r == s { st.hscal } else { 0.0 };
+            // symmetrise (the accumulated halves agree to rounding)
+            let v = 0.5 * (st.hout[r * d + s] + st.hout[s * d + r]) + if r == s { st.hscal } else { 0.0 };
             a[r * d + s] = v;
             a[s * d + r] = v;
         }
@@ -352,6 +444,13 @@ fn frechet_group(pts: &UnitPoints, idx: &[usize], w: Option<&[f64]>, tol: f64, m
         }
         iterations += 1;
         let s = newton_step(&st, d);
+        // Beyond ~11 R from the origin one ulp of the coordinates is more
+        // than 1e-12 R of hyperbolic distance: a step below the coordinate
+        // resolution at mu cannot be taken, so the iterate is final.
+        let res = 2.0 * f64::EPSILON * (sumsq(&mu).sqrt() * 2.0 / gmu + 1.0);
+        if sumsq(&s).sqrt() <= 4.0 * res {
+            return Some(GroupMean { mu, gap: gmu, iterations, converged: true, grad_norm: gn });
+        }
         let (m2, g2) = step(&mu, gmu, &s, 1.0);
         prev = Some((mu, gmu, s, 1.0, gn));
         mu = m2;
@@ -397,9 +496,8 @@ pub fn frechet_mean(
         return Err(Error::Value(format!("tol must be >= 0, got {tol}")));
     }
     let pts = unit_points(model, &k, "x", x)?;
-    if let Some(w) = weights {
-        check_weights(w, pts.n)?;
-    }
+    let wn = normalized(weights, pts.n)?;
+    let weights = wn.as_deref();
     let (keys, members) = groups(labels, pts.n)?;
     let width = model.width(pts.d);
     let res: Vec<Option<GroupMean>> =
@@ -432,9 +530,8 @@ pub fn einstein_midpoint(
     labels: Option<&[i64]>,
 ) -> Result<(Vec<i64>, Vec<f64>, usize)> {
     let pts = unit_points(model, &k, "x", x)?;
-    if let Some(w) = weights {
-        check_weights(w, pts.n)?;
-    }
+    let wn = normalized(weights, pts.n)?;
+    let weights = wn.as_deref();
     let (keys, members) = groups(labels, pts.n)?;
     let width = model.width(pts.d);
     let res: Vec<Option<(Vec<f64>, f64)>> = members.par_iter().map(|idx| einstein_unit(&pts, idx, weights)).collect();
@@ -449,9 +546,8 @@ pub fn einstein_midpoint(
 /// `sum w d(c, x)^2 / sum w` about `center` (in the model's coordinates).
 pub fn frechet_variance(model: Model, k: Curvature, x: &Data, center: &[f64], weights: Option<&[f64]>) -> Result<f64> {
     let pts = unit_points(model, &k, "x", x)?;
-    if let Some(w) = weights {
-        check_weights(w, pts.n)?;
-    }
+    let wn = normalized(weights, pts.n)?;
+    let weights = wn.as_deref();
     let width = model.width(pts.d);
     if center.len() != width {
         return Err(Error::Value(format!(

@@ -151,6 +151,18 @@ pub(crate) fn scale_exponent(w: &[f64]) -> i32 {
     }
 }
 
+/// The exponent `e` with `m / 2^e` in [0.5, 1) for finite `m > 0`.
+#[inline(always)]
+pub(crate) fn scale_exponent_of(m: f64) -> i32 {
+    let bits = m.to_bits();
+    let raw = ((bits >> 52) & 0x7ff) as i32;
+    if raw == 0 {
+        -1021 - (bits.leading_zeros() as i32 - 12)
+    } else {
+        raw - 1022
+    }
+}
+
 /// `2^e` exactly, for |e| <= 1022.
 #[inline(always)]
 pub(crate) fn pow2(e: i32) -> f64 {

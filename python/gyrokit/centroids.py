@@ -17,6 +17,12 @@ import numpy as np
 
 from . import _native
 
+def _all_f32(*arrays: Any) -> bool:
+    """The dtype policy: float32 results only when every array input is float32."""
+    present = [a for a in arrays if a is not None]
+    return bool(present) and all(getattr(a, "dtype", None) == np.float32 for a in present)
+
+
 __all__ = [
     "FrechetMean", "ConvergenceWarning", "frechet_mean", "einstein_midpoint", "frechet_variance",
 ]
@@ -76,6 +82,8 @@ def frechet_mean(
             ConvergenceWarning,
             stacklevel=2,
         )
+    if _all_f32(x, weights):
+        mean = mean.astype(np.float32)
     if labels is None:
         return FrechetMean(mean[0], int(it[0]), bool(conv[0]), float(gn[0]), None)
     return FrechetMean(mean, it, conv, gn, labs)
@@ -98,6 +106,8 @@ def einstein_midpoint(
     good approximation to the Fréchet mean and its starting point.
     """
     mean, _ = _native.einstein_midpoint(x, weights, labels, model, curvature)
+    if _all_f32(x, weights):
+        mean = mean.astype(np.float32)
     return mean[0] if labels is None else mean
 
 

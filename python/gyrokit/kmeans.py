@@ -32,6 +32,11 @@ Algorithm (per run; the best of ``n_init`` runs by inertia is kept):
    ``max_iter`` updates were made. A final assignment makes ``labels_`` and
    ``inertia_`` consistent with ``cluster_centers_``.
 
+If the final assignment leaves a centre without points (possible only when
+iteration stops on ``tol`` or ``max_iter``), that centre is kept as it is.
+Computation is in float64 and ``cluster_centers_`` is float64 whatever the
+input dtype.
+
 The inertia (sum of squared hyperbolic distances to the assigned centre)
 never rises: for fixed labels the Fréchet mean minimises each cluster's sum,
 the empty-cluster repair only lowers it, and reassignment to the nearest
@@ -42,7 +47,7 @@ assignment of the kept run (``inertia_history_[-1] == inertia_``).
 from __future__ import annotations
 
 import numbers
-from typing import Any, Dict, List, Optional, Tuple
+from typing import Any, Dict, List, Tuple
 
 import numpy as np
 
