@@ -35,6 +35,10 @@ def exp_map(v: Any, base: Any = None, *, curvature: float = -1.0) -> Any:
     Signature ``(..., d+1), (..., d+1) -> (..., d+1)``. ``|v|`` is the
     Minkowski norm, computed as a sum of squares from the spatial parts.
     Results that overflow float64 raise ``ValueError``.
+
+    Accuracy: ~1e-15 relative unless a long tangent carries a point far from
+    the origin back past it, where ``cosh`` and ``sinh`` terms cancel like
+    ``e^{2 min(|v|, r)}`` (measured up to 6e-4 relative at 20-30 R).
     """
     return _native.hyperboloid_exp_map(v, base, curvature)
 
@@ -47,7 +51,9 @@ def log_map(y: Any, base: Any = None, *, curvature: float = -1.0) -> Any:
 def transport(v: Any, start: Any, end: Any, *, curvature: float = -1.0) -> Any:
     """Parallel transport ``v + <end, v>_L / (R^2 - <start, end>_L) (start + end)``.
 
-    Signature ``(..., d+1) x 3 -> (..., d+1)``.
+    Signature ``(..., d+1) x 3 -> (..., d+1)``. Accuracy: ~1e-15 relative near
+    the origin; ``<end, v>_L`` cancels for points far from the origin (the
+    Riemannian norm drifts by up to ~1e-8 relative at radius 10, measured).
     """
     return _native.hyperboloid_transport(v, start, end, curvature)
 

@@ -111,8 +111,13 @@ def exp_map(v: Any, base: Any = None, *, curvature: float = -1.0) -> Any:
     ``v`` is a tangent vector at ``base`` in ambient coordinates (the
     Riemannian norm is ``2|v|/(1 - kappa |base|^2)``); ``base=None`` is the
     origin. ``exp_x(v) = x ⊕ tanh(sqrt(kappa)|v|/g_x) v/(sqrt(kappa)|v|)``.
-    Results farther than about 37 R (hyperbolic) from the origin round onto the
-    sphere: float64 cannot hold ``1 - |x|/R < 1.1e-16``.
+    Results that float64 cannot hold strictly inside (``1 - |x|/R < 1.1e-16``,
+    beyond about 37 R from the origin) are returned at the largest float64
+    radius inside, along the exact direction.
+
+    Accuracy: ~1e-15 relative for tangents up to ~15 R long; for longer
+    tangents that carry a far base point back past the origin the rounding of
+    the intermediate point costs up to ~5e-10 relative (measured at 20-30 R).
     """
     return _native.poincare_exp_map(v, base, curvature)
 
