@@ -53,7 +53,6 @@ def _known(models, defects):
 
 
 _EXP_FAR = {
-    "poincare": "exp_map of tangents >= ~15R: error up to 5.5e-10 rel (measured)",
     "klein": "exp_map far from the origin goes through J_x^-1 (amplifies by 1/g): "
              "errors up to 0.35 in distance at 1-|x| = 1e-8 (measured)",
     "hyperboloid": "exp_map of tangents carrying far points back past the origin "

@@ -698,9 +698,7 @@ FUNC_BY_NAME = {f.name: f for f in FUNCS}
 # Geodesics: fixed by the closed-form hyperboloid weights (measured before:
 # up to 4.3e-1 Poincaré, 1.8e-1 Klein, 3.6e14 hyperboloid on these cases).
 KNOWN_DEFECTS: Dict[Tuple[str, str], str] = {
-    ("poincare.exp_map", "far30"):
-        "measured 3.4e-10 (48/48 rows); well-conditioned rows included "
-        "(err/sens up to 2.6e4, e.g. d=1)",
+    # ("poincare.exp_map", "far30"): fixed by the ideal-endpoint form (was 3.4e-10).
     ("klein.exp_map", "far30"):
         "measured 7.0e-4 (46/48 rows), err/sens up to 5e10; results can lie "
         "OUTSIDE the ball (|exp| > R)",
@@ -841,7 +839,7 @@ def test_agrees_with_mpmath_reference(name, kind):
 # (measured: the textbook is as good as gyrokit on every hard case here, or
 # gyrokit itself misses every hard case where the textbook does).
 TEXTBOOK_NOT_WORSE: Dict[str, str] = {
-    "poincare.exp_map": "textbook fine on edge/close; far30 is a gyrokit xfail",
+    "poincare.exp_map": "textbook fine on edge/close",
     "poincare.project": "a rescaling: the textbook is already exact",
     "klein.exp_map": "textbook fine on edge/close; far30 is a gyrokit xfail",
     "klein.project": "a rescaling: the textbook is already exact",
