@@ -13,7 +13,7 @@ use crate::batch::{finite_scalar, map_rows, Data, Operand, Output};
 use crate::error::{Result, RowFault};
 use crate::numeric::{
     artanh_from_gap, diff_of_squares, dist_sq, distance_from_half_delta, dot2, dot_with_sum, gap,
-    geodesic_weights, sech2, sumsq,
+    geodesic_weights, sumsq,
 };
 use crate::poincare::{self, gap_of, with_scratch};
 
@@ -166,41 +166,157 @@ fn jacobian_inv(c: &Curvature, x: &[f64], gx: f64, v: &[f64], out: &mut [f64]) {
     }
 }
 
-/// `exp_x(v) = x ⊕ exp_0(J_x^{-1} v)`, `exp_0(w) = R tanh(|w|/R) w/|w|`
-/// (the Klein metric is Euclidean at the origin); the gap of `exp_0(w)`,
-/// `sech^2(|w|/R)`, is carried into the addition.
+/// The Poincaré point of a Klein point, `p = k/(1 + a)`, and its exact gap
+/// `2a/(1 + a)` (`a = sqrt(g_k)`).
+#[inline(always)]
+fn to_poincare(k: &[f64], gk: f64, p: &mut [f64]) -> f64 {
+    let a = gk.sqrt();
+    for (o, &v) in p.iter_mut().zip(k) {
+        *o = v / (1.0 + a);
+    }
+    2.0 * a / (1.0 + a)
+}
+
+/// The differential of Klein -> Poincaré at `k`:
+/// `dp = dk/(1 + a) + kappa (k.dk) k / (a (1 + a)^2)`. Along `k` the two
+/// terms add (the radial coefficient is `1/(a (1 + a))`), so nothing cancels;
+/// `k.dk` is compensated because it is divided by the small `a`.
+#[inline(always)]
+fn tangent_to_poincare(c: &Curvature, k: &[f64], gk: f64, dk: &[f64], dp: &mut [f64]) {
+    let a = gk.sqrt();
+    let f = c.kappa * dot2(k, dk) / (a * (1.0 + a) * (1.0 + a));
+    for i in 0..k.len() {
+        dp[i] = dk[i] / (1.0 + a) + f * k[i];
+    }
+}
+
+/// The differential of Poincaré -> Klein (`k = 2p/(2 - g)`) at `p`:
+/// `dk = 2/(2 - g) (dp_perp + g/(2 - g) dp_par)`, with the part of `dp`
+/// perpendicular to `p` formed from error-free 2x2 minors (the textbook
+/// `2 dp/(2 - g) - 4 kappa (p.dp) p/(2 - g)^2` cancels by a factor 1/g for
+/// radial vectors near the sphere).
+#[inline(always)]
+#[allow(dead_code)]
+fn tangent_to_klein(p: &[f64], gp: f64, dp: &[f64], dk: &mut [f64]) {
+    let n = p.len();
+    let pp = sumsq(p);
+    let f = 2.0 / (2.0 - gp);
+    if pp == 0.0 {
+        for i in 0..n {
+            dk[i] = f * dp[i];
+        }
+        return;
+    }
+    let par = dot2(p, dp) / pp * (gp / (2.0 - gp));
+    for i in 0..n {
+        dk[i] = f * (perp_numerator(p, dp, i) / pp + par * p[i]);
+    }
+}
+
+/// `p_x - p_y` for the Poincaré images of two Klein points, from the inputs:
+/// `((x - y)(1 + a_y) + y kappa (|x|^2 - |y|^2)/(a_x + a_y)) / ((1 + a_x)(1 + a_y))`
+/// (the difference of the two rounded images loses digits for close pairs).
+#[inline(always)]
+fn poincare_difference(c: &Curvature, x: &[f64], gx: f64, y: &[f64], gy: f64, out: &mut [f64]) {
+    let (ax, ay) = (gx.sqrt(), gy.sqrt());
+    let dv = c.kappa * diff_of_squares(x, y, 1.0) / (ax + ay);
+    let q = 1.0 / ((1.0 + ax) * (1.0 + ay));
+    for i in 0..x.len() {
+        out[i] = ((x[i] - y[i]) * (1.0 + ay) + y[i] * dv) * q;
+    }
+}
+
+/// `exp_x(v)`, computed in the Poincaré ball (whose exponential map is exact
+/// to rounding for any tangent length): the base point and the tangent are
+/// mapped over with exact differentials and the result mapped back,
+/// `k = 2p/(2 - g)`. (The Einstein form `x ⊕ exp_0(J_x^{-1} v)` amplifies
+/// rounding by `1/g_x`.)
 #[inline(always)]
 pub fn exp_map_g(c: &Curvature, x: &[f64], gx: f64, v: &[f64], out: &mut [f64]) {
-    with_scratch(x.len(), #[inline(always)] |w| {
-        jacobian_inv(c, x, gx, v, w);
-        let n = sumsq(w).sqrt();
-        if n == 0.0 {
-            out.copy_from_slice(x);
-            return;
+    let n = x.len();
+    with_scratch(3 * n, #[inline(always)] |buf| {
+        let (p, rest) = buf.split_at_mut(n);
+        let (dp, q) = rest.split_at_mut(n);
+        let gp = to_poincare(x, gx, p);
+        tangent_to_poincare(c, x, gx, v, dp);
+        let gq = poincare::exp_map_g(c, p, gp, dp, q);
+        let f = 2.0 / (2.0 - gq);
+        for i in 0..n {
+            out[i] = f * q[i];
         }
-        let b = c.sqrt_kappa * n;
-        let f = b.tanh() / b;
-        w.iter_mut().for_each(|o| *o *= f);
-        add_g(c, x, gx, w, sech2(b), 1.0, out);
     })
 }
 
-/// `log_x(y) = J_x(R artanh(|u|/R) u/|u|)`, `u = ⊖x ⊕ y`, with `artanh`
-/// from the exact gap of `u`.
+/// `log_x(y)`, computed in the Poincaré ball with the pair's difference
+/// formed from the Klein inputs, then mapped back with the exact
+/// differential.
 #[inline(always)]
 pub fn log_map_g(c: &Curvature, x: &[f64], gx: f64, y: &[f64], gy: f64, out: &mut [f64]) {
-    with_scratch(x.len(), #[inline(always)] |w| {
-        // ⊖x ⊕ y = -(x ⊖ y): Einstein addition is odd.
-        let gu = add_g(c, x, gx, y, gy, -1.0, w);
+    let n = x.len();
+    let k = c.kappa;
+    with_scratch(3 * n, #[inline(always)] |buf| {
+        let (p, rest) = buf.split_at_mut(n);
+        let (s, w) = rest.split_at_mut(n);
+        let gp = to_poincare(x, gx, p);
+        let a = gy.sqrt();
+        let gq = 2.0 * a / (1.0 + a);
+        poincare_difference(c, x, gx, y, gy, s); // p - q
+        // p ⊖ q from s = p - q (Möbius form with s given), its gap exact.
+        let ss = sumsq(s);
+        let den = gp * gq + k * ss;
+        for i in 0..n {
+            w[i] = (gp * s[i] + k * ss * p[i]) / den;
+        }
+        let gu = gp * gq / den;
         let t = c.sqrt_kappa * sumsq(w).sqrt();
         if t == 0.0 {
             out.iter_mut().for_each(|o| *o = 0.0);
             return;
         }
-        let f = -artanh_from_gap(t, gu) / t;
-        w.iter_mut().for_each(|o| *o *= f);
-        jacobian(c, x, gx, w, out);
+        let f = -gp * artanh_from_gap(t, gu) / t; // log_p(q) = f (p ⊖ q)
+        let pp = sumsq(p);
+        if pp == 0.0 {
+            let g2 = 2.0 / (2.0 - gp);
+            for i in 0..n {
+                out[i] = g2 * f * w[i];
+            }
+            return;
+        }
+        // The Klein differential shrinks the radial part by g_p, so the part
+        // of the log perpendicular to p must carry its own digits: it is
+        // f g_p s_perp / D with s_perp = -q_perp (p has no perpendicular
+        // part), formed from error-free minors of p and q = p - s.
+        let q: &mut [f64] = w;
+        for i in 0..n {
+            q[i] = y[i] / (1.0 + a);
+        }
+        let radial = f * (gp * dot2(s, p) + k * ss * pp) / (den * pp);
+        let g2 = 2.0 / (2.0 - gp);
+        let shrink = gp / (2.0 - gp);
+        for i in 0..n {
+            let perp = perp_numerator(p, q, i) / pp; // (q_perp)_i
+            out[i] = g2 * (-f * gp * perp / den + radial * shrink * p[i]);
+        }
     })
+}
+
+/// `(|p|^2 q - (p.q) p)_i = sum_j p_j (p_j q_i - p_i q_j)`, from error-free
+/// 2x2 minors.
+#[inline(always)]
+fn perp_numerator(p: &[f64], q: &[f64], i: usize) -> f64 {
+    use crate::numeric::{two_prod, DD};
+    let mut acc = DD::default();
+    for j in 0..p.len() {
+        if j == i {
+            continue;
+        }
+        let (x, xe) = two_prod(p[j], q[i]);
+        let (y, ye) = two_prod(p[i], q[j]);
+        let m = DD::new(x, xe).sub(DD::new(y, ye)).value();
+        let (t, te) = two_prod(p[j], m);
+        acc = acc.add(DD::new(t, te));
+    }
+    acc.value()
 }
 
 /// Parallel transport from `x` to `y`: `J_y gyr[y, ⊖x] J_x^{-1} v` (left
