@@ -284,18 +284,14 @@ pub fn log_map_g(c: &Curvature, x: &[f64], gx: f64, y: &[f64], gy: f64, out: &mu
         }
         // The Klein differential shrinks the radial part by g_p, so the part
         // of the log perpendicular to p must carry its own digits: it is
-        // f g_p s_perp / D with s_perp = -q_perp (p has no perpendicular
-        // part), formed from error-free minors of p and q = p - s.
-        let q: &mut [f64] = w;
-        for i in 0..n {
-            q[i] = y[i] / (1.0 + a);
-        }
+        // f g_p s_perp / D (p has no perpendicular part), formed from
+        // error-free minors of p and the accurate difference s.
         let radial = f * (gp * dot2(s, p) + k * ss * pp) / (den * pp);
         let g2 = 2.0 / (2.0 - gp);
         let shrink = gp / (2.0 - gp);
         for i in 0..n {
-            let perp = perp_numerator(p, q, i) / pp; // (q_perp)_i
-            out[i] = g2 * (-f * gp * perp / den + radial * shrink * p[i]);
+            let perp = perp_numerator(p, s, i) / pp; // (s_perp)_i
+            out[i] = g2 * (f * gp * perp / den + radial * shrink * p[i]);
         }
     })
 }

@@ -702,7 +702,6 @@ KNOWN_DEFECTS: Dict[Tuple[str, str], str] = {
     ("klein.exp_map", "far30"):
         "measured 7.0e-4 (46/48 rows), err/sens up to 5e10; results can lie "
         "OUTSIDE the ball (|exp| > R)",
-    ("klein.log_map", "close1e-12"): "measured 2.7e-12 (3/48 rows); ill-conditioned",
     ("klein.transport", "edge1e-9"):
         "measured 5.4e-12; includes start == end (must be the identity), err/sens 3e4",
     ("klein.transport", "edge1e-12"): "measured 1.9e-10; ill-conditioned (err/sens <= 4e-7)",
