@@ -386,13 +386,10 @@ where
     shape.extend_from_slice(&oc);
     let f32_out = wants_f32(ops) && !force_f64;
     let acc: Vec<Access> = ops.iter().map(|o| Access::new(o, nd, lay.d)).collect();
-    // Not zero-filled: every element of every row is written by the kernel
-    // before anything reads it (on a fault the buffer is dropped unread), and
-    // zero-filling costs as much as a cheap kernel.
-    let mut out: Vec<f64> = Vec::with_capacity(n * out_len);
-    // SAFETY: f64 has no invalid bit patterns and nothing reads an element
-    // before the kernel writes it.
-    unsafe { out.set_len(n * out_len) };
+    // Zero-filled: large allocations come from fresh (already zero) pages,
+    // and handing uninitialised memory to the kernels as `&mut [f64]` would
+    // be unsound even though they write every element before reading it.
+    let mut out = vec![0f64; n * out_len];
     let first_fault: Mutex<Option<FaultAt>> = Mutex::new(None);
 
     let merge = |l: Option<FaultAt>| {
@@ -427,6 +424,16 @@ where
     }
     let out = ArrayD::from_shape_vec(IxDyn(&shape), out).expect("shape matches length");
     Ok(if f32_out { Output::F32(out.mapv(|v| v as f32)) } else { Output::F64(out) })
+}
+
+/// Output core of functions returning one point per row: `(d,)`.
+pub fn point_core(d: usize) -> Vec<usize> {
+    vec![d]
+}
+
+/// Output core of functions returning one number per row: `()`.
+pub fn scalar_core(_: usize) -> Vec<usize> {
+    Vec::new()
 }
 
 /// A kernel error for a scalar operand that must be finite.

@@ -3,7 +3,7 @@
 //! to `(0, ..., 0, R)`.
 
 use crate::ball::Curvature;
-use crate::batch::{map_rows, Data, Operand, Output};
+use crate::batch::{map_rows, scalar_core, Data, Operand, Output};
 use crate::error::{Fault, Result, RowFault};
 use crate::numeric::{dist_sq, distance_from_half_delta};
 
@@ -31,7 +31,7 @@ pub fn distance(k: &Curvature, y: &[f64], z: &[f64]) -> f64 {
 /// Batched distance `(..., d), (..., d) -> (...)`.
 pub fn distance_arrays<'a>(k: Curvature, x: Data<'a>, y: Data<'a>) -> Result<Output> {
     let ops = [Operand::point("x", x), Operand::point("y", y)];
-    map_rows(&ops, &|_| Vec::new(), 10, #[inline(always)] |r, out| {
+    map_rows(&ops, &scalar_core, 10, #[inline(always)] |r, out| {
         read_point(r[0]).map_err(|f| RowFault::new(0, f))?;
         read_point(r[1]).map_err(|f| RowFault::new(1, f))?;
         out[0] = distance(&k, r[0], r[1]);

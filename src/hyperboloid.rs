@@ -10,7 +10,7 @@
 //! `cosh(d/R) - 1 = (cosh(r_x - r_y) - 1) + kappa (|x_s||y_s| - x_s.y_s)`.
 
 use crate::ball::Curvature;
-use crate::batch::{finite_scalar, map_rows, Data, Operand, Output};
+use crate::batch::{finite_scalar, map_rows, point_core, scalar_core, Data, Operand, Output};
 use crate::error::{Fault, Result, RowFault};
 use crate::numeric::{
     diff_of_squares, distance_from_half_delta, dot2, dot_dd, geodesic_weights, sumsq, two_prod, wedge_sq, DD,
@@ -168,10 +168,6 @@ fn check_dim(ops: &[Operand]) -> Result<()> {
     Ok(())
 }
 
-fn same(d: usize) -> Vec<usize> {
-    vec![d]
-}
-
 fn finite_out(out: &[f64], arg: usize) -> std::result::Result<(), RowFault> {
     if out.iter().all(|v| v.is_finite()) {
         Ok(())
@@ -184,7 +180,7 @@ fn finite_out(out: &[f64], arg: usize) -> std::result::Result<(), RowFault> {
 pub fn distance_arrays<'a>(k: Curvature, x: Data<'a>, y: Data<'a>) -> Result<Output> {
     let ops = [Operand::point("x", x), Operand::point("y", y)];
     check_dim(&ops)?;
-    map_rows(&ops, &|_| Vec::new(), 20, #[inline(always)] |r, out| {
+    map_rows(&ops, &scalar_core, 20, #[inline(always)] |r, out| {
         let cx = point_of!(&k, r[0], 0);
         let cy = point_of!(&k, r[1], 1);
         out[0] = distance_s(&k, &r[0][1..], cx, &r[1][1..], cy);
@@ -200,7 +196,7 @@ pub fn exp_map_arrays<'a>(k: Curvature, v: Data<'a>, base: Option<Data<'a>>) -> 
         ops.push(Operand::point("base", b));
     }
     check_dim(&ops)?;
-    map_rows(&ops, &same, 30, #[inline(always)] |r, out| {
+    map_rows(&ops, &point_core, 30, #[inline(always)] |r, out| {
         crate::ball::check_finite(r[0]).map_err(|f| RowFault::new(0, f))?;
         let n = r[0].len() - 1;
         with_scratch(2 * n, #[inline(always)] |buf| {
@@ -226,7 +222,7 @@ pub fn log_map_arrays<'a>(k: Curvature, y: Data<'a>, base: Option<Data<'a>>) -> 
         ops.push(Operand::point("base", b));
     }
     check_dim(&ops)?;
-    map_rows(&ops, &same, 30, #[inline(always)] |r, out| {
+    map_rows(&ops, &point_core, 30, #[inline(always)] |r, out| {
         let cy = point_of!(&k, r[0], 0);
         let n = r[0].len() - 1;
         with_scratch(n, #[inline(always)] |zero| {
@@ -246,7 +242,7 @@ pub fn log_map_arrays<'a>(k: Curvature, y: Data<'a>, base: Option<Data<'a>>) -> 
 pub fn transport_arrays<'a>(k: Curvature, v: Data<'a>, start: Data<'a>, end: Data<'a>) -> Result<Output> {
     let ops = [Operand::point("v", v), Operand::point("start", start), Operand::point("end", end)];
     check_dim(&ops)?;
-    map_rows(&ops, &same, 40, #[inline(always)] |r, out| {
+    map_rows(&ops, &point_core, 40, #[inline(always)] |r, out| {
         crate::ball::check_finite(r[0]).map_err(|f| RowFault::new(0, f))?;
         let cx = point_of!(&k, r[1], 1);
         let cy = point_of!(&k, r[2], 2);
@@ -259,7 +255,7 @@ pub fn transport_arrays<'a>(k: Curvature, v: Data<'a>, start: Data<'a>, end: Dat
 pub fn geodesic_arrays<'a>(k: Curvature, x: Data<'a>, y: Data<'a>, t: Data<'a>) -> Result<Output> {
     let ops = [Operand::point("x", x), Operand::point("y", y), Operand::scalar("t", t)];
     check_dim(&ops[..2])?;
-    map_rows(&ops, &same, 30, #[inline(always)] |r, out| {
+    map_rows(&ops, &point_core, 30, #[inline(always)] |r, out| {
         let cx = point_of!(&k, r[0], 0);
         let cy = point_of!(&k, r[1], 1);
         let t = finite_scalar(2, r[2][0])?;
@@ -277,7 +273,7 @@ pub fn geodesic_arrays<'a>(k: Curvature, x: Data<'a>, y: Data<'a>, t: Data<'a>) 
 pub fn project_arrays<'a>(k: Curvature, x: Data<'a>) -> Result<Output> {
     let ops = [Operand::point("x", x)];
     check_dim(&ops)?;
-    map_rows(&ops, &same, 4, #[inline(always)] |r, out| {
+    map_rows(&ops, &point_core, 4, #[inline(always)] |r, out| {
         crate::ball::check_finite(&r[0][1..]).map_err(|f| RowFault::new(0, f))?;
         write_point(&k, &r[0][1..], out);
         finite_out(out, 0)
@@ -287,7 +283,7 @@ pub fn project_arrays<'a>(k: Curvature, x: Data<'a>) -> Result<Output> {
 /// Batched Minkowski inner product `(..., d+1), (..., d+1) -> (...)`.
 pub fn inner_arrays<'a>(u: Data<'a>, v: Data<'a>) -> Result<Output> {
     let ops = [Operand::point("u", u), Operand::point("v", v)];
-    map_rows(&ops, &|_| Vec::new(), 8, #[inline(always)] |r, out| {
+    map_rows(&ops, &scalar_core, 8, #[inline(always)] |r, out| {
         crate::ball::check_finite(r[0]).map_err(|f| RowFault::new(0, f))?;
         crate::ball::check_finite(r[1]).map_err(|f| RowFault::new(1, f))?;
         out[0] = inner(r[0], r[1]);

@@ -8,8 +8,8 @@
 //! operations and by the Klein model), a per-point convenience form, and a
 //! batched form over arrays.
 
-use crate::ball::{check_finite, checked_gap, keep_inside, Curvature};
-use crate::batch::{finite_scalar, map_rows, map_rows_with, Data, Operand, Output};
+use crate::ball::{check_finite, keep_inside, Curvature};
+use crate::batch::{finite_scalar, map_rows, map_rows_with, point_core, scalar_core, Data, Operand, Output};
 use crate::error::{Result, RowFault};
 use crate::numeric::{
     artanh_from_gap, diff_of_squares, dist_sq, distance_from_half_delta, dot2, gap, gap_dd,
@@ -404,167 +404,173 @@ pub(crate) fn with_scratch<R>(n: usize, f: impl FnOnce(&mut [f64]) -> R) -> R {
 
 macro_rules! gap_of {
     ($c:expr, $row:expr, $arg:expr) => {
-        checked_gap($c, $row).map_err(|f| RowFault::new($arg, f))?.value()
+        $crate::ball::checked_gap($c, $row)
+            .map_err(|f| $crate::error::RowFault::new($arg, f))?
+            .value()
     };
 }
 pub(crate) use gap_of;
 
-fn point_out(d: usize) -> Vec<usize> {
-    vec![d]
-}
+/// The batched forms shared by the two ball models, written once. Invoked
+/// inside `poincare` and `klein`, where the unqualified per-point kernels
+/// (`add_g`, `scale_g`, `gyration_g`, `midpoint_g`, `distance_g`,
+/// `exp_map_g`, `log_map_g`, `transport_g`, `geodesic_g`) resolve to that
+/// model's own. The work figures only size parallel chunks.
+macro_rules! ball_batched {
+    () => {
+        fn add_like<'a>(c: Curvature, x: Data<'a>, y: Data<'a>, sy: f64) -> Result<Output> {
+            let ops = [Operand::point("x", x), Operand::point("y", y)];
+            map_rows(&ops, &point_core, 16, #[inline(always)] |r, out| {
+                let gx = gap_of!(&c, r[0], 0);
+                let gy = gap_of!(&c, r[1], 1);
+                add_g(&c, r[0], gx, r[1], gy, sy, out);
+                keep_inside(&c, out);
+                Ok(())
+            })
+        }
 
-/// Batched `x ⊕ y` over broadcast leading axes.
-pub fn add_arrays<'a>(c: Curvature, x: Data<'a>, y: Data<'a>) -> Result<Output> {
-    add_like(c, x, y, 1.0)
-}
+        /// Batched `x ⊕ y` over broadcast leading axes.
+        pub fn add_arrays<'a>(c: Curvature, x: Data<'a>, y: Data<'a>) -> Result<Output> {
+            add_like(c, x, y, 1.0)
+        }
 
-/// Batched `x ⊖ y`.
-pub fn sub_arrays<'a>(c: Curvature, x: Data<'a>, y: Data<'a>) -> Result<Output> {
-    add_like(c, x, y, -1.0)
-}
+        /// Batched `x ⊖ y`.
+        pub fn sub_arrays<'a>(c: Curvature, x: Data<'a>, y: Data<'a>) -> Result<Output> {
+            add_like(c, x, y, -1.0)
+        }
 
-fn add_like<'a>(c: Curvature, x: Data<'a>, y: Data<'a>, sy: f64) -> Result<Output> {
-    let ops = [Operand::point("x", x), Operand::point("y", y)];
-    map_rows(&ops, &point_out, 12, #[inline(always)] |r, out| {
-        let gx = gap_of!(&c, r[0], 0);
-        let gy = gap_of!(&c, r[1], 1);
-        add_g(&c, r[0], gx, r[1], gy, sy, out);
-        keep_inside(&c, out);
-        Ok(())
-    })
+        /// Batched `r ⊗ x`; `r` broadcasts against the leading axes of `x`.
+        pub fn scale_arrays<'a>(c: Curvature, r: Data<'a>, x: Data<'a>) -> Result<Output> {
+            let ops = [Operand::scalar("r", r), Operand::point("x", x)];
+            map_rows(&ops, &point_core, 12, #[inline(always)] |rows, out| {
+                let r = finite_scalar(0, rows[0][0])?;
+                let gx = gap_of!(&c, rows[1], 1);
+                scale_g(&c, r, rows[1], gx, out);
+                keep_inside(&c, out);
+                Ok(())
+            })
+        }
+
+        /// Batched `gyr[a, b] v`; `v` is any finite vector (gyrations are linear).
+        pub fn gyration_arrays<'a>(c: Curvature, a: Data<'a>, b: Data<'a>, v: Data<'a>) -> Result<Output> {
+            let ops = [Operand::point("a", a), Operand::point("b", b), Operand::point("v", v)];
+            map_rows(&ops, &point_core, 40, #[inline(always)] |r, out| {
+                let ga = gap_of!(&c, r[0], 0);
+                let gb = gap_of!(&c, r[1], 1);
+                check_finite(r[2]).map_err(|f| $crate::error::RowFault::new(2, f))?;
+                gyration_g(&c, r[0], ga, r[1], gb, r[2], out);
+                Ok(())
+            })
+        }
+
+        /// Batched midpoint of `x` and `y`.
+        pub fn midpoint_arrays<'a>(c: Curvature, x: Data<'a>, y: Data<'a>) -> Result<Output> {
+            let ops = [Operand::point("x", x), Operand::point("y", y)];
+            map_rows(&ops, &point_core, 30, #[inline(always)] |r, out| {
+                let gx = gap_of!(&c, r[0], 0);
+                let gy = gap_of!(&c, r[1], 1);
+                midpoint_g(&c, r[0], gx, r[1], gy, out);
+                keep_inside(&c, out);
+                Ok(())
+            })
+        }
+
+        /// Batched distance `(..., d), (..., d) -> (...)`.
+        pub fn distance_arrays<'a>(c: Curvature, x: Data<'a>, y: Data<'a>) -> Result<Output> {
+            let ops = [Operand::point("x", x), Operand::point("y", y)];
+            map_rows(&ops, &scalar_core, 16, #[inline(always)] |r, out| {
+                let gx = gap_of!(&c, r[0], 0);
+                let gy = gap_of!(&c, r[1], 1);
+                out[0] = distance_g(&c, r[0], gx, r[1], gy);
+                Ok(())
+            })
+        }
+
+        /// Batched exponential map; `base = None` is the origin.
+        pub fn exp_map_arrays<'a>(c: Curvature, v: Data<'a>, base: Option<Data<'a>>) -> Result<Output> {
+            match base {
+                None => {
+                    let ops = [Operand::point("v", v)];
+                    map_rows(&ops, &point_core, 16, #[inline(always)] |r, out| {
+                        check_finite(r[0]).map_err(|f| $crate::error::RowFault::new(0, f))?;
+                        with_scratch(r[0].len(), #[inline(always)] |z| exp_map_g(&c, z, 1.0, r[0], out));
+                        keep_inside(&c, out);
+                        Ok(())
+                    })
+                }
+                Some(b) => {
+                    let ops = [Operand::point("v", v), Operand::point("base", b)];
+                    map_rows(&ops, &point_core, 24, #[inline(always)] |r, out| {
+                        check_finite(r[0]).map_err(|f| $crate::error::RowFault::new(0, f))?;
+                        let gb = gap_of!(&c, r[1], 1);
+                        exp_map_g(&c, r[1], gb, r[0], out);
+                        keep_inside(&c, out);
+                        Ok(())
+                    })
+                }
+            }
+        }
+
+        /// Batched logarithmic map; `base = None` is the origin.
+        pub fn log_map_arrays<'a>(c: Curvature, y: Data<'a>, base: Option<Data<'a>>) -> Result<Output> {
+            match base {
+                None => {
+                    let ops = [Operand::point("y", y)];
+                    map_rows(&ops, &point_core, 16, #[inline(always)] |r, out| {
+                        let gy = gap_of!(&c, r[0], 0);
+                        with_scratch(r[0].len(), #[inline(always)] |z| log_map_g(&c, z, 1.0, r[0], gy, out));
+                        Ok(())
+                    })
+                }
+                Some(b) => {
+                    let ops = [Operand::point("y", y), Operand::point("base", b)];
+                    map_rows(&ops, &point_core, 24, #[inline(always)] |r, out| {
+                        let gy = gap_of!(&c, r[0], 0);
+                        let gb = gap_of!(&c, r[1], 1);
+                        log_map_g(&c, r[1], gb, r[0], gy, out);
+                        Ok(())
+                    })
+                }
+            }
+        }
+
+        /// Batched parallel transport of `v` from `start` to `end`.
+        pub fn transport_arrays<'a>(c: Curvature, v: Data<'a>, start: Data<'a>, end: Data<'a>) -> Result<Output> {
+            let ops = [Operand::point("v", v), Operand::point("start", start), Operand::point("end", end)];
+            map_rows(&ops, &point_core, 60, #[inline(always)] |r, out| {
+                check_finite(r[0]).map_err(|f| $crate::error::RowFault::new(0, f))?;
+                let gs = gap_of!(&c, r[1], 1);
+                let ge = gap_of!(&c, r[2], 2);
+                transport_g(&c, r[1], gs, r[2], ge, r[0], out);
+                Ok(())
+            })
+        }
+
+        /// Batched geodesic interpolation; `t` broadcasts against the leading axes.
+        pub fn geodesic_arrays<'a>(c: Curvature, x: Data<'a>, y: Data<'a>, t: Data<'a>) -> Result<Output> {
+            let ops = [Operand::point("x", x), Operand::point("y", y), Operand::scalar("t", t)];
+            map_rows(&ops, &point_core, 30, #[inline(always)] |r, out| {
+                let gx = gap_of!(&c, r[0], 0);
+                let gy = gap_of!(&c, r[1], 1);
+                let t = finite_scalar(2, r[2][0])?;
+                geodesic_g(&c, r[0], gx, r[1], gy, t, out);
+                keep_inside(&c, out);
+                Ok(())
+            })
+        }
+    };
 }
+pub(crate) use ball_batched;
+
+ball_batched!();
 
 /// Batched `x ⊞ y`.
 pub fn coadd_arrays<'a>(c: Curvature, x: Data<'a>, y: Data<'a>) -> Result<Output> {
     let ops = [Operand::point("x", x), Operand::point("y", y)];
-    map_rows(&ops, &point_out, 30, #[inline(always)] |r, out| {
+    map_rows(&ops, &point_core, 30, #[inline(always)] |r, out| {
         let gx = gap_of!(&c, r[0], 0);
         let gy = gap_of!(&c, r[1], 1);
         coadd_g(&c, r[0], gx, r[1], gy, out);
-        keep_inside(&c, out);
-        Ok(())
-    })
-}
-
-/// Batched `r ⊗ x`; `r` broadcasts against the leading axes of `x`.
-pub fn scale_arrays<'a>(c: Curvature, r: Data<'a>, x: Data<'a>) -> Result<Output> {
-    let ops = [Operand::scalar("r", r), Operand::point("x", x)];
-    map_rows(&ops, &point_out, 12, #[inline(always)] |rows, out| {
-        let r = finite_scalar(0, rows[0][0])?;
-        let gx = gap_of!(&c, rows[1], 1);
-        scale_g(&c, r, rows[1], gx, out);
-        keep_inside(&c, out);
-        Ok(())
-    })
-}
-
-/// Batched `gyr[a, b] v`; `v` is any finite vector (gyrations are linear).
-pub fn gyration_arrays<'a>(c: Curvature, a: Data<'a>, b: Data<'a>, v: Data<'a>) -> Result<Output> {
-    let ops = [Operand::point("a", a), Operand::point("b", b), Operand::point("v", v)];
-    map_rows(&ops, &point_out, 30, #[inline(always)] |r, out| {
-        let ga = gap_of!(&c, r[0], 0);
-        let gb = gap_of!(&c, r[1], 1);
-        check_finite(r[2]).map_err(|f| RowFault::new(2, f))?;
-        gyration_g(&c, r[0], ga, r[1], gb, r[2], out);
-        Ok(())
-    })
-}
-
-/// Batched gyromidpoint of `x` and `y`.
-pub fn midpoint_arrays<'a>(c: Curvature, x: Data<'a>, y: Data<'a>) -> Result<Output> {
-    let ops = [Operand::point("x", x), Operand::point("y", y)];
-    map_rows(&ops, &point_out, 30, #[inline(always)] |r, out| {
-        let gx = gap_of!(&c, r[0], 0);
-        let gy = gap_of!(&c, r[1], 1);
-        midpoint_g(&c, r[0], gx, r[1], gy, out);
-        keep_inside(&c, out);
-        Ok(())
-    })
-}
-
-fn no_core(_: usize) -> Vec<usize> {
-    Vec::new()
-}
-
-/// Batched distance `(..., d), (..., d) -> (...)`.
-pub fn distance_arrays<'a>(c: Curvature, x: Data<'a>, y: Data<'a>) -> Result<Output> {
-    let ops = [Operand::point("x", x), Operand::point("y", y)];
-    map_rows(&ops, &no_core, 12, #[inline(always)] |r, out| {
-        let gx = gap_of!(&c, r[0], 0);
-        let gy = gap_of!(&c, r[1], 1);
-        out[0] = distance_g(&c, r[0], gx, r[1], gy);
-        Ok(())
-    })
-}
-
-/// Batched exponential map; `base = None` is the origin.
-pub fn exp_map_arrays<'a>(c: Curvature, v: Data<'a>, base: Option<Data<'a>>) -> Result<Output> {
-    match base {
-        None => {
-            let ops = [Operand::point("v", v)];
-            map_rows(&ops, &point_out, 16, #[inline(always)] |r, out| {
-                check_finite(r[0]).map_err(|f| RowFault::new(0, f))?;
-                with_scratch(r[0].len(), #[inline(always)] |z| exp_map_g(&c, z, 1.0, r[0], out));
-        keep_inside(&c, out);
-                Ok(())
-            })
-        }
-        Some(b) => {
-            let ops = [Operand::point("v", v), Operand::point("base", b)];
-            map_rows(&ops, &point_out, 20, #[inline(always)] |r, out| {
-                check_finite(r[0]).map_err(|f| RowFault::new(0, f))?;
-                let gb = gap_of!(&c, r[1], 1);
-                exp_map_g(&c, r[1], gb, r[0], out);
-        keep_inside(&c, out);
-                Ok(())
-            })
-        }
-    }
-}
-
-/// Batched logarithmic map; `base = None` is the origin.
-pub fn log_map_arrays<'a>(c: Curvature, y: Data<'a>, base: Option<Data<'a>>) -> Result<Output> {
-    match base {
-        None => {
-            let ops = [Operand::point("y", y)];
-            map_rows(&ops, &point_out, 16, #[inline(always)] |r, out| {
-                let gy = gap_of!(&c, r[0], 0);
-                with_scratch(r[0].len(), #[inline(always)] |z| log_map_g(&c, z, 1.0, r[0], gy, out));
-                Ok(())
-            })
-        }
-        Some(b) => {
-            let ops = [Operand::point("y", y), Operand::point("base", b)];
-            map_rows(&ops, &point_out, 20, #[inline(always)] |r, out| {
-                let gy = gap_of!(&c, r[0], 0);
-                let gb = gap_of!(&c, r[1], 1);
-                log_map_g(&c, r[1], gb, r[0], gy, out);
-                Ok(())
-            })
-        }
-    }
-}
-
-/// Batched parallel transport of `v` from `start` to `end`.
-pub fn transport_arrays<'a>(c: Curvature, v: Data<'a>, start: Data<'a>, end: Data<'a>) -> Result<Output> {
-    let ops = [Operand::point("v", v), Operand::point("start", start), Operand::point("end", end)];
-    map_rows(&ops, &point_out, 40, #[inline(always)] |r, out| {
-        check_finite(r[0]).map_err(|f| RowFault::new(0, f))?;
-        let gs = gap_of!(&c, r[1], 1);
-        let ge = gap_of!(&c, r[2], 2);
-        transport_g(&c, r[1], gs, r[2], ge, r[0], out);
-        Ok(())
-    })
-}
-
-/// Batched geodesic interpolation; `t` broadcasts against the leading axes.
-pub fn geodesic_arrays<'a>(c: Curvature, x: Data<'a>, y: Data<'a>, t: Data<'a>) -> Result<Output> {
-    let ops = [Operand::point("x", x), Operand::point("y", y), Operand::scalar("t", t)];
-    map_rows(&ops, &point_out, 30, #[inline(always)] |r, out| {
-        let gx = gap_of!(&c, r[0], 0);
-        let gy = gap_of!(&c, r[1], 1);
-        let t = finite_scalar(2, r[2][0])?;
-        geodesic_g(&c, r[0], gx, r[1], gy, t, out);
         keep_inside(&c, out);
         Ok(())
     })
@@ -587,7 +593,7 @@ pub fn project_arrays<'a>(c: Curvature, x: Data<'a>, margin: f64) -> Result<Outp
     // A float32 result must still be inside after rounding to float32.
     let margin = if x.is_f32() { margin.max(4.0 * f32::EPSILON as f64) } else { margin };
     let ops = [Operand::point("x", x)];
-    map_rows(&ops, &point_out, 8, #[inline(always)] |r, out| {
+    map_rows(&ops, &point_core, 8, #[inline(always)] |r, out| {
         check_finite(r[0]).map_err(|f| RowFault::new(0, f))?;
         project(&c, r[0], margin, out);
         Ok(())

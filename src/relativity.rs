@@ -23,7 +23,7 @@
 //!   which returns 0 for the 1e-17 rad angles of everyday speeds.
 
 use crate::ball::{checked_gap, keep_inside, Curvature};
-use crate::batch::{map_rows, Core, Data, Operand, Output};
+use crate::batch::{map_rows, scalar_core, Core, Data, Operand, Output};
 use crate::error::{Error, Fault, Result, RowFault};
 use crate::klein;
 use crate::numeric::{artanh_from_gap, sumsq, sumsq_dd, two_prod, DD};
@@ -435,9 +435,6 @@ fn require3(ops: &[Operand]) -> Result<()> {
     Ok(())
 }
 
-fn no_core(_: usize) -> Vec<usize> {
-    Vec::new()
-}
 fn vec3(_: usize) -> Vec<usize> {
     vec![3]
 }
@@ -494,12 +491,12 @@ fn binary<'a>(
 
 /// Batched Lorentz factor `(..., 3) -> (...)`.
 pub fn lorentz_factor_arrays<'a>(l: Light, v: Data<'a>) -> Result<Output> {
-    unary(l, "v", v, &no_core, 4, #[inline(always)] |_, _, s, out| out[0] = lorentz_factor_s(s))
+    unary(l, "v", v, &scalar_core, 4, #[inline(always)] |_, _, s, out| out[0] = lorentz_factor_s(s))
 }
 
 /// Batched `gamma - 1` `(..., 3) -> (...)`.
 pub fn gamma_minus_one_arrays<'a>(l: Light, v: Data<'a>) -> Result<Output> {
-    unary(l, "v", v, &no_core, 4, #[inline(always)] |_, _, s, out| out[0] = gamma_minus_one_s(s))
+    unary(l, "v", v, &scalar_core, 4, #[inline(always)] |_, _, s, out| out[0] = gamma_minus_one_s(s))
 }
 
 /// Batched Einstein velocity addition `u ⊕ v`.
@@ -520,7 +517,7 @@ pub fn thomas_rotation_arrays<'a>(l: Light, u: Data<'a>, v: Data<'a>) -> Result<
 
 /// Batched Wigner rotation angle `(...)`.
 pub fn wigner_angle_arrays<'a>(l: Light, u: Data<'a>, v: Data<'a>) -> Result<Output> {
-    binary(l, u, v, &no_core, 30, #[inline(always)] |l, us, su, vs, sv, out| {
+    binary(l, u, v, &scalar_core, 30, #[inline(always)] |l, us, su, vs, sv, out| {
         out[0] = wigner_angle_s(l, us, su, vs, sv)
     })
 }

@@ -89,6 +89,15 @@ pub fn coerce<'py>(py: Python<'py>, name: &str, ob: &Bound<'py, PyAny>) -> PyRes
 }
 
 
+/// [`coerce`] for an optional argument: `None` (absent or Python `None`)
+/// stays `None`.
+pub fn coerce_opt<'py>(py: Python<'py>, name: &str, ob: Option<&Bound<'py, PyAny>>) -> PyResult<Option<Arg<'py>>> {
+    match ob {
+        Some(o) if !o.is_none() => Ok(Some(coerce(py, name, o)?)),
+        _ => Ok(None),
+    }
+}
+
 /// Hands a core result to Python: an ndarray without copying, or a NumPy
 /// scalar for 0-d results (like NumPy's ufuncs).
 pub fn to_py(py: Python<'_>, out: crate::batch::Output) -> PyResult<Py<PyAny>> {
@@ -102,4 +111,43 @@ pub fn to_py(py: Python<'_>, out: crate::batch::Output) -> PyResult<Py<PyAny>> {
         return Ok(arr.get_item(())?.unbind());
     }
     Ok(arr.unbind())
+}
+
+/// The element-wise kernels of one broadcast call: curvature in, operands
+/// coerced (named for errors), the core called with the GIL released.
+pub type Binary = for<'a> fn(crate::ball::Curvature, Data<'a>, Data<'a>) -> crate::error::Result<crate::batch::Output>;
+pub type Ternary =
+    for<'a> fn(crate::ball::Curvature, Data<'a>, Data<'a>, Data<'a>) -> crate::error::Result<crate::batch::Output>;
+
+/// Calls a two-operand kernel (`names` are the Python argument names).
+pub fn binary(
+    py: Python<'_>,
+    names: [&str; 2],
+    x: &Bound<'_, PyAny>,
+    y: &Bound<'_, PyAny>,
+    curvature: f64,
+    f: Binary,
+) -> PyResult<Py<PyAny>> {
+    let c = crate::ball::Curvature::new(curvature)?;
+    let (xa, ya) = (coerce(py, names[0], x)?, coerce(py, names[1], y)?);
+    let (xd, yd) = (xa.data(), ya.data());
+    let out = py.detach(move || f(c, xd, yd))?;
+    to_py(py, out)
+}
+
+/// Calls a three-operand kernel (`names` are the Python argument names).
+pub fn ternary(
+    py: Python<'_>,
+    names: [&str; 3],
+    a: &Bound<'_, PyAny>,
+    b: &Bound<'_, PyAny>,
+    v: &Bound<'_, PyAny>,
+    curvature: f64,
+    f: Ternary,
+) -> PyResult<Py<PyAny>> {
+    let c = crate::ball::Curvature::new(curvature)?;
+    let (aa, ba, va) = (coerce(py, names[0], a)?, coerce(py, names[1], b)?, coerce(py, names[2], v)?);
+    let (ad, bd, vd) = (aa.data(), ba.data(), va.data());
+    let out = py.detach(move || f(c, ad, bd, vd))?;
+    to_py(py, out)
 }

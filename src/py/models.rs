@@ -3,47 +3,14 @@
 
 use pyo3::prelude::*;
 
-use super::coerce::{coerce, to_py};
+use super::coerce::{binary, coerce, coerce_opt, ternary, to_py};
 use crate::ball::Curvature;
 use crate::batch::{Data, Output};
 use crate::convert::{convert_arrays, Model};
 use crate::error::Result;
 use crate::{halfspace, hyperboloid, klein, poincare};
 
-type Binary = for<'a> fn(Curvature, Data<'a>, Data<'a>) -> Result<Output>;
-type Ternary = for<'a> fn(Curvature, Data<'a>, Data<'a>, Data<'a>) -> Result<Output>;
 type WithBase = for<'a> fn(Curvature, Data<'a>, Option<Data<'a>>) -> Result<Output>;
-
-fn binary(
-    py: Python<'_>,
-    names: [&str; 2],
-    x: &Bound<'_, PyAny>,
-    y: &Bound<'_, PyAny>,
-    curvature: f64,
-    f: Binary,
-) -> PyResult<Py<PyAny>> {
-    let c = Curvature::new(curvature)?;
-    let (xa, ya) = (coerce(py, names[0], x)?, coerce(py, names[1], y)?);
-    let (xd, yd) = (xa.data(), ya.data());
-    let out = py.detach(move || f(c, xd, yd))?;
-    to_py(py, out)
-}
-
-fn ternary(
-    py: Python<'_>,
-    names: [&str; 3],
-    a: &Bound<'_, PyAny>,
-    b: &Bound<'_, PyAny>,
-    v: &Bound<'_, PyAny>,
-    curvature: f64,
-    f: Ternary,
-) -> PyResult<Py<PyAny>> {
-    let c = Curvature::new(curvature)?;
-    let (aa, ba, va) = (coerce(py, names[0], a)?, coerce(py, names[1], b)?, coerce(py, names[2], v)?);
-    let (ad, bd, vd) = (aa.data(), ba.data(), va.data());
-    let out = py.detach(move || f(c, ad, bd, vd))?;
-    to_py(py, out)
-}
 
 fn with_base(
     py: Python<'_>,
@@ -55,10 +22,7 @@ fn with_base(
 ) -> PyResult<Py<PyAny>> {
     let c = Curvature::new(curvature)?;
     let va = coerce(py, name, v)?;
-    let ba = match base {
-        Some(b) if !b.is_none() => Some(coerce(py, "base", b)?),
-        _ => None,
-    };
+    let ba = coerce_opt(py, "base", base)?;
     let vd = va.data();
     let bd = ba.as_ref().map(|b| b.data());
     let out = py.detach(move || f(c, vd, bd))?;

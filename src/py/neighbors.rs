@@ -4,7 +4,7 @@ use numpy::{IntoPyArray, PyArray2, PyArrayMethods, PyUntypedArrayMethods};
 use pyo3::exceptions::{PyTypeError, PyValueError};
 use pyo3::prelude::*;
 
-use super::coerce::{coerce, Arg};
+use super::coerce::{coerce, coerce_opt, Arg};
 use crate::ball::Curvature;
 use crate::batch::Data;
 use crate::convert::Model;
@@ -32,10 +32,7 @@ fn distance_matrix<'py>(
     let c = Curvature::new(curvature)?;
     let md = Model::parse(model, "model")?;
     let xa = coerce(py, "x", x)?;
-    let ya = match y {
-        Some(y) if !y.is_none() => Some(coerce(py, "y", y)?),
-        _ => None,
-    };
+    let ya = coerce_opt(py, "y", y)?;
     let f32_out = match &ya {
         Some(ya) => all_f32(&[&xa, ya]),
         None => all_f32(&[&xa]),
@@ -157,10 +154,7 @@ fn knn(
     let md = Model::parse(model, "model")?;
     let k = k_arg(k)?;
     let xa = coerce(py, "x", x)?;
-    let ya = match y {
-        Some(y) if !y.is_none() => Some(coerce(py, "y", y)?),
-        _ => None,
-    };
+    let ya = coerce_opt(py, "y", y)?;
     let xd = xa.data();
     let yd = ya.as_ref().map(|a| a.data());
     let (idx, dist, n) = py.detach(move || -> crate::error::Result<_> {
@@ -192,10 +186,7 @@ fn radius_neighbors(
     let c = Curvature::new(curvature)?;
     let md = Model::parse(model, "model")?;
     let xa = coerce(py, "x", x)?;
-    let ya = match y {
-        Some(y) if !y.is_none() => Some(coerce(py, "y", y)?),
-        _ => None,
-    };
+    let ya = coerce_opt(py, "y", y)?;
     let xd = xa.data();
     let yd = ya.as_ref().map(|a| a.data());
     let (p, i, d) = py.detach(move || -> crate::error::Result<_> {
