@@ -12,8 +12,10 @@
 use crate::ball::Curvature;
 use crate::batch::{finite_scalar, map_rows, point_core, scalar_core, Data, Operand, Output};
 use crate::error::{Fault, Result, RowFault};
+use crate::klein::chord_ends;
 use crate::numeric::{
-    diff_of_squares, distance_from_half_delta, dot2, dot_dd, geodesic_weights, sumsq, two_prod, wedge_sq, DD,
+    diff_of_squares, distance_from_half_delta, dot2, dot_dd, geodesic_weights, sumsq, sumsq_dd, two_prod, wedge_sq,
+    DD,
 };
 use crate::poincare::with_scratch;
 
@@ -71,21 +73,48 @@ fn write_point(k: &Curvature, ys: &[f64], out: &mut [f64]) {
     out[0] = k.radius * (1.0 + k.kappa * sumsq(ys)).sqrt();
 }
 
-/// `exp_x(v) = cosh(|v|/R) x + R sinh(|v|/R) v/|v|`, with the Minkowski norm
-/// of `v` taken as `|v|^2 = (|v_s|^2 + kappa |x_s ∧ v_s|^2)/c_x^2` (a sum of
-/// squares; the raw `|v_s|^2 - v0^2` cancels by ~1e-16 x0^2). Writes the
+/// `exp_x(v) = cosh(D) x + R sinh(D) v/|v|` (`D = |v|/R`), evaluated in the
+/// ideal-endpoint form `e^{-D} x + sinh(D) l`, where the null vector
+/// `l = x + R v/|v|` points at the end `xi` of the geodesic on the sphere at
+/// infinity. The textbook sum cancels like e^{2r} when a long tangent
+/// carries a far point back past the origin (6.4e-4 at 30 R); `l` is where
+/// that cancellation lives, and it is formed from the Klein chord instead:
+/// with `k = x_s/c_x` the Klein image of `x`, `u` the Klein direction of `v`
+/// and `A`, `B` the chord lengths ahead and behind (`klein::chord_ends`),
+/// `xi = k + A u`, and
+/// `y_s = e^{-D} x_s + 2 B c_x sinh(D)/(A + B) (k + A u)`.
+/// The Minkowski norm of `v` is `|v|^2 = (|v_s|^2 + kappa |x_s ∧ v_s|^2)/c_x^2`
+/// (a sum of squares; the raw `|v_s|^2 - v0^2` cancels by ~1e-16 x0^2), and
+/// the Klein direction `u ∝ v_s - kappa (x_s.v_s)/c_x^2 x_s` is formed in
+/// double-double (it cancels by `1/c_x^2` for radial tangents). Writes the
 /// spatial part into `ys`.
 #[inline(always)]
 fn exp_spatial(k: &Curvature, xs: &[f64], cx: f64, vs: &[f64], ys: &mut [f64]) {
-    let n2 = (sumsq(vs) + k.kappa * wedge_sq(xs, vs)) / (cx * cx);
-    let b = k.sqrt_kappa * n2.sqrt(); // |v|/R
-    if b == 0.0 {
+    let kk = k.kappa;
+    let n2 = (sumsq(vs) + kk * wedge_sq(xs, vs)) / (cx * cx);
+    let big_d = k.sqrt_kappa * n2.sqrt(); // |v|/R
+    if big_d == 0.0 {
         ys.copy_from_slice(xs);
         return;
     }
-    let (ch, sh) = (b.cosh(), b.sinh() / b);
+    // Klein direction, in ys for now: u_i = v_i - q x_i, q = kappa (x.v)/c_x^2.
+    let xv = dot_dd(xs, vs);
+    let c2 = DD::from(1.0).add(sumsq_dd(xs).mul_f64(kk));
+    let q = xv.mul_f64(kk).div(c2);
     for i in 0..xs.len() {
-        ys[i] = ch * xs[i] + sh * vs[i];
+        ys[i] = DD::from(vs[i]).sub(q.mul_f64(xs[i])).value();
+    }
+    let nu = sumsq(ys).sqrt();
+    // k.u/|u| = (x.u)/(c_x |u|) with x.u = (x.v)/c_x^2 exactly
+    let ku = xv.value() / cx / cx / cx / nu;
+    let (a, b) = chord_ends(ku, 1.0 / (kk * cx * cx));
+    let m = 2.0 * b * cx / (a + b);
+    // m sinh(D), without overflowing sinh where the product is finite
+    let coef = if big_d < 700.0 { m * big_d.sinh() } else { (big_d + m.ln() - std::f64::consts::LN_2).exp() };
+    let em = (-big_d).exp();
+    let (ca, cu) = (coef / cx, coef * a / nu);
+    for i in 0..xs.len() {
+        ys[i] = em * xs[i] + (ca * xs[i] + cu * ys[i]);
     }
 }
 
@@ -104,23 +133,43 @@ fn log_full(k: &Curvature, xs: &[f64], cx: f64, ys: &[f64], cy: f64, out: &mut [
     out[0] = dot2(xs, &out[1..]) / (k.radius * cx);
 }
 
-/// Parallel transport `v + <y, v>_L / (R^2 (2 + delta)) (x + y)` with
-/// `<y, v>_L = <y - x, v>_L` (tangency at x) and `y0 - x0` from the
-/// difference of squares. Writes the full (d + 1)-vector.
+/// Parallel transport `v + <y, v>_L / (R^2 (2 + delta)) (x + y)`.
+/// `<y, v>_L` is the tangent inner product at `x` of `v` and
+/// `w = y - cosh(D) x` (the unnormalised log), split into the parts
+/// perpendicular to and along `x_s`:
+/// `<w, v>_x = w_perp . v_perp + (x.w)(x.v)/(|x_s|^2 c_x^2)`,
+/// with `v_perp` formed in double-double and `w_perp . v_perp` taken as
+/// `(y_s - x_s) . v_perp` (equal, since `v_perp` is perpendicular to `x_s`),
+/// so that the large radial parts of far vectors never leak into it. (The
+/// direct `<y - x, v>_L` cancels by `c_x c_y`: 4e-10 at radius 10.) Writes
+/// the full (d + 1)-vector.
 #[inline(always)]
 fn transport_full(k: &Curvature, xs: &[f64], cx: f64, ys: &[f64], cy: f64, vs: &[f64], out: &mut [f64]) {
     let r = k.radius;
-    let v0 = dot2(xs, vs) / (r * cx);
-    let dy0 = r * k.kappa * diff_of_squares(ys, xs, 1.0) / (cx + cy); // y0 - x0
-    let mut dv = 0.0;
-    for i in 0..xs.len() {
-        dv += (ys[i] - xs[i]) * vs[i];
-    }
-    let yv = dv - dy0 * v0;
+    let n = xs.len();
     let h = half_delta(k, xs, cx, ys, cy);
+    let xx = sumsq_dd(xs);
+    let yv = if xx.hi == 0.0 {
+        dot2(ys, vs) // x at the origin: v0 = 0
+    } else {
+        with_scratch(2 * n, #[inline(always)] |buf| {
+            let (w, vp) = buf.split_at_mut(n);
+            let xv = dot_dd(xs, vs);
+            let rho = xv.div(xx);
+            for i in 0..n {
+                w[i] = (ys[i] - xs[i]) - 2.0 * h * xs[i];
+                vp[i] = DD::from(vs[i]).sub(rho.mul_f64(xs[i])).value();
+            }
+            let radial = dot2(xs, w) * xv.value() / xx.value() / (cx * cx);
+            for i in 0..n {
+                w[i] = ys[i] - xs[i];
+            }
+            dot2(w, vp) + radial
+        })
+    };
     let coef = k.kappa * yv / (2.0 + 2.0 * h);
     let ps = &mut out[1..];
-    for i in 0..xs.len() {
+    for i in 0..n {
         ps[i] = vs[i] + coef * (xs[i] + ys[i]);
     }
     out[0] = dot2(ys, &out[1..]) / (r * cy);
@@ -289,4 +338,46 @@ pub fn inner_arrays<'a>(u: Data<'a>, v: Data<'a>) -> Result<Output> {
         out[0] = inner(r[0], r[1]);
         Ok(())
     })
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn exp_back_through_the_origin_is_the_closed_form() {
+        // handbook: on a line through the origin (d = 1, R = 1) points are
+        // (cosh r, sinh r) and the unit tangent is (sinh r, cosh r); a 29 R
+        // step inward from r = 14.5 lands at r - 29. (The textbook
+        // cosh/sinh sum loses ~1e-4 here.)
+        let k = Curvature::new(-1.0).unwrap();
+        let xs = [14.5f64.sinh()];
+        let cx = (1.0 + xs[0] * xs[0]).sqrt();
+        let r = xs[0].asinh();
+        let vs = [-29.0 * cx];
+        let big_d = 29.0 * cx / cx; // the length the inputs carry
+        let mut ys = [0.0];
+        exp_spatial(&k, &xs, cx, &vs, &mut ys);
+        let want = (r - big_d).sinh();
+        assert!(((ys[0] - want) / want).abs() < 1e-14, "{} vs {}", ys[0], want);
+    }
+
+    #[test]
+    fn transport_along_a_line_keeps_the_radial_unit_tangent() {
+        // handbook: along a line through the origin the unit tangent
+        // (sinh r, cosh r) is parallel; both points far out on one side
+        // (the direct <y - x, v>_L cancels by ~x0 y0 here: 4e-10 before)
+        let k = Curvature::new(-1.0).unwrap();
+        let xs = [9.5f64.sinh()];
+        let ys = [9.7f64.sinh()];
+        let cx = (1.0 + xs[0] * xs[0]).sqrt();
+        let cy = (1.0 + ys[0] * ys[0]).sqrt();
+        let big_l = 1.3;
+        let mut out = [0.0; 2];
+        transport_full(&k, &xs, cx, &ys, cy, &[big_l * cx], &mut out);
+        let want = [big_l * ys[0], big_l * cy];
+        for i in 0..2 {
+            assert!(((out[i] - want[i]) / want[i]).abs() < 1e-14, "{out:?} vs {want:?}");
+        }
+    }
 }

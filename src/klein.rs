@@ -12,8 +12,8 @@ use crate::ball::{check_finite, keep_inside, Curvature};
 use crate::batch::{finite_scalar, map_rows, point_core, scalar_core, Data, Operand, Output};
 use crate::error::Result;
 use crate::numeric::{
-    artanh_from_gap, diff_of_squares, dist_sq, distance_from_half_delta, dot2, dot_with_sum, gap,
-    geodesic_weights, sumsq,
+    artanh_from_gap, diff_of_squares, dist_sq, distance_from_half_delta, dot2, dot_dd, dot_with_sum, gap,
+    geodesic_weights, sumsq, sumsq_dd, DD,
 };
 use crate::poincare::{self, gap_of, with_scratch};
 
@@ -144,28 +144,6 @@ pub fn distance(c: &Curvature, k: &[f64], l: &[f64]) -> f64 {
     distance_g(c, k, gap(c.kappa, k), l, gap(c.kappa, l))
 }
 
-/// The differential at the origin of the
-/// left translation `z -> x ⊕ z` (from the Einstein addition formula):
-/// `J_x w = a w - kappa (x.w) a/(1 + a) x` with `a = sqrt(g_x) = 1/γ_x`.
-#[inline(always)]
-fn jacobian(c: &Curvature, x: &[f64], gx: f64, w: &[f64], out: &mut [f64]) {
-    let a = gx.sqrt();
-    let f = c.kappa * dot2(x, w) * a / (1.0 + a);
-    for i in 0..x.len() {
-        out[i] = a * w[i] - f * x[i];
-    }
-}
-
-/// The inverse of [`jacobian`]: `J_x^{-1} v = v/a + kappa (x.v)/(a^2 (1 + a)) x`.
-#[inline(always)]
-fn jacobian_inv(c: &Curvature, x: &[f64], gx: f64, v: &[f64], out: &mut [f64]) {
-    let a = gx.sqrt();
-    let f = c.kappa * dot2(x, v) / (gx * (1.0 + a));
-    for i in 0..x.len() {
-        out[i] = v[i] / a + f * x[i];
-    }
-}
-
 /// The Poincaré point of a Klein point, `p = k/(1 + a)`, and its exact gap
 /// `2a/(1 + a)` (`a = sqrt(g_k)`).
 #[inline(always)]
@@ -192,14 +170,14 @@ fn tangent_to_poincare(c: &Curvature, k: &[f64], gk: f64, dk: &[f64], dp: &mut [
 
 /// The differential of Poincaré -> Klein (`k = 2p/(2 - g)`) at `p`:
 /// `dk = 2/(2 - g) (dp_perp + g/(2 - g) dp_par)`, with the part of `dp`
-/// perpendicular to `p` formed from error-free 2x2 minors (the textbook
+/// perpendicular to `p` formed in double-double (the textbook
 /// `2 dp/(2 - g) - 4 kappa (p.dp) p/(2 - g)^2` cancels by a factor 1/g for
 /// radial vectors near the sphere).
 #[inline(always)]
-#[allow(dead_code)]
 fn tangent_to_klein(p: &[f64], gp: f64, dp: &[f64], dk: &mut [f64]) {
     let n = p.len();
-    let pp = sumsq(p);
+    let perp = Perp::new(p, dp);
+    let pp = perp.pp.value();
     let f = 2.0 / (2.0 - gp);
     if pp == 0.0 {
         for i in 0..n {
@@ -207,9 +185,9 @@ fn tangent_to_klein(p: &[f64], gp: f64, dp: &[f64], dk: &mut [f64]) {
         }
         return;
     }
-    let par = dot2(p, dp) / pp * (gp / (2.0 - gp));
+    let par = perp.pq.value() / pp * (gp / (2.0 - gp));
     for i in 0..n {
-        dk[i] = f * (perp_numerator(p, dp, i) / pp + par * p[i]);
+        dk[i] = f * (perp.numerator(p[i], dp[i]) / pp + par * p[i]);
     }
 }
 
@@ -226,25 +204,50 @@ fn poincare_difference(c: &Curvature, x: &[f64], gx: f64, y: &[f64], gy: f64, ou
     }
 }
 
-/// `exp_x(v)`, computed in the Poincaré ball (whose exponential map is exact
-/// to rounding for any tangent length): the base point and the tangent are
-/// mapped over with exact differentials and the result mapped back,
-/// `k = 2p/(2 - g)`. (The Einstein form `x ⊕ exp_0(J_x^{-1} v)` amplifies
-/// rounding by `1/g_x`.)
+/// The distances `(A, B)` from a Klein point `k` to the sphere along a unit
+/// direction (ahead) and against it (behind), from `kv = k . dir` and
+/// `r2g = R^2 - |k|^2 = R^2 g_k`: the roots of `|k + tau dir|^2 = R^2`,
+/// `A B = R^2 g_k`, the larger one formed without cancellation and the
+/// smaller one from the product.
+#[inline(always)]
+pub(crate) fn chord_ends(kv: f64, r2g: f64) -> (f64, f64) {
+    let sq = (kv * kv + r2g).sqrt();
+    if kv <= 0.0 {
+        let a = sq - kv;
+        (a, r2g / a)
+    } else {
+        let b = sq + kv;
+        (r2g / b, b)
+    }
+}
+
+/// `exp_x(v)` along the Klein chord `x + t v/|v|` (geodesics are straight
+/// lines). With `A`, `B` the distances along it from `x` to the sphere ahead
+/// and behind ([`chord_ends`]) and `D = |v|_x / R`, the cross-ratio form of
+/// the distance gives `t = A B (1 - e^{-2D}) / (A e^{-2D} + B)`, a product
+/// of accurate factors. Only the input direction enters, never a rounded
+/// intermediate point near the sphere (the route through the Poincaré ball
+/// rounds the image of `x` and loses ~1e-10 for 30 R tangents).
 #[inline(always)]
 pub fn exp_map_g(c: &Curvature, x: &[f64], gx: f64, v: &[f64], out: &mut [f64]) {
-    let n = x.len();
-    with_scratch(3 * n, #[inline(always)] |buf| {
-        let (p, rest) = buf.split_at_mut(n);
-        let (dp, q) = rest.split_at_mut(n);
-        let gp = to_poincare(x, gx, p);
-        tangent_to_poincare(c, x, gx, v, dp);
-        let gq = poincare::exp_map_g(c, p, gp, dp, q);
-        let f = 2.0 / (2.0 - gq);
-        for i in 0..n {
-            out[i] = f * q[i];
-        }
-    })
+    let k = c.kappa;
+    let vv = sumsq(v);
+    if vv == 0.0 {
+        out.copy_from_slice(x);
+        return;
+    }
+    let nv = vv.sqrt();
+    let xv = dot2(x, v);
+    // D^2 = kappa |v|^2 / g + kappa^2 (x.v)^2 / g^2 (the Klein metric)
+    let q = k * xv / gx;
+    let big_d = (k * vv / gx + q * q).sqrt();
+    let (a, b) = chord_ends(xv / nv, gx / k);
+    let em = (-2.0 * big_d).exp();
+    let t = a * b * -(-2.0 * big_d).exp_m1() / (a * em + b);
+    let f = t / nv;
+    for i in 0..x.len() {
+        out[i] = x[i] + f * v[i];
+    }
 }
 
 /// `log_x(y)`, computed in the Poincaré ball with the pair's difference
@@ -289,46 +292,66 @@ pub fn log_map_g(c: &Curvature, x: &[f64], gx: f64, y: &[f64], gy: f64, out: &mu
         let radial = f * (gp * dot2(s, p) + k * ss * pp) / (den * pp);
         let g2 = 2.0 / (2.0 - gp);
         let shrink = gp / (2.0 - gp);
+        let perp = Perp::new(p, s);
         for i in 0..n {
-            let perp = perp_numerator(p, s, i) / pp; // (s_perp)_i
-            out[i] = g2 * (f * gp * perp / den + radial * shrink * p[i]);
+            let sp = perp.numerator(p[i], s[i]) / pp; // (s_perp)_i
+            out[i] = g2 * (f * gp * sp / den + radial * shrink * p[i]);
         }
     })
 }
 
-/// `(|p|^2 q - (p.q) p)_i = sum_j p_j (p_j q_i - p_i q_j)`, from error-free
-/// 2x2 minors.
-#[inline(always)]
-fn perp_numerator(p: &[f64], q: &[f64], i: usize) -> f64 {
-    use crate::numeric::{two_prod, DD};
-    let mut acc = DD::default();
-    for j in 0..p.len() {
-        if j == i {
-            continue;
-        }
-        let (x, xe) = two_prod(p[j], q[i]);
-        let (y, ye) = two_prod(p[i], q[j]);
-        let m = DD::new(x, xe).sub(DD::new(y, ye)).value();
-        let (t, te) = two_prod(p[j], m);
-        acc = acc.add(DD::new(t, te));
-    }
-    acc.value()
+/// The part of `q` perpendicular to `p`, times `|p|^2`:
+/// `|p|^2 q_i - (p.q) p_i`, with `|p|^2` and `p.q` in double-double, so it
+/// keeps its digits when `q` is nearly parallel to `p` (absolute error
+/// ~1e-32 |p|^2 |q|).
+struct Perp {
+    pp: DD,
+    pq: DD,
 }
 
-/// Parallel transport from `x` to `y`: `J_y gyr[y, ⊖x] J_x^{-1} v` (left
-/// translation to the origin, the gyration, translation out).
+impl Perp {
+    #[inline(always)]
+    fn new(p: &[f64], q: &[f64]) -> Perp {
+        Perp { pp: sumsq_dd(p), pq: dot_dd(p, q) }
+    }
+    #[inline(always)]
+    fn numerator(&self, p_i: f64, q_i: f64) -> f64 {
+        self.pp.mul_f64(q_i).sub(self.pq.mul_f64(p_i)).value()
+    }
+}
+
+/// Parallel transport from `x` to `y`, computed in the Poincaré ball (where
+/// it is the conformal-factor ratio times a gyration, a rotation that mixes
+/// no scales): the tangent goes over with the exact differential, the pair's
+/// difference is formed from the Klein inputs, and the result comes back
+/// with its part perpendicular to `y` formed in double-double. (The Einstein
+/// form `J_y gyr[y, ⊖x] J_x^{-1} v` divides by `sqrt(g_x)` and multiplies
+/// back, losing up to 6e-9 at `1 - |x|/R = 1e-15`.)
 #[inline(always)]
 pub fn transport_g(c: &Curvature, x: &[f64], gx: f64, y: &[f64], gy: f64, v: &[f64], out: &mut [f64]) {
     let n = x.len();
-    with_scratch(3 * n, #[inline(always)] |buf| {
-        let (w, rest) = buf.split_at_mut(n);
-        let (nx, r) = rest.split_at_mut(n);
-        jacobian_inv(c, x, gx, v, w);
-        for i in 0..n {
-            nx[i] = -x[i];
-        }
-        gyration_g(c, y, gy, nx, gx, w, r);
-        jacobian(c, y, gy, r, out);
+    if x == y {
+        // Exactly the identity. (The round trip through the Poincaré ball
+        // holds the part of v across the radius only to ~eps of the whole
+        // of v at Poincaré scale: visible when a long radial part dominates
+        // v near the sphere.)
+        out.copy_from_slice(v);
+        return;
+    }
+    with_scratch(5 * n, #[inline(always)] |buf| {
+        let (np, rest) = buf.split_at_mut(n);
+        let (q, rest) = rest.split_at_mut(n);
+        let (s, rest) = rest.split_at_mut(n);
+        let (dp, w) = rest.split_at_mut(n);
+        let gp = to_poincare(x, gx, np);
+        np.iter_mut().for_each(|o| *o = -*o);
+        let gq = to_poincare(y, gy, q);
+        tangent_to_poincare(c, x, gx, v, dp);
+        poincare_difference(c, y, gy, x, gx, s); // q - p
+        poincare::gyration_s(c, q, gq, np, gp, s, dp, w);
+        let r = gq / gp;
+        w.iter_mut().for_each(|o| *o *= r);
+        tangent_to_klein(q, gq, w, out);
     })
 }
 
@@ -356,4 +379,78 @@ poincare::ball_batched!();
 /// repair as in the Poincaré ball: both models share the ball).
 pub fn project_arrays<'a>(c: Curvature, x: Data<'a>, margin: f64) -> Result<Output> {
     poincare::project_arrays(c, x, margin)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn rel(got: &[f64], want: &[f64]) -> f64 {
+        let num: f64 = got.iter().zip(want).map(|(a, b)| (a - b) * (a - b)).sum::<f64>().sqrt();
+        num / want.iter().map(|b| b * b).sum::<f64>().sqrt()
+    }
+
+    #[test]
+    fn exp_along_a_diameter_is_the_closed_form() {
+        // handbook: on a diameter the Klein coordinate is tanh(rho) and
+        // ds = dk/(1 - k^2) (d = 1, R = 1); a 28 R step inward from rho = 14
+        // lands at tanh(rho - 28).
+        let c = Curvature::new(-1.0).unwrap();
+        let x = [14f64.tanh()];
+        let gx = gap(1.0, &x);
+        let rho = ((1.0 + x[0]) / gx.sqrt()).ln(); // artanh of the float64 input
+        let v = [-28.0 * gx];
+        let mut y = [0.0];
+        exp_map_g(&c, &x, gx, &v, &mut y);
+        let want = (rho - 28.0).tanh();
+        assert!(((y[0] - want) / want).abs() < 1e-14, "{} vs {}", y[0], want);
+    }
+
+    #[test]
+    fn exp_agrees_with_the_poincare_route_at_moderate_radii() {
+        // the isomorphism k = 2p/(1 + kappa|p|^2) carries the Poincaré
+        // exponential map (an independent formula) to the Klein one
+        let c = Curvature::new(-0.3).unwrap();
+        let x = [0.9, -0.4, 0.7];
+        let v = [-0.8, 1.1, 0.25];
+        let gx = gap(c.kappa, &x);
+        let mut want = [0.0; 3];
+        let (mut p, mut dp, mut q) = ([0.0; 3], [0.0; 3], [0.0; 3]);
+        let gp = to_poincare(&x, gx, &mut p);
+        tangent_to_poincare(&c, &x, gx, &v, &mut dp);
+        let gq = poincare::exp_map_g(&c, &p, gp, &dp, &mut q);
+        for i in 0..3 {
+            want[i] = 2.0 * q[i] / (2.0 - gq);
+        }
+        let mut got = [0.0; 3];
+        exp_map_g(&c, &x, gx, &v, &mut got);
+        assert!(rel(&got, &want) < 1e-14, "{got:?} vs {want:?}");
+    }
+
+    #[test]
+    fn transport_to_the_same_point_is_the_identity() {
+        // common practice: P_{x->x} = id, here 1e-15 R from the sphere
+        let c = Curvature::new(-1.0).unwrap();
+        let x = [0.6 * (1.0 - 1e-15), 0.8 * (1.0 - 1e-15)];
+        let gx = gap(1.0, &x);
+        let v = [3e-8, -7e-8];
+        let mut out = [0.0; 2];
+        transport_g(&c, &x, gx, &x, gx, &v, &mut out);
+        assert!(rel(&out, &v) < 1e-15, "{out:?} vs {v:?}");
+    }
+
+    #[test]
+    fn transport_along_a_diameter_keeps_the_length() {
+        // handbook: on a diameter (d = 1, R = 1) a tangent of length L is
+        // dk = L (1 - k^2); transport keeps L
+        let c = Curvature::new(-1.0).unwrap();
+        let x = [1.0 - 3e-12];
+        let y = [1.0 - 7e-9];
+        let (gx, gy) = (gap(1.0, &x), gap(1.0, &y));
+        let big_l = 1.7;
+        let mut out = [0.0];
+        transport_g(&c, &x, gx, &y, gy, &[big_l * gx], &mut out);
+        let want = big_l * gy;
+        assert!(((out[0] - want) / want).abs() < 1e-14, "{} vs {}", out[0], want);
+    }
 }

@@ -65,6 +65,13 @@ impl DD {
         let (p, e) = two_prod(self.hi, o.hi);
         DD::new(p, e + (self.hi * o.lo + self.lo * o.hi))
     }
+    /// `self / o` (one correction step on the float quotient).
+    #[inline(always)]
+    pub fn div(self, o: DD) -> DD {
+        let q = self.hi / o.hi;
+        let r = self.sub(o.mul_f64(q));
+        DD::new(q, r.hi / o.hi)
+    }
 }
 
 /// Four independent double-double accumulators, so that the error-free

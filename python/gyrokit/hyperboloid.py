@@ -36,9 +36,12 @@ def exp_map(v: Any, base: Any = None, *, curvature: float = -1.0) -> Any:
     Minkowski norm, computed as a sum of squares from the spatial parts.
     Results that overflow float64 raise ``ValueError``.
 
-    Accuracy: ~1e-15 relative unless a long tangent carries a point far from
-    the origin back past it, where ``cosh`` and ``sinh`` terms cancel like
-    ``e^{2 min(|v|, r)}`` (measured up to 6e-4 relative at 20-30 R).
+    Evaluated as ``e^{-|v|/R} x + sinh(|v|/R) l`` with ``l = x + R v/|v|`` the
+    null vector towards the geodesic's end at infinity, formed through the
+    Klein chord (the textbook ``cosh``/``sinh`` terms cancel like
+    ``e^{2 min(|v|, r)}`` when a long tangent carries a far point back past
+    the origin: 6.4e-4 relative at 30 R). Accuracy: <= 6e-15 relative
+    (measured against 50-digit mpmath), tangents up to 30 R included.
     """
     return _native.hyperboloid_exp_map(v, base, curvature)
 
@@ -51,9 +54,16 @@ def log_map(y: Any, base: Any = None, *, curvature: float = -1.0) -> Any:
 def transport(v: Any, start: Any, end: Any, *, curvature: float = -1.0) -> Any:
     """Parallel transport ``v + <end, v>_L / (R^2 - <start, end>_L) (start + end)``.
 
-    Signature ``(..., d+1) x 3 -> (..., d+1)``. Accuracy: ~1e-15 relative near
-    the origin; ``<end, v>_L`` cancels for points far from the origin (the
-    Riemannian norm drifts by up to ~1e-8 relative at radius 10, measured).
+    Signature ``(..., d+1) x 3 -> (..., d+1)``. ``<end, v>_L`` is taken as
+    the tangent inner product at ``start`` of ``v`` and ``end - cosh(d/R)
+    start``, split into parts along and across ``start`` (the direct form
+    cancels by ``x0 y0/R^2``).
+
+    Accuracy: <= 3e-15 relative (normwise, measured against 50-digit mpmath).
+    Measured in the Riemannian norm, the error is about ``eps x0/R |v|``
+    (2.9e-12 at radius 10 R, 4.3e-10 at 15 R): the size at which float64
+    holds the part of a tangent at ``start`` across the radial direction,
+    whose coordinates are ``x0/R`` times larger than its length.
     """
     return _native.hyperboloid_transport(v, start, end, curvature)
 

@@ -81,13 +81,17 @@ def exp_map(v: Any, base: Any = None, *, curvature: float = -1.0) -> Any:
 
     Signature ``(..., d), (..., d) -> (..., d)``. Tangent vectors are ambient
     vectors with the Klein metric (Euclidean at the origin).
-    ``exp_x(v) = x ⊕ exp_0(J_x^{-1} v)`` with ``J_x`` the differential of
-    ``z -> x ⊕ z`` at 0; computed through the Poincaré ball with exact
-    differentials.
 
-    Accuracy: ~1e-15 relative for moderate tangents; for 20-30 R tangents at
-    base points near the sphere the Klein coordinates themselves limit it
-    (measured up to ~5e-11 relative).
+    Geodesics are straight chords, so ``exp_x(v) = x + t v/|v|``; ``t`` comes
+    from the cross-ratio form of the distance along the chord,
+    ``t = A B (1 - e^{-2D})/(A e^{-2D} + B)`` with ``D = |v|_x/R`` and ``A``,
+    ``B`` the chord lengths from ``x`` to the sphere ahead and behind
+    (``A B = R^2 - |x|^2``, the smaller one taken from the product).
+
+    Accuracy: <= 1e-15 relative (measured against 50-digit mpmath) for points
+    down to 1e-15 R from the sphere and tangents up to 30 R. Results closer
+    to the sphere than float64 can resolve (tangents beyond ~18 R from the
+    origin) are placed at the largest float64 radius inside the ball.
     """
     return _native.klein_exp_map(v, base, curvature)
 
@@ -96,9 +100,10 @@ def log_map(y: Any, base: Any = None, *, curvature: float = -1.0) -> Any:
     """Logarithmic map at ``base`` (origin when None), inverse of :func:`exp_map`.
 
     Computed in the Poincaré ball (the pair's difference formed from the
-    inputs), mapped back with the exact differential whose perpendicular part
-    comes from error-free minors: ~1e-15 relative down to 1e-15 R from the
-    sphere (measured).
+    inputs), mapped back with the exact differential whose part perpendicular
+    to ``base`` is formed in double-double: <= 9e-16 relative (measured
+    against 50-digit mpmath) down to 1e-15 R from the sphere, 5e-13 for pairs
+    1e-12 apart.
     """
     return _native.klein_log_map(y, base, curvature)
 
@@ -106,8 +111,12 @@ def log_map(y: Any, base: Any = None, *, curvature: float = -1.0) -> Any:
 def transport(v: Any, start: Any, end: Any, *, curvature: float = -1.0) -> Any:
     """Parallel transport of tangent ``v`` from ``start`` to ``end`` (Klein ball).
 
-    ``J_end gyr[end, ⊖start] J_start^{-1} v``. Accuracy as :func:`log_map`:
-    up to ~6e-9 relative for points within 1e-15 R of the sphere (measured).
+    Computed in the Poincaré ball, where it is the conformal-factor ratio
+    times the gyration ``gyr[end, ⊖start]``: the tangent goes over with the
+    exact differential and comes back with its part perpendicular to ``end``
+    formed in double-double. Accuracy: <= 5e-15 relative (measured against
+    50-digit mpmath) down to 1e-15 R from the sphere, for pairs 1e-12 apart
+    and 30 R apart; ``start == end`` returns ``v`` exactly.
     """
     return _native.klein_transport(v, start, end, curvature)
 

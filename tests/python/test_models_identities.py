@@ -40,27 +40,10 @@ import gyrokit as gk
 # ----------------------------------------------------------------- settings
 
 
-def _known(models, defects):
-    """Parametrize over ``models``, marking the listed ones as known defects.
-
-    Each entry is a measured limitation of the current library (see the
-    closing notes of the model-layer issue), not a relaxed tolerance:
-    non-strict because the failing inputs are found by hypothesis only when
-    it draws a far-apart or near-sphere case.
-    """
-    return [pytest.param(m, marks=pytest.mark.xfail(strict=False, reason=defects[m]))
-            if m in defects else m for m in models]
-
-
-_EXP_FAR = {
-    "hyperboloid": "exp_map of tangents carrying far points back past the origin "
-                   "cancels like e^{2r}: 1.8e-4 at r = 10 (measured)",
-}
-_TRANSPORT_FAR = {
-    "hyperboloid": "transport between points far from the origin: Riemannian error up "
-                   "to 1.1e-8 (measured); the decomposition still loses digits in <v, e>",
-}
-_LOG_EXP: dict = {}  # Klein exp was listed here; fixed (computed via the Poincaré ball)
+# Known defects once marked here, fixed (measured before the fix): Klein exp
+# far from the origin; hyperboloid exp_map of tangents carrying far points back
+# past the origin (1.8e-4 at r = 10); hyperboloid transport between far points
+# (Riemannian error 1.1e-8).
 
 SETTINGS = settings(
     max_examples=int(os.environ.get("GYROKIT_HYPOTHESIS_EXAMPLES", "100")),
@@ -654,7 +637,7 @@ def test_exp_of_log_is_identity(model, explicit, case):
 
 
 @pytest.mark.parametrize("explicit", (False, True), ids=("base=None", "base=x"))
-@pytest.mark.parametrize("model", _known(MANIFOLD_MODELS, _LOG_EXP))
+@pytest.mark.parametrize("model", MANIFOLD_MODELS)
 @SETTINGS
 @given(case=CASES)
 def test_log_of_exp_is_identity(model, explicit, case):
@@ -820,7 +803,7 @@ def mp_transport_errors(model, x, y, u, lib_tr, K):
 N_MP = 6  # points per example for the (slower) mpmath references
 
 
-@pytest.mark.parametrize("model", _known(MANIFOLD_MODELS, _EXP_FAR))
+@pytest.mark.parametrize("model", MANIFOLD_MODELS)
 @SETTINGS
 @given(case=CASES)
 def test_exp_map_matches_mpmath(model, case):
@@ -858,7 +841,7 @@ def test_log_map_matches_mpmath(model, case):
     assert_close_values(err, np.zeros(N_MP), tol, f"{model}: Riemannian error of log_map vs mpmath")
 
 
-@pytest.mark.parametrize("model", _known(MANIFOLD_MODELS, _TRANSPORT_FAR))
+@pytest.mark.parametrize("model", MANIFOLD_MODELS)
 @SETTINGS
 @given(case=CASES)
 def test_transport_matches_mpmath(model, case):
@@ -878,7 +861,7 @@ def test_transport_matches_mpmath(model, case):
 # ====================================================== 5. transport
 
 
-@pytest.mark.parametrize("model", _known(MANIFOLD_MODELS, _TRANSPORT_FAR))
+@pytest.mark.parametrize("model", MANIFOLD_MODELS)
 @SETTINGS
 @given(case=CASES)
 def test_transport_is_an_isometry_and_invertible(model, case):
@@ -907,7 +890,7 @@ def test_transport_is_an_isometry_and_invertible(model, case):
     assert_close_values(err, np.zeros(N), rel * nu, f"{model}: transport y -> x of transport x -> y")
 
 
-@pytest.mark.parametrize("model", _known(MANIFOLD_MODELS, _TRANSPORT_FAR))
+@pytest.mark.parametrize("model", MANIFOLD_MODELS)
 @SETTINGS
 @given(case=CASES)
 def test_transport_of_log_is_minus_log(model, case):

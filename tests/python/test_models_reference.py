@@ -698,19 +698,11 @@ FUNC_BY_NAME = {f.name: f for f in FUNCS}
 # Geodesics: fixed by the closed-form hyperboloid weights (measured before:
 # up to 4.3e-1 Poincaré, 1.8e-1 Klein, 3.6e14 hyperboloid on these cases).
 KNOWN_DEFECTS: Dict[Tuple[str, str], str] = {
-    # ("poincare.exp_map", "far30"): fixed by the ideal-endpoint form (was 3.4e-10).
-    ("klein.exp_map", "far30"):
-        "measured 7.0e-4 (46/48 rows), err/sens up to 5e10; results can lie "
-        "OUTSIDE the ball (|exp| > R)",
-    ("klein.transport", "edge1e-9"):
-        "measured 5.4e-12; includes start == end (must be the identity), err/sens 3e4",
-    ("klein.transport", "edge1e-12"): "measured 1.9e-10; ill-conditioned (err/sens <= 4e-7)",
-    ("klein.transport", "edge1e-15"):
-        "measured 6.1e-9; includes start == end (must be the identity)",
-    ("klein.transport", "close1e-12"): "measured 1.0e-12 (1/48 rows); ill-conditioned",
-    ("klein.transport", "far30"): "measured 1.6e-10; ill-conditioned (err/sens <= 8e-7)",
-    ("hyperboloid.exp_map", "far30"):
-        "measured 6.4e-4 (48/48 rows); d=1 rows are well-conditioned (err/sens 4e10)",
+    # Fixed, with the error measured before the fix:
+    # ("poincare.exp_map", "far30"): ideal-endpoint form (was 3.4e-10).
+    # ("klein.exp_map", "far30"): Klein chord form (was 7.0e-4, results outside the ball).
+    # ("klein.transport", edge/close/far30): through the Poincaré ball (was up to 6.1e-9).
+    # ("hyperboloid.exp_map", "far30"): ideal endpoint from the Klein chord (was 6.4e-4).
 }
 
 
@@ -836,9 +828,7 @@ def test_agrees_with_mpmath_reference(name, kind):
 TEXTBOOK_NOT_WORSE: Dict[str, str] = {
     "poincare.exp_map": "textbook fine on edge/close",
     "poincare.project": "a rescaling: the textbook is already exact",
-    "klein.exp_map": "textbook fine on edge/close; far30 is a gyrokit xfail",
     "klein.project": "a rescaling: the textbook is already exact",
-    "klein.transport": "gyrokit xfails wherever the textbook fails",
     "hyperboloid.project": "sqrt(R^2 + |x_s|^2) is already accurate",
     "convert poincare->klein": "2p/(1 + kappa|p|^2) has no cancellation",
     "convert hyperboloid->poincare": "x_s/(1 + x0/R) has no cancellation",
