@@ -157,6 +157,9 @@ pub fn convert_arrays<'a>(k: Curvature, x: Data<'a>, src: Model, dst: Model) -> 
                     if !out.iter().all(|v| v.is_finite()) {
                         return Err(RowFault::new(0, Fault::Overflow));
                     }
+                    if dst == Model::Hyperboloid && sumsq(&out[1..]) > hyperboloid::MAX_SPATIAL_SQ {
+                        return Err(RowFault::new(0, Fault::ResultBeyondRange));
+                    }
                 }
             }
             Ok(())

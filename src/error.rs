@@ -44,6 +44,11 @@ pub enum Fault {
     NotInHalfSpace,
     /// The result of a valid input overflows float64.
     Overflow,
+    /// A hyperboloid point whose spatial coordinates exceed the range in
+    /// which products of coordinates fit in float64.
+    BeyondRange,
+    /// A hyperboloid result beyond that range.
+    ResultBeyondRange,
     /// The converted point is too close to the sphere for float64 in the
     /// target ball model (it rounds onto the sphere).
     Unrepresentable(&'static str),
@@ -68,6 +73,13 @@ impl Fault {
                  by {e:.3e} relative (tolerance 1e-6); hyperboloid.project() repairs drifted points"
             ),
             Fault::Overflow => "gives a result that overflows float64".to_string(),
+            Fault::BeyondRange => "lies beyond the hyperboloid range: |x_1..d| must be at most 2^250 \
+                 (about 1.8e75, some 173 R from the origin when R = 1) so that products of \
+                 coordinates fit in float64"
+                .to_string(),
+            Fault::ResultBeyondRange => "gives a point beyond the hyperboloid range (|x_1..d| at most \
+                 2^250, about 1.8e75), where products of coordinates overflow float64"
+                .to_string(),
             Fault::Unrepresentable(m) => format!(
                 "cannot be represented in the {m} model in float64: its image lies within \
                  1.1e-16 R of the sphere and rounds onto it (the Klein ball holds points up to \

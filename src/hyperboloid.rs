@@ -14,14 +14,21 @@ use crate::batch::{finite_scalar, map_rows, point_core, scalar_core, Data, Opera
 use crate::error::{Fault, Result, RowFault};
 use crate::klein::chord_ends;
 use crate::numeric::{
-    diff_of_squares, distance_from_half_delta, dot2, dot_dd, geodesic_weights, sumsq, sumsq_dd, two_prod, wedge_sq,
-    DD,
+    diff_of_squares, distance_from_half_delta, dot2, dot_dd, geodesic_weights, perp_numerator, sumsq, sumsq_dd,
+    two_prod, wedge_sq, DD,
 };
 use crate::poincare::with_scratch;
 
 /// Relative tolerance on x0 when reading a point (loose enough for float32
 /// embeddings, whose x0 is off by ~1e-7 after rounding).
 pub const SHEET_TOLERANCE: f64 = 1e-6;
+
+/// Largest `|x_s|^2` read (2^500): products of four coordinates, as in
+/// `|x_s|^2 |y_s|^2`, then fit in float64. At K = -1 it is about 173 R from
+/// the origin, where tangent vectors have long lost every digit across the
+/// radial direction (see the module notes) and points of the ball models
+/// (18-37 R) are out of reach.
+pub const MAX_SPATIAL_SQ: f64 = 3.273390607896142e150; // 2^500
 
 /// Checks a point and returns `c = sqrt(1 + kappa |x_s|^2) = x0/R` computed
 /// from the spatial part.
@@ -30,7 +37,11 @@ pub fn read_point(k: &Curvature, x: &[f64]) -> std::result::Result<f64, Fault> {
     if !x.iter().all(|v| v.is_finite()) {
         return Err(Fault::NonFinite);
     }
-    let cx = (1.0 + k.kappa * sumsq(&x[1..])).sqrt();
+    let ss = sumsq(&x[1..]);
+    if ss > MAX_SPATIAL_SQ {
+        return Err(Fault::BeyondRange);
+    }
+    let cx = (1.0 + k.kappa * ss).sqrt();
     if !(x[0] > 0.0) {
         return Err(Fault::OffHyperboloid(f64::NAN));
     }
@@ -85,9 +96,10 @@ fn write_point(k: &Curvature, ys: &[f64], out: &mut [f64]) {
 /// `y_s = e^{-D} x_s + 2 B c_x sinh(D)/(A + B) (k + A u)`.
 /// The Minkowski norm of `v` is `|v|^2 = (|v_s|^2 + kappa |x_s ∧ v_s|^2)/c_x^2`
 /// (a sum of squares; the raw `|v_s|^2 - v0^2` cancels by ~1e-16 x0^2), and
-/// the Klein direction `u ∝ v_s - kappa (x_s.v_s)/c_x^2 x_s` is formed in
-/// double-double (it cancels by `1/c_x^2` for radial tangents). Writes the
-/// spatial part into `ys`.
+/// the Klein direction `u ∝ v_s - kappa (x_s.v_s)/c_x^2 x_s` as
+/// `v_perp + v_par/c_x^2` (the difference cancels by `1/c_x^2` for radial
+/// tangents), with `v_perp` from error-free minors. Writes the spatial part
+/// into `ys`.
 #[inline(always)]
 fn exp_spatial(k: &Curvature, xs: &[f64], cx: f64, vs: &[f64], ys: &mut [f64]) {
     let kk = k.kappa;
@@ -97,16 +109,21 @@ fn exp_spatial(k: &Curvature, xs: &[f64], cx: f64, vs: &[f64], ys: &mut [f64]) {
         ys.copy_from_slice(xs);
         return;
     }
-    // Klein direction, in ys for now: u_i = v_i - q x_i, q = kappa (x.v)/c_x^2.
-    let xv = dot_dd(xs, vs);
-    let c2 = DD::from(1.0).add(sumsq_dd(xs).mul_f64(kk));
-    let q = xv.mul_f64(kk).div(c2);
-    for i in 0..xs.len() {
-        ys[i] = DD::from(vs[i]).sub(q.mul_f64(xs[i])).value();
+    // Klein direction, in ys for now: u = v_perp + v_par/c_x^2 (parts across
+    // and along x_s), the part across from error-free minors.
+    let xv = dot2(xs, vs);
+    let xx = sumsq(xs);
+    if xx == 0.0 {
+        ys.copy_from_slice(vs);
+    } else {
+        let par = xv / xx / (cx * cx);
+        for i in 0..xs.len() {
+            ys[i] = perp_numerator(xs, vs, i) / xx + par * xs[i];
+        }
     }
     let nu = sumsq(ys).sqrt();
-    // k.u/|u| = (x.u)/(c_x |u|) with x.u = (x.v)/c_x^2 exactly
-    let ku = xv.value() / cx / cx / cx / nu;
+    // k.u/|u| = (x.u)/(c_x |u|) with x.u = (x.v)/c_x^2
+    let ku = xv / cx / cx / cx / nu;
     let (a, b) = chord_ends(ku, 1.0 / (kk * cx * cx));
     let m = 2.0 * b * cx / (a + b);
     // m sinh(D), without overflowing sinh where the product is finite
@@ -125,10 +142,16 @@ fn exp_spatial(k: &Curvature, xs: &[f64], cx: f64, vs: &[f64], ys: &mut [f64]) {
 #[inline(always)]
 fn log_full(k: &Curvature, xs: &[f64], cx: f64, ys: &[f64], cy: f64, out: &mut [f64]) {
     let h = half_delta(k, xs, cx, ys, cy);
-    let f = if h > 0.0 { h.sqrt().asinh() / (h * (1.0 + h)).sqrt() } else { 1.0 };
+    let (f, fx) = if h > 0.0 {
+        let (sh, s1h) = (h.sqrt(), (1.0 + h).sqrt());
+        let a = sh.asinh();
+        (a / (sh * s1h), 2.0 * a * (sh / s1h)) // f and 2 h f
+    } else {
+        (1.0, 0.0)
+    };
     let ws = &mut out[1..];
     for i in 0..xs.len() {
-        ws[i] = f * ((ys[i] - xs[i]) - 2.0 * h * xs[i]);
+        ws[i] = f * (ys[i] - xs[i]) - fx * xs[i];
     }
     out[0] = dot2(xs, &out[1..]) / (k.radius * cx);
 }
@@ -138,7 +161,7 @@ fn log_full(k: &Curvature, xs: &[f64], cx: f64, ys: &[f64], cy: f64, out: &mut [
 /// `w = y - cosh(D) x` (the unnormalised log), split into the parts
 /// perpendicular to and along `x_s`:
 /// `<w, v>_x = w_perp . v_perp + (x.w)(x.v)/(|x_s|^2 c_x^2)`,
-/// with `v_perp` formed in double-double and `w_perp . v_perp` taken as
+/// with `v_perp` formed from error-free minors and `w_perp . v_perp` taken as
 /// `(y_s - x_s) . v_perp` (equal, since `v_perp` is perpendicular to `x_s`),
 /// so that the large radial parts of far vectors never leak into it. (The
 /// direct `<y - x, v>_L` cancels by `c_x c_y`: 4e-10 at radius 10.) Writes
@@ -150,24 +173,31 @@ fn transport_full(k: &Curvature, xs: &[f64], cx: f64, ys: &[f64], cy: f64, vs: &
     let h = half_delta(k, xs, cx, ys, cy);
     let xx = sumsq_dd(xs);
     let yv = if xx.hi == 0.0 {
-        dot2(ys, vs) // x at the origin: v0 = 0
+        dot2(ys, vs) / (2.0 + 2.0 * h) // x at the origin: v0 = 0
     } else {
+        // w/(2 + 2h) = (y - x)/(2 + 2h) - h/(1 + h) x: bounded, where w
+        // itself grows like x0 y0 x.
+        let (s, hh) = (1.0 / (2.0 + 2.0 * h), h / (1.0 + h));
         with_scratch(2 * n, #[inline(always)] |buf| {
             let (w, vp) = buf.split_at_mut(n);
             let xv = dot_dd(xs, vs);
-            let rho = xv.div(xx);
+            let xxv = xx.value();
             for i in 0..n {
-                w[i] = (ys[i] - xs[i]) - 2.0 * h * xs[i];
-                vp[i] = DD::from(vs[i]).sub(rho.mul_f64(xs[i])).value();
+                w[i] = s * (ys[i] - xs[i]) - hh * xs[i];
+                // from error-free minors: exactly zero for a tangent along
+                // x_s (d = 1, or both on a coordinate axis), where any
+                // residual would be magnified by x0 y0
+                vp[i] = perp_numerator(xs, vs, i) / xxv;
             }
-            let radial = dot2(xs, w) * xv.value() / xx.value() / (cx * cx);
+            let radial = (dot2(xs, w) / xx.value()) * (xv.value() / (cx * cx));
             for i in 0..n {
                 w[i] = ys[i] - xs[i];
             }
-            dot2(w, vp) + radial
+            s * dot2(w, vp) + radial
         })
     };
-    let coef = k.kappa * yv / (2.0 + 2.0 * h);
+    // <y, v>_L / (R^2 (2 + delta))
+    let coef = k.kappa * yv;
     let ps = &mut out[1..];
     for i in 0..n {
         ps[i] = vs[i] + coef * (xs[i] + ys[i]);
@@ -225,6 +255,14 @@ fn finite_out(out: &[f64], arg: usize) -> std::result::Result<(), RowFault> {
     }
 }
 
+/// A computed point: finite and within the range that can be read back.
+fn point_out(out: &[f64], arg: usize) -> std::result::Result<(), RowFault> {
+    if sumsq(&out[1..]) > MAX_SPATIAL_SQ {
+        return Err(RowFault::new(arg, Fault::ResultBeyondRange));
+    }
+    finite_out(out, arg)
+}
+
 /// Batched distance `(..., d+1), (..., d+1) -> (...)`.
 pub fn distance_arrays<'a>(k: Curvature, x: Data<'a>, y: Data<'a>) -> Result<Output> {
     let ops = [Operand::point("x", x), Operand::point("y", y)];
@@ -233,7 +271,7 @@ pub fn distance_arrays<'a>(k: Curvature, x: Data<'a>, y: Data<'a>) -> Result<Out
         let cx = point_of!(&k, r[0], 0);
         let cy = point_of!(&k, r[1], 1);
         out[0] = distance_s(&k, &r[0][1..], cx, &r[1][1..], cy);
-        Ok(())
+        finite_out(out, 0)
     })
 }
 
@@ -258,7 +296,7 @@ pub fn exp_map_arrays<'a>(k: Curvature, v: Data<'a>, base: Option<Data<'a>>) -> 
             };
             exp_spatial(&k, xs, cx, &r[0][1..], ys);
             write_point(&k, ys, out);
-            finite_out(out, 0)
+            point_out(out, 0)
         })
     })
 }
@@ -282,7 +320,7 @@ pub fn log_map_arrays<'a>(k: Curvature, y: Data<'a>, base: Option<Data<'a>>) -> 
                 (&zero[..], 1.0)
             };
             log_full(&k, xs, cx, &r[0][1..], cy, out);
-            Ok(())
+            finite_out(out, 0)
         })
     })
 }
@@ -296,7 +334,7 @@ pub fn transport_arrays<'a>(k: Curvature, v: Data<'a>, start: Data<'a>, end: Dat
         let cx = point_of!(&k, r[1], 1);
         let cy = point_of!(&k, r[2], 2);
         transport_full(&k, &r[1][1..], cx, &r[2][1..], cy, &r[0][1..], out);
-        Ok(())
+        finite_out(out, 0)
     })
 }
 
@@ -313,7 +351,7 @@ pub fn geodesic_arrays<'a>(k: Curvature, x: Data<'a>, y: Data<'a>, t: Data<'a>) 
             geodesic_spatial(&k, &r[0][1..], cx, &r[1][1..], cy, t, ys);
             write_point(&k, ys, out);
         });
-        finite_out(out, 2)
+        point_out(out, 2)
     })
 }
 
@@ -336,7 +374,7 @@ pub fn inner_arrays<'a>(u: Data<'a>, v: Data<'a>) -> Result<Output> {
         crate::ball::check_finite(r[0]).map_err(|f| RowFault::new(0, f))?;
         crate::ball::check_finite(r[1]).map_err(|f| RowFault::new(1, f))?;
         out[0] = inner(r[0], r[1]);
-        Ok(())
+        finite_out(out, 0)
     })
 }
 

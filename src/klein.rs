@@ -12,8 +12,8 @@ use crate::ball::{check_finite, keep_inside, Curvature};
 use crate::batch::{finite_scalar, map_rows, point_core, scalar_core, Data, Operand, Output};
 use crate::error::Result;
 use crate::numeric::{
-    artanh_from_gap, diff_of_squares, dist_sq, distance_from_half_delta, dot2, dot_dd, dot_with_sum, gap,
-    geodesic_weights, sumsq, sumsq_dd, DD,
+    artanh_from_gap, diff_of_squares, dist_sq, distance_from_half_delta, dot2, dot_with_sum, gap,
+    geodesic_weights, sumsq, PerpDD,
 };
 use crate::poincare::{self, gap_of, with_scratch};
 
@@ -176,7 +176,7 @@ fn tangent_to_poincare(c: &Curvature, k: &[f64], gk: f64, dk: &[f64], dp: &mut [
 #[inline(always)]
 fn tangent_to_klein(p: &[f64], gp: f64, dp: &[f64], dk: &mut [f64]) {
     let n = p.len();
-    let perp = Perp::new(p, dp);
+    let perp = PerpDD::new(p, dp);
     let pp = perp.pp.value();
     let f = 2.0 / (2.0 - gp);
     if pp == 0.0 {
@@ -187,7 +187,7 @@ fn tangent_to_klein(p: &[f64], gp: f64, dp: &[f64], dk: &mut [f64]) {
     }
     let par = perp.pq.value() / pp * (gp / (2.0 - gp));
     for i in 0..n {
-        dk[i] = f * (perp.numerator(p[i], dp[i]) / pp + par * p[i]);
+        dk[i] = f * (perp.at(p[i], dp[i]) / pp + par * p[i]);
     }
 }
 
@@ -287,37 +287,17 @@ pub fn log_map_g(c: &Curvature, x: &[f64], gx: f64, y: &[f64], gy: f64, out: &mu
         }
         // The Klein differential shrinks the radial part by g_p, so the part
         // of the log perpendicular to p must carry its own digits: it is
-        // f g_p s_perp / D (p has no perpendicular part), formed from
-        // error-free minors of p and the accurate difference s.
+        // f g_p s_perp / D (p has no perpendicular part), formed in
+        // double-double from p and the accurate difference s.
         let radial = f * (gp * dot2(s, p) + k * ss * pp) / (den * pp);
         let g2 = 2.0 / (2.0 - gp);
         let shrink = gp / (2.0 - gp);
-        let perp = Perp::new(p, s);
+        let perp = PerpDD::new(p, s);
         for i in 0..n {
-            let sp = perp.numerator(p[i], s[i]) / pp; // (s_perp)_i
+            let sp = perp.at(p[i], s[i]) / pp; // (s_perp)_i
             out[i] = g2 * (f * gp * sp / den + radial * shrink * p[i]);
         }
     })
-}
-
-/// The part of `q` perpendicular to `p`, times `|p|^2`:
-/// `|p|^2 q_i - (p.q) p_i`, with `|p|^2` and `p.q` in double-double, so it
-/// keeps its digits when `q` is nearly parallel to `p` (absolute error
-/// ~1e-32 |p|^2 |q|).
-struct Perp {
-    pp: DD,
-    pq: DD,
-}
-
-impl Perp {
-    #[inline(always)]
-    fn new(p: &[f64], q: &[f64]) -> Perp {
-        Perp { pp: sumsq_dd(p), pq: dot_dd(p, q) }
-    }
-    #[inline(always)]
-    fn numerator(&self, p_i: f64, q_i: f64) -> f64 {
-        self.pp.mul_f64(q_i).sub(self.pq.mul_f64(p_i)).value()
-    }
 }
 
 /// Parallel transport from `x` to `y`, computed in the Poincaré ball (where

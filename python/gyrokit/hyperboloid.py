@@ -7,6 +7,18 @@ relative tolerance of 1e-6 (loose enough for float32 embeddings) and then
 recomputed. Tangent vectors are ``(d + 1)``-vectors Minkowski-orthogonal to
 their base point; they too are read through their spatial part (``v0`` is
 implied by tangency). Use :func:`project` to repair points that drifted.
+
+Range: spatial coordinates up to ``|x_s| = 2^250`` (about 1.8e75; some 173 R
+from the origin when R = 1), where products of coordinates still fit in
+float64. Points beyond it, and results that would lie beyond it, raise
+``ValueError`` naming the argument and row.
+
+What float64 holds: a tangent vector of length ``L`` at a point with
+``x0 = c R`` has coordinates of size up to ``c L`` along the radial
+direction, so its part across that direction is held only to about
+``eps c L`` (eps = 2.2e-16): 2e-12 L at 10 R, 4e-10 L at 15 R, and nothing
+beyond about 36 R. Functions of tangent vectors there are computed as
+accurately as their float64 inputs determine them, no better.
 """
 
 from __future__ import annotations

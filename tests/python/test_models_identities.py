@@ -1310,6 +1310,60 @@ def test_hyperboloid_off_sheet_rejected(label, call, arg):
         call(bad)
 
 
+def _on_line(r, K=-1.0, u=(0.6, 0.8)):
+    """The hyperboloid point at hyperbolic radius ``r R`` in direction ``u``."""
+    R = radius(K)
+    return np.concatenate([[R * np.cosh(r)], R * np.sinh(r) * np.asarray(u)])
+
+
+@pytest.mark.parametrize("label,call,arg", HYP_ARGS, ids=[a[0] for a in HYP_ARGS])
+def test_hyperboloid_beyond_range_rejected(label, call, arg):
+    # documented range: |x_1..d| <= 2^250 (products of coordinates fit in
+    # float64); beyond it a clear error naming the argument and row, never NaN
+    h = _hpoints()
+    far = h.copy()
+    far[2] = _on_line(180.0)  # |x_s| = sinh(180) ~ 7.4e77 > 2^250
+    with pytest.raises(ValueError, match=_arg_row_pattern(arg, 2) + r".*beyond the hyperboloid range"):
+        call(far)
+    near = h.copy()
+    near[2] = _on_line(170.0)  # inside: a finite result
+    if label == "convert":  # (the Poincaré ball holds only ~37 R: use the half-space)
+        call = lambda p: gk.convert(p, "hyperboloid", "halfspace")  # noqa: E731
+    assert np.all(np.isfinite(call(near)))
+
+
+def test_hyperboloid_far_inside_range_is_finite_and_exact():
+    # handbook: along a ray through the origin d = |r_x - r_y|; on opposite
+    # rays d = r_x + r_y; a radial unit tangent (sinh r, cosh r u) is carried
+    # to the radial unit tangent at the other point. (Points on a coordinate
+    # axis, so that rounding keeps them exactly on one line.)
+    H = gk.hyperboloid
+    e1 = (1.0, 0.0)
+    for r in (40.0, 100.0, 170.0):
+        x, y, z = _on_line(r, u=e1), _on_line(r - 2.5, u=e1), _on_line(r - 1.0, u=(-1.0, 0.0))
+        assert abs(H.distance(x, y) - 2.5) < 1e-15 * r + 1e-13
+        assert abs(H.distance(x, z) - (2 * r - 1.0)) < 1e-14 * r
+        v = 1.3 * np.concatenate([[np.sinh(r)], np.cosh(r) * np.array(e1)])
+        want = 1.3 * np.concatenate([[np.sinh(r - 2.5)], np.cosh(r - 2.5) * np.array(e1)])
+        got = H.transport(v, x, y)
+        assert np.all(np.isfinite(got)), (r, got)
+        assert np.max(np.abs(got - want)) < 1e-14 * np.max(np.abs(want)), (r, got, want)
+        w = H.log_map(y, x)
+        assert np.all(np.isfinite(w)), (r, w)
+        # log_x(y) points inward with length 2.5 (radial: |w_s| = 2.5 cosh r)
+        assert abs(np.linalg.norm(w[1:]) / np.cosh(r) - 2.5) < 1e-13, (r, w)
+
+
+def test_hyperboloid_results_beyond_range_rejected():
+    # exp_map and conversions whose result would lie beyond the range raise
+    with pytest.raises(ValueError, match=r"^v\b.*beyond the hyperboloid range"):
+        gk.hyperboloid.exp_map(np.array([0.0, 180.0, 0.0]))
+    with pytest.raises(ValueError, match=r"^x\b.*beyond the hyperboloid range"):
+        gk.convert(np.array([0.3, 1e-200]), "halfspace", "hyperboloid")
+    y = gk.hyperboloid.exp_map(np.array([0.0, 170.0, 0.0]))
+    assert abs(np.arcsinh(y[1]) - 170.0) < 1e-13 * 170.0
+
+
 @pytest.mark.parametrize("label,call,arg", HYP_ARGS, ids=[a[0] for a in HYP_ARGS])
 def test_hyperboloid_needs_two_coordinates(label, call, arg):
     with pytest.raises(ValueError):
