@@ -14,7 +14,7 @@ use crate::batch::{finite_scalar, map_rows, point_core, scalar_core, Data, Opera
 use crate::error::{Fault, Result, RowFault};
 use crate::klein::chord_ends;
 use crate::numeric::{
-    diff_of_squares, distance_from_half_delta, dot2, dot_dd, geodesic_weights, perp_numerator, sumsq, sumsq_dd,
+    diff_of_squares, distance_from_half_delta, dot2, dot_dd, geodesic_weights, perp_scaled, sumsq, sumsq_dd,
     two_prod, wedge_sq, DD,
 };
 use crate::poincare::with_scratch;
@@ -98,28 +98,33 @@ fn write_point(k: &Curvature, ys: &[f64], out: &mut [f64]) {
 /// (a sum of squares; the raw `|v_s|^2 - v0^2` cancels by ~1e-16 x0^2), and
 /// the Klein direction `u ∝ v_s - kappa (x_s.v_s)/c_x^2 x_s` as
 /// `v_perp + v_par/c_x^2` (the difference cancels by `1/c_x^2` for radial
-/// tangents), with `v_perp` from error-free minors. Writes the spatial part
+/// tangents), with `v_perp` from `perp_scaled`. Writes the spatial part
 /// into `ys`.
 #[inline(always)]
 fn exp_spatial(k: &Curvature, xs: &[f64], cx: f64, vs: &[f64], ys: &mut [f64]) {
     let kk = k.kappa;
-    let n2 = (sumsq(vs) + kk * wedge_sq(xs, vs)) / (cx * cx);
+    // The part of v across x_s, in ys for now (times |x_s|^2).
+    let (xx, xv) = perp_scaled(xs, vs, ys);
+    let (xx, xv) = (xx.value(), xv.value());
+    let mut wedge = 0.0; // |x_s ∧ v_s|^2 = |x_s|^2 |v_perp|^2
+    if xx == 0.0 {
+        ys.copy_from_slice(vs);
+    } else {
+        // Klein direction u = v_perp + v_par/c_x^2 (the parts across and along x_s)
+        let par = xv / xx / (cx * cx);
+        let mut pp = 0.0;
+        for i in 0..xs.len() {
+            let vp = ys[i] / xx;
+            pp += vp * vp;
+            ys[i] = vp + par * xs[i];
+        }
+        wedge = xx * pp;
+    }
+    let n2 = (sumsq(vs) + kk * wedge) / (cx * cx);
     let big_d = k.sqrt_kappa * n2.sqrt(); // |v|/R
     if big_d == 0.0 {
         ys.copy_from_slice(xs);
         return;
-    }
-    // Klein direction, in ys for now: u = v_perp + v_par/c_x^2 (parts across
-    // and along x_s), the part across from error-free minors.
-    let xv = dot2(xs, vs);
-    let xx = sumsq(xs);
-    if xx == 0.0 {
-        ys.copy_from_slice(vs);
-    } else {
-        let par = xv / xx / (cx * cx);
-        for i in 0..xs.len() {
-            ys[i] = perp_numerator(xs, vs, i) / xx + par * xs[i];
-        }
     }
     let nu = sumsq(ys).sqrt();
     // k.u/|u| = (x.u)/(c_x |u|) with x.u = (x.v)/c_x^2
@@ -161,7 +166,7 @@ fn log_full(k: &Curvature, xs: &[f64], cx: f64, ys: &[f64], cy: f64, out: &mut [
 /// `w = y - cosh(D) x` (the unnormalised log), split into the parts
 /// perpendicular to and along `x_s`:
 /// `<w, v>_x = w_perp . v_perp + (x.w)(x.v)/(|x_s|^2 c_x^2)`,
-/// with `v_perp` formed from error-free minors and `w_perp . v_perp` taken as
+/// with `v_perp` from `perp_scaled` and `w_perp . v_perp` taken as
 /// `(y_s - x_s) . v_perp` (equal, since `v_perp` is perpendicular to `x_s`),
 /// so that the large radial parts of far vectors never leak into it. (The
 /// direct `<y - x, v>_L` cancels by `c_x c_y`: 4e-10 at radius 10.) Writes
@@ -180,14 +185,13 @@ fn transport_full(k: &Curvature, xs: &[f64], cx: f64, ys: &[f64], cy: f64, vs: &
         let (s, hh) = (1.0 / (2.0 + 2.0 * h), h / (1.0 + h));
         with_scratch(2 * n, #[inline(always)] |buf| {
             let (w, vp) = buf.split_at_mut(n);
-            let xv = dot_dd(xs, vs);
+            // exactly zero for a tangent along x_s (d = 1, or both on a
+            // coordinate axis), where a residual would be magnified by x0 y0
+            let (_, xv) = perp_scaled(xs, vs, vp);
             let xxv = xx.value();
             for i in 0..n {
                 w[i] = s * (ys[i] - xs[i]) - hh * xs[i];
-                // from error-free minors: exactly zero for a tangent along
-                // x_s (d = 1, or both on a coordinate axis), where any
-                // residual would be magnified by x0 y0
-                vp[i] = perp_numerator(xs, vs, i) / xxv;
+                vp[i] /= xxv;
             }
             let radial = (dot2(xs, w) / xx.value()) * (xv.value() / (cx * cx));
             for i in 0..n {

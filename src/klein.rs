@@ -13,7 +13,7 @@ use crate::batch::{finite_scalar, map_rows, point_core, scalar_core, Data, Opera
 use crate::error::Result;
 use crate::numeric::{
     artanh_from_gap, diff_of_squares, dist_sq, distance_from_half_delta, dot2, dot_with_sum, gap,
-    geodesic_weights, sumsq, PerpDD,
+    geodesic_weights, perp_scaled, sumsq,
 };
 use crate::poincare::{self, gap_of, with_scratch};
 
@@ -170,24 +170,23 @@ fn tangent_to_poincare(c: &Curvature, k: &[f64], gk: f64, dk: &[f64], dp: &mut [
 
 /// The differential of Poincaré -> Klein (`k = 2p/(2 - g)`) at `p`:
 /// `dk = 2/(2 - g) (dp_perp + g/(2 - g) dp_par)`, with the part of `dp`
-/// perpendicular to `p` formed in double-double (the textbook
+/// perpendicular to `p` from [`perp_scaled`] (the textbook
 /// `2 dp/(2 - g) - 4 kappa (p.dp) p/(2 - g)^2` cancels by a factor 1/g for
 /// radial vectors near the sphere).
 #[inline(always)]
 fn tangent_to_klein(p: &[f64], gp: f64, dp: &[f64], dk: &mut [f64]) {
-    let n = p.len();
-    let perp = PerpDD::new(p, dp);
-    let pp = perp.pp.value();
+    let (pp, pq) = perp_scaled(p, dp, dk);
+    let pp = pp.value();
     let f = 2.0 / (2.0 - gp);
     if pp == 0.0 {
-        for i in 0..n {
-            dk[i] = f * dp[i];
+        for (o, &v) in dk.iter_mut().zip(dp) {
+            *o = f * v;
         }
         return;
     }
-    let par = perp.pq.value() / pp * (gp / (2.0 - gp));
-    for i in 0..n {
-        dk[i] = f * (perp.at(p[i], dp[i]) / pp + par * p[i]);
+    let par = pq.value() / pp * (gp / (2.0 - gp));
+    for (o, &pi) in dk.iter_mut().zip(p) {
+        *o = f * (*o / pp + par * pi);
     }
 }
 
@@ -287,14 +286,14 @@ pub fn log_map_g(c: &Curvature, x: &[f64], gx: f64, y: &[f64], gy: f64, out: &mu
         }
         // The Klein differential shrinks the radial part by g_p, so the part
         // of the log perpendicular to p must carry its own digits: it is
-        // f g_p s_perp / D (p has no perpendicular part), formed in
-        // double-double from p and the accurate difference s.
+        // f g_p s_perp / D (p has no perpendicular part), formed from p and
+        // the accurate difference s by `perp_scaled`.
         let radial = f * (gp * dot2(s, p) + k * ss * pp) / (den * pp);
         let g2 = 2.0 / (2.0 - gp);
         let shrink = gp / (2.0 - gp);
-        let perp = PerpDD::new(p, s);
+        perp_scaled(p, s, out);
         for i in 0..n {
-            let sp = perp.at(p[i], s[i]) / pp; // (s_perp)_i
+            let sp = out[i] / pp; // (s_perp)_i
             out[i] = g2 * (f * gp * sp / den + radial * shrink * p[i]);
         }
     })

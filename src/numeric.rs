@@ -303,46 +303,45 @@ pub fn wedge_dot(a: &[f64], b: &[f64], c: &[f64]) -> f64 {
     acc.value()
 }
 
-/// `(|p|^2 q - (p.q) p)_i = sum_j p_j (p_j q_i - p_i q_j)`, the part of `q`
-/// perpendicular to `p` times `|p|^2`, from 2x2 minors formed error-free:
-/// exactly zero when `q` is an exact multiple of `p` along a coordinate
-/// axis or in one dimension. O(d) per component.
+/// The part of `q` perpendicular to `p`, times `|p|^2`:
+/// `out_i = |p|^2 q_i - (p.q) p_i`. Formed with `|p|^2` and `p.q` in
+/// double-double, O(d), with absolute error ~1e-32 |p|^2 |q|. Where that
+/// part is below 1e-8 |p|^2 |q| (`q` nearly parallel to `p`, where callers
+/// may magnify a residual by up to x0 y0 on the hyperboloid) it is
+/// recomputed from 2x2 minors formed error-free, `sum_j p_j (p_j q_i -
+/// p_i q_j)`, O(d^2), which are exactly zero for an exact multiple of `p`
+/// in one dimension or along a coordinate axis. Returns `|p|^2` and `p.q`.
 #[inline(always)]
-pub fn perp_numerator(p: &[f64], q: &[f64], i: usize) -> f64 {
-    let mut acc = DD::default();
-    for j in 0..p.len() {
-        if j == i {
-            continue;
+pub fn perp_scaled(p: &[f64], q: &[f64], out: &mut [f64]) -> (DD, DD) {
+    let pp = sumsq_dd(p);
+    let pq = dot_dd(p, q);
+    let n = p.len();
+    if n == 1 {
+        out[0] = 0.0;
+        return (pp, pq);
+    }
+    for i in 0..n {
+        out[i] = pp.mul_f64(q[i]).sub(pq.mul_f64(p[i])).value();
+    }
+    let scale = pp.hi * pp.hi * sumsq(q);
+    if sumsq(out) > 1e-16 * scale {
+        return (pp, pq);
+    }
+    for i in 0..n {
+        let mut acc = DD::default();
+        for j in 0..n {
+            if j == i {
+                continue;
+            }
+            let (x, xe) = two_prod(p[j], q[i]);
+            let (y, ye) = two_prod(p[i], q[j]);
+            let m = DD::new(x, xe).sub(DD::new(y, ye)).value();
+            let (t, te) = two_prod(p[j], m);
+            acc = acc.add(DD::new(t, te));
         }
-        let (x, xe) = two_prod(p[j], q[i]);
-        let (y, ye) = two_prod(p[i], q[j]);
-        let m = DD::new(x, xe).sub(DD::new(y, ye)).value();
-        let (t, te) = two_prod(p[j], m);
-        acc = acc.add(DD::new(t, te));
+        out[i] = acc.value();
     }
-    acc.value()
-}
-
-/// The same quantity as [`perp_numerator`] in O(d) per component after an
-/// O(d) setup: `|p|^2 q_i - (p.q) p_i` with `|p|^2` and `p.q` in
-/// double-double. Its absolute error, ~1e-32 |p|^2 |q|, is harmless where
-/// the caller's magnification of a residual is bounded (the ball models:
-/// by 1/g <= 1e16); use the minors where it is not.
-pub struct PerpDD {
-    pub pp: DD,
-    pub pq: DD,
-}
-
-impl PerpDD {
-    #[inline(always)]
-    pub fn new(p: &[f64], q: &[f64]) -> PerpDD {
-        PerpDD { pp: sumsq_dd(p), pq: dot_dd(p, q) }
-    }
-    /// Component `i`, given `p_i` and `q_i`.
-    #[inline(always)]
-    pub fn at(&self, p_i: f64, q_i: f64) -> f64 {
-        self.pp.mul_f64(q_i).sub(self.pq.mul_f64(p_i)).value()
-    }
+    (pp, pq)
 }
 
 /// `artanh(t)` for `t = sqrt(kappa)|x|` given its gap `g = 1 - t^2`, without
