@@ -12,7 +12,8 @@ pub enum Tier {
     Avx512,
     /// AVX2 with FMA: 4 doubles per register.
     Avx2,
-    /// The x86-64 (SSE2) or other baseline.
+    /// The x86-64 (SSE2) or other baseline. On aarch64 this is NEON with
+    /// FMA (mandatory in ARMv8-A), so no runtime dispatch is needed there.
     Baseline,
 }
 
