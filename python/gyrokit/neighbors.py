@@ -19,6 +19,7 @@ from typing import Any, Optional, Tuple
 import numpy as np
 
 from . import _native
+from ._index import _count
 
 __all__ = ["distance_matrix", "condensed_distances", "knn", "radius_neighbors"]
 
@@ -65,7 +66,7 @@ def knn(
     tile per thread. Candidates are ranked by ``h``, which is monotone in the
     distance, so no transcendental is evaluated per pair.
     """
-    return _native.knn(x, k, y, model, curvature)
+    return _native.knn(x, _count("k", k), y, model, curvature)
 
 
 def radius_neighbors(

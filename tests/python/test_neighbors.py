@@ -500,6 +500,11 @@ def test_knn_k_out_of_range():
         gk.knn(x[:1], 1)  # a single point has no other candidate
     with pytest.raises(ValueError):
         gk.knn(x, 1, y[:0])
+    # common practice (NumPy/SciPy): a count must be an integer, not a bool or float
+    for k in (True, np.bool_(True), 2.0, "3"):
+        with pytest.raises(TypeError, match="k must be an integer"):
+            gk.knn(x, k)
+    assert gk.knn(x, np.int32(2))[0].shape == (8, 2)
 
 
 # --------------------------------------------------------- radius neighbours
