@@ -155,41 +155,6 @@ fn to_poincare(k: &[f64], gk: f64, p: &mut [f64]) -> f64 {
     2.0 * a / (1.0 + a)
 }
 
-/// The differential of Klein -> Poincaré at `k`:
-/// `dp = dk/(1 + a) + kappa (k.dk) k / (a (1 + a)^2)`. Along `k` the two
-/// terms add (the radial coefficient is `1/(a (1 + a))`), so nothing cancels;
-/// `k.dk` is compensated because it is divided by the small `a`.
-#[inline(always)]
-fn tangent_to_poincare(c: &Curvature, k: &[f64], gk: f64, dk: &[f64], dp: &mut [f64]) {
-    let a = gk.sqrt();
-    let f = c.kappa * dot2(k, dk) / (a * (1.0 + a) * (1.0 + a));
-    for i in 0..k.len() {
-        dp[i] = dk[i] / (1.0 + a) + f * k[i];
-    }
-}
-
-/// The differential of Poincaré -> Klein (`k = 2p/(2 - g)`) at `p`:
-/// `dk = 2/(2 - g) (dp_perp + g/(2 - g) dp_par)`, with the part of `dp`
-/// perpendicular to `p` from [`perp_scaled`] (the textbook
-/// `2 dp/(2 - g) - 4 kappa (p.dp) p/(2 - g)^2` cancels by a factor 1/g for
-/// radial vectors near the sphere).
-#[inline(always)]
-fn tangent_to_klein(p: &[f64], gp: f64, dp: &[f64], dk: &mut [f64]) {
-    let (pp, pq) = perp_scaled(p, dp, dk);
-    let pp = pp.value();
-    let f = 2.0 / (2.0 - gp);
-    if pp == 0.0 {
-        for (o, &v) in dk.iter_mut().zip(dp) {
-            *o = f * v;
-        }
-        return;
-    }
-    let par = pq.value() / pp * (gp / (2.0 - gp));
-    for (o, &pi) in dk.iter_mut().zip(p) {
-        *o = f * (*o / pp + par * pi);
-    }
-}
-
 /// `p_x - p_y` for the Poincaré images of two Klein points, from the inputs:
 /// `((x - y)(1 + a_y) + y kappa (|x|^2 - |y|^2)/(a_x + a_y)) / ((1 + a_x)(1 + a_y))`
 /// (the difference of the two rounded images loses digits for close pairs).
@@ -299,38 +264,93 @@ pub fn log_map_g(c: &Curvature, x: &[f64], gx: f64, y: &[f64], gy: f64, out: &mu
     })
 }
 
-/// Parallel transport from `x` to `y`, computed in the Poincaré ball (where
-/// it is the conformal-factor ratio times a gyration, a rotation that mixes
-/// no scales): the tangent goes over with the exact differential, the pair's
-/// difference is formed from the Klein inputs, and the result comes back
-/// with its part perpendicular to `y` formed in double-double. (The Einstein
-/// form `J_y gyr[y, ⊖x] J_x^{-1} v` divides by `sqrt(g_x)` and multiplies
-/// back, losing up to 6e-9 at `1 - |x|/R = 1e-15`.)
+/// Parallel transport from `x` to `y`. Through the hyperboloid
+/// (`x_H = (R, x)/sqrt(g_x)`, where transport is `V + <Y,V>/(R^2 - <X,Y>) (X + Y)`)
+/// it has the closed form `P v = s (v + lambda (x - y))`, `s = sqrt(g_y/g_x)`,
+/// `lambda = kappa ((x.v) mu - (x - y).v / E)` with
+/// `E = sqrt(g_x g_y) + 1 - kappa x.y` and `mu = (sqrt g_x + sqrt g_y)/(sqrt(g_x) E)`.
+/// Summed as it stands, the part of `P v` along the radius cancels by up to
+/// `1/g` near the sphere, so one of two exact rearrangements is used, each
+/// from parts formed by `perp_scaled` (every factor a sum of non-negative
+/// terms):
+///
+/// * split at `x`, `v = alpha x + v_perp`:
+///   `P v = s (alpha y + v_perp + (alpha mu + kappa (y - x).v_perp / E)(x - y))`;
+///   its radial part `alpha (y + mu (x - y))` cancels by `|y| / (s |x|)`;
+/// * split at `y`: the part across `y` is that of the split at `x`,
+///   `s (v_perp(x)_perp(y) + (alpha mu + kappa (y - x).v_perp(x) / E) x_perp(y))`,
+///   the part along it the time component of the hyperboloid transport,
+///   `(P v).y = s^3 (x.v) - sqrt(g_x) g_y (sqrt g_x + sqrt g_y) G_x(x - y, v) / E`
+///   (Klein metric `G_x(a, b) = a.b/g_x + kappa (x.a)(x.b)/g_x^2`), which
+///   cancels by `s |x| / |y|`.
+///
+/// The split with the factor <= 1 is taken. (Through the Poincaré ball, as a
+/// gyration, the small angle between the transported radial direction and
+/// the radial direction at `y` keeps only ~eps/sqrt(g) of its digits: 1.4e-9
+/// at `1 - |x|/R = 1e-15` for tangents dominated by their radial part.)
 #[inline(always)]
 pub fn transport_g(c: &Curvature, x: &[f64], gx: f64, y: &[f64], gy: f64, v: &[f64], out: &mut [f64]) {
-    let n = x.len();
     if x == y {
-        // Exactly the identity. (The round trip through the Poincaré ball
-        // holds the part of v across the radius only to ~eps of the whole
-        // of v at Poincaré scale: visible when a long radial part dominates
-        // v near the sphere.)
-        out.copy_from_slice(v);
+        out.copy_from_slice(v); // exactly the identity
         return;
     }
-    with_scratch(5 * n, #[inline(always)] |buf| {
-        let (np, rest) = buf.split_at_mut(n);
-        let (q, rest) = rest.split_at_mut(n);
-        let (s, rest) = rest.split_at_mut(n);
-        let (dp, w) = rest.split_at_mut(n);
-        let gp = to_poincare(x, gx, np);
-        np.iter_mut().for_each(|o| *o = -*o);
-        let gq = to_poincare(y, gy, q);
-        tangent_to_poincare(c, x, gx, v, dp);
-        poincare_difference(c, y, gy, x, gx, s); // q - p
-        poincare::gyration_s(c, q, gq, np, gp, s, dp, w);
-        let r = gq / gp;
-        w.iter_mut().for_each(|o| *o *= r);
-        tangent_to_klein(q, gq, w, out);
+    let n = x.len();
+    let k = c.kappa;
+    let (ax, ay) = (gx.sqrt(), gy.sqrt());
+    // 1 - kappa x.y = (g_x + g_y)/2 + kappa |x - y|^2/2
+    let e = ax * ay + 0.5 * (gx + gy) + 0.5 * k * dist_sq(x, y);
+    let mu = (ax + ay) / (ax * e);
+    let s = ay / ax;
+    if gy * sumsq(x) >= gx * sumsq(y) {
+        // split at x (|x| > 0 here: x = 0 would need y = 0 = x)
+        let (xx, xv) = perp_scaled(x, v, out); // |x|^2 v_perp
+        let xx = xx.value();
+        out.iter_mut().for_each(|o| *o /= xx);
+        let alpha = xv.value() / xx;
+        // (y - x).v_perp from the difference (x.v_perp is 0 only exactly)
+        let mut dv = 0.0;
+        for i in 0..n {
+            dv += (y[i] - x[i]) * out[i];
+        }
+        let lam = alpha * mu + k * dv / e;
+        for i in 0..n {
+            out[i] = s * (alpha * y[i] + out[i] + lam * (x[i] - y[i]));
+        }
+        return;
+    }
+    // split at y (|y| > 0 here): the part along y from the hyperboloid, the
+    // part across y from the split at x (whose along-y part would cancel)
+    with_scratch(3 * n, #[inline(always)] |buf| {
+        let (dl, rest) = buf.split_at_mut(n);
+        let (xp, vx) = rest.split_at_mut(n);
+        for i in 0..n {
+            dl[i] = x[i] - y[i];
+        }
+        let (xx, xv) = perp_scaled(x, v, vx); // |x|^2 v_perp(x)
+        let (xx, xv) = (xx.value(), xv.value());
+        let alpha = if xx > 0.0 {
+            vx.iter_mut().for_each(|o| *o /= xx);
+            xv / xx
+        } else {
+            vx.copy_from_slice(v);
+            0.0
+        };
+        let mut dvx = 0.0; // (y - x).v_perp(x)
+        for i in 0..n {
+            dvx -= dl[i] * vx[i];
+        }
+        let lam = alpha * mu + k * dvx / e;
+        let dv = dot2(dl, v);
+        let xd = dot2(x, dl);
+        let gxdv = dv / gx + k * xd * xv / (gx * gx); // G_x(x - y, v)
+        let along = s * s * s * xv - ax * gy * (ax + ay) * gxdv / e; // (P v).y
+        let (yy, _) = perp_scaled(y, vx, out); // |y|^2 (v_perp(x))_perp(y)
+        let yy = yy.value();
+        perp_scaled(y, x, xp); // |y|^2 x_perp(y)
+        let (fy, fp) = (along / yy, s / yy);
+        for i in 0..n {
+            out[i] = fy * y[i] + fp * (out[i] + lam * xp[i]);
+        }
     })
 }
 
@@ -363,6 +383,19 @@ pub fn project_arrays<'a>(c: Curvature, x: Data<'a>, margin: f64) -> Result<Outp
 #[cfg(test)]
 mod tests {
     use super::*;
+
+/// The differential of Klein -> Poincaré at `k`:
+/// `dp = dk/(1 + a) + kappa (k.dk) k / (a (1 + a)^2)`. Along `k` the two
+/// terms add (the radial coefficient is `1/(a (1 + a))`), so nothing cancels;
+/// `k.dk` is compensated because it is divided by the small `a`.
+fn tangent_to_poincare(c: &Curvature, k: &[f64], gk: f64, dk: &[f64], dp: &mut [f64]) {
+    let a = gk.sqrt();
+    let f = c.kappa * dot2(k, dk) / (a * (1.0 + a) * (1.0 + a));
+    for i in 0..k.len() {
+        dp[i] = dk[i] / (1.0 + a) + f * k[i];
+    }
+}
+
 
     fn rel(got: &[f64], want: &[f64]) -> f64 {
         let num: f64 = got.iter().zip(want).map(|(a, b)| (a - b) * (a - b)).sum::<f64>().sqrt();

@@ -111,12 +111,15 @@ def log_map(y: Any, base: Any = None, *, curvature: float = -1.0) -> Any:
 def transport(v: Any, start: Any, end: Any, *, curvature: float = -1.0) -> Any:
     """Parallel transport of tangent ``v`` from ``start`` to ``end`` (Klein ball).
 
-    Computed in the Poincaré ball, where it is the conformal-factor ratio
-    times the gyration ``gyr[end, ⊖start]``: the tangent goes over with the
-    exact differential and comes back with its part perpendicular to ``end``
-    formed in double-double. Accuracy: <= 5e-15 relative (measured against
-    50-digit mpmath) down to 1e-15 R from the sphere, for pairs 1e-12 apart
-    and 30 R apart; ``start == end`` returns ``v`` exactly.
+    A closed form through the hyperboloid, ``s (v + lambda (start - end))``
+    with ``s = sqrt(g_end/g_start)``, assembled from its parts along and
+    across the radius, each from a cancellation-free expression (see the
+    Rust source for the derivation). Accuracy: <= 7e-16 relative (measured
+    against 50-digit mpmath) down to 1e-15 R from the sphere, for pairs
+    1e-12 apart and 30 R apart; <= 1.2e-14 over 2500 random mixes of points
+    near the centre and near the sphere with tangents of any direction
+    (including ones dominated by their radial part); ``start == end``
+    returns ``v`` exactly.
     """
     return _native.klein_transport(v, start, end, curvature)
 
