@@ -14,8 +14,8 @@ use crate::batch::{finite_scalar, map_rows, point_core, scalar_core, Data, Opera
 use crate::error::{Fault, Result, RowFault};
 use crate::klein::chord_ends;
 use crate::numeric::{
-    diff_of_squares, distance_from_half_delta, dot2, dot_dd, geodesic_weights, perp_scaled, sumsq, sumsq_dd,
-    two_prod, wedge_sq, DD,
+    diff_of_squares, distance_from_half_delta, dot2, dot_dd, geodesic_weights, perp_scaled, sumsq,
+    two_prod, wedge_dot, wedge_sq, DD,
 };
 use crate::poincare::with_scratch;
 
@@ -161,52 +161,52 @@ fn log_full(k: &Curvature, xs: &[f64], cx: f64, ys: &[f64], cy: f64, out: &mut [
     out[0] = dot2(xs, &out[1..]) / (k.radius * cx);
 }
 
-/// Parallel transport `v + <y, v>_L / (R^2 (2 + delta)) (x + y)`.
-/// `<y, v>_L` is the tangent inner product at `x` of `v` and
-/// `w = y - cosh(D) x` (the unnormalised log), split into the parts
-/// perpendicular to and along `x_s`:
-/// `<w, v>_x = w_perp . v_perp + (x.w)(x.v)/(|x_s|^2 c_x^2)`,
-/// with `v_perp` from `perp_scaled` and `w_perp . v_perp` taken as
-/// `(y_s - x_s) . v_perp` (equal, since `v_perp` is perpendicular to `x_s`),
-/// so that the large radial parts of far vectors never leak into it. (The
-/// direct `<y - x, v>_L` cancels by `c_x c_y`: 4e-10 at radius 10.) Writes
-/// the full (d + 1)-vector.
+/// Parallel transport `v + <y, v>_L / (R^2 (2 + delta)) (x + y)`, with
+/// `v` split into its parts along and across `x_s`, `v_s = alpha x_s + v_perp`
+/// (`v_perp` from `perp_scaled`; spatial parts throughout, the time
+/// component follows from tangency at `y`):
+/// `P v = v_perp + kappa ((y_s - x_s).v_perp)/(2 + delta) (x_s + y_s)
+///        + alpha (nu x_s + kappa (x_s.w')/c_x^2 y_s)`,
+/// where `nu = (c_x + c_y)/(c_x (2 + delta))` and
+/// `w' = (y - cosh(D) x)/(2 + delta) = (y_s - x_s)/(2 + delta) - delta/(2 + delta) x_s`.
+/// The radial part is the transported radial direction, whose coefficient
+/// on `x_s`, `1 + <y, x_r>_L/(R^2 (2 + delta))`, is written as the sum
+/// `nu`: formed as a difference it cancels by `c_x/c_y` (1e-8 for a tangent
+/// carried from 19 R out to the centre). The part across takes
+/// `y_s.v_perp = (x_s ∧ y_s).(x_s ∧ v_s)/|x_s|^2` from the inputs, so that
+/// no rounding of the large coordinates of far points leaks into it. Every coefficient stays bounded where
+/// `x0 y0` does not fit in float64. Writes the full (d + 1)-vector.
 #[inline(always)]
 fn transport_full(k: &Curvature, xs: &[f64], cx: f64, ys: &[f64], cy: f64, vs: &[f64], out: &mut [f64]) {
-    let r = k.radius;
+    let kk = k.kappa;
     let n = xs.len();
     let h = half_delta(k, xs, cx, ys, cy);
-    let xx = sumsq_dd(xs);
-    let yv = if xx.hi == 0.0 {
-        dot2(ys, vs) / (2.0 + 2.0 * h) // x at the origin: v0 = 0
-    } else {
-        // w/(2 + 2h) = (y - x)/(2 + 2h) - h/(1 + h) x: bounded, where w
-        // itself grows like x0 y0 x.
-        let (s, hh) = (1.0 / (2.0 + 2.0 * h), h / (1.0 + h));
-        with_scratch(2 * n, #[inline(always)] |buf| {
-            let (w, vp) = buf.split_at_mut(n);
-            // exactly zero for a tangent along x_s (d = 1, or both on a
-            // coordinate axis), where a residual would be magnified by x0 y0
-            let (_, xv) = perp_scaled(xs, vs, vp);
-            let xxv = xx.value();
-            for i in 0..n {
-                w[i] = s * (ys[i] - xs[i]) - hh * xs[i];
-                vp[i] /= xxv;
-            }
-            let radial = (dot2(xs, w) / xx.value()) * (xv.value() / (cx * cx));
-            for i in 0..n {
-                w[i] = ys[i] - xs[i];
-            }
-            s * dot2(w, vp) + radial
-        })
-    };
-    // <y, v>_L / (R^2 (2 + delta))
-    let coef = k.kappa * yv;
+    let s = 1.0 / (2.0 + 2.0 * h); // 1/(2 + delta)
+    let hh = h / (1.0 + h); // delta/(2 + delta)
     let ps = &mut out[1..];
+    let (xx, xv) = perp_scaled(xs, vs, ps); // |x_s|^2 v_perp
+    let xx = xx.value();
+    let (alpha, cxx, cxy) = if xx > 0.0 {
+        ps.iter_mut().for_each(|o| *o /= xx);
+        // x_s.w' = x_s.(y_s - x_s)/(2 + delta) - delta/(2 + delta) |x_s|^2
+        let mut xw = 0.0;
+        for i in 0..n {
+            xw += xs[i] * (s * (ys[i] - xs[i]) - hh * xs[i]);
+        }
+        let nu = (cx + cy) / cx * s;
+        (xv.value() / xx, nu, kk * xw / (cx * cx))
+    } else {
+        ps.copy_from_slice(vs); // x at the origin: all of v is across
+        (0.0, 0.0, 0.0)
+    };
+    // y_s.v_perp = (x ∧ y).(x ∧ v)/|x_s|^2, from the inputs (a rounded v_perp
+    // or y_s - x_s would leak eps times the far coordinates into it)
+    let dv = if xx > 0.0 { wedge_dot(xs, ys, vs) / xx } else { dot2(ys, vs) };
+    let cp = kk * dv * s;
     for i in 0..n {
-        ps[i] = vs[i] + coef * (xs[i] + ys[i]);
+        ps[i] += cp * (xs[i] + ys[i]) + alpha * (cxx * xs[i] + cxy * ys[i]);
     }
-    out[0] = dot2(ys, &out[1..]) / (r * cy);
+    out[0] = dot2(ys, &out[1..]) / (k.radius * cy);
 }
 
 /// Geodesic point `(sinh((1 - t) D) x + sinh(t D) y)/sinh(D)`, spatial

@@ -281,11 +281,16 @@ pub fn wedge_sq(x: &[f64], y: &[f64]) -> f64 {
     acc
 }
 
-/// `(a ∧ b) . (a ∧ c) = |a|^2 (b.c) - (a.b)(a.c)`, from 2x2 minors formed
-/// error-free, so it keeps its digits when `b` or `c` is nearly parallel to
-/// `a` (where the right-hand side cancels).
+/// `(a ∧ b) . (a ∧ c) = |a|^2 (b.c) - (a.b)(a.c)`: in double-double when
+/// that keeps the digits, else (`b` or `c` nearly parallel to `a`, where the
+/// right-hand side cancels) from 2x2 minors formed error-free.
 #[inline(always)]
 pub fn wedge_dot(a: &[f64], b: &[f64], c: &[f64]) -> f64 {
+    let aa = sumsq_dd(a);
+    let w = aa.mul(dot_dd(b, c)).sub(dot_dd(a, b).mul(dot_dd(a, c)));
+    if w.hi.abs() > 1e-8 * aa.hi * (sumsq(b) * sumsq(c)).sqrt() {
+        return w.value();
+    }
     let n = a.len();
     let mut acc = DD::default();
     for i in 0..n {

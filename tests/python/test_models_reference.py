@@ -1164,6 +1164,27 @@ def test_klein_transport_any_direction_and_radius(seed):
     assert worst > 0.0  # the comparison ran on inexact results
 
 
+@pytest.mark.parametrize("seed", range(4))
+def test_hyperboloid_transport_mixed_radii(seed):
+    # mpmath 50-digit reference (mp_models.hyperboloid_transport, the textbook
+    # v + <y,v>_L/(R^2 - <x,y>_L)(x + y) evaluated exactly) between points
+    # anywhere from the centre to 20 R out: carrying a tangent from far out to
+    # the centre shrinks its coordinates by x0/y0, the case the hard-case
+    # pairs above (both points alike) do not reach.
+    rng = np.random.default_rng(2000 + seed)
+    for trial in range(60):
+        K = KS[trial % 3]
+        d = DS[trial % 4]
+        x = hyperboloid_point(rng, d, K, rho=10.0 ** rng.uniform(-12, 1.3))
+        y = hyperboloid_point(rng, d, K, rho=10.0 ** rng.uniform(-12, 1.3))
+        vs = rng.standard_normal(d) * 10.0 ** rng.uniform(-6, 1)
+        v = np.concatenate([[x[1:] @ vs / x[0]], vs])
+        got = gk.hyperboloid.transport(v, x, y, curvature=K)
+        ref = M.converged(M.hyperboloid_transport, v, x, y, curvature=K)
+        err = _row_error(got, ref, K)
+        assert err <= TOL, (K, d, x.tolist(), y.tolist(), vs.tolist(), err)
+
+
 def test_zz_accuracy_table():
     table = accuracy_table()
     with open(TABLE_PATH, "w") as fh:
