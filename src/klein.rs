@@ -251,15 +251,20 @@ pub fn log_map_g(c: &Curvature, x: &[f64], gx: f64, y: &[f64], gy: f64, out: &mu
         }
         // The Klein differential shrinks the radial part by g_p, so the part
         // of the log perpendicular to p must carry its own digits: it is
-        // f g_p s_perp / D (p has no perpendicular part), formed from p and
-        // the accurate difference s by `perp_scaled`.
+        // f g_p s_perp / D (p has no perpendicular part). s itself is
+        // dominated by its radial part (the Klein -> Poincaré map stretches
+        // it by 1/sqrt(g_x)), so s_perp is taken from the input difference:
+        // s_perp = (x - y)_perp / (1 + sqrt(g_y)), p and x being parallel.
         let radial = f * (gp * dot2(s, p) + k * ss * pp) / (den * pp);
         let g2 = 2.0 / (2.0 - gp);
         let shrink = gp / (2.0 - gp);
-        perp_scaled(p, s, out);
         for i in 0..n {
-            let sp = out[i] / pp; // (s_perp)_i
-            out[i] = g2 * (f * gp * sp / den + radial * shrink * p[i]);
+            w[i] = x[i] - y[i];
+        }
+        let (xx, _) = perp_scaled(x, w, out); // |x|^2 (x - y)_perp
+        let cp = f * gp / (den * xx.value() * (1.0 + a));
+        for i in 0..n {
+            out[i] = g2 * (cp * out[i] + radial * shrink * p[i]);
         }
     })
 }

@@ -1164,6 +1164,23 @@ def test_klein_transport_any_direction_and_radius(seed):
     assert worst > 0.0  # the comparison ran on inexact results
 
 
+@pytest.mark.parametrize("seed", range(3))
+def test_klein_log_close_pairs_many_rows(seed):
+    # mpmath 50-digit reference on 120 more close pairs (the close1e-12 kind
+    # above): near the sphere the Poincaré difference of a close pair is
+    # dominated by its radial part, and the part across the radius must come
+    # from the inputs (it was 1.1e-12 off in 1 row of 400 when taken from it)
+    rng = np.random.default_rng(3000 + seed)
+    for trial in range(120):
+        K = KS[trial % 3]
+        d = DS[trial % 4]
+        x, y = point_pair("klein", "close1e-12", rng, d, K)
+        got = gk.klein.log_map(y, x, curvature=K)
+        ref = M.converged(M.klein_log_map, y, x, curvature=K)
+        err = _row_error(got, ref, K)
+        assert err <= TOL, (K, d, x.tolist(), y.tolist(), err)
+
+
 @pytest.mark.parametrize("seed", range(4))
 def test_hyperboloid_transport_mixed_radii(seed):
     # mpmath 50-digit reference (mp_models.hyperboloid_transport, the textbook
