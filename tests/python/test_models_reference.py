@@ -1139,6 +1139,29 @@ def _mixed_ball_point(rng, d, K):
     return ball_point(rng, d, K, gap=1.0 - r, u=u)
 
 
+def _rows_within_contract(seed, n, make, lib, ref):
+    """``n`` rows ``args = make(rng, K, d)`` (K and d cycling over KS and DS);
+    each ``lib(*args, curvature=K)`` must be within TOL of the mpmath
+    reference ``ref(*args)``. Returns the worst error."""
+    rng = np.random.default_rng(seed)
+    worst = 0.0
+    for trial in range(n):
+        K, d = KS[trial % 3], DS[trial % 4]
+        args = make(rng, K, d)
+        err = _row_error(lib(*args, curvature=K), M.converged(ref, *args, curvature=K), K)
+        worst = max(worst, err)
+        assert err <= TOL, (K, d, [np.asarray(a).tolist() for a in args], err)
+    return worst
+
+
+def _klein_any_direction(rng, K, d):
+    x = _mixed_ball_point(rng, d, K)
+    y = _mixed_ball_point(rng, d, K)
+    if rng.random() < 0.2:
+        y = perturbed("klein", x, rng, K, eps=10.0 ** rng.uniform(-12, -6))
+    return rng.standard_normal(d) * 10.0 ** rng.uniform(-8, 2), x, y
+
+
 @pytest.mark.parametrize("seed", range(4))
 def test_klein_transport_any_direction_and_radius(seed):
     # mpmath 50-digit reference (mp_models.klein_transport, the Poincaré-ball
@@ -1146,21 +1169,8 @@ def test_klein_transport_any_direction_and_radius(seed):
     # the sphere a random Klein vector is dominated by its radial part in the
     # Riemannian sense, the case the hard-case tangents above do not reach.
     # Pairs mix the centre, the bulk and the sphere; 1/5 are nearly equal.
-    rng = np.random.default_rng(1000 + seed)
-    worst = 0.0
-    for trial in range(60):
-        K = KS[trial % 3]
-        d = DS[trial % 4]
-        x = _mixed_ball_point(rng, d, K)
-        y = _mixed_ball_point(rng, d, K)
-        if rng.random() < 0.2:
-            y = perturbed("klein", x, rng, K, eps=10.0 ** rng.uniform(-12, -6))
-        v = rng.standard_normal(d) * 10.0 ** rng.uniform(-8, 2)
-        got = gk.klein.transport(v, x, y, curvature=K)
-        ref = M.converged(M.klein_transport, v, x, y, curvature=K)
-        err = _row_error(got, ref, K)
-        worst = max(worst, err)
-        assert err <= TOL, (K, d, x.tolist(), y.tolist(), v.tolist(), err)
+    worst = _rows_within_contract(1000 + seed, 60, _klein_any_direction,
+                                  gk.klein.transport, M.klein_transport)
     assert worst > 0.0  # the comparison ran on inexact results
 
 
@@ -1170,15 +1180,17 @@ def test_klein_log_close_pairs_many_rows(seed):
     # above): near the sphere the Poincaré difference of a close pair is
     # dominated by its radial part, and the part across the radius must come
     # from the inputs (it was 1.1e-12 off in 1 row of 400 when taken from it)
-    rng = np.random.default_rng(3000 + seed)
-    for trial in range(120):
-        K = KS[trial % 3]
-        d = DS[trial % 4]
+    def make(rng, K, d):
         x, y = point_pair("klein", "close1e-12", rng, d, K)
-        got = gk.klein.log_map(y, x, curvature=K)
-        ref = M.converged(M.klein_log_map, y, x, curvature=K)
-        err = _row_error(got, ref, K)
-        assert err <= TOL, (K, d, x.tolist(), y.tolist(), err)
+        return y, x
+    _rows_within_contract(3000 + seed, 120, make, gk.klein.log_map, M.klein_log_map)
+
+
+def _hyperboloid_mixed_radii(rng, K, d):
+    x = hyperboloid_point(rng, d, K, rho=10.0 ** rng.uniform(-12, 1.3))
+    y = hyperboloid_point(rng, d, K, rho=10.0 ** rng.uniform(-12, 1.3))
+    vs = rng.standard_normal(d) * 10.0 ** rng.uniform(-6, 1)
+    return np.concatenate([[x[1:] @ vs / x[0]], vs]), x, y
 
 
 @pytest.mark.parametrize("seed", range(4))
@@ -1188,18 +1200,8 @@ def test_hyperboloid_transport_mixed_radii(seed):
     # anywhere from the centre to 20 R out: carrying a tangent from far out to
     # the centre shrinks its coordinates by x0/y0, the case the hard-case
     # pairs above (both points alike) do not reach.
-    rng = np.random.default_rng(2000 + seed)
-    for trial in range(60):
-        K = KS[trial % 3]
-        d = DS[trial % 4]
-        x = hyperboloid_point(rng, d, K, rho=10.0 ** rng.uniform(-12, 1.3))
-        y = hyperboloid_point(rng, d, K, rho=10.0 ** rng.uniform(-12, 1.3))
-        vs = rng.standard_normal(d) * 10.0 ** rng.uniform(-6, 1)
-        v = np.concatenate([[x[1:] @ vs / x[0]], vs])
-        got = gk.hyperboloid.transport(v, x, y, curvature=K)
-        ref = M.converged(M.hyperboloid_transport, v, x, y, curvature=K)
-        err = _row_error(got, ref, K)
-        assert err <= TOL, (K, d, x.tolist(), y.tolist(), vs.tolist(), err)
+    _rows_within_contract(2000 + seed, 60, _hyperboloid_mixed_radii,
+                          gk.hyperboloid.transport, M.hyperboloid_transport)
 
 
 def test_zz_accuracy_table():
