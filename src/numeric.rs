@@ -65,13 +65,6 @@ impl DD {
         let (p, e) = two_prod(self.hi, o.hi);
         DD::new(p, e + (self.hi * o.lo + self.lo * o.hi))
     }
-    /// `self / o` (one correction step on the float quotient).
-    #[inline(always)]
-    pub fn div(self, o: DD) -> DD {
-        let q = self.hi / o.hi;
-        let r = self.sub(o.mul_f64(q));
-        DD::new(q, r.hi / o.hi)
-    }
 }
 
 /// Four independent double-double accumulators, so that the error-free
@@ -254,6 +247,16 @@ pub fn dot_with_sum(x: &[f64], y: &[f64], sy: f64) -> f64 {
     acc.value()
 }
 
+/// The 2x2 minor `a b - c d` with both products formed error-free, so that
+/// the difference of nearly equal products (nearly parallel vectors) keeps
+/// its digits; rounded once.
+#[inline(always)]
+pub fn minor(a: f64, b: f64, c: f64, d: f64) -> f64 {
+    let (p, pe) = two_prod(a, b);
+    let (q, qe) = two_prod(c, d);
+    DD::new(p, pe).sub(DD::new(q, qe)).value()
+}
+
 /// `|x ∧ y|^2 = |x|^2 |y|^2 - (x.y)^2`, the squared area spanned by `x` and
 /// `y`, accurate to a few ulps even for nearly parallel vectors: in
 /// double-double when the vectors are far from parallel, else as the sum of
@@ -272,9 +275,7 @@ pub fn wedge_sq(x: &[f64], y: &[f64]) -> f64 {
     let mut acc = 0.0;
     for i in 0..n {
         for j in (i + 1)..n {
-            let (p, pe) = two_prod(x[i], y[j]);
-            let (q, qe) = two_prod(x[j], y[i]);
-            let m = DD::new(p, pe).sub(DD::new(q, qe)).value();
+            let m = minor(x[i], y[j], x[j], y[i]);
             acc += m * m;
         }
     }
@@ -295,12 +296,8 @@ pub fn wedge_dot(a: &[f64], b: &[f64], c: &[f64]) -> f64 {
     let mut acc = DD::default();
     for i in 0..n {
         for j in (i + 1)..n {
-            let (p, pe) = two_prod(a[i], b[j]);
-            let (q, qe) = two_prod(a[j], b[i]);
-            let m1 = DD::new(p, pe).sub(DD::new(q, qe)).value();
-            let (p, pe) = two_prod(a[i], c[j]);
-            let (q, qe) = two_prod(a[j], c[i]);
-            let m2 = DD::new(p, pe).sub(DD::new(q, qe)).value();
+            let m1 = minor(a[i], b[j], a[j], b[i]);
+            let m2 = minor(a[i], c[j], a[j], c[i]);
             let (t, te) = two_prod(m1, m2);
             acc = acc.add(DD::new(t, te));
         }
@@ -338,9 +335,7 @@ pub fn perp_scaled(p: &[f64], q: &[f64], out: &mut [f64]) -> (DD, DD) {
             if j == i {
                 continue;
             }
-            let (x, xe) = two_prod(p[j], q[i]);
-            let (y, ye) = two_prod(p[i], q[j]);
-            let m = DD::new(x, xe).sub(DD::new(y, ye)).value();
+            let m = minor(p[j], q[i], p[i], q[j]);
             let (t, te) = two_prod(p[j], m);
             acc = acc.add(DD::new(t, te));
         }

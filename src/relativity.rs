@@ -26,7 +26,7 @@ use crate::ball::{checked_gap, keep_inside, Curvature};
 use crate::batch::{map_rows, scalar_core, Core, Data, Operand, Output};
 use crate::error::{Error, Fault, Result, RowFault};
 use crate::klein;
-use crate::numeric::{artanh_from_gap, sumsq, sumsq_dd, two_prod, DD};
+use crate::numeric::{artanh_from_gap, minor, sumsq, sumsq_dd, two_prod, DD};
 use crate::poincare::{pow2, scale_exponent};
 
 /// The speed of light in SI units (m/s), the default `c`.
@@ -132,15 +132,6 @@ impl Light {
             guard += 1;
         }
     }
-}
-
-/// `a b - c d` with both products formed error-free, so that the difference
-/// of nearly equal products (nearly parallel vectors) keeps its digits.
-#[inline(always)]
-fn minor(a: f64, b: f64, c: f64, d: f64) -> f64 {
-    let (p, pe) = two_prod(a, b);
-    let (q, qe) = two_prod(c, d);
-    DD::new(p, pe).sub(DD::new(q, qe)).value()
 }
 
 /// The cross product `a x b` from error-free 2x2 minors. The inputs are first
