@@ -292,6 +292,14 @@ def random_points(rng, model, n, d, K, rho_max=RHO_MAX):
     return model_points(model, sample_rho(rng, n, rho_max), directions(rng, n, d), K)
 
 
+def _pair(case, model, n=N):
+    """The hypothesis case unpacked: (K, d, rng, x, y) with n random points
+    each for x and y, drawn in that order from the case's seed."""
+    K, d, seed = case
+    rng = np.random.default_rng(seed)
+    return K, d, rng, random_points(rng, model, n, d, K), random_points(rng, model, n, d, K)
+
+
 def origin(model, d, K):
     R = radius(K)
     if model == "hyperboloid":
@@ -553,11 +561,8 @@ def test_distance_from_origin_handbook(model, case):
 @given(case=CASES)
 def test_distance_matches_handbook_formula(model, case):
     """General pairs, including pairs 1e-12 R .. 1e-3 R apart, against mpmath."""
-    K, d, seed = case
-    rng = np.random.default_rng(seed)
+    K, d, rng, x, y = _pair(case, model)
     R = radius(K)
-    x = random_points(rng, model, N, d, K)
-    y = random_points(rng, model, N, d, K)
     half = N // 2
     # close pairs: nudge the spatial part / the coordinates of x
     nudge = directions(rng, half, d) * (R * 10.0 ** rng.uniform(-12, -3, half))[:, None]
@@ -810,12 +815,9 @@ def test_exp_map_matches_mpmath(model, case):
     """Forward accuracy on exact float64 inputs (SPEC: the reference is the
     formula evaluated in mpmath on the same inputs), far points included:
     v = log_x(y) is up to ~20 R long."""
-    K, d, seed = case
-    rng = np.random.default_rng(seed)
+    K, d, rng, x, y = _pair(case, model, n=N_MP)
     R = radius(K)
     f = MOD[model]
-    x = random_points(rng, model, N_MP, d, K)
-    y = random_points(rng, model, N_MP, d, K)
     v = f.log_map(y, x, curvature=K)
     z = f.exp_map(v, x, curvature=K)
     err = mp_exp_errors(model, x, v, z, K)
@@ -828,12 +830,9 @@ def test_exp_map_matches_mpmath(model, case):
 @SETTINGS
 @given(case=CASES)
 def test_log_map_matches_mpmath(model, case):
-    K, d, seed = case
-    rng = np.random.default_rng(seed)
+    K, d, rng, x, y = _pair(case, model, n=N_MP)
     R = radius(K)
     f = MOD[model]
-    x = random_points(rng, model, N_MP, d, K)
-    y = random_points(rng, model, N_MP, d, K)
     w = f.log_map(y, x, curvature=K)
     err = mp_log_errors(model, x, y, w, K)
     dist = f.distance(x, y, curvature=K)
@@ -845,11 +844,8 @@ def test_log_map_matches_mpmath(model, case):
 @SETTINGS
 @given(case=CASES)
 def test_transport_matches_mpmath(model, case):
-    K, d, seed = case
-    rng = np.random.default_rng(seed)
+    K, d, rng, x, y = _pair(case, model, n=N_MP)
     f = MOD[model]
-    x = random_points(rng, model, N_MP, d, K)
-    y = random_points(rng, model, N_MP, d, K)
     u = random_tangent(rng, model, x, K, vmax=3.0)
     pu = f.transport(u, x, y, curvature=K)
     err = mp_transport_errors(model, x, y, u, pu, K)
@@ -865,10 +861,7 @@ def test_transport_matches_mpmath(model, case):
 @SETTINGS
 @given(case=CASES)
 def test_transport_is_an_isometry_and_invertible(model, case):
-    K, d, seed = case
-    rng = np.random.default_rng(seed)
-    x = random_points(rng, model, N, d, K)
-    y = random_points(rng, model, N, d, K)
+    K, d, rng, x, y = _pair(case, model)
     u = random_tangent(rng, model, x, K, vmax=3.0)
     v = random_tangent(rng, model, x, K, vmax=3.0)
     f = MOD[model].transport
@@ -894,11 +887,8 @@ def test_transport_is_an_isometry_and_invertible(model, case):
 @SETTINGS
 @given(case=CASES)
 def test_transport_of_log_is_minus_log(model, case):
-    K, d, seed = case
-    rng = np.random.default_rng(seed)
+    K, d, rng, x, y = _pair(case, model)
     R = radius(K)
-    x = random_points(rng, model, N, d, K)
-    y = random_points(rng, model, N, d, K)
     f = MOD[model]
     # handbook: the geodesic's velocity is parallel along it, so P_{x->y} log_x(y) = -log_y(x)
     moved = f.transport(f.log_map(y, x, curvature=K), x, y, curvature=K)
@@ -916,12 +906,9 @@ def test_transport_of_log_is_minus_log(model, case):
 @SETTINGS
 @given(case=CASES)
 def test_geodesic_identities(model, case):
-    K, d, seed = case
-    rng = np.random.default_rng(seed)
+    K, d, rng, x, y = _pair(case, model)
     R = radius(K)
     f = MOD[model]
-    x = random_points(rng, model, N, d, K)
-    y = random_points(rng, model, N, d, K)
     dist = f.distance(x, y, curvature=K)
     g0 = f.geodesic(x, y, 0.0, curvature=K)
     g1 = f.geodesic(x, y, 1.0, curvature=K)
