@@ -269,6 +269,29 @@ pub fn log_map_g(c: &Curvature, x: &[f64], gx: f64, y: &[f64], gy: f64, out: &mu
     })
 }
 
+/// The split of a Klein transport at its start `x`: writes `v_perp` (the
+/// part of `v` across `x`) into `vp` and returns `alpha` (`v = alpha x +
+/// v_perp`), the coefficient `alpha mu + kappa (y - x).v_perp / E` of
+/// `x - y` in [`transport_g`], and `x.v`. `(y - x).v_perp` is formed from the
+/// difference (`x.v_perp` is zero only in exact arithmetic).
+#[inline(always)]
+fn split_at_start(k: f64, x: &[f64], y: &[f64], v: &[f64], mu: f64, e: f64, vp: &mut [f64]) -> (f64, f64, f64) {
+    let (xx, xv) = perp_scaled(x, v, vp); // |x|^2 v_perp
+    let (xx, xv) = (xx.value(), xv.value());
+    let alpha = if xx > 0.0 {
+        vp.iter_mut().for_each(|o| *o /= xx);
+        xv / xx
+    } else {
+        vp.copy_from_slice(v);
+        0.0
+    };
+    let mut dv = 0.0;
+    for i in 0..x.len() {
+        dv += (y[i] - x[i]) * vp[i];
+    }
+    (alpha, alpha * mu + k * dv / e, xv)
+}
+
 /// Parallel transport from `x` to `y`. Through the hyperboloid
 /// (`x_H = (R, x)/sqrt(g_x)`, where transport is `V + <Y,V>/(R^2 - <X,Y>) (X + Y)`)
 /// it has the closed form `P v = s (v + lambda (x - y))`, `s = sqrt(g_y/g_x)`,
@@ -308,16 +331,7 @@ pub fn transport_g(c: &Curvature, x: &[f64], gx: f64, y: &[f64], gy: f64, v: &[f
     let s = ay / ax;
     if gy * sumsq(x) >= gx * sumsq(y) {
         // split at x (|x| > 0 here: x = 0 would need y = 0 = x)
-        let (xx, xv) = perp_scaled(x, v, out); // |x|^2 v_perp
-        let xx = xx.value();
-        out.iter_mut().for_each(|o| *o /= xx);
-        let alpha = xv.value() / xx;
-        // (y - x).v_perp from the difference (x.v_perp is 0 only exactly)
-        let mut dv = 0.0;
-        for i in 0..n {
-            dv += (y[i] - x[i]) * out[i];
-        }
-        let lam = alpha * mu + k * dv / e;
+        let (alpha, lam, _) = split_at_start(k, x, y, v, mu, e, out);
         for i in 0..n {
             out[i] = s * (alpha * y[i] + out[i] + lam * (x[i] - y[i]));
         }
@@ -331,20 +345,7 @@ pub fn transport_g(c: &Curvature, x: &[f64], gx: f64, y: &[f64], gy: f64, v: &[f
         for i in 0..n {
             dl[i] = x[i] - y[i];
         }
-        let (xx, xv) = perp_scaled(x, v, vx); // |x|^2 v_perp(x)
-        let (xx, xv) = (xx.value(), xv.value());
-        let alpha = if xx > 0.0 {
-            vx.iter_mut().for_each(|o| *o /= xx);
-            xv / xx
-        } else {
-            vx.copy_from_slice(v);
-            0.0
-        };
-        let mut dvx = 0.0; // (y - x).v_perp(x)
-        for i in 0..n {
-            dvx -= dl[i] * vx[i];
-        }
-        let lam = alpha * mu + k * dvx / e;
+        let (_, lam, xv) = split_at_start(k, x, y, v, mu, e, vx);
         let dv = dot2(dl, v);
         let xd = dot2(x, dl);
         let gxdv = dv / gx + k * xd * xv / (gx * gx); // G_x(x - y, v)
