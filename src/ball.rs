@@ -56,11 +56,7 @@ pub fn checked_gap(c: &Curvature, x: &[f64]) -> std::result::Result<DD, Fault> {
     // NaN or infinite coordinates make the sum of squares non-finite; so do
     // finite coordinates too large to square (which are outside anyway).
     if !g.hi.is_finite() {
-        return Err(if x.iter().all(|v| v.is_finite()) {
-            Fault::OutsideBall(f64::INFINITY)
-        } else {
-            Fault::NonFinite
-        });
+        return Err(if x.iter().all(|v| v.is_finite()) { Fault::OutsideBall(f64::INFINITY) } else { Fault::NonFinite });
     }
     if g.hi > 0.0 {
         Ok(g)

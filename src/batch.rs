@@ -162,8 +162,7 @@ pub fn layout(ops: &[Operand]) -> Result<Layout> {
             if *cur == 1 {
                 *cur = n;
             } else if n != 1 && n != *cur {
-                let shapes: Vec<String> =
-                    ops.iter().map(|o| format!("{} {:?}", o.name, o.lead_shape())).collect();
+                let shapes: Vec<String> = ops.iter().map(|o| format!("{} {:?}", o.name, o.lead_shape())).collect();
                 return Err(Error::Value(format!(
                     "leading shapes cannot be broadcast together: {}",
                     shapes.join(", ")
@@ -194,11 +193,8 @@ unsafe impl Sync for Access {}
 
 impl Access {
     fn new(o: &Operand, nd: usize, d: usize) -> Access {
-        let (ptr, f32, shape, strides): (*const u8, bool, Vec<usize>, Vec<isize>) = match &o.data
-        {
-            Data::F64(a) | Data::Weak(a) => {
-                (a.as_ptr() as *const u8, false, a.shape().to_vec(), a.strides().to_vec())
-            }
+        let (ptr, f32, shape, strides): (*const u8, bool, Vec<usize>, Vec<isize>) = match &o.data {
+            Data::F64(a) | Data::Weak(a) => (a.as_ptr() as *const u8, false, a.shape().to_vec(), a.strides().to_vec()),
             Data::F32(a) => (a.as_ptr() as *const u8, true, a.shape().to_vec(), a.strides().to_vec()),
         };
         let (nlead, core_stride, len) = match o.core {
@@ -293,11 +289,7 @@ fn format_fault(ops: &[Operand], acc: &[Access], f: RowFault, own: &[usize], nd:
     let place = match own.len() {
         0 => format!("{} (a single {what})", o.name),
         1 => format!("{}: row {}", o.name, own[0]),
-        _ => format!(
-            "{}: row ({})",
-            o.name,
-            own.iter().map(|i| i.to_string()).collect::<Vec<_>>().join(", ")
-        ),
+        _ => format!("{}: row ({})", o.name, own.iter().map(|i| i.to_string()).collect::<Vec<_>>().join(", ")),
     };
     Error::Value(format!("{place} {}", f.fault.describe()))
 }
@@ -407,16 +399,16 @@ where
         let rows_per = chunk_rows(n, work_per_row.max(1) * lay.d.max(1));
         let fast = crate::simd::has_fma();
         let run = |start: usize, block: &mut [f64]| {
-            merge(crate::simd::dispatch(fast, #[inline(always)] || {
-                run_chunk(acc_r, lead_r, out_len, kern_r, start, block)
-            }))
+            merge(crate::simd::dispatch(
+                fast,
+                #[inline(always)]
+                || run_chunk(acc_r, lead_r, out_len, kern_r, start, block),
+            ))
         };
         if n <= rows_per {
             run(0, &mut out);
         } else {
-            out.par_chunks_mut(rows_per * out_len)
-                .enumerate()
-                .for_each(|(c, block)| run(c * rows_per, block));
+            out.par_chunks_mut(rows_per * out_len).enumerate().for_each(|(c, block)| run(c * rows_per, block));
         }
     }
     if let Some((_, _, f, own)) = first_fault.into_inner().unwrap_or_else(|e| e.into_inner()) {

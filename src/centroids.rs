@@ -132,10 +132,7 @@ pub fn check_weights(w: &[f64], n: usize) -> Result<()> {
         return Err(Error::Value(format!("weights has length {} but x has {n} points", w.len())));
     }
     if let Some(i) = w.iter().position(|v| !v.is_finite() || *v < 0.0) {
-        return Err(Error::Value(format!(
-            "weights: entry {i} is {} (weights must be finite and >= 0)",
-            w[i]
-        )));
+        return Err(Error::Value(format!("weights: entry {i} is {} (weights must be finite and >= 0)", w[i])));
     }
     Ok(())
 }
@@ -285,57 +282,61 @@ fn stats(pts: &UnitPoints, idx: &[usize], w: Option<&[f64]>, mu: &[f64], gmu: f6
     let parts: Vec<Stats> = idx
         .par_chunks(CHUNK)
         .map(|ch| {
-            crate::simd::dispatch(crate::simd::has_fma(), #[inline(always)] || {
-                let mut st = Stats { grad: vec![0f64; d], hout: vec![0f64; d * d], hscal: 0.0, f: 0.0, wsum: 0.0 };
-                let mut y = vec![0f64; d];
-                for &i in ch {
-                    let wi = w.map_or(1.0, |w| w[i]);
-                    if wi == 0.0 {
-                        continue;
-                    }
-                    let p = &pts.p[i * d..(i + 1) * d];
-                    // y = (-mu) ⊕ p, its gap exact: g_mu g_p / D.
-                    let mut ss = 0.0;
-                    for j in 0..d {
-                        let s = p[j] - mu[j];
-                        y[j] = s;
-                        ss += s * s;
-                    }
-                    let den = gmu * pts.g[i] + ss;
-                    let (a, b) = (gmu / den, ss / den);
-                    let mut t2 = 0.0;
-                    for j in 0..d {
-                        y[j] = a * y[j] - b * mu[j];
-                        t2 += y[j] * y[j];
-                    }
-                    let gy = gmu * pts.g[i] / den;
-                    st.wsum += wi;
-                    let t = t2.sqrt();
-                    if t == 0.0 {
-                        st.hscal += wi;
-                        continue;
-                    }
-                    // d = 2 artanh t, from the gap (fast compensated log1p).
-                    let dist = log1p_fast(2.0 * t * (1.0 + t) / gy);
-                    // d coth d with coth(2 artanh t) = (1 + t^2)/(2t): no exp.
-                    let c = dist * (1.0 + t2) / (2.0 * t);
-                    st.f += wi * dist * dist;
-                    st.hscal += wi * c;
-                    let fg = wi * dist / t;
-                    for j in 0..d {
-                        st.grad[j] += fg * y[j];
-                    }
-                    let fh = wi * (1.0 - c) / t2;
-                    // Full outer product (vectorises better than a triangle).
-                    for (r, row) in st.hout.chunks_exact_mut(d).enumerate() {
-                        let yr = fh * y[r];
-                        for (o, &ys) in row.iter_mut().zip(y.iter()) {
-                            *o = yr.mul_add(ys, *o);
+            crate::simd::dispatch(
+                crate::simd::has_fma(),
+                #[inline(always)]
+                || {
+                    let mut st = Stats { grad: vec![0f64; d], hout: vec![0f64; d * d], hscal: 0.0, f: 0.0, wsum: 0.0 };
+                    let mut y = vec![0f64; d];
+                    for &i in ch {
+                        let wi = w.map_or(1.0, |w| w[i]);
+                        if wi == 0.0 {
+                            continue;
+                        }
+                        let p = &pts.p[i * d..(i + 1) * d];
+                        // y = (-mu) ⊕ p, its gap exact: g_mu g_p / D.
+                        let mut ss = 0.0;
+                        for j in 0..d {
+                            let s = p[j] - mu[j];
+                            y[j] = s;
+                            ss += s * s;
+                        }
+                        let den = gmu * pts.g[i] + ss;
+                        let (a, b) = (gmu / den, ss / den);
+                        let mut t2 = 0.0;
+                        for j in 0..d {
+                            y[j] = a * y[j] - b * mu[j];
+                            t2 += y[j] * y[j];
+                        }
+                        let gy = gmu * pts.g[i] / den;
+                        st.wsum += wi;
+                        let t = t2.sqrt();
+                        if t == 0.0 {
+                            st.hscal += wi;
+                            continue;
+                        }
+                        // d = 2 artanh t, from the gap (fast compensated log1p).
+                        let dist = log1p_fast(2.0 * t * (1.0 + t) / gy);
+                        // d coth d with coth(2 artanh t) = (1 + t^2)/(2t): no exp.
+                        let c = dist * (1.0 + t2) / (2.0 * t);
+                        st.f += wi * dist * dist;
+                        st.hscal += wi * c;
+                        let fg = wi * dist / t;
+                        for j in 0..d {
+                            st.grad[j] += fg * y[j];
+                        }
+                        let fh = wi * (1.0 - c) / t2;
+                        // Full outer product (vectorises better than a triangle).
+                        for (r, row) in st.hout.chunks_exact_mut(d).enumerate() {
+                            let yr = fh * y[r];
+                            for (o, &ys) in row.iter_mut().zip(y.iter()) {
+                                *o = yr.mul_add(ys, *o);
+                            }
                         }
                     }
-                }
-                st
-            })
+                    st
+                },
+            )
         })
         .collect();
     let mut tot = Stats { grad: vec![0f64; d], hout: vec![0f64; d * d], hscal: 0.0, f: 0.0, wsum: 0.0 };
@@ -550,10 +551,7 @@ pub fn frechet_variance(model: Model, k: Curvature, x: &Data, center: &[f64], we
     let weights = wn.as_deref();
     let width = model.width(pts.d);
     if center.len() != width {
-        return Err(Error::Value(format!(
-            "center has {} coordinates but x has {width} per point",
-            center.len()
-        )));
+        return Err(Error::Value(format!("center has {} coordinates but x has {width} per point", center.len())));
     }
     let mut mu = vec![0f64; pts.d];
     let gmu = to_hub(model, &k, center, &mut mu).map_err(|f| Error::Value(format!("center {}", f.describe())))?;

@@ -41,10 +41,7 @@ impl Model {
             "klein" => Ok(Model::Klein),
             "hyperboloid" => Ok(Model::Hyperboloid),
             "halfspace" => Ok(Model::HalfSpace),
-            _ => Err(Error::Value(format!(
-                "{arg} must be one of {:?}, got {name:?}",
-                Model::NAMES
-            ))),
+            _ => Err(Error::Value(format!("{arg} must be one of {:?}, got {name:?}", Model::NAMES))),
         }
     }
 
@@ -132,37 +129,45 @@ pub fn from_hub(dst: Model, k: &Curvature, p: &[f64], g: f64, out: &mut [f64]) {
 pub fn convert_arrays<'a>(k: Curvature, x: Data<'a>, src: Model, dst: Model) -> Result<Output> {
     let w = x.shape().last().copied().unwrap_or(0);
     if src == Model::Hyperboloid && w < 2 {
-        return value_err(format!(
-            "x: hyperboloid points have d + 1 >= 2 coordinates (x0 first), got {w}"
-        ));
+        return value_err(format!("x: hyperboloid points have d + 1 >= 2 coordinates (x0 first), got {w}"));
     }
     let d = if src == Model::Hyperboloid { w.saturating_sub(1) } else { w };
     let ops = [Operand::point("x", x)];
-    map_rows(&ops, &|_| vec![dst.width(d)], 20, #[inline(always)] |r, out| {
-        with_scratch(d, #[inline(always)] |p| {
-            let g = to_hub(src, &k, r[0], p).map_err(|f| RowFault::new(0, f))?;
-            if src == dst {
-                out.copy_from_slice(r[0]);
-            } else {
-                from_hub(dst, &k, p, g, out);
-            }
-            match dst {
-                Model::Poincare | Model::Klein => {
-                    if gap_dd(k.kappa, out).hi <= 0.0 {
-                        let name = if dst == Model::Klein { "Klein" } else { "Poincaré" };
-                        return Err(RowFault::new(0, Fault::Unrepresentable(name)));
+    map_rows(
+        &ops,
+        &|_| vec![dst.width(d)],
+        20,
+        #[inline(always)]
+        |r, out| {
+            with_scratch(
+                d,
+                #[inline(always)]
+                |p| {
+                    let g = to_hub(src, &k, r[0], p).map_err(|f| RowFault::new(0, f))?;
+                    if src == dst {
+                        out.copy_from_slice(r[0]);
+                    } else {
+                        from_hub(dst, &k, p, g, out);
                     }
-                }
-                _ => {
-                    if !out.iter().all(|v| v.is_finite()) {
-                        return Err(RowFault::new(0, Fault::Overflow));
+                    match dst {
+                        Model::Poincare | Model::Klein => {
+                            if gap_dd(k.kappa, out).hi <= 0.0 {
+                                let name = if dst == Model::Klein { "Klein" } else { "Poincaré" };
+                                return Err(RowFault::new(0, Fault::Unrepresentable(name)));
+                            }
+                        }
+                        _ => {
+                            if !out.iter().all(|v| v.is_finite()) {
+                                return Err(RowFault::new(0, Fault::Overflow));
+                            }
+                            if dst == Model::Hyperboloid && sumsq(&out[1..]) > hyperboloid::MAX_SPATIAL_SQ {
+                                return Err(RowFault::new(0, Fault::ResultBeyondRange));
+                            }
+                        }
                     }
-                    if dst == Model::Hyperboloid && sumsq(&out[1..]) > hyperboloid::MAX_SPATIAL_SQ {
-                        return Err(RowFault::new(0, Fault::ResultBeyondRange));
-                    }
-                }
-            }
-            Ok(())
-        })
-    })
+                    Ok(())
+                },
+            )
+        },
+    )
 }

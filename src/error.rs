@@ -85,9 +85,7 @@ impl Fault {
                  1.1e-16 R of the sphere and rounds onto it (the Klein ball holds points up to \
                  about 18 R from the origin, the Poincaré ball up to about 37 R)"
             ),
-            Fault::NotInHalfSpace => {
-                "has last coordinate <= 0 (outside the upper half-space)".to_string()
-            }
+            Fault::NotInHalfSpace => "has last coordinate <= 0 (outside the upper half-space)".to_string(),
         }
     }
 }

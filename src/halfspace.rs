@@ -31,10 +31,16 @@ pub fn distance(k: &Curvature, y: &[f64], z: &[f64]) -> f64 {
 /// Batched distance `(..., d), (..., d) -> (...)`.
 pub fn distance_arrays<'a>(k: Curvature, x: Data<'a>, y: Data<'a>) -> Result<Output> {
     let ops = [Operand::point("x", x), Operand::point("y", y)];
-    map_rows(&ops, &scalar_core, 10, #[inline(always)] |r, out| {
-        read_point(r[0]).map_err(|f| RowFault::new(0, f))?;
-        read_point(r[1]).map_err(|f| RowFault::new(1, f))?;
-        out[0] = distance(&k, r[0], r[1]);
-        Ok(())
-    })
+    map_rows(
+        &ops,
+        &scalar_core,
+        10,
+        #[inline(always)]
+        |r, out| {
+            read_point(r[0]).map_err(|f| RowFault::new(0, f))?;
+            read_point(r[1]).map_err(|f| RowFault::new(1, f))?;
+            out[0] = distance(&k, r[0], r[1]);
+            Ok(())
+        },
+    )
 }

@@ -14,8 +14,8 @@ use crate::batch::{finite_scalar, map_rows, point_core, scalar_core, Data, Opera
 use crate::error::{Fault, Result, RowFault};
 use crate::klein::chord_ends;
 use crate::numeric::{
-    diff_of_squares, distance_from_half_delta, dot2, dot_dd, geodesic_weights, perp_scaled, sumsq,
-    two_prod, wedge_dot, wedge_sq, DD,
+    diff_of_squares, distance_from_half_delta, dot2, dot_dd, geodesic_weights, perp_scaled, sumsq, two_prod, wedge_dot,
+    wedge_sq, DD,
 };
 use crate::poincare::with_scratch;
 
@@ -63,11 +63,7 @@ pub fn half_delta(k: &Curvature, xs: &[f64], cx: f64, ys: &[f64], cy: f64) -> f6
     let a = if den > 0.0 { kk * diff_of_squares(xs, ys, 1.0) / den } else { 0.0 };
     let t1 = a * a / (1.0 + (1.0 + a * a).sqrt()); // cosh(r_x - r_y) - 1
     let p = dot2(xs, ys);
-    let t2 = if p <= 0.0 {
-        kk * (nx * ny - p)
-    } else {
-        kk * wedge_sq(xs, ys) / (nx * ny + p)
-    };
+    let t2 = if p <= 0.0 { kk * (nx * ny - p) } else { kk * wedge_sq(xs, ys) / (nx * ny + p) };
     0.5 * (t1 + t2)
 }
 
@@ -271,12 +267,18 @@ fn point_out(out: &[f64], arg: usize) -> std::result::Result<(), RowFault> {
 pub fn distance_arrays<'a>(k: Curvature, x: Data<'a>, y: Data<'a>) -> Result<Output> {
     let ops = [Operand::point("x", x), Operand::point("y", y)];
     check_dim(&ops)?;
-    map_rows(&ops, &scalar_core, 20, #[inline(always)] |r, out| {
-        let cx = point_of!(&k, r[0], 0);
-        let cy = point_of!(&k, r[1], 1);
-        out[0] = distance_s(&k, &r[0][1..], cx, &r[1][1..], cy);
-        finite_out(out, 0)
-    })
+    map_rows(
+        &ops,
+        &scalar_core,
+        20,
+        #[inline(always)]
+        |r, out| {
+            let cx = point_of!(&k, r[0], 0);
+            let cy = point_of!(&k, r[1], 1);
+            out[0] = distance_s(&k, &r[0][1..], cx, &r[1][1..], cy);
+            finite_out(out, 0)
+        },
+    )
 }
 
 /// Batched exponential map; `base = None` is the origin `(R, 0, ..., 0)`.
@@ -287,22 +289,32 @@ pub fn exp_map_arrays<'a>(k: Curvature, v: Data<'a>, base: Option<Data<'a>>) -> 
         ops.push(Operand::point("base", b));
     }
     check_dim(&ops)?;
-    map_rows(&ops, &point_core, 30, #[inline(always)] |r, out| {
-        crate::ball::check_finite(r[0]).map_err(|f| RowFault::new(0, f))?;
-        let n = r[0].len() - 1;
-        with_scratch(2 * n, #[inline(always)] |buf| {
-            let (zero, ys) = buf.split_at_mut(n);
-            let (xs, cx) = if has_base {
-                let cx = point_of!(&k, r[1], 1);
-                (&r[1][1..], cx)
-            } else {
-                (&zero[..], 1.0)
-            };
-            exp_spatial(&k, xs, cx, &r[0][1..], ys);
-            write_point(&k, ys, out);
-            point_out(out, 0)
-        })
-    })
+    map_rows(
+        &ops,
+        &point_core,
+        30,
+        #[inline(always)]
+        |r, out| {
+            crate::ball::check_finite(r[0]).map_err(|f| RowFault::new(0, f))?;
+            let n = r[0].len() - 1;
+            with_scratch(
+                2 * n,
+                #[inline(always)]
+                |buf| {
+                    let (zero, ys) = buf.split_at_mut(n);
+                    let (xs, cx) = if has_base {
+                        let cx = point_of!(&k, r[1], 1);
+                        (&r[1][1..], cx)
+                    } else {
+                        (&zero[..], 1.0)
+                    };
+                    exp_spatial(&k, xs, cx, &r[0][1..], ys);
+                    write_point(&k, ys, out);
+                    point_out(out, 0)
+                },
+            )
+        },
+    )
 }
 
 /// Batched logarithmic map; `base = None` is the origin.
@@ -313,50 +325,76 @@ pub fn log_map_arrays<'a>(k: Curvature, y: Data<'a>, base: Option<Data<'a>>) -> 
         ops.push(Operand::point("base", b));
     }
     check_dim(&ops)?;
-    map_rows(&ops, &point_core, 30, #[inline(always)] |r, out| {
-        let cy = point_of!(&k, r[0], 0);
-        let n = r[0].len() - 1;
-        with_scratch(n, #[inline(always)] |zero| {
-            let (xs, cx) = if has_base {
-                let cx = point_of!(&k, r[1], 1);
-                (&r[1][1..], cx)
-            } else {
-                (&zero[..], 1.0)
-            };
-            log_full(&k, xs, cx, &r[0][1..], cy, out);
-            finite_out(out, 0)
-        })
-    })
+    map_rows(
+        &ops,
+        &point_core,
+        30,
+        #[inline(always)]
+        |r, out| {
+            let cy = point_of!(&k, r[0], 0);
+            let n = r[0].len() - 1;
+            with_scratch(
+                n,
+                #[inline(always)]
+                |zero| {
+                    let (xs, cx) = if has_base {
+                        let cx = point_of!(&k, r[1], 1);
+                        (&r[1][1..], cx)
+                    } else {
+                        (&zero[..], 1.0)
+                    };
+                    log_full(&k, xs, cx, &r[0][1..], cy, out);
+                    finite_out(out, 0)
+                },
+            )
+        },
+    )
 }
 
 /// Batched parallel transport of tangent `v` from `start` to `end`.
 pub fn transport_arrays<'a>(k: Curvature, v: Data<'a>, start: Data<'a>, end: Data<'a>) -> Result<Output> {
     let ops = [Operand::point("v", v), Operand::point("start", start), Operand::point("end", end)];
     check_dim(&ops)?;
-    map_rows(&ops, &point_core, 40, #[inline(always)] |r, out| {
-        crate::ball::check_finite(r[0]).map_err(|f| RowFault::new(0, f))?;
-        let cx = point_of!(&k, r[1], 1);
-        let cy = point_of!(&k, r[2], 2);
-        transport_full(&k, &r[1][1..], cx, &r[2][1..], cy, &r[0][1..], out);
-        finite_out(out, 0)
-    })
+    map_rows(
+        &ops,
+        &point_core,
+        40,
+        #[inline(always)]
+        |r, out| {
+            crate::ball::check_finite(r[0]).map_err(|f| RowFault::new(0, f))?;
+            let cx = point_of!(&k, r[1], 1);
+            let cy = point_of!(&k, r[2], 2);
+            transport_full(&k, &r[1][1..], cx, &r[2][1..], cy, &r[0][1..], out);
+            finite_out(out, 0)
+        },
+    )
 }
 
 /// Batched geodesic interpolation; `t` broadcasts against the leading axes.
 pub fn geodesic_arrays<'a>(k: Curvature, x: Data<'a>, y: Data<'a>, t: Data<'a>) -> Result<Output> {
     let ops = [Operand::point("x", x), Operand::point("y", y), Operand::scalar("t", t)];
     check_dim(&ops[..2])?;
-    map_rows(&ops, &point_core, 30, #[inline(always)] |r, out| {
-        let cx = point_of!(&k, r[0], 0);
-        let cy = point_of!(&k, r[1], 1);
-        let t = finite_scalar(2, r[2][0])?;
-        let n = r[0].len() - 1;
-        with_scratch(n, #[inline(always)] |ys| {
-            geodesic_spatial(&k, &r[0][1..], cx, &r[1][1..], cy, t, ys);
-            write_point(&k, ys, out);
-        });
-        point_out(out, 2)
-    })
+    map_rows(
+        &ops,
+        &point_core,
+        30,
+        #[inline(always)]
+        |r, out| {
+            let cx = point_of!(&k, r[0], 0);
+            let cy = point_of!(&k, r[1], 1);
+            let t = finite_scalar(2, r[2][0])?;
+            let n = r[0].len() - 1;
+            with_scratch(
+                n,
+                #[inline(always)]
+                |ys| {
+                    geodesic_spatial(&k, &r[0][1..], cx, &r[1][1..], cy, t, ys);
+                    write_point(&k, ys, out);
+                },
+            );
+            point_out(out, 2)
+        },
+    )
 }
 
 /// Batched repair: x0 recomputed from the spatial part (a point is never
@@ -364,22 +402,34 @@ pub fn geodesic_arrays<'a>(k: Curvature, x: Data<'a>, y: Data<'a>, t: Data<'a>) 
 pub fn project_arrays<'a>(k: Curvature, x: Data<'a>) -> Result<Output> {
     let ops = [Operand::point("x", x)];
     check_dim(&ops)?;
-    map_rows(&ops, &point_core, 4, #[inline(always)] |r, out| {
-        crate::ball::check_finite(&r[0][1..]).map_err(|f| RowFault::new(0, f))?;
-        write_point(&k, &r[0][1..], out);
-        finite_out(out, 0)
-    })
+    map_rows(
+        &ops,
+        &point_core,
+        4,
+        #[inline(always)]
+        |r, out| {
+            crate::ball::check_finite(&r[0][1..]).map_err(|f| RowFault::new(0, f))?;
+            write_point(&k, &r[0][1..], out);
+            finite_out(out, 0)
+        },
+    )
 }
 
 /// Batched Minkowski inner product `(..., d+1), (..., d+1) -> (...)`.
 pub fn inner_arrays<'a>(u: Data<'a>, v: Data<'a>) -> Result<Output> {
     let ops = [Operand::point("u", u), Operand::point("v", v)];
-    map_rows(&ops, &scalar_core, 8, #[inline(always)] |r, out| {
-        crate::ball::check_finite(r[0]).map_err(|f| RowFault::new(0, f))?;
-        crate::ball::check_finite(r[1]).map_err(|f| RowFault::new(1, f))?;
-        out[0] = inner(r[0], r[1]);
-        finite_out(out, 0)
-    })
+    map_rows(
+        &ops,
+        &scalar_core,
+        8,
+        #[inline(always)]
+        |r, out| {
+            crate::ball::check_finite(r[0]).map_err(|f| RowFault::new(0, f))?;
+            crate::ball::check_finite(r[1]).map_err(|f| RowFault::new(1, f))?;
+            out[0] = inner(r[0], r[1]);
+            finite_out(out, 0)
+        },
+    )
 }
 
 #[cfg(test)]

@@ -12,8 +12,8 @@ use crate::ball::{check_finite, keep_inside, Curvature};
 use crate::batch::{finite_scalar, map_rows, point_core, scalar_core, Data, Operand, Output};
 use crate::error::Result;
 use crate::numeric::{
-    artanh_from_gap, diff_of_squares, dist_sq, distance_from_half_delta, dot2, dot_with_sum, gap,
-    geodesic_weights, perp_scaled, sumsq,
+    artanh_from_gap, diff_of_squares, dist_sq, distance_from_half_delta, dot2, dot_with_sum, gap, geodesic_weights,
+    perp_scaled, sumsq,
 };
 use crate::poincare::{self, gap_of, with_scratch};
 
@@ -76,18 +76,22 @@ pub fn gyration_g(c: &Curvature, u: &[f64], gu: f64, v: &[f64], gv: f64, w: &[f6
     let ds = diff_of_squares(u, v, 1.0);
     let q = 1.0 / ((1.0 + au) * (1.0 + av));
     let cv = k * ds / (au + av);
-    with_scratch(3 * n, #[inline(always)] |buf| {
-        let (pu, rest) = buf.split_at_mut(n);
-        let (pv, sp) = rest.split_at_mut(n);
-        for i in 0..n {
-            pu[i] = u[i] / (1.0 + au);
-            pv[i] = v[i] / (1.0 + av);
-            sp[i] = ((1.0 + av) * (u[i] + v[i]) - cv * v[i]) * q;
-        }
-        let gpu = 2.0 * au / (1.0 + au);
-        let gpv = 2.0 * av / (1.0 + av);
-        poincare::gyration_s(c, pu, gpu, pv, gpv, sp, w, out);
-    })
+    with_scratch(
+        3 * n,
+        #[inline(always)]
+        |buf| {
+            let (pu, rest) = buf.split_at_mut(n);
+            let (pv, sp) = rest.split_at_mut(n);
+            for i in 0..n {
+                pu[i] = u[i] / (1.0 + au);
+                pv[i] = v[i] / (1.0 + av);
+                sp[i] = ((1.0 + av) * (u[i] + v[i]) - cv * v[i]) * q;
+            }
+            let gpu = 2.0 * au / (1.0 + au);
+            let gpv = 2.0 * av / (1.0 + av);
+            poincare::gyration_s(c, pu, gpu, pv, gpv, sp, w, out);
+        },
+    )
 }
 
 /// `gyr[u, v] w` in the Einstein space.
@@ -221,52 +225,56 @@ pub fn exp_map_g(c: &Curvature, x: &[f64], gx: f64, v: &[f64], out: &mut [f64]) 
 pub fn log_map_g(c: &Curvature, x: &[f64], gx: f64, y: &[f64], gy: f64, out: &mut [f64]) {
     let n = x.len();
     let k = c.kappa;
-    with_scratch(3 * n, #[inline(always)] |buf| {
-        let (p, rest) = buf.split_at_mut(n);
-        let (s, w) = rest.split_at_mut(n);
-        let gp = to_poincare(x, gx, p);
-        let a = gy.sqrt();
-        let gq = 2.0 * a / (1.0 + a);
-        poincare_difference(c, x, gx, y, gy, s); // p - q
-        // p ⊖ q from s = p - q (Möbius form with s given), its gap exact.
-        let ss = sumsq(s);
-        let den = gp * gq + k * ss;
-        for i in 0..n {
-            w[i] = (gp * s[i] + k * ss * p[i]) / den;
-        }
-        let gu = gp * gq / den;
-        let t = c.sqrt_kappa * sumsq(w).sqrt();
-        if t == 0.0 {
-            out.iter_mut().for_each(|o| *o = 0.0);
-            return;
-        }
-        let f = -gp * artanh_from_gap(t, gu) / t; // log_p(q) = f (p ⊖ q)
-        let pp = sumsq(p);
-        if pp == 0.0 {
-            let g2 = 2.0 / (2.0 - gp);
+    with_scratch(
+        3 * n,
+        #[inline(always)]
+        |buf| {
+            let (p, rest) = buf.split_at_mut(n);
+            let (s, w) = rest.split_at_mut(n);
+            let gp = to_poincare(x, gx, p);
+            let a = gy.sqrt();
+            let gq = 2.0 * a / (1.0 + a);
+            poincare_difference(c, x, gx, y, gy, s); // p - q
+                                                     // p ⊖ q from s = p - q (Möbius form with s given), its gap exact.
+            let ss = sumsq(s);
+            let den = gp * gq + k * ss;
             for i in 0..n {
-                out[i] = g2 * f * w[i];
+                w[i] = (gp * s[i] + k * ss * p[i]) / den;
             }
-            return;
-        }
-        // The Klein differential shrinks the radial part by g_p, so the part
-        // of the log perpendicular to p must carry its own digits: it is
-        // f g_p s_perp / D (p has no perpendicular part). s itself is
-        // dominated by its radial part (the Klein -> Poincaré map stretches
-        // it by 1/sqrt(g_x)), so s_perp is taken from the input difference:
-        // s_perp = (x - y)_perp / (1 + sqrt(g_y)), p and x being parallel.
-        let radial = f * (gp * dot2(s, p) + k * ss * pp) / (den * pp);
-        let g2 = 2.0 / (2.0 - gp);
-        let shrink = gp / (2.0 - gp);
-        for i in 0..n {
-            w[i] = x[i] - y[i];
-        }
-        let (xx, _) = perp_scaled(x, w, out); // |x|^2 (x - y)_perp
-        let cp = f * gp / (den * xx.value() * (1.0 + a));
-        for i in 0..n {
-            out[i] = g2 * (cp * out[i] + radial * shrink * p[i]);
-        }
-    })
+            let gu = gp * gq / den;
+            let t = c.sqrt_kappa * sumsq(w).sqrt();
+            if t == 0.0 {
+                out.iter_mut().for_each(|o| *o = 0.0);
+                return;
+            }
+            let f = -gp * artanh_from_gap(t, gu) / t; // log_p(q) = f (p ⊖ q)
+            let pp = sumsq(p);
+            if pp == 0.0 {
+                let g2 = 2.0 / (2.0 - gp);
+                for i in 0..n {
+                    out[i] = g2 * f * w[i];
+                }
+                return;
+            }
+            // The Klein differential shrinks the radial part by g_p, so the part
+            // of the log perpendicular to p must carry its own digits: it is
+            // f g_p s_perp / D (p has no perpendicular part). s itself is
+            // dominated by its radial part (the Klein -> Poincaré map stretches
+            // it by 1/sqrt(g_x)), so s_perp is taken from the input difference:
+            // s_perp = (x - y)_perp / (1 + sqrt(g_y)), p and x being parallel.
+            let radial = f * (gp * dot2(s, p) + k * ss * pp) / (den * pp);
+            let g2 = 2.0 / (2.0 - gp);
+            let shrink = gp / (2.0 - gp);
+            for i in 0..n {
+                w[i] = x[i] - y[i];
+            }
+            let (xx, _) = perp_scaled(x, w, out); // |x|^2 (x - y)_perp
+            let cp = f * gp / (den * xx.value() * (1.0 + a));
+            for i in 0..n {
+                out[i] = g2 * (cp * out[i] + radial * shrink * p[i]);
+            }
+        },
+    )
 }
 
 /// The split of a Klein transport at its start `x`: writes `v_perp` (the
@@ -339,25 +347,29 @@ pub fn transport_g(c: &Curvature, x: &[f64], gx: f64, y: &[f64], gy: f64, v: &[f
     }
     // split at y (|y| > 0 here): the part along y from the hyperboloid, the
     // part across y from the split at x (whose along-y part would cancel)
-    with_scratch(3 * n, #[inline(always)] |buf| {
-        let (dl, rest) = buf.split_at_mut(n);
-        let (xp, vx) = rest.split_at_mut(n);
-        for i in 0..n {
-            dl[i] = x[i] - y[i];
-        }
-        let (_, lam, xv) = split_at_start(k, x, y, v, mu, e, vx);
-        let dv = dot2(dl, v);
-        let xd = dot2(x, dl);
-        let gxdv = dv / gx + k * xd * xv / (gx * gx); // G_x(x - y, v)
-        let along = s * s * s * xv - ax * gy * (ax + ay) * gxdv / e; // (P v).y
-        let (yy, _) = perp_scaled(y, vx, out); // |y|^2 (v_perp(x))_perp(y)
-        let yy = yy.value();
-        perp_scaled(y, x, xp); // |y|^2 x_perp(y)
-        let (fy, fp) = (along / yy, s / yy);
-        for i in 0..n {
-            out[i] = fy * y[i] + fp * (out[i] + lam * xp[i]);
-        }
-    })
+    with_scratch(
+        3 * n,
+        #[inline(always)]
+        |buf| {
+            let (dl, rest) = buf.split_at_mut(n);
+            let (xp, vx) = rest.split_at_mut(n);
+            for i in 0..n {
+                dl[i] = x[i] - y[i];
+            }
+            let (_, lam, xv) = split_at_start(k, x, y, v, mu, e, vx);
+            let dv = dot2(dl, v);
+            let xd = dot2(x, dl);
+            let gxdv = dv / gx + k * xd * xv / (gx * gx); // G_x(x - y, v)
+            let along = s * s * s * xv - ax * gy * (ax + ay) * gxdv / e; // (P v).y
+            let (yy, _) = perp_scaled(y, vx, out); // |y|^2 (v_perp(x))_perp(y)
+            let yy = yy.value();
+            perp_scaled(y, x, xp); // |y|^2 x_perp(y)
+            let (fy, fp) = (along / yy, s / yy);
+            for i in 0..n {
+                out[i] = fy * y[i] + fp * (out[i] + lam * xp[i]);
+            }
+        },
+    )
 }
 
 /// The point at fraction `t` of the geodesic (a straight chord) from `x` to
@@ -390,18 +402,17 @@ pub fn project_arrays<'a>(c: Curvature, x: Data<'a>, margin: f64) -> Result<Outp
 mod tests {
     use super::*;
 
-/// The differential of Klein -> Poincaré at `k`:
-/// `dp = dk/(1 + a) + kappa (k.dk) k / (a (1 + a)^2)`. Along `k` the two
-/// terms add (the radial coefficient is `1/(a (1 + a))`), so nothing cancels;
-/// `k.dk` is compensated because it is divided by the small `a`.
-fn tangent_to_poincare(c: &Curvature, k: &[f64], gk: f64, dk: &[f64], dp: &mut [f64]) {
-    let a = gk.sqrt();
-    let f = c.kappa * dot2(k, dk) / (a * (1.0 + a) * (1.0 + a));
-    for i in 0..k.len() {
-        dp[i] = dk[i] / (1.0 + a) + f * k[i];
+    /// The differential of Klein -> Poincaré at `k`:
+    /// `dp = dk/(1 + a) + kappa (k.dk) k / (a (1 + a)^2)`. Along `k` the two
+    /// terms add (the radial coefficient is `1/(a (1 + a))`), so nothing cancels;
+    /// `k.dk` is compensated because it is divided by the small `a`.
+    fn tangent_to_poincare(c: &Curvature, k: &[f64], gk: f64, dk: &[f64], dp: &mut [f64]) {
+        let a = gk.sqrt();
+        let f = c.kappa * dot2(k, dk) / (a * (1.0 + a) * (1.0 + a));
+        for i in 0..k.len() {
+            dp[i] = dk[i] / (1.0 + a) + f * k[i];
+        }
     }
-}
-
 
     fn rel(got: &[f64], want: &[f64]) -> f64 {
         let num: f64 = got.iter().zip(want).map(|(a, b)| (a - b) * (a - b)).sum::<f64>().sqrt();

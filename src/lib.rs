@@ -5,11 +5,11 @@
 
 pub mod ball;
 pub mod batch;
+pub mod centroids;
+pub mod convert;
 pub mod error;
 pub mod halfspace;
 pub mod hyperboloid;
-pub mod centroids;
-pub mod convert;
 pub mod klein;
 pub mod neighbors;
 pub mod numeric;

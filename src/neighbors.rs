@@ -80,7 +80,14 @@ impl Packed {
 
 /// `h` for `R` rows starting at `i0` against one packed panel.
 #[inline(always)]
-fn tile_h<const R: usize>(x: &Prepared, i0: usize, panel: &[f64], ay: &[f64; LANES], s: f64, acc: &mut [[f64; LANES]; R]) {
+fn tile_h<const R: usize>(
+    x: &Prepared,
+    i0: usize,
+    panel: &[f64],
+    ay: &[f64; LANES],
+    s: f64,
+    acc: &mut [[f64; LANES]; R],
+) {
     let w = x.w;
     *acc = [[0f64; LANES]; R];
     let xr: [&[f64]; R] = std::array::from_fn(|r| &x.coords[(i0 + r) * w..(i0 + r + 1) * w]);
@@ -116,7 +123,13 @@ fn tile_scale(x: &Prepared) -> Option<f64> {
 /// `hs[l]` is `h(i, j0 + l)` for the (up to 8) columns of one panel. Columns
 /// beyond `y.n` are not reported.
 #[inline(always)]
-fn for_each_h(x: &Prepared, y: &Prepared, packed: Option<&Packed>, rows: std::ops::Range<usize>, mut f: impl FnMut(usize, usize, &[f64; LANES], usize)) {
+fn for_each_h(
+    x: &Prepared,
+    y: &Prepared,
+    packed: Option<&Packed>,
+    rows: std::ops::Range<usize>,
+    mut f: impl FnMut(usize, usize, &[f64; LANES], usize),
+) {
     match (tile_scale(x), packed) {
         (Some(s), Some(pk)) => {
             for p in 0..pk.npanels() {
@@ -177,28 +190,39 @@ pub fn distance_matrix_into<T: Store>(x: &Prepared, y: &Prepared, out: &mut [T])
     out.par_chunks_mut(STRIP * m).enumerate().for_each(|(s, block)| {
         let r0 = s * STRIP;
         let r1 = (r0 + STRIP).min(n);
-        simd::dispatch(fast, #[inline(always)] || {
-            for_each_h(x, y, packed.as_ref(), r0..r1, #[inline(always)] |i, j0, hs, valid| {
-                // All 8 lanes at once (padding lanes have h = 0), so the
-                // transcendental vectorises; only valid lanes are stored.
-                let mut dv = [0f64; LANES];
-                for l in 0..LANES {
-                    dv[l] = radius * acosh1p2_fast(hs[l]);
-                }
-                let at = (i - r0) * m + j0;
-                if valid == LANES {
-                    // Fixed length: plain stores, not a memcpy call per tile row.
-                    let row: &mut [T; LANES] = (&mut block[at..at + LANES]).try_into().unwrap();
-                    for l in 0..LANES {
-                        row[l] = T::from_f64(dv[l]);
-                    }
-                } else {
-                    for l in 0..valid {
-                        block[at + l] = T::from_f64(dv[l]);
-                    }
-                }
-            })
-        })
+        simd::dispatch(
+            fast,
+            #[inline(always)]
+            || {
+                for_each_h(
+                    x,
+                    y,
+                    packed.as_ref(),
+                    r0..r1,
+                    #[inline(always)]
+                    |i, j0, hs, valid| {
+                        // All 8 lanes at once (padding lanes have h = 0), so the
+                        // transcendental vectorises; only valid lanes are stored.
+                        let mut dv = [0f64; LANES];
+                        for l in 0..LANES {
+                            dv[l] = radius * acosh1p2_fast(hs[l]);
+                        }
+                        let at = (i - r0) * m + j0;
+                        if valid == LANES {
+                            // Fixed length: plain stores, not a memcpy call per tile row.
+                            let row: &mut [T; LANES] = (&mut block[at..at + LANES]).try_into().unwrap();
+                            for l in 0..LANES {
+                                row[l] = T::from_f64(dv[l]);
+                            }
+                        } else {
+                            for l in 0..valid {
+                                block[at + l] = T::from_f64(dv[l]);
+                            }
+                        }
+                    },
+                )
+            },
+        )
     });
     Ok(())
 }
@@ -232,23 +256,34 @@ pub fn condensed_into<T: Store>(x: &Prepared, out: &mut [T]) -> Result<()> {
     pieces.into_par_iter().for_each(|(r0, block)| {
         let r1 = (r0 + STRIP).min(n);
         let base = start(r0);
-        simd::dispatch(fast, #[inline(always)] || {
-            for_each_h(x, x, packed.as_ref(), r0..r1, #[inline(always)] |i, j0, hs, valid| {
-                if j0 + valid <= i + 1 {
-                    return;
-                }
-                let mut dv = [0f64; LANES];
-                for l in 0..LANES {
-                    dv[l] = radius * acosh1p2_fast(hs[l]);
-                }
-                for l in 0..valid {
-                    let j = j0 + l;
-                    if j > i {
-                        block[start(i) + (j - i - 1) - base] = T::from_f64(dv[l]);
-                    }
-                }
-            })
-        })
+        simd::dispatch(
+            fast,
+            #[inline(always)]
+            || {
+                for_each_h(
+                    x,
+                    x,
+                    packed.as_ref(),
+                    r0..r1,
+                    #[inline(always)]
+                    |i, j0, hs, valid| {
+                        if j0 + valid <= i + 1 {
+                            return;
+                        }
+                        let mut dv = [0f64; LANES];
+                        for l in 0..LANES {
+                            dv[l] = radius * acosh1p2_fast(hs[l]);
+                        }
+                        for l in 0..valid {
+                            let j = j0 + l;
+                            if j > i {
+                                block[start(i) + (j - i - 1) - base] = T::from_f64(dv[l]);
+                            }
+                        }
+                    },
+                )
+            },
+        )
     });
     Ok(())
 }
@@ -335,45 +370,58 @@ pub fn knn(x: &Prepared, y: &Prepared, k: usize, exclude_self: bool) -> Result<(
     let packed = tile_scale(x).map(|_| Packed::new(y));
     let radius = x.curvature.radius;
     let fast = simd::has_fma();
-    idx.par_chunks_mut(STRIP * k)
-        .zip(dist.par_chunks_mut(STRIP * k))
-        .enumerate()
-        .for_each(|(s, (ib, db))| {
-            let r0 = s * STRIP;
-            let r1 = (r0 + STRIP).min(n);
-            let mut tops: Vec<TopK> = (r0..r1).map(|_| TopK::new(k)).collect();
-            simd::dispatch(fast, #[inline(always)] || {
-                for_each_h(x, y, packed.as_ref(), r0..r1, #[inline(always)] |i, j0, hs, valid| {
-                    let t = &mut tops[i - r0];
-                    let mut worst = t.worst();
-                    for (l, &h) in hs[..valid].iter().enumerate() {
-                        if h <= worst {
-                            let j = j0 + l;
-                            if exclude_self && j == i {
-                                continue;
+    idx.par_chunks_mut(STRIP * k).zip(dist.par_chunks_mut(STRIP * k)).enumerate().for_each(|(s, (ib, db))| {
+        let r0 = s * STRIP;
+        let r1 = (r0 + STRIP).min(n);
+        let mut tops: Vec<TopK> = (r0..r1).map(|_| TopK::new(k)).collect();
+        simd::dispatch(
+            fast,
+            #[inline(always)]
+            || {
+                for_each_h(
+                    x,
+                    y,
+                    packed.as_ref(),
+                    r0..r1,
+                    #[inline(always)]
+                    |i, j0, hs, valid| {
+                        let t = &mut tops[i - r0];
+                        let mut worst = t.worst();
+                        for (l, &h) in hs[..valid].iter().enumerate() {
+                            if h <= worst {
+                                let j = j0 + l;
+                                if exclude_self && j == i {
+                                    continue;
+                                }
+                                t.push(h, j);
+                                worst = t.worst();
                             }
-                            t.push(h, j);
-                            worst = t.worst();
                         }
-                    }
-                })
-            });
-            for (r, t) in tops.into_iter().enumerate() {
-                // Settle by (distance, index) over the k and their near-ties.
-                let mut dd: Vec<f64> = t.h.iter().map(|&h| radius * acosh1p2_fast(h)).collect();
-                let mut jj: Vec<i64> = t.j.iter().map(|&j| j as i64).collect();
-                sort_pairs(&mut dd, &mut jj);
-                ib[r * k..(r + 1) * k].copy_from_slice(&jj[..k]);
-                db[r * k..(r + 1) * k].copy_from_slice(&dd[..k]);
-            }
-        });
+                    },
+                )
+            },
+        );
+        for (r, t) in tops.into_iter().enumerate() {
+            // Settle by (distance, index) over the k and their near-ties.
+            let mut dd: Vec<f64> = t.h.iter().map(|&h| radius * acosh1p2_fast(h)).collect();
+            let mut jj: Vec<i64> = t.j.iter().map(|&j| j as i64).collect();
+            sort_pairs(&mut dd, &mut jj);
+            ib[r * k..(r + 1) * k].copy_from_slice(&jj[..k]);
+            db[r * k..(r + 1) * k].copy_from_slice(&dd[..k]);
+        }
+    });
     Ok((idx, dist))
 }
 
 /// All rows of `y` within distance `r` of each row of `x` (inclusive), as a
 /// CSR triple `(indptr, indices, distances)`, each row sorted by (distance,
 /// index). With `exclude_self`, row `i` never lists itself.
-pub fn radius_neighbors(x: &Prepared, y: &Prepared, r: f64, exclude_self: bool) -> Result<(Vec<i64>, Vec<i64>, Vec<f64>)> {
+pub fn radius_neighbors(
+    x: &Prepared,
+    y: &Prepared,
+    r: f64,
+    exclude_self: bool,
+) -> Result<(Vec<i64>, Vec<i64>, Vec<f64>)> {
     check_pair(x, y, ("x", "y"))?;
     if !(r >= 0.0) {
         return value_err(format!("r must be a distance >= 0, got {r}"));
@@ -394,24 +442,35 @@ pub fn radius_neighbors(x: &Prepared, y: &Prepared, r: f64, exclude_self: bool) 
             let r0 = s * STRIP;
             let r1 = (r0 + STRIP).min(n);
             let mut rows: Vec<(Vec<i64>, Vec<f64>)> = (r0..r1).map(|_| (Vec::new(), Vec::new())).collect();
-            simd::dispatch(fast, #[inline(always)] || {
-                for_each_h(x, y, packed.as_ref(), r0..r1, #[inline(always)] |i, j0, hs, valid| {
-                    for (l, &h) in hs[..valid].iter().enumerate() {
-                        if h <= hr {
-                            let j = j0 + l;
-                            if exclude_self && j == i {
-                                continue;
+            simd::dispatch(
+                fast,
+                #[inline(always)]
+                || {
+                    for_each_h(
+                        x,
+                        y,
+                        packed.as_ref(),
+                        r0..r1,
+                        #[inline(always)]
+                        |i, j0, hs, valid| {
+                            for (l, &h) in hs[..valid].iter().enumerate() {
+                                if h <= hr {
+                                    let j = j0 + l;
+                                    if exclude_self && j == i {
+                                        continue;
+                                    }
+                                    let d = radius * acosh1p2_fast(h);
+                                    if d <= r {
+                                        let row = &mut rows[i - r0];
+                                        row.0.push(j as i64);
+                                        row.1.push(d);
+                                    }
+                                }
                             }
-                            let d = radius * acosh1p2_fast(h);
-                            if d <= r {
-                                let row = &mut rows[i - r0];
-                                row.0.push(j as i64);
-                                row.1.push(d);
-                            }
-                        }
-                    }
-                })
-            });
+                        },
+                    )
+                },
+            );
             for row in rows.iter_mut() {
                 sort_pairs(&mut row.1, &mut row.0);
             }

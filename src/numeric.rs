@@ -385,7 +385,7 @@ pub fn log1p_fast(u: f64) -> f64 {
     const LG7: f64 = 1.479819860511658591e-01;
     let w = 1.0 + u;
     let c = u - (w - 1.0); // exact rounding error of 1 + u
-    // Reduce w = 2^k m with m in [sqrt(2)/2, sqrt(2)).
+                           // Reduce w = 2^k m with m in [sqrt(2)/2, sqrt(2)).
     let ix = w.to_bits().wrapping_add(0x3ff0_0000_0000_0000 - 0x3fe6_a09e_667f_3bcd);
     let e = ix >> 52; // biased exponent: k = e - 1023
     let k = f64::from_bits(e | 0x4330_0000_0000_0000) - 4503599627370496.0 - 1023.0;
@@ -451,9 +451,10 @@ mod tests {
         // (x+y).(x-y) with x+y = (1e-13, -3e-14) (exact: Sterbenz)
         let d = diff_of_squares(&x, &y, 1.0);
         let s = [x[0] + y[0], x[1] + y[1]];
-        let m = DD::new(x[0], 0.0).sub(DD::new(y[0], 0.0)).mul_f64(s[0]).add(
-            DD::new(x[1], 0.0).sub(DD::new(y[1], 0.0)).mul_f64(s[1]),
-        );
+        let m = DD::new(x[0], 0.0)
+            .sub(DD::new(y[0], 0.0))
+            .mul_f64(s[0])
+            .add(DD::new(x[1], 0.0).sub(DD::new(y[1], 0.0)).mul_f64(s[1]));
         assert!(((d - m.value()) / d).abs() < 1e-15);
     }
 

@@ -12,8 +12,8 @@ use crate::ball::{check_finite, keep_inside, Curvature};
 use crate::batch::{finite_scalar, map_rows, map_rows_with, point_core, scalar_core, Data, Operand, Output};
 use crate::error::{Result, RowFault};
 use crate::numeric::{
-    artanh_from_gap, diff_of_squares, dist_sq, distance_from_half_delta, dot2, gap, gap_dd,
-    geodesic_weights, radial_scale_factor, sumsq,
+    artanh_from_gap, diff_of_squares, dist_sq, distance_from_half_delta, dot2, gap, gap_dd, geodesic_weights,
+    radial_scale_factor, sumsq,
 };
 
 /// `x ⊕ (sy y)` (Möbius addition; `sy = -1` gives `x ⊖ y`). Returns the gap
@@ -97,16 +97,7 @@ pub fn scale(c: &Curvature, r: f64, x: &[f64], out: &mut [f64]) {
 /// `B = kappa g_u (v.w) - kappa (s.w)`, `D = g_u g_v + kappa |s|^2`,
 /// which keeps its digits when `v ≈ -u` near the boundary.
 #[inline(always)]
-pub fn gyration_s(
-    c: &Curvature,
-    u: &[f64],
-    gu: f64,
-    v: &[f64],
-    gv: f64,
-    s: &[f64],
-    w: &[f64],
-    out: &mut [f64],
-) {
+pub fn gyration_s(c: &Curvature, u: &[f64], gu: f64, v: &[f64], gv: f64, s: &[f64], w: &[f64], out: &mut [f64]) {
     // The map is linear in w: work on w scaled by a power of two (exact) so
     // that intermediate products cannot overflow for |w| near f64::MAX or
     // lose digits to underflow for tiny w.
@@ -116,19 +107,23 @@ pub fn gyration_s(
     let ss = sumsq(s);
     let mut sw = 0.0;
     let mut vw = 0.0;
-    with_scratch(w.len(), #[inline(always)] |ws| {
-        for (o, &x) in ws.iter_mut().zip(w) {
-            *o = x * up;
-        }
-        sw = dot2(s, ws);
-        vw = dot2(v, ws);
-        let den = gu * gv + k * ss;
-        let cu = 2.0 * (k * gv * sw + k * k * ss * vw) / den;
-        let cs = 2.0 * (k * gu * vw - k * sw) / den;
-        for i in 0..w.len() {
-            out[i] = (ws[i] + (cu * u[i] + cs * s[i])) * down;
-        }
-    });
+    with_scratch(
+        w.len(),
+        #[inline(always)]
+        |ws| {
+            for (o, &x) in ws.iter_mut().zip(w) {
+                *o = x * up;
+            }
+            sw = dot2(s, ws);
+            vw = dot2(v, ws);
+            let den = gu * gv + k * ss;
+            let cu = 2.0 * (k * gv * sw + k * k * ss * vw) / den;
+            let cs = 2.0 * (k * gu * vw - k * sw) / den;
+            for i in 0..w.len() {
+                out[i] = (ws[i] + (cu * u[i] + cs * s[i])) * down;
+            }
+        },
+    );
 }
 
 /// The exponent `e` with `max |w_i| / 2^e` in [0.5, 1) when `w` is very
@@ -173,12 +168,16 @@ pub(crate) fn pow2(e: i32) -> f64 {
 /// `gyr[u, v] w` for points `u`, `v` with gaps `gu`, `gv`.
 #[inline(always)]
 pub fn gyration_g(c: &Curvature, u: &[f64], gu: f64, v: &[f64], gv: f64, w: &[f64], out: &mut [f64]) {
-    with_scratch(u.len(), #[inline(always)] |s| {
-        for i in 0..u.len() {
-            s[i] = u[i] + v[i];
-        }
-        gyration_s(c, u, gu, v, gv, s, w, out);
-    })
+    with_scratch(
+        u.len(),
+        #[inline(always)]
+        |s| {
+            for i in 0..u.len() {
+                s[i] = u[i] + v[i];
+            }
+            gyration_s(c, u, gu, v, gv, s, w, out);
+        },
+    )
 }
 
 /// The gyration `gyr[u, v] w = ⊖(u ⊕ v) ⊕ (u ⊕ (v ⊕ w))`, a rotation of
@@ -197,12 +196,16 @@ pub fn midpoint_g(c: &Curvature, a: &[f64], ga: f64, b: &[f64], gb: f64, out: &m
     let k = c.kappa;
     let ds = diff_of_squares(a, b, 1.0);
     let mut dab = 0.0;
-    with_scratch(a.len(), #[inline(always)] |t| {
-        for i in 0..a.len() {
-            t[i] = a[i] - b[i];
-        }
-        dab = sumsq(t);
-    });
+    with_scratch(
+        a.len(),
+        #[inline(always)]
+        |t| {
+            for i in 0..a.len() {
+                t[i] = a[i] - b[i];
+            }
+            dab = sumsq(t);
+        },
+    );
     let p = ga * gb;
     let e = ga + gb - p;
     let den = e + (p * (p + k * dab)).sqrt();
@@ -309,14 +312,18 @@ pub fn log_map_g(c: &Curvature, x: &[f64], gx: f64, y: &[f64], gy: f64, out: &mu
 #[inline(always)]
 pub fn transport_g(c: &Curvature, x: &[f64], gx: f64, y: &[f64], gy: f64, v: &[f64], out: &mut [f64]) {
     let n = x.len();
-    with_scratch(2 * n, #[inline(always)] |buf| {
-        let (nx, s) = buf.split_at_mut(n);
-        for i in 0..n {
-            nx[i] = -x[i];
-            s[i] = y[i] - x[i];
-        }
-        gyration_s(c, y, gy, nx, gx, s, v, out);
-    });
+    with_scratch(
+        2 * n,
+        #[inline(always)]
+        |buf| {
+            let (nx, s) = buf.split_at_mut(n);
+            for i in 0..n {
+                nx[i] = -x[i];
+                s[i] = y[i] - x[i];
+            }
+            gyration_s(c, y, gy, nx, gx, s, v, out);
+        },
+    );
     let r = gy / gx;
     out.iter_mut().for_each(|o| *o *= r);
 }
@@ -404,9 +411,7 @@ pub(crate) fn with_scratch<R>(n: usize, f: impl FnOnce(&mut [f64]) -> R) -> R {
 
 macro_rules! gap_of {
     ($c:expr, $row:expr, $arg:expr) => {
-        $crate::ball::checked_gap($c, $row)
-            .map_err(|f| $crate::error::RowFault::new($arg, f))?
-            .value()
+        $crate::ball::checked_gap($c, $row).map_err(|f| $crate::error::RowFault::new($arg, f))?.value()
     };
 }
 pub(crate) use gap_of;
@@ -420,13 +425,19 @@ macro_rules! ball_batched {
     () => {
         fn add_like<'a>(c: Curvature, x: Data<'a>, y: Data<'a>, sy: f64) -> Result<Output> {
             let ops = [Operand::point("x", x), Operand::point("y", y)];
-            map_rows(&ops, &point_core, 16, #[inline(always)] |r, out| {
-                let gx = gap_of!(&c, r[0], 0);
-                let gy = gap_of!(&c, r[1], 1);
-                add_g(&c, r[0], gx, r[1], gy, sy, out);
-                keep_inside(&c, out);
-                Ok(())
-            })
+            map_rows(
+                &ops,
+                &point_core,
+                16,
+                #[inline(always)]
+                |r, out| {
+                    let gx = gap_of!(&c, r[0], 0);
+                    let gy = gap_of!(&c, r[1], 1);
+                    add_g(&c, r[0], gx, r[1], gy, sy, out);
+                    keep_inside(&c, out);
+                    Ok(())
+                },
+            )
         }
 
         /// Batched `x ⊕ y` over broadcast leading axes.
@@ -442,48 +453,72 @@ macro_rules! ball_batched {
         /// Batched `r ⊗ x`; `r` broadcasts against the leading axes of `x`.
         pub fn scale_arrays<'a>(c: Curvature, r: Data<'a>, x: Data<'a>) -> Result<Output> {
             let ops = [Operand::scalar("r", r), Operand::point("x", x)];
-            map_rows(&ops, &point_core, 12, #[inline(always)] |rows, out| {
-                let r = finite_scalar(0, rows[0][0])?;
-                let gx = gap_of!(&c, rows[1], 1);
-                scale_g(&c, r, rows[1], gx, out);
-                keep_inside(&c, out);
-                Ok(())
-            })
+            map_rows(
+                &ops,
+                &point_core,
+                12,
+                #[inline(always)]
+                |rows, out| {
+                    let r = finite_scalar(0, rows[0][0])?;
+                    let gx = gap_of!(&c, rows[1], 1);
+                    scale_g(&c, r, rows[1], gx, out);
+                    keep_inside(&c, out);
+                    Ok(())
+                },
+            )
         }
 
         /// Batched `gyr[a, b] v`; `v` is any finite vector (gyrations are linear).
         pub fn gyration_arrays<'a>(c: Curvature, a: Data<'a>, b: Data<'a>, v: Data<'a>) -> Result<Output> {
             let ops = [Operand::point("a", a), Operand::point("b", b), Operand::point("v", v)];
-            map_rows(&ops, &point_core, 40, #[inline(always)] |r, out| {
-                let ga = gap_of!(&c, r[0], 0);
-                let gb = gap_of!(&c, r[1], 1);
-                check_finite(r[2]).map_err(|f| $crate::error::RowFault::new(2, f))?;
-                gyration_g(&c, r[0], ga, r[1], gb, r[2], out);
-                Ok(())
-            })
+            map_rows(
+                &ops,
+                &point_core,
+                40,
+                #[inline(always)]
+                |r, out| {
+                    let ga = gap_of!(&c, r[0], 0);
+                    let gb = gap_of!(&c, r[1], 1);
+                    check_finite(r[2]).map_err(|f| $crate::error::RowFault::new(2, f))?;
+                    gyration_g(&c, r[0], ga, r[1], gb, r[2], out);
+                    Ok(())
+                },
+            )
         }
 
         /// Batched midpoint of `x` and `y`.
         pub fn midpoint_arrays<'a>(c: Curvature, x: Data<'a>, y: Data<'a>) -> Result<Output> {
             let ops = [Operand::point("x", x), Operand::point("y", y)];
-            map_rows(&ops, &point_core, 30, #[inline(always)] |r, out| {
-                let gx = gap_of!(&c, r[0], 0);
-                let gy = gap_of!(&c, r[1], 1);
-                midpoint_g(&c, r[0], gx, r[1], gy, out);
-                keep_inside(&c, out);
-                Ok(())
-            })
+            map_rows(
+                &ops,
+                &point_core,
+                30,
+                #[inline(always)]
+                |r, out| {
+                    let gx = gap_of!(&c, r[0], 0);
+                    let gy = gap_of!(&c, r[1], 1);
+                    midpoint_g(&c, r[0], gx, r[1], gy, out);
+                    keep_inside(&c, out);
+                    Ok(())
+                },
+            )
         }
 
         /// Batched distance `(..., d), (..., d) -> (...)`.
         pub fn distance_arrays<'a>(c: Curvature, x: Data<'a>, y: Data<'a>) -> Result<Output> {
             let ops = [Operand::point("x", x), Operand::point("y", y)];
-            map_rows(&ops, &scalar_core, 16, #[inline(always)] |r, out| {
-                let gx = gap_of!(&c, r[0], 0);
-                let gy = gap_of!(&c, r[1], 1);
-                out[0] = distance_g(&c, r[0], gx, r[1], gy);
-                Ok(())
-            })
+            map_rows(
+                &ops,
+                &scalar_core,
+                16,
+                #[inline(always)]
+                |r, out| {
+                    let gx = gap_of!(&c, r[0], 0);
+                    let gy = gap_of!(&c, r[1], 1);
+                    out[0] = distance_g(&c, r[0], gx, r[1], gy);
+                    Ok(())
+                },
+            )
         }
 
         /// Batched exponential map; `base = None` is the origin.
@@ -491,22 +526,38 @@ macro_rules! ball_batched {
             match base {
                 None => {
                     let ops = [Operand::point("v", v)];
-                    map_rows(&ops, &point_core, 16, #[inline(always)] |r, out| {
-                        check_finite(r[0]).map_err(|f| $crate::error::RowFault::new(0, f))?;
-                        with_scratch(r[0].len(), #[inline(always)] |z| exp_map_g(&c, z, 1.0, r[0], out));
-                        keep_inside(&c, out);
-                        Ok(())
-                    })
+                    map_rows(
+                        &ops,
+                        &point_core,
+                        16,
+                        #[inline(always)]
+                        |r, out| {
+                            check_finite(r[0]).map_err(|f| $crate::error::RowFault::new(0, f))?;
+                            with_scratch(
+                                r[0].len(),
+                                #[inline(always)]
+                                |z| exp_map_g(&c, z, 1.0, r[0], out),
+                            );
+                            keep_inside(&c, out);
+                            Ok(())
+                        },
+                    )
                 }
                 Some(b) => {
                     let ops = [Operand::point("v", v), Operand::point("base", b)];
-                    map_rows(&ops, &point_core, 24, #[inline(always)] |r, out| {
-                        check_finite(r[0]).map_err(|f| $crate::error::RowFault::new(0, f))?;
-                        let gb = gap_of!(&c, r[1], 1);
-                        exp_map_g(&c, r[1], gb, r[0], out);
-                        keep_inside(&c, out);
-                        Ok(())
-                    })
+                    map_rows(
+                        &ops,
+                        &point_core,
+                        24,
+                        #[inline(always)]
+                        |r, out| {
+                            check_finite(r[0]).map_err(|f| $crate::error::RowFault::new(0, f))?;
+                            let gb = gap_of!(&c, r[1], 1);
+                            exp_map_g(&c, r[1], gb, r[0], out);
+                            keep_inside(&c, out);
+                            Ok(())
+                        },
+                    )
                 }
             }
         }
@@ -516,20 +567,36 @@ macro_rules! ball_batched {
             match base {
                 None => {
                     let ops = [Operand::point("y", y)];
-                    map_rows(&ops, &point_core, 16, #[inline(always)] |r, out| {
-                        let gy = gap_of!(&c, r[0], 0);
-                        with_scratch(r[0].len(), #[inline(always)] |z| log_map_g(&c, z, 1.0, r[0], gy, out));
-                        Ok(())
-                    })
+                    map_rows(
+                        &ops,
+                        &point_core,
+                        16,
+                        #[inline(always)]
+                        |r, out| {
+                            let gy = gap_of!(&c, r[0], 0);
+                            with_scratch(
+                                r[0].len(),
+                                #[inline(always)]
+                                |z| log_map_g(&c, z, 1.0, r[0], gy, out),
+                            );
+                            Ok(())
+                        },
+                    )
                 }
                 Some(b) => {
                     let ops = [Operand::point("y", y), Operand::point("base", b)];
-                    map_rows(&ops, &point_core, 24, #[inline(always)] |r, out| {
-                        let gy = gap_of!(&c, r[0], 0);
-                        let gb = gap_of!(&c, r[1], 1);
-                        log_map_g(&c, r[1], gb, r[0], gy, out);
-                        Ok(())
-                    })
+                    map_rows(
+                        &ops,
+                        &point_core,
+                        24,
+                        #[inline(always)]
+                        |r, out| {
+                            let gy = gap_of!(&c, r[0], 0);
+                            let gb = gap_of!(&c, r[1], 1);
+                            log_map_g(&c, r[1], gb, r[0], gy, out);
+                            Ok(())
+                        },
+                    )
                 }
             }
         }
@@ -537,26 +604,38 @@ macro_rules! ball_batched {
         /// Batched parallel transport of `v` from `start` to `end`.
         pub fn transport_arrays<'a>(c: Curvature, v: Data<'a>, start: Data<'a>, end: Data<'a>) -> Result<Output> {
             let ops = [Operand::point("v", v), Operand::point("start", start), Operand::point("end", end)];
-            map_rows(&ops, &point_core, 60, #[inline(always)] |r, out| {
-                check_finite(r[0]).map_err(|f| $crate::error::RowFault::new(0, f))?;
-                let gs = gap_of!(&c, r[1], 1);
-                let ge = gap_of!(&c, r[2], 2);
-                transport_g(&c, r[1], gs, r[2], ge, r[0], out);
-                Ok(())
-            })
+            map_rows(
+                &ops,
+                &point_core,
+                60,
+                #[inline(always)]
+                |r, out| {
+                    check_finite(r[0]).map_err(|f| $crate::error::RowFault::new(0, f))?;
+                    let gs = gap_of!(&c, r[1], 1);
+                    let ge = gap_of!(&c, r[2], 2);
+                    transport_g(&c, r[1], gs, r[2], ge, r[0], out);
+                    Ok(())
+                },
+            )
         }
 
         /// Batched geodesic interpolation; `t` broadcasts against the leading axes.
         pub fn geodesic_arrays<'a>(c: Curvature, x: Data<'a>, y: Data<'a>, t: Data<'a>) -> Result<Output> {
             let ops = [Operand::point("x", x), Operand::point("y", y), Operand::scalar("t", t)];
-            map_rows(&ops, &point_core, 30, #[inline(always)] |r, out| {
-                let gx = gap_of!(&c, r[0], 0);
-                let gy = gap_of!(&c, r[1], 1);
-                let t = finite_scalar(2, r[2][0])?;
-                geodesic_g(&c, r[0], gx, r[1], gy, t, out);
-                keep_inside(&c, out);
-                Ok(())
-            })
+            map_rows(
+                &ops,
+                &point_core,
+                30,
+                #[inline(always)]
+                |r, out| {
+                    let gx = gap_of!(&c, r[0], 0);
+                    let gy = gap_of!(&c, r[1], 1);
+                    let t = finite_scalar(2, r[2][0])?;
+                    geodesic_g(&c, r[0], gx, r[1], gy, t, out);
+                    keep_inside(&c, out);
+                    Ok(())
+                },
+            )
         }
     };
 }
@@ -567,13 +646,19 @@ ball_batched!();
 /// Batched `x ⊞ y`.
 pub fn coadd_arrays<'a>(c: Curvature, x: Data<'a>, y: Data<'a>) -> Result<Output> {
     let ops = [Operand::point("x", x), Operand::point("y", y)];
-    map_rows(&ops, &point_core, 30, #[inline(always)] |r, out| {
-        let gx = gap_of!(&c, r[0], 0);
-        let gy = gap_of!(&c, r[1], 1);
-        coadd_g(&c, r[0], gx, r[1], gy, out);
-        keep_inside(&c, out);
-        Ok(())
-    })
+    map_rows(
+        &ops,
+        &point_core,
+        30,
+        #[inline(always)]
+        |r, out| {
+            let gx = gap_of!(&c, r[0], 0);
+            let gy = gap_of!(&c, r[1], 1);
+            coadd_g(&c, r[0], gx, r[1], gy, out);
+            keep_inside(&c, out);
+            Ok(())
+        },
+    )
 }
 
 /// Checks a projection margin: finite, in (0, 1), and with `1 - margin < 1`.
@@ -593,11 +678,17 @@ pub fn project_arrays<'a>(c: Curvature, x: Data<'a>, margin: f64) -> Result<Outp
     // A float32 result must still be inside after rounding to float32.
     let margin = if x.is_f32() { margin.max(4.0 * f32::EPSILON as f64) } else { margin };
     let ops = [Operand::point("x", x)];
-    map_rows(&ops, &point_core, 8, #[inline(always)] |r, out| {
-        check_finite(r[0]).map_err(|f| RowFault::new(0, f))?;
-        project(&c, r[0], margin, out);
-        Ok(())
-    })
+    map_rows(
+        &ops,
+        &point_core,
+        8,
+        #[inline(always)]
+        |r, out| {
+            check_finite(r[0]).map_err(|f| RowFault::new(0, f))?;
+            project(&c, r[0], margin, out);
+            Ok(())
+        },
+    )
 }
 
 /// Batched Möbius matrix-vector product; `m` is `(d_out, d_in)`.
@@ -627,10 +718,17 @@ pub fn matvec_arrays<'a>(c: Curvature, m: Data<'a>, x: Data<'a>) -> Result<Outpu
     let ops = [Operand::point("x", x)];
     // The dtype policy counts m too: float32 only if m is float32 as well.
     let force_f64 = !m_f32 && !m.is_weak();
-    map_rows_with(&ops, &|_| vec![dout], 2 * dout + 10, force_f64, #[inline(always)] |r, out| {
-        let gx = gap_of!(&c, r[0], 0);
-        matvec_g(&c, &mm, r[0], gx, out);
-        keep_inside(&c, out);
-        Ok(())
-    })
+    map_rows_with(
+        &ops,
+        &|_| vec![dout],
+        2 * dout + 10,
+        force_f64,
+        #[inline(always)]
+        |r, out| {
+            let gx = gap_of!(&c, r[0], 0);
+            matvec_g(&c, &mm, r[0], gx, out);
+            keep_inside(&c, out);
+            Ok(())
+        },
+    )
 }

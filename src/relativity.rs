@@ -144,11 +144,7 @@ fn cross_scaled(a: &[f64], b: &[f64]) -> ([f64; 3], i32, i32) {
     let (fa, fb) = (pow2(-ea), pow2(-eb));
     let a = [a[0] * fa, a[1] * fa, a[2] * fa];
     let b = [b[0] * fb, b[1] * fb, b[2] * fb];
-    let x = [
-        minor(a[1], b[2], a[2], b[1]),
-        minor(a[2], b[0], a[0], b[2]),
-        minor(a[0], b[1], a[1], b[0]),
-    ];
+    let x = [minor(a[1], b[2], a[2], b[1]), minor(a[2], b[0], a[0], b[2]), minor(a[0], b[1], a[1], b[0])];
     (x, ea, eb)
 }
 
@@ -259,7 +255,13 @@ pub fn boost_s(l: &Light, vs: &[f64; 3], sv: Speed, out: &mut [f64]) {
 /// scaled units (multiplied by the same power of two). Fails only when the
 /// result overflows.
 #[inline(always)]
-pub fn thomas_precession_s(l: &Light, vs: &[f64; 3], sv: Speed, as_: &[f64; 3], out: &mut [f64]) -> std::result::Result<(), Fault> {
+pub fn thomas_precession_s(
+    l: &Light,
+    vs: &[f64; 3],
+    sv: Speed,
+    as_: &[f64; 3],
+    out: &mut [f64],
+) -> std::result::Result<(), Fault> {
     let r = sv.gap.sqrt();
     let f = l.ball.kappa / (r * (1.0 + r));
     let (x, ea, ev) = cross_scaled(as_, vs);
@@ -455,11 +457,17 @@ fn unary<'a>(
 ) -> Result<Output> {
     let ops = [Operand::point(name, v)];
     require3(&ops)?;
-    map_rows(&ops, out_core, work, #[inline(always)] |r, out| {
-        let (vs, s) = velocity!(l, r[0], 0);
-        kernel(&l, &vs, s, out);
-        Ok(())
-    })
+    map_rows(
+        &ops,
+        out_core,
+        work,
+        #[inline(always)]
+        |r, out| {
+            let (vs, s) = velocity!(l, r[0], 0);
+            kernel(&l, &vs, s, out);
+            Ok(())
+        },
+    )
 }
 
 fn binary<'a>(
@@ -472,50 +480,100 @@ fn binary<'a>(
 ) -> Result<Output> {
     let ops = [Operand::point("u", u), Operand::point("v", v)];
     require3(&ops)?;
-    map_rows(&ops, out_core, work, #[inline(always)] |r, out| {
-        let (us, su) = velocity!(l, r[0], 0);
-        let (vs, sv) = velocity!(l, r[1], 1);
-        kernel(&l, &us, su, &vs, sv, out);
-        Ok(())
-    })
+    map_rows(
+        &ops,
+        out_core,
+        work,
+        #[inline(always)]
+        |r, out| {
+            let (us, su) = velocity!(l, r[0], 0);
+            let (vs, sv) = velocity!(l, r[1], 1);
+            kernel(&l, &us, su, &vs, sv, out);
+            Ok(())
+        },
+    )
 }
 
 /// Batched Lorentz factor `(..., 3) -> (...)`.
 pub fn lorentz_factor_arrays<'a>(l: Light, v: Data<'a>) -> Result<Output> {
-    unary(l, "v", v, &scalar_core, 4, #[inline(always)] |_, _, s, out| out[0] = lorentz_factor_s(s))
+    unary(
+        l,
+        "v",
+        v,
+        &scalar_core,
+        4,
+        #[inline(always)]
+        |_, _, s, out| out[0] = lorentz_factor_s(s),
+    )
 }
 
 /// Batched `gamma - 1` `(..., 3) -> (...)`.
 pub fn gamma_minus_one_arrays<'a>(l: Light, v: Data<'a>) -> Result<Output> {
-    unary(l, "v", v, &scalar_core, 4, #[inline(always)] |_, _, s, out| out[0] = gamma_minus_one_s(s))
+    unary(
+        l,
+        "v",
+        v,
+        &scalar_core,
+        4,
+        #[inline(always)]
+        |_, _, s, out| out[0] = gamma_minus_one_s(s),
+    )
 }
 
 /// Batched Einstein velocity addition `u ⊕ v`.
 pub fn compose_arrays<'a>(l: Light, u: Data<'a>, v: Data<'a>) -> Result<Output> {
-    binary(l, u, v, &vec3, 16, #[inline(always)] |l, us, su, vs, sv, out| {
-        let mut o = [0.0; 3];
-        compose_s(l, us, su, vs, sv, &mut o);
-        l.store(&o, out);
-    })
+    binary(
+        l,
+        u,
+        v,
+        &vec3,
+        16,
+        #[inline(always)]
+        |l, us, su, vs, sv, out| {
+            let mut o = [0.0; 3];
+            compose_s(l, us, su, vs, sv, &mut o);
+            l.store(&o, out);
+        },
+    )
 }
 
 /// Batched Thomas rotation matrices `(..., 3, 3)`.
 pub fn thomas_rotation_arrays<'a>(l: Light, u: Data<'a>, v: Data<'a>) -> Result<Output> {
-    binary(l, u, v, &mat3, 120, #[inline(always)] |l, us, su, vs, sv, out| {
-        thomas_rotation_s(l, us, su, vs, sv, out)
-    })
+    binary(
+        l,
+        u,
+        v,
+        &mat3,
+        120,
+        #[inline(always)]
+        |l, us, su, vs, sv, out| thomas_rotation_s(l, us, su, vs, sv, out),
+    )
 }
 
 /// Batched Wigner rotation angle `(...)`.
 pub fn wigner_angle_arrays<'a>(l: Light, u: Data<'a>, v: Data<'a>) -> Result<Output> {
-    binary(l, u, v, &scalar_core, 30, #[inline(always)] |l, us, su, vs, sv, out| {
-        out[0] = wigner_angle_s(l, us, su, vs, sv)
-    })
+    binary(
+        l,
+        u,
+        v,
+        &scalar_core,
+        30,
+        #[inline(always)]
+        |l, us, su, vs, sv, out| out[0] = wigner_angle_s(l, us, su, vs, sv),
+    )
 }
 
 /// Batched Wigner rotation axis `(..., 3)`.
 pub fn wigner_axis_arrays<'a>(l: Light, u: Data<'a>, v: Data<'a>) -> Result<Output> {
-    binary(l, u, v, &vec3, 20, #[inline(always)] |_, us, _, vs, _, out| wigner_axis_s(us, vs, out))
+    binary(
+        l,
+        u,
+        v,
+        &vec3,
+        20,
+        #[inline(always)]
+        |_, us, _, vs, _, out| wigner_axis_s(us, vs, out),
+    )
 }
 
 /// Batched pure boost matrices `(..., 4, 4)`.
@@ -527,11 +585,17 @@ pub fn boost_arrays<'a>(l: Light, v: Data<'a>) -> Result<Output> {
 pub fn thomas_precession_arrays<'a>(l: Light, v: Data<'a>, a: Data<'a>) -> Result<Output> {
     let ops = [Operand::point("v", v), Operand::point("a", a)];
     require3(&ops)?;
-    map_rows(&ops, &vec3, 20, #[inline(always)] |r, out| {
-        let (vs, sv) = velocity!(l, r[0], 0);
-        crate::ball::check_finite(r[1]).map_err(|f| RowFault::new(1, f))?;
-        thomas_precession_s(&l, &vs, sv, &l.load(r[1]), out).map_err(|f| RowFault::new(1, f))
-    })
+    map_rows(
+        &ops,
+        &vec3,
+        20,
+        #[inline(always)]
+        |r, out| {
+            let (vs, sv) = velocity!(l, r[0], 0);
+            crate::ball::check_finite(r[1]).map_err(|f| RowFault::new(1, f))?;
+            thomas_precession_s(&l, &vs, sv, &l.load(r[1]), out).map_err(|f| RowFault::new(1, f))
+        },
+    )
 }
 
 /// Batched rapidity vectors `(..., 3) -> (..., 3)`.
@@ -543,13 +607,19 @@ pub fn rapidity_arrays<'a>(l: Light, v: Data<'a>) -> Result<Output> {
 pub fn velocity_from_rapidity_arrays<'a>(l: Light, w: Data<'a>) -> Result<Output> {
     let ops = [Operand::point("w", w)];
     require3(&ops)?;
-    map_rows(&ops, &vec3, 16, #[inline(always)] |r, out| {
-        crate::ball::check_finite(r[0]).map_err(|f| RowFault::new(0, f))?;
-        let mut o = [0.0; 3];
-        velocity_from_rapidity_s(&l, r[0], &mut o);
-        l.store(&o, out);
-        Ok(())
-    })
+    map_rows(
+        &ops,
+        &vec3,
+        16,
+        #[inline(always)]
+        |r, out| {
+            crate::ball::check_finite(r[0]).map_err(|f| RowFault::new(0, f))?;
+            let mut o = [0.0; 3];
+            velocity_from_rapidity_s(&l, r[0], &mut o);
+            l.store(&o, out);
+            Ok(())
+        },
+    )
 }
 
 /// Velocities to points of the Klein ball of curvature `ball`: `k = v R/c`.
@@ -558,12 +628,20 @@ pub fn velocity_from_rapidity_arrays<'a>(l: Light, w: Data<'a>) -> Result<Output
 pub fn to_klein_arrays<'a>(l: Light, ball: Curvature, v: Data<'a>) -> Result<Output> {
     // v R/c = vs R/cs: the power of two of c cancels against that of v.
     let f = ball.radius / l.cs;
-    unary(l, "v", v, &vec3, 8, #[inline(always)] move |_, vs, _, out| {
-        for i in 0..3 {
-            out[i] = f * vs[i];
-        }
-        keep_inside(&ball, out);
-    })
+    unary(
+        l,
+        "v",
+        v,
+        &vec3,
+        8,
+        #[inline(always)]
+        move |_, vs, _, out| {
+            for i in 0..3 {
+                out[i] = f * vs[i];
+            }
+            keep_inside(&ball, out);
+        },
+    )
 }
 
 /// Points of the Klein ball of curvature `ball` to velocities: `v = k c/R`,
@@ -573,13 +651,19 @@ pub fn from_klein_arrays<'a>(l: Light, ball: Curvature, k: Data<'a>) -> Result<O
     let f = l.cs * ball.sqrt_kappa;
     let ops = [Operand::point("k", k)];
     require3(&ops)?;
-    map_rows(&ops, &vec3, 8, #[inline(always)] |r, out| {
-        checked_gap(&ball, r[0]).map_err(|e| RowFault::new(0, e))?;
-        let mut o = [f * r[0][0], f * r[0][1], f * r[0][2]];
-        l.keep_below(&mut o);
-        l.store(&o, out);
-        Ok(())
-    })
+    map_rows(
+        &ops,
+        &vec3,
+        8,
+        #[inline(always)]
+        |r, out| {
+            checked_gap(&ball, r[0]).map_err(|e| RowFault::new(0, e))?;
+            let mut o = [f * r[0][0], f * r[0][1], f * r[0][2]];
+            l.keep_below(&mut o);
+            l.store(&o, out);
+            Ok(())
+        },
+    )
 }
 
 #[cfg(test)]
@@ -788,7 +872,13 @@ mod tests {
             for j in 0..4 {
                 assert_eq!(b[i][j], b[j][i]);
                 let eta: f64 = (0..4).map(|k| if k == 0 { b[k][i] * b[k][j] } else { -b[k][i] * b[k][j] }).sum();
-                let want = if i != j { 0.0 } else if i == 0 { 1.0 } else { -1.0 };
+                let want = if i != j {
+                    0.0
+                } else if i == 0 {
+                    1.0
+                } else {
+                    -1.0
+                };
                 assert!((eta - want).abs() < 1e-12 * b[0][0] * b[0][0]);
             }
         }
@@ -843,7 +933,9 @@ mod tests {
     fn bad_velocities_are_faults_not_panics() {
         let l = light();
         assert_eq!(lorentz_factor(&l, &[C, 0.0, 0.0]), Err(Fault::AtOrAboveLight(0.0)));
-        assert!(matches!(compose(&l, &[0.0; 3], &[0.0, 2.0 * C, 0.0]), Err(Fault::AtOrAboveLight(e)) if (e - 1.0).abs() < 1e-15));
+        assert!(
+            matches!(compose(&l, &[0.0; 3], &[0.0, 2.0 * C, 0.0]), Err(Fault::AtOrAboveLight(e)) if (e - 1.0).abs() < 1e-15)
+        );
         assert_eq!(boost(&l, &[f64::NAN, 0.0, 0.0]), Err(Fault::NonFinite));
         assert_eq!(rapidity(&l, &[1e300, 1e300, 0.0]).unwrap_err(), Fault::AtOrAboveLight(f64::INFINITY));
         // omega ~ a/c: 1e300 m/s^2 at c = 1e-10 is beyond float64.

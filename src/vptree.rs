@@ -360,7 +360,11 @@ impl Builder<'_> {
             nodes[0] = Node { start: base, end: base + c, outside: 0, bounds: [0.0; 4] };
             return;
         }
-        let v = simd::dispatch(self.fast, #[inline(always)] || choose_vantage(self.pts, base, perm));
+        let v = simd::dispatch(
+            self.fast,
+            #[inline(always)]
+            || choose_vantage(self.pts, base, perm),
+        );
         perm.swap(0, v);
         let vp = perm[0];
         let rest = &mut scratch[1..c];
@@ -368,11 +372,15 @@ impl Builder<'_> {
         // Split on h = sinh(d/2R)^2, which orders pairs like the distance
         // without a transcendental; the bounds below are what pruning relies
         // on, and they are taken as distances.
-        simd::dispatch(self.fast, #[inline(always)] || {
-            for (s, &j) in rest.iter_mut().zip(&perm[1..]) {
-                *s = (pts.half_delta(vp, pts, j), j);
-            }
-        });
+        simd::dispatch(
+            self.fast,
+            #[inline(always)]
+            || {
+                for (s, &j) in rest.iter_mut().zip(&perm[1..]) {
+                    *s = (pts.half_delta(vp, pts, j), j);
+                }
+            },
+        );
         let ins = (c - 1) / 2;
         if ins > 0 {
             // (h, index) is a total order: the split is one well-defined set
@@ -656,19 +664,23 @@ impl VpTree {
             .into_par_iter()
             .with_min_len(QUERY_CHUNK)
             .map(|i| {
-                simd::dispatch(fast, #[inline(always)] || {
-                    let mut ni = 0;
-                    loop {
-                        let node = self.nodes[ni];
-                        if node.is_leaf() {
-                            return (node.start, i);
+                simd::dispatch(
+                    fast,
+                    #[inline(always)]
+                    || {
+                        let mut ni = 0;
+                        loop {
+                            let node = self.nodes[ni];
+                            if node.is_leaf() {
+                                return (node.start, i);
+                            }
+                            let dq = self.dist_from_h(q, q.half_delta(i, pts, node.start));
+                            let b = node.bounds;
+                            let inside = lower_bound(dq, b[0], b[1]) <= lower_bound(dq, b[2], b[3]);
+                            ni = if inside { ni + 1 } else { node.outside };
                         }
-                        let dq = self.dist_from_h(q, q.half_delta(i, pts, node.start));
-                        let b = node.bounds;
-                        let inside = lower_bound(dq, b[0], b[1]) <= lower_bound(dq, b[2], b[3]);
-                        ni = if inside { ni + 1 } else { node.outside };
-                    }
-                })
+                    },
+                )
             })
             .collect();
         keys.par_sort_unstable();
@@ -709,12 +721,16 @@ impl VpTree {
             let mut best = Best::new(k);
             let mut stack = Vec::with_capacity(64);
             let mut out: Vec<(f64, usize)> = Vec::with_capacity(count * k);
-            simd::dispatch(fast, #[inline(always)] || {
-                for (i, skip) in queries {
-                    self.knn_one(q, i, skip, &mut best, &mut stack);
-                    out.extend(best.items.iter().map(|e| (e.0, e.1)));
-                }
-            });
+            simd::dispatch(
+                fast,
+                #[inline(always)]
+                || {
+                    for (i, skip) in queries {
+                        self.knn_one(q, i, skip, &mut best, &mut stack);
+                        out.extend(best.items.iter().map(|e| (e.0, e.1)));
+                    }
+                },
+            );
             out
         };
         self.run(y, k, chunk, |row_of, out| {
@@ -745,16 +761,20 @@ impl VpTree {
         let fast = simd::has_fma();
         let chunk = |q: &Prepared, queries: &mut dyn Iterator<Item = (usize, usize)>, _count: usize| {
             let mut stack = Vec::with_capacity(64);
-            simd::dispatch(fast, #[inline(always)] || {
-                queries
-                    .map(|(i, skip)| {
-                        let mut out = Vec::new();
-                        self.radius_one(q, i, skip, (r, h_r), &mut out, &mut stack);
-                        out.sort_unstable_by(key_cmp);
-                        out
-                    })
-                    .collect::<Vec<_>>()
-            })
+            simd::dispatch(
+                fast,
+                #[inline(always)]
+                || {
+                    queries
+                        .map(|(i, skip)| {
+                            let mut out = Vec::new();
+                            self.radius_one(q, i, skip, (r, h_r), &mut out, &mut stack);
+                            out.sort_unstable_by(key_cmp);
+                            out
+                        })
+                        .collect::<Vec<_>>()
+                },
+            )
         };
         let mut rows: Vec<Vec<(f64, usize)>> = vec![Vec::new(); m];
         self.run(y, 1, chunk, |row_of, res| {
@@ -796,11 +816,15 @@ impl VpTree {
         if n > 0 {
             out.par_chunks_mut(n).enumerate().for_each(|(i, row)| {
                 let qi = if y.is_some() { i } else { inv[i] };
-                simd::dispatch(fast, #[inline(always)] || {
-                    for pos in 0..n {
-                        row[self.perm[pos]] = q.distance(qi, pts, pos);
-                    }
-                });
+                simd::dispatch(
+                    fast,
+                    #[inline(always)]
+                    || {
+                        for pos in 0..n {
+                            row[self.perm[pos]] = q.distance(qi, pts, pos);
+                        }
+                    },
+                );
             });
         }
         Ok(out)
@@ -1176,4 +1200,3 @@ mod tests {
         assert_eq!(t.query_radius(Some(&q), 1.0).unwrap().indptr, vec![0]);
     }
 }
-

@@ -32,10 +32,7 @@ const TOL: f64 = 1e-10;
 const TOL_ISO: f64 = 1e-12;
 
 fn config() -> ProptestConfig {
-    let cases = std::env::var("GYROKIT_PROPTEST_CASES")
-        .ok()
-        .and_then(|s| s.trim().parse::<u32>().ok())
-        .unwrap_or(256);
+    let cases = std::env::var("GYROKIT_PROPTEST_CASES").ok().and_then(|s| s.trim().parse::<u32>().ok()).unwrap_or(256);
     ProptestConfig {
         cases,
         // No regression files: this suite must not write into the source tree.
@@ -77,11 +74,7 @@ fn zeros(d: usize) -> Vec<f64> {
 /// `got` and `want` agree to `tol * scale` in every coordinate; the failure
 /// message reports both vectors.
 fn close(what: &str, got: &[f64], want: &[f64], tol: f64, scale: f64) -> Res {
-    let err = got
-        .iter()
-        .zip(want)
-        .map(|(a, b)| (a - b).abs())
-        .fold(0.0, f64::max);
+    let err = got.iter().zip(want).map(|(a, b)| (a - b).abs()).fold(0.0, f64::max);
     if got.len() == want.len() && err <= tol * scale {
         Ok(())
     } else {
@@ -192,20 +185,16 @@ fn curvature_k() -> impl Strategy<Value = f64> {
 /// A point of the unit ball: random direction (normalised cube sample) times
 /// a radius fraction in [0, max_frac], occasionally exactly the origin.
 fn unit_ball_point(d: usize, max_frac: f64) -> impl Strategy<Value = Vec<f64>> {
-    (
-        pvec(-1.0..1.0f64, d),
-        prop_oneof![1 => Just(0.0), 30 => 0.0..=max_frac],
-    )
-        .prop_map(move |(v, f)| {
-            let n = norm(&v);
-            if n < 1e-3 {
-                let mut e = zeros(v.len());
-                e[0] = f;
-                e
-            } else {
-                vmul(f / n, &v)
-            }
-        })
+    (pvec(-1.0..1.0f64, d), prop_oneof![1 => Just(0.0), 30 => 0.0..=max_frac]).prop_map(move |(v, f)| {
+        let n = norm(&v);
+        if n < 1e-3 {
+            let mut e = zeros(v.len());
+            e[0] = f;
+            e
+        } else {
+            vmul(f / n, &v)
+        }
+    })
 }
 
 fn cases(np: usize, nw: usize, nr: usize) -> impl Strategy<Value = Case> {
@@ -244,36 +233,12 @@ fn prop_identity(m: &Model, cs: &Case) -> Res {
 fn prop_inverse(m: &Model, cs: &Case) -> Res {
     let (c, a, b) = (&cs.c, &cs.p[0], &cs.p[1]);
     let (r, z) = (c.radius, zeros(cs.d));
-    close(
-        &format!("{} (-a)⊕a", m.name),
-        &m.add(c, &neg(a), a),
-        &z,
-        TOL,
-        r,
-    )?;
+    close(&format!("{} (-a)⊕a", m.name), &m.add(c, &neg(a), a), &z, TOL, r)?;
     close(&format!("{} a⊖a", m.name), &m.sub(c, a, a), &z, TOL, r)?;
-    close(
-        &format!("{} 0⊖a", m.name),
-        &m.sub(c, &z, a),
-        &neg(a),
-        TOL,
-        r,
-    )?;
-    close(
-        &format!("{} a⊖b vs a⊕(-b)", m.name),
-        &m.sub(c, a, b),
-        &m.add(c, a, &neg(b)),
-        TOL,
-        r,
-    )?;
+    close(&format!("{} 0⊖a", m.name), &m.sub(c, &z, a), &neg(a), TOL, r)?;
+    close(&format!("{} a⊖b vs a⊕(-b)", m.name), &m.sub(c, a, b), &m.add(c, a, &neg(b)), TOL, r)?;
     let ab = m.add(c, a, b);
-    close(
-        &format!("{} ⊖a⊕(a⊕b)", m.name),
-        &m.add(c, &neg(a), &ab),
-        b,
-        TOL,
-        r,
-    )
+    close(&format!("{} ⊖a⊕(a⊕b)", m.name), &m.add(c, &neg(a), &ab), b, TOL, r)
 }
 
 /// Ungar (2005), (G4) left gyroassociative law
@@ -284,22 +249,10 @@ fn prop_gyroassociative(m: &Model, cs: &Case) -> Res {
     let r = c.radius;
     let lhs = m.add(c, a, &m.add(c, b, x));
     let rhs = m.add(c, &m.add(c, a, b), &m.gyr(c, a, b, x));
-    close(
-        &format!("{} left gyroassociativity", m.name),
-        &lhs,
-        &rhs,
-        TOL,
-        r,
-    )?;
+    close(&format!("{} left gyroassociativity", m.name), &lhs, &rhs, TOL, r)?;
     let lhs = m.add(c, &m.add(c, a, b), x);
     let rhs = m.add(c, a, &m.add(c, b, &m.gyr(c, b, a, x)));
-    close(
-        &format!("{} right gyroassociativity", m.name),
-        &lhs,
-        &rhs,
-        TOL,
-        r,
-    )
+    close(&format!("{} right gyroassociativity", m.name), &lhs, &rhs, TOL, r)
 }
 
 /// Ungar (2005), (G5 context) gyrations are automorphisms of (G, ⊕):
@@ -319,36 +272,12 @@ fn prop_gyration_automorphism(m: &Model, cs: &Case) -> Res {
     let g1 = m.gyr(c, a, b, w1);
     let n0 = norm(w0).max(1e-300);
     let n1 = norm(w1).max(1e-300);
-    close1(
-        &format!("{} |gyr w| = |w|", m.name),
-        norm(&g0),
-        norm(w0),
-        TOL_ISO,
-        n0,
-    )?;
-    close1(
-        &format!("{} <gyr w0, gyr w1>", m.name),
-        dot(&g0, &g1),
-        dot(w0, w1),
-        TOL_ISO,
-        n0 * n1,
-    )?;
+    close1(&format!("{} |gyr w| = |w|", m.name), norm(&g0), norm(w0), TOL_ISO, n0)?;
+    close1(&format!("{} <gyr w0, gyr w1>", m.name), dot(&g0, &g1), dot(w0, w1), TOL_ISO, n0 * n1)?;
     let lin = m.gyr(c, a, b, &vadd(&vmul(s, w0), w1));
-    close(
-        &format!("{} gyr linear", m.name),
-        &lin,
-        &vadd(&vmul(s, &g0), &g1),
-        TOL_ISO,
-        3.0 * n0 + n1,
-    )?;
+    close(&format!("{} gyr linear", m.name), &lin, &vadd(&vmul(s, &g0), &g1), TOL_ISO, 3.0 * n0 + n1)?;
     let back = m.gyr(c, b, a, &g0);
-    close(
-        &format!("{} gyr[b,a]gyr[a,b]w = w", m.name),
-        &back,
-        w0,
-        TOL_ISO,
-        n0,
-    )
+    close(&format!("{} gyr[b,a]gyr[a,b]w = w", m.name), &back, w0, TOL_ISO, n0)
 }
 
 /// Ungar (2005), (G5) left loop property gyr[a,b] = gyr[a ⊕ b, b] and the
@@ -369,13 +298,7 @@ fn prop_gyrocommutative(m: &Model, cs: &Case) -> Res {
     let (c, a, b) = (&cs.c, &cs.p[0], &cs.p[1]);
     let lhs = m.add(c, a, b);
     let rhs = m.gyr(c, a, b, &m.add(c, b, a));
-    close(
-        &format!("{} gyrocommutativity", m.name),
-        &lhs,
-        &rhs,
-        TOL,
-        c.radius,
-    )
+    close(&format!("{} gyrocommutativity", m.name), &lhs, &rhs, TOL, c.radius)
 }
 
 /// Ungar (2005), the gyrator identity (definition of gyrations in a left
@@ -384,13 +307,7 @@ fn prop_gyration_definition(m: &Model, cs: &Case) -> Res {
     let (c, a, b, w) = (&cs.c, &cs.p[0], &cs.p[1], &cs.p[2]);
     let lhs = m.gyr(c, a, b, w);
     let rhs = m.add(c, &neg(&m.add(c, a, b)), &m.add(c, a, &m.add(c, b, w)));
-    close(
-        &format!("{} gyrator identity", m.name),
-        &lhs,
-        &rhs,
-        TOL,
-        c.radius,
-    )
+    close(&format!("{} gyrator identity", m.name), &lhs, &rhs, TOL, c.radius)
 }
 
 /// Ungar (2005), scalar multiplication in a gyrovector space:
@@ -405,60 +322,20 @@ fn prop_scalar(m: &Model, cs: &Case) -> Res {
     close(&format!("{} 1⊗x", m.name), &m.scale(c, 1.0, x), x, TOL, rad)?;
     for n in 2..=5 {
         acc = m.add(c, &acc, x);
-        close(
-            &format!("{} {n}⊗x vs x⊕..⊕x", m.name),
-            &m.scale(c, n as f64, x),
-            &acc,
-            TOL,
-            rad,
-        )?;
+        close(&format!("{} {n}⊗x vs x⊕..⊕x", m.name), &m.scale(c, n as f64, x), &acc, TOL, rad)?;
     }
-    close(
-        &format!("{} (-1)⊗x", m.name),
-        &m.scale(c, -1.0, x),
-        &neg(x),
-        TOL,
-        rad,
-    )?;
-    close(
-        &format!("{} 0⊗x", m.name),
-        &m.scale(c, 0.0, x),
-        &zeros(cs.d),
-        TOL,
-        rad,
-    )?;
+    close(&format!("{} (-1)⊗x", m.name), &m.scale(c, -1.0, x), &neg(x), TOL, rad)?;
+    close(&format!("{} 0⊗x", m.name), &m.scale(c, 0.0, x), &zeros(cs.d), TOL, rad)?;
     let lhs = m.scale(c, r1 + r2, x);
     let rhs = m.add(c, &m.scale(c, r1, x), &m.scale(c, r2, x));
-    close(
-        &format!("{} scalar distributive, r1={r1}, r2={r2}", m.name),
-        &lhs,
-        &rhs,
-        TOL,
-        rad,
-    )?;
+    close(&format!("{} scalar distributive, r1={r1}, r2={r2}", m.name), &lhs, &rhs, TOL, rad)?;
     let lhs = m.scale(c, r1, &m.scale(c, r2, x));
     let rhs = m.scale(c, r1 * r2, x);
-    close(
-        &format!("{} scalar associative, r1={r1}, r2={r2}", m.name),
-        &lhs,
-        &rhs,
-        TOL,
-        rad,
-    )?;
+    close(&format!("{} scalar associative, r1={r1}, r2={r2}", m.name), &lhs, &rhs, TOL, rad)?;
     // The closed form, evaluated independently with std's atanh/tanh.
     let nx = norm(x);
-    let want = if nx == 0.0 {
-        zeros(cs.d)
-    } else {
-        vmul(rad * (r1 * (nx / rad).atanh()).tanh() / nx, x)
-    };
-    close(
-        &format!("{} scalar law r={r1}", m.name),
-        &m.scale(c, r1, x),
-        &want,
-        TOL,
-        rad,
-    )
+    let want = if nx == 0.0 { zeros(cs.d) } else { vmul(rad * (r1 * (nx / rad).atanh()).tanh() / nx, x) };
+    close(&format!("{} scalar law r={r1}", m.name), &m.scale(c, r1, x), &want, TOL, rad)
 }
 
 /// Ungar (2005), the gyromidpoint m = a ⊕ ½ ⊗ (⊖a ⊕ b); it is the point of
@@ -471,22 +348,10 @@ fn prop_midpoint(m: &Model, cs: &Case) -> Res {
     let mid = m.mid(c, a, b);
     let ua = m.add(c, &neg(&mid), a);
     let ub = m.add(c, &neg(&mid), b);
-    close(
-        &format!("{} ⊖m⊕a = -(⊖m⊕b)", m.name),
-        &ua,
-        &neg(&ub),
-        TOL,
-        r,
-    )?;
+    close(&format!("{} ⊖m⊕a = -(⊖m⊕b)", m.name), &ua, &neg(&ub), TOL, r)?;
     let want = m.add(c, a, &m.scale(c, 0.5, &m.add(c, &neg(a), b)));
     close(&format!("{} m = a⊕½⊗(⊖a⊕b)", m.name), &mid, &want, TOL, r)?;
-    close(
-        &format!("{} m(a,b) = m(b,a)", m.name),
-        &mid,
-        &m.mid(c, b, a),
-        TOL,
-        r,
-    )
+    close(&format!("{} m(a,b) = m(b,a)", m.name), &mid, &m.mid(c, b, a), TOL, r)
 }
 
 macro_rules! model_properties {
@@ -660,20 +525,8 @@ fn mobius_addition_is_the_disk_transformation() {
     let c1 = Curvature::new(-1.0).unwrap();
     // Hand-computed values: 0.5 ⊕ 0.5 = 1/1.25 = 0.8 (tanh addition), and
     // (0.5 + 0i) ⊕ (0 + 0.5i) = (0.5 + 0.5i)(1 - 0.25i)/1.0625 = (10 + 6i)/17.
-    check(close(
-        "0.5⊕0.5",
-        &MOBIUS.add(&c1, &[0.5, 0.0], &[0.5, 0.0]),
-        &[0.8, 0.0],
-        1e-15,
-        1.0,
-    ));
-    check(close(
-        "(0.5,0)⊕(0,0.5)",
-        &MOBIUS.add(&c1, &[0.5, 0.0], &[0.0, 0.5]),
-        &[10.0 / 17.0, 6.0 / 17.0],
-        1e-15,
-        1.0,
-    ));
+    check(close("0.5⊕0.5", &MOBIUS.add(&c1, &[0.5, 0.0], &[0.5, 0.0]), &[0.8, 0.0], 1e-15, 1.0));
+    check(close("(0.5,0)⊕(0,0.5)", &MOBIUS.add(&c1, &[0.5, 0.0], &[0.0, 0.5]), &[10.0 / 17.0, 6.0 / 17.0], 1e-15, 1.0));
     let mut rng = Rng(0x5eed_0001);
     for &k in &[-1.0, -0.3, -4.0, -7.5] {
         let c = Curvature::new(k).unwrap();
@@ -705,13 +558,7 @@ fn mobius_addition_is_the_disk_transformation() {
 #[test]
 fn einstein_collinear_addition_is_velocity_addition() {
     let c1 = Curvature::new(-1.0).unwrap();
-    check(close(
-        "0.5⊕0.5",
-        &EINSTEIN.add(&c1, &[0.5], &[0.5]),
-        &[0.8],
-        1e-15,
-        1.0,
-    ));
+    check(close("0.5⊕0.5", &EINSTEIN.add(&c1, &[0.5], &[0.5]), &[0.8], 1e-15, 1.0));
     check(close(
         "(0.5,0)⊕(0,0.5)",
         &EINSTEIN.add(&c1, &[0.5, 0.0], &[0.0, 0.5]),
@@ -737,13 +584,7 @@ fn einstein_collinear_addition_is_velocity_addition() {
                 let v = if i % 4 < 2 { -u.signum() } else { u.signum() } * rng.range(0.0, 0.95) * r;
                 let want = (u + v) / (1.0 + u * v / (r * r));
                 let got = EINSTEIN.add(&c, &vmul(u, &dir), &vmul(v, &dir));
-                check(close(
-                    &format!("collinear K={k}, d={d}, u={u}, v={v}"),
-                    &got,
-                    &vmul(want, &dir),
-                    tol,
-                    r,
-                ));
+                check(close(&format!("collinear K={k}, d={d}, u={u}, v={v}"), &got, &vmul(want, &dir), tol, r));
             }
         }
     }
@@ -826,9 +667,7 @@ fn axioms_in_higher_dimensions() {
                     c,
                     d,
                     p: (0..4).map(|_| rng.point(&c, d, 0.9)).collect(),
-                    w: (0..2)
-                        .map(|_| (0..d).map(|_| rng.range(-3.0, 3.0)).collect())
-                        .collect(),
+                    w: (0..2).map(|_| (0..d).map(|_| rng.range(-3.0, 3.0)).collect()).collect(),
                     r: (0..2).map(|_| rng.range(-2.0, 2.0)).collect(),
                 };
                 for m in [MOBIUS, EINSTEIN] {
@@ -1050,8 +889,7 @@ fn near_boundary_subtraction_nd_matches_distance_formula() {
 
                     let a = 0.5 * (gx + gy) + 0.5 * kd2;
                     let gd = ref_gap_diff(kap, &x, &y);
-                    let want_e =
-                        (0.25 * gd * gd + 0.5 * (gx + gy) * kd2 + 0.25 * kd2 * kd2) / (a * a);
+                    let want_e = (0.25 * gd * gd + 0.5 * (gx + gy) * kd2 + 0.25 * kd2 * kd2) / (a * a);
                     let got_e = EINSTEIN.sub(&c, &x, &y);
                     let got_e2 = kap * dot(&got_e, &got_e);
                     assert!(
@@ -1063,47 +901,25 @@ fn near_boundary_subtraction_nd_matches_distance_formula() {
                     let yp = neg(&y);
                     let (xy, xx, yy) = (dot(&x, &yp), dot(&x, &x), dot(&yp, &yp));
                     let nden = 1.0 + 2.0 * kap * xy + kap * kap * xx * yy;
-                    let naive = vmul(
-                        1.0 / nden,
-                        &vadd(
-                            &vmul(1.0 + 2.0 * kap * xy + kap * yy, &x),
-                            &vmul(1.0 - kap * xx, &yp),
-                        ),
-                    );
+                    let naive =
+                        vmul(1.0 / nden, &vadd(&vmul(1.0 + 2.0 * kap * xy + kap * yy, &x), &vmul(1.0 - kap * xx, &yp)));
                     let nv = kap * dot(&naive, &naive);
-                    naive_worst = naive_worst.max(if nv.is_finite() {
-                        rel(nv, want_m)
-                    } else {
-                        f64::INFINITY
-                    });
+                    naive_worst = naive_worst.max(if nv.is_finite() { rel(nv, want_m) } else { f64::INFINITY });
 
                     // Textbook Einstein x ⊕ (-y).
                     let gu = 1.0 / (1.0 - kap * xx).sqrt();
-                    let num = vadd(
-                        &vadd(&x, &vmul(1.0 / gu, &yp)),
-                        &vmul(kap * gu / (1.0 + gu) * xy, &x),
-                    );
+                    let num = vadd(&vadd(&x, &vmul(1.0 / gu, &yp)), &vmul(kap * gu / (1.0 + gu) * xy, &x));
                     let naive = vmul(1.0 / (1.0 + kap * xy), &num);
                     let nv = kap * dot(&naive, &naive);
-                    naive_worst_e = naive_worst_e.max(if nv.is_finite() {
-                        rel(nv, want_e)
-                    } else {
-                        f64::INFINITY
-                    });
+                    naive_worst_e = naive_worst_e.max(if nv.is_finite() { rel(nv, want_e) } else { f64::INFINITY });
                     checked += 1;
                 }
             }
         }
     }
     assert!(checked >= 400, "only {checked} cases were inside the ball");
-    assert!(
-        naive_worst > 1e-6,
-        "textbook Möbius worst relative error only {naive_worst:e}"
-    );
-    assert!(
-        naive_worst_e > 1e-6,
-        "textbook Einstein worst relative error only {naive_worst_e:e}"
-    );
+    assert!(naive_worst > 1e-6, "textbook Möbius worst relative error only {naive_worst:e}");
+    assert!(naive_worst_e > 1e-6, "textbook Einstein worst relative error only {naive_worst_e:e}");
 }
 
 /// 1-D midpoint near the boundary, both models, K = -1. In 1-D both

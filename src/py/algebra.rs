@@ -9,12 +9,7 @@ macro_rules! binary_fn {
     ($pyname:ident, $core:path, $a:literal, $b:literal) => {
         #[pyfunction]
         #[pyo3(signature = (x, y, curvature = -1.0))]
-        fn $pyname(
-            py: Python<'_>,
-            x: &Bound<'_, PyAny>,
-            y: &Bound<'_, PyAny>,
-            curvature: f64,
-        ) -> PyResult<Py<PyAny>> {
+        fn $pyname(py: Python<'_>, x: &Bound<'_, PyAny>, y: &Bound<'_, PyAny>, curvature: f64) -> PyResult<Py<PyAny>> {
             binary(py, [$a, $b], x, y, curvature, $core)
         }
     };

@@ -42,9 +42,9 @@ fn labels_arg(py: Python<'_>, l: Option<&Bound<'_, PyAny>>) -> PyResult<Option<V
                 )));
             }
             let arr = arr.call_method1("astype", ("int64",))?;
-            let a: PyReadonlyArray1<'_, i64> = arr.extract().map_err(|_| {
-                PyValueError::new_err("labels must be a 1-D integer array (one label per point)")
-            })?;
+            let a: PyReadonlyArray1<'_, i64> = arr
+                .extract()
+                .map_err(|_| PyValueError::new_err("labels must be a 1-D integer array (one label per point)"))?;
             Ok(Some(a.as_array().iter().copied().collect()))
         }
         _ => Ok(None),
@@ -99,7 +99,8 @@ fn einstein_midpoint(
     let w = weights_arg(py, weights)?;
     let l = labels_arg(py, labels)?;
     let xd = xa.data();
-    let (keys, mean, width) = py.detach(move || centroids::einstein_midpoint(md, k, &xd, w.as_deref(), l.as_deref()))?;
+    let (keys, mean, width) =
+        py.detach(move || centroids::einstein_midpoint(md, k, &xd, w.as_deref(), l.as_deref()))?;
     let g = keys.len();
     let mean = ndarray::Array2::from_shape_vec((g, width), mean).expect("shape").into_pyarray(py);
     Ok((mean.into_any().unbind(), keys.into_pyarray(py).into_any().unbind()))

@@ -52,9 +52,9 @@ pub fn coerce<'py>(py: Python<'py>, name: &str, ob: &Bound<'py, PyAny>) -> PyRes
     // Only exact Python floats and ints are weak: NumPy scalars such as
     // np.float64(2.0) (a float subclass) keep their dtype, as in NEP 50.
     let weak = ob.is_exact_instance_of::<PyFloat>() || ob.is_exact_instance_of::<PyInt>();
-    let arr = asarray(py)?.call1((ob,)).map_err(|e| {
-        PyTypeError::new_err(format!("{name} must be an array of real numbers: {e}"))
-    })?;
+    let arr = asarray(py)?
+        .call1((ob,))
+        .map_err(|e| PyTypeError::new_err(format!("{name} must be an array of real numbers: {e}")))?;
     let dtype = arr.getattr("dtype")?;
     let kind: String = dtype.getattr("kind")?.extract()?;
     let itemsize: usize = dtype.getattr("itemsize")?.extract()?;
@@ -87,7 +87,6 @@ pub fn coerce<'py>(py: Python<'py>, name: &str, ob: &Bound<'py, PyAny>) -> PyRes
     let a = arr.cast::<PyArrayDyn<f64>>()?.clone();
     Ok(Arg { held: Held::F64(a.try_readonly()?), weak })
 }
-
 
 /// [`coerce`] for an optional argument: `None` (absent or Python `None`)
 /// stays `None`.

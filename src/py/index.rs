@@ -95,12 +95,7 @@ impl PyVpTree {
 
     /// `(indices (m, k) int64, distances (m, k) float64)`.
     #[pyo3(signature = (y = None, k = 10))]
-    fn query<'py>(
-        &self,
-        py: Python<'py>,
-        y: Option<&Bound<'py, PyAny>>,
-        k: i64,
-    ) -> PyResult<Knn<'py>> {
+    fn query<'py>(&self, py: Python<'py>, y: Option<&Bound<'py, PyAny>>, k: i64) -> PyResult<Knn<'py>> {
         let k = positive("k", k)?;
         let (m, idx, dist) = self.with_queries(py, y, move |t, q| {
             let m = q.map_or(t.n(), |q| q.n);
@@ -112,12 +107,7 @@ impl PyVpTree {
 
     /// `(indptr (m + 1,) int64, indices int64, distances float64)`.
     #[pyo3(signature = (y, r))]
-    fn query_radius<'py>(
-        &self,
-        py: Python<'py>,
-        y: Option<&Bound<'py, PyAny>>,
-        r: f64,
-    ) -> PyResult<CsrArrays<'py>> {
+    fn query_radius<'py>(&self, py: Python<'py>, y: Option<&Bound<'py, PyAny>>, r: f64) -> PyResult<CsrArrays<'py>> {
         let csr = self.with_queries(py, y, move |t, q| t.query_radius(q, r))?;
         Ok((csr.indptr.into_pyarray(py), csr.indices.into_pyarray(py), csr.distances.into_pyarray(py)))
     }

@@ -53,12 +53,14 @@ fn distance_matrix<'py>(
         Some(o) if !o.is_none() => {
             if let Ok(arr) = o.cast::<PyArray2<f64>>() {
                 check_out(arr.shape(), arr.is_c_contiguous(), n, m)?;
-                let mut rw = arr.try_readwrite().map_err(|e| PyValueError::new_err(format!("out is not writeable: {e}")))?;
+                let mut rw =
+                    arr.try_readwrite().map_err(|e| PyValueError::new_err(format!("out is not writeable: {e}")))?;
                 let sl = rw.as_slice_mut().map_err(|_| PyValueError::new_err("out must be C-contiguous"))?;
                 py.detach(|| neighbors::distance_matrix_into(&px, pyo.as_ref().unwrap_or(&px), sl))?;
             } else if let Ok(arr) = o.cast::<PyArray2<f32>>() {
                 check_out(arr.shape(), arr.is_c_contiguous(), n, m)?;
-                let mut rw = arr.try_readwrite().map_err(|e| PyValueError::new_err(format!("out is not writeable: {e}")))?;
+                let mut rw =
+                    arr.try_readwrite().map_err(|e| PyValueError::new_err(format!("out is not writeable: {e}")))?;
                 let sl = rw.as_slice_mut().map_err(|_| PyValueError::new_err("out must be C-contiguous"))?;
                 py.detach(|| neighbors::distance_matrix_into(&px, pyo.as_ref().unwrap_or(&px), sl))?;
             } else {
@@ -131,9 +133,7 @@ fn condensed_distances(py: Python<'_>, x: &Bound<'_, PyAny>, model: &str, curvat
 }
 
 fn k_arg(k: &Bound<'_, PyAny>) -> PyResult<usize> {
-    let v: i64 = k
-        .extract()
-        .map_err(|_| PyTypeError::new_err("k must be an integer"))?;
+    let v: i64 = k.extract().map_err(|_| PyTypeError::new_err("k must be an integer"))?;
     if v < 1 {
         return Err(PyValueError::new_err(format!("k must be at least 1, got {v}")));
     }
