@@ -397,9 +397,9 @@ where
     assert!(ops.len() <= 8, "at most 8 operands");
     if n > 0 && out_len > 0 {
         let rows_per = chunk_rows(n, work_per_row.max(1) * lay.d.max(1));
-        let fast = crate::simd::has_fma();
+        let fast = crate::numeric::simd::has_fma();
         let run = |start: usize, block: &mut [f64]| {
-            merge(crate::simd::dispatch(
+            merge(crate::numeric::simd::dispatch(
                 fast,
                 #[inline(always)]
                 || run_chunk(acc_r, lead_r, out_len, kern_r, start, block),

@@ -2,25 +2,25 @@
 //!
 //! The numerical core is plain Rust over slices and `ndarray` views; the
 //! optional `python` feature adds the pyo3 bindings (`gyrokit._native`).
+//!
+//! Layout: `numeric` (compensated arithmetic, stable transcendental forms,
+//! SIMD dispatch), `batch` (the broadcasting engine of element-wise
+//! functions), `models` (the four models and the conversions through the
+//! hub), `pairwise` (prepared point sets, matrices, neighbours, the tree
+//! index), `stats` (centroids, dispersion, clustering), `relativity`
+//! (velocities in physical units), `py` (the pyo3 layer).
 
-pub mod ball;
 pub mod batch;
-pub mod centroids;
-pub mod convert;
 pub mod error;
-pub mod halfspace;
-pub mod hyperboloid;
-pub mod klein;
-pub mod neighbors;
+pub mod models;
 pub mod numeric;
 pub mod pairwise;
-pub mod poincare;
 pub mod relativity;
-pub mod simd;
-pub mod vptree;
+pub mod stats;
 
-pub use ball::Curvature;
 pub use error::{Error, Result};
+pub use models::ball::Curvature;
+pub use models::{halfspace, hyperboloid, klein, poincare, Model};
 
 #[cfg(feature = "python")]
 mod py;

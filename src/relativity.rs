@@ -22,12 +22,12 @@
 //!   cross product of error-free 2x2 minors, never from `acos((tr - 1)/2)`,
 //!   which returns 0 for the 1e-17 rad angles of everyday speeds.
 
-use crate::ball::{checked_gap, keep_inside, Curvature};
 use crate::batch::{map_rows, scalar_core, Core, Data, Operand, Output};
 use crate::error::{Error, Fault, Result, RowFault};
-use crate::klein;
+use crate::models::ball::{checked_gap, keep_inside, Curvature};
+use crate::models::klein;
+use crate::models::poincare::{pow2, scale_exponent};
 use crate::numeric::{artanh_from_gap, minor, sumsq, sumsq_dd, two_prod, DD};
-use crate::poincare::{pow2, scale_exponent};
 
 /// The speed of light in SI units (m/s), the default `c`.
 pub const SPEED_OF_LIGHT: f64 = 299_792_458.0;
@@ -592,7 +592,7 @@ pub fn thomas_precession_arrays<'a>(l: Light, v: Data<'a>, a: Data<'a>) -> Resul
         #[inline(always)]
         |r, out| {
             let (vs, sv) = velocity!(l, r[0], 0);
-            crate::ball::check_finite(r[1]).map_err(|f| RowFault::new(1, f))?;
+            crate::models::ball::check_finite(r[1]).map_err(|f| RowFault::new(1, f))?;
             thomas_precession_s(&l, &vs, sv, &l.load(r[1]), out).map_err(|f| RowFault::new(1, f))
         },
     )
@@ -613,7 +613,7 @@ pub fn velocity_from_rapidity_arrays<'a>(l: Light, w: Data<'a>) -> Result<Output
         16,
         #[inline(always)]
         |r, out| {
-            crate::ball::check_finite(r[0]).map_err(|f| RowFault::new(0, f))?;
+            crate::models::ball::check_finite(r[0]).map_err(|f| RowFault::new(0, f))?;
             let mut o = [0.0; 3];
             velocity_from_rapidity_s(&l, r[0], &mut o);
             l.store(&o, out);

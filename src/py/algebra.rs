@@ -3,7 +3,7 @@
 use pyo3::prelude::*;
 
 use super::coerce::{binary, ternary};
-use crate::{klein, poincare};
+use crate::models::{klein, poincare};
 
 macro_rules! binary_fn {
     ($pyname:ident, $core:path, $a:literal, $b:literal) => {

@@ -5,10 +5,10 @@ use pyo3::exceptions::{PyTypeError, PyValueError};
 use pyo3::prelude::*;
 
 use super::coerce::coerce;
-use crate::ball::Curvature;
 use crate::batch::Data;
-use crate::centroids;
-use crate::convert::Model;
+use crate::models::ball::Curvature;
+use crate::models::Model;
+use crate::stats::centroids;
 
 fn weights_arg(py: Python<'_>, w: Option<&Bound<'_, PyAny>>) -> PyResult<Option<Vec<f64>>> {
     match w {

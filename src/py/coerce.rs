@@ -114,9 +114,14 @@ pub fn to_py(py: Python<'_>, out: crate::batch::Output) -> PyResult<Py<PyAny>> {
 
 /// The element-wise kernels of one broadcast call: curvature in, operands
 /// coerced (named for errors), the core called with the GIL released.
-pub type Binary = for<'a> fn(crate::ball::Curvature, Data<'a>, Data<'a>) -> crate::error::Result<crate::batch::Output>;
-pub type Ternary =
-    for<'a> fn(crate::ball::Curvature, Data<'a>, Data<'a>, Data<'a>) -> crate::error::Result<crate::batch::Output>;
+pub type Binary =
+    for<'a> fn(crate::models::ball::Curvature, Data<'a>, Data<'a>) -> crate::error::Result<crate::batch::Output>;
+pub type Ternary = for<'a> fn(
+    crate::models::ball::Curvature,
+    Data<'a>,
+    Data<'a>,
+    Data<'a>,
+) -> crate::error::Result<crate::batch::Output>;
 
 /// Calls a two-operand kernel (`names` are the Python argument names).
 pub fn binary(
@@ -127,7 +132,7 @@ pub fn binary(
     curvature: f64,
     f: Binary,
 ) -> PyResult<Py<PyAny>> {
-    let c = crate::ball::Curvature::new(curvature)?;
+    let c = crate::models::ball::Curvature::new(curvature)?;
     let (xa, ya) = (coerce(py, names[0], x)?, coerce(py, names[1], y)?);
     let (xd, yd) = (xa.data(), ya.data());
     let out = py.detach(move || f(c, xd, yd))?;
@@ -144,7 +149,7 @@ pub fn ternary(
     curvature: f64,
     f: Ternary,
 ) -> PyResult<Py<PyAny>> {
-    let c = crate::ball::Curvature::new(curvature)?;
+    let c = crate::models::ball::Curvature::new(curvature)?;
     let (aa, ba, va) = (coerce(py, names[0], a)?, coerce(py, names[1], b)?, coerce(py, names[2], v)?);
     let (ad, bd, vd) = (aa.data(), ba.data(), va.data());
     let out = py.detach(move || f(c, ad, bd, vd))?;

@@ -1,4 +1,4 @@
-//! pyo3 wrapper of the metric-tree neighbour index (`crate::vptree`): array
+//! pyo3 wrapper of the metric-tree neighbour index (`crate::pairwise::vptree`): array
 //! coercion in, the GIL released around building and querying, arrays out.
 //! The public class with its documentation is `gyrokit.NeighborIndex`
 //! (python/gyrokit/_index.py).
@@ -9,11 +9,11 @@ use pyo3::exceptions::PyValueError;
 use pyo3::prelude::*;
 
 use super::coerce::coerce;
-use crate::ball::Curvature;
-use crate::convert::Model;
 use crate::error::Error;
+use crate::models::ball::Curvature;
+use crate::models::Model;
+use crate::pairwise::vptree::{VpTree, DEFAULT_LEAF_SIZE};
 use crate::pairwise::Prepared;
-use crate::vptree::{VpTree, DEFAULT_LEAF_SIZE};
 
 type Knn<'py> = (Bound<'py, PyArray2<i64>>, Bound<'py, PyArray2<f64>>);
 type CsrArrays<'py> = (Bound<'py, PyArray1<i64>>, Bound<'py, PyArray1<i64>>, Bound<'py, PyArray1<f64>>);

@@ -4,11 +4,12 @@
 use pyo3::prelude::*;
 
 use super::coerce::{binary, coerce, coerce_opt, ternary, to_py};
-use crate::ball::Curvature;
 use crate::batch::{Data, Output};
-use crate::convert::{convert_arrays, Model};
 use crate::error::Result;
-use crate::{halfspace, hyperboloid, klein, poincare};
+use crate::models::ball::Curvature;
+use crate::models::convert::convert_arrays;
+use crate::models::Model;
+use crate::models::{halfspace, hyperboloid, klein, poincare};
 
 type WithBase = for<'a> fn(Curvature, Data<'a>, Option<Data<'a>>) -> Result<Output>;
 

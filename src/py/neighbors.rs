@@ -5,10 +5,10 @@ use pyo3::exceptions::{PyTypeError, PyValueError};
 use pyo3::prelude::*;
 
 use super::coerce::{coerce, coerce_opt, Arg};
-use crate::ball::Curvature;
 use crate::batch::Data;
-use crate::convert::Model;
-use crate::neighbors;
+use crate::models::ball::Curvature;
+use crate::models::Model;
+use crate::pairwise::matrix;
 use crate::pairwise::Prepared;
 
 fn prepare(model: Model, c: Curvature, name: &'static str, d: Data<'_>) -> crate::error::Result<Prepared> {
@@ -56,13 +56,13 @@ fn distance_matrix<'py>(
                 let mut rw =
                     arr.try_readwrite().map_err(|e| PyValueError::new_err(format!("out is not writeable: {e}")))?;
                 let sl = rw.as_slice_mut().map_err(|_| PyValueError::new_err("out must be C-contiguous"))?;
-                py.detach(|| neighbors::distance_matrix_into(&px, pyo.as_ref().unwrap_or(&px), sl))?;
+                py.detach(|| matrix::distance_matrix_into(&px, pyo.as_ref().unwrap_or(&px), sl))?;
             } else if let Ok(arr) = o.cast::<PyArray2<f32>>() {
                 check_out(arr.shape(), arr.is_c_contiguous(), n, m)?;
                 let mut rw =
                     arr.try_readwrite().map_err(|e| PyValueError::new_err(format!("out is not writeable: {e}")))?;
                 let sl = rw.as_slice_mut().map_err(|_| PyValueError::new_err("out must be C-contiguous"))?;
-                py.detach(|| neighbors::distance_matrix_into(&px, pyo.as_ref().unwrap_or(&px), sl))?;
+                py.detach(|| matrix::distance_matrix_into(&px, pyo.as_ref().unwrap_or(&px), sl))?;
             } else {
                 return Err(PyTypeError::new_err(
                     "out must be a 2-D NumPy array of dtype float64 or float32 (native byte order)",
@@ -76,7 +76,7 @@ fn distance_matrix<'py>(
                 {
                     let mut rw = arr.readwrite();
                     let sl = rw.as_slice_mut().expect("fresh arrays are contiguous");
-                    py.detach(|| neighbors::distance_matrix_into(&px, pyo.as_ref().unwrap_or(&px), sl))?;
+                    py.detach(|| matrix::distance_matrix_into(&px, pyo.as_ref().unwrap_or(&px), sl))?;
                 }
                 Ok(arr.into_any().unbind())
             } else {
@@ -84,7 +84,7 @@ fn distance_matrix<'py>(
                 {
                     let mut rw = arr.readwrite();
                     let sl = rw.as_slice_mut().expect("fresh arrays are contiguous");
-                    py.detach(|| neighbors::distance_matrix_into(&px, pyo.as_ref().unwrap_or(&px), sl))?;
+                    py.detach(|| matrix::distance_matrix_into(&px, pyo.as_ref().unwrap_or(&px), sl))?;
                 }
                 Ok(arr.into_any().unbind())
             }
@@ -123,11 +123,11 @@ fn condensed_distances(py: Python<'_>, x: &Bound<'_, PyAny>, model: &str, curvat
     let len = px.n * px.n.saturating_sub(1) / 2;
     if f32_out {
         let mut v = vec![0f32; len];
-        py.detach(|| neighbors::condensed_into(&px, &mut v))?;
+        py.detach(|| matrix::condensed_into(&px, &mut v))?;
         Ok(v.into_pyarray(py).into_any().unbind())
     } else {
         let mut v = vec![0f64; len];
-        py.detach(|| neighbors::condensed_into(&px, &mut v))?;
+        py.detach(|| matrix::condensed_into(&px, &mut v))?;
         Ok(v.into_pyarray(py).into_any().unbind())
     }
 }
@@ -162,9 +162,9 @@ fn knn(
         let (i, d) = match yd {
             Some(d) => {
                 let py_ = prepare(md, c, "y", d)?;
-                neighbors::knn(&px, &py_, k, false)?
+                matrix::knn(&px, &py_, k, false)?
             }
-            None => neighbors::knn(&px, &px, k, true)?,
+            None => matrix::knn(&px, &px, k, true)?,
         };
         Ok((i, d, px.n))
     })?;
@@ -194,9 +194,9 @@ fn radius_neighbors(
         match yd {
             Some(d) => {
                 let py_ = prepare(md, c, "y", d)?;
-                neighbors::radius_neighbors(&px, &py_, r, false)
+                matrix::radius_neighbors(&px, &py_, r, false)
             }
-            None => neighbors::radius_neighbors(&px, &px, r, true),
+            None => matrix::radius_neighbors(&px, &px, r, true),
         }
     })?;
     Ok((

@@ -5,9 +5,9 @@
 use pyo3::prelude::*;
 
 use super::coerce::{coerce, to_py};
-use crate::ball::Curvature;
 use crate::batch::{Data, Output};
 use crate::error::Result;
+use crate::models::ball::Curvature;
 use crate::relativity::{self as rel, Light};
 
 type Unary = for<'a> fn(Light, Data<'a>) -> Result<Output>;

@@ -15,11 +15,11 @@
 
 use rayon::prelude::*;
 
-use crate::convert::Model;
 use crate::error::{value_err, Result};
+use crate::models::Model;
 use crate::numeric::acosh1p2_fast;
+use crate::numeric::simd;
 use crate::pairwise::{scaled_h, Prepared};
-use crate::simd;
 
 /// Output element types.
 pub trait Store: Copy + Send + Sync + Default + 'static {

@@ -9,15 +9,15 @@
 //! origin nor large distances lose digits:
 //! `cosh(d/R) - 1 = (cosh(r_x - r_y) - 1) + kappa (|x_s||y_s| - x_s.y_s)`.
 
-use crate::ball::Curvature;
 use crate::batch::{finite_scalar, map_rows, point_core, scalar_core, Data, Operand, Output};
 use crate::error::{Fault, Result, RowFault};
-use crate::klein::chord_ends;
+use crate::models::ball::Curvature;
+use crate::models::klein::chord_ends;
+use crate::models::poincare::with_scratch;
 use crate::numeric::{
     diff_of_squares, distance_from_half_delta, dot2, dot_dd, geodesic_weights, perp_scaled, sumsq, two_prod, wedge_dot,
     wedge_sq, DD,
 };
-use crate::poincare::with_scratch;
 
 /// Relative tolerance on x0 when reading a point (loose enough for float32
 /// embeddings, whose x0 is off by ~1e-7 after rounding).
@@ -295,7 +295,7 @@ pub fn exp_map_arrays<'a>(k: Curvature, v: Data<'a>, base: Option<Data<'a>>) -> 
         30,
         #[inline(always)]
         |r, out| {
-            crate::ball::check_finite(r[0]).map_err(|f| RowFault::new(0, f))?;
+            crate::models::ball::check_finite(r[0]).map_err(|f| RowFault::new(0, f))?;
             let n = r[0].len() - 1;
             with_scratch(
                 2 * n,
@@ -361,7 +361,7 @@ pub fn transport_arrays<'a>(k: Curvature, v: Data<'a>, start: Data<'a>, end: Dat
         40,
         #[inline(always)]
         |r, out| {
-            crate::ball::check_finite(r[0]).map_err(|f| RowFault::new(0, f))?;
+            crate::models::ball::check_finite(r[0]).map_err(|f| RowFault::new(0, f))?;
             let cx = point_of!(&k, r[1], 1);
             let cy = point_of!(&k, r[2], 2);
             transport_full(&k, &r[1][1..], cx, &r[2][1..], cy, &r[0][1..], out);
@@ -408,7 +408,7 @@ pub fn project_arrays<'a>(k: Curvature, x: Data<'a>) -> Result<Output> {
         4,
         #[inline(always)]
         |r, out| {
-            crate::ball::check_finite(&r[0][1..]).map_err(|f| RowFault::new(0, f))?;
+            crate::models::ball::check_finite(&r[0][1..]).map_err(|f| RowFault::new(0, f))?;
             write_point(&k, &r[0][1..], out);
             finite_out(out, 0)
         },
@@ -424,8 +424,8 @@ pub fn inner_arrays<'a>(u: Data<'a>, v: Data<'a>) -> Result<Output> {
         8,
         #[inline(always)]
         |r, out| {
-            crate::ball::check_finite(r[0]).map_err(|f| RowFault::new(0, f))?;
-            crate::ball::check_finite(r[1]).map_err(|f| RowFault::new(1, f))?;
+            crate::models::ball::check_finite(r[0]).map_err(|f| RowFault::new(0, f))?;
+            crate::models::ball::check_finite(r[1]).map_err(|f| RowFault::new(1, f))?;
             out[0] = inner(r[0], r[1]);
             finite_out(out, 0)
         },

@@ -40,13 +40,13 @@
 use rayon::prelude::*;
 use std::cmp::Ordering;
 
-use crate::ball::Curvature;
 use crate::batch::Data;
-use crate::convert::Model;
 use crate::error::{Error, Result};
+use crate::models::ball::Curvature;
+use crate::models::Model;
 use crate::numeric::acosh1p2_fast;
+use crate::numeric::simd;
 use crate::pairwise::Prepared;
-use crate::simd;
 
 /// Default number of points per leaf. Leaves are scanned brute force; with
 /// the cheap pair function of [`Prepared`] (a few ns per pair), leaves of

@@ -13,14 +13,17 @@
 //! * hyperboloid: the law-of-cosines split of `hyperboloid::half_delta`.
 //! The distance is `R acosh(1 + 2h)`, via [`acosh1p2_fast`].
 
+pub mod matrix;
+pub mod vptree;
+
 use ndarray::Array2;
 
-use crate::ball::{checked_gap, Curvature};
 use crate::batch::Data;
-use crate::convert::Model;
 use crate::error::{Error, Fault, Result};
+use crate::models::ball::{checked_gap, Curvature};
+use crate::models::Model;
+use crate::models::{halfspace, hyperboloid};
 use crate::numeric::{acosh1p2_fast, diff_of_squares, sumsq};
-use crate::{halfspace, hyperboloid};
 
 /// `|x - y|^2` summed in coordinate order: the order the tiled distance
 /// kernels use, so that every path gives bit-identical distances.

@@ -15,45 +15,12 @@
 //!   where `1 + sqrt(kappa) p_d = (g + kappa |p'|^2)/(1 - sqrt(kappa) p_d)`
 //!   near the south pole.
 
-use crate::ball::{checked_gap, Curvature};
 use crate::batch::{map_rows, Data, Operand, Output};
-use crate::error::{value_err, Error, Fault, Result, RowFault};
+use crate::error::{value_err, Fault, Result, RowFault};
+use crate::models::ball::{checked_gap, Curvature};
+use crate::models::poincare::with_scratch;
+use crate::models::{halfspace, hyperboloid, Model};
 use crate::numeric::{gap_dd, sumsq};
-use crate::poincare::with_scratch;
-use crate::{halfspace, hyperboloid};
-
-/// The four models.
-#[derive(Clone, Copy, Debug, PartialEq, Eq)]
-pub enum Model {
-    Poincare,
-    Klein,
-    Hyperboloid,
-    HalfSpace,
-}
-
-impl Model {
-    pub const NAMES: [&'static str; 4] = ["poincare", "klein", "hyperboloid", "halfspace"];
-
-    /// Parses a model name (argument `arg` in messages).
-    pub fn parse(name: &str, arg: &str) -> Result<Model> {
-        match name {
-            "poincare" => Ok(Model::Poincare),
-            "klein" => Ok(Model::Klein),
-            "hyperboloid" => Ok(Model::Hyperboloid),
-            "halfspace" => Ok(Model::HalfSpace),
-            _ => Err(Error::Value(format!("{arg} must be one of {:?}, got {name:?}", Model::NAMES))),
-        }
-    }
-
-    /// Coordinates per point for ball dimension `d`.
-    pub fn width(self, d: usize) -> usize {
-        if self == Model::Hyperboloid {
-            d + 1
-        } else {
-            d
-        }
-    }
-}
 
 /// Reads a point of `src` into the hub: writes `p` (length d) and returns
 /// the gap.

@@ -2,9 +2,9 @@
 //! `R^2 |dy|^2 / y_d^2` (curvature K = -1/R^2). The ball origin corresponds
 //! to `(0, ..., 0, R)`.
 
-use crate::ball::Curvature;
 use crate::batch::{map_rows, scalar_core, Data, Operand, Output};
 use crate::error::{Fault, Result, RowFault};
+use crate::models::ball::Curvature;
 use crate::numeric::{dist_sq, distance_from_half_delta};
 
 /// Checks a half-space point: finite with last coordinate > 0.

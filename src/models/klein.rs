@@ -8,14 +8,14 @@
 //! Poincaré points (Ungar's isomorphism `p -> 2 ⊗ p`); it is computed there,
 //! one formula in one place.
 
-use crate::ball::{check_finite, keep_inside, Curvature};
 use crate::batch::{finite_scalar, map_rows, point_core, scalar_core, Data, Operand, Output};
 use crate::error::Result;
+use crate::models::ball::{check_finite, keep_inside, Curvature};
+use crate::models::poincare::{self, gap_of, with_scratch};
 use crate::numeric::{
     artanh_from_gap, diff_of_squares, dist_sq, distance_from_half_delta, dot2, dot_with_sum, gap, geodesic_weights,
     perp_scaled, sumsq,
 };
-use crate::poincare::{self, gap_of, with_scratch};
 
 /// Einstein addition `u ⊕ (sv v)` (`sv = -1` gives `u ⊖ v`):
 /// `(u + v/γ_u + kappa γ_u/(1 + γ_u) (u.v) u) / (1 + kappa u.v)`

@@ -8,9 +8,9 @@
 //! operations and by the Klein model), a per-point convenience form, and a
 //! batched form over arrays.
 
-use crate::ball::{check_finite, keep_inside, Curvature};
 use crate::batch::{finite_scalar, map_rows, map_rows_with, point_core, scalar_core, Data, Operand, Output};
 use crate::error::{Result, RowFault};
+use crate::models::ball::{check_finite, keep_inside, Curvature};
 use crate::numeric::{
     artanh_from_gap, diff_of_squares, dist_sq, distance_from_half_delta, dot2, gap, gap_dd, geodesic_weights,
     radial_scale_factor, sumsq,
@@ -411,7 +411,7 @@ pub(crate) fn with_scratch<R>(n: usize, f: impl FnOnce(&mut [f64]) -> R) -> R {
 
 macro_rules! gap_of {
     ($c:expr, $row:expr, $arg:expr) => {
-        $crate::ball::checked_gap($c, $row).map_err(|f| $crate::error::RowFault::new($arg, f))?.value()
+        $crate::models::ball::checked_gap($c, $row).map_err(|f| $crate::error::RowFault::new($arg, f))?.value()
     };
 }
 pub(crate) use gap_of;

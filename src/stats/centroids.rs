@@ -19,12 +19,13 @@
 
 use rayon::prelude::*;
 
-use crate::ball::Curvature;
 use crate::batch::Data;
-use crate::convert::{from_hub, to_hub, Model};
 use crate::error::{Error, Result};
+use crate::models::ball::Curvature;
+use crate::models::convert::{from_hub, to_hub};
+use crate::models::poincare;
+use crate::models::Model;
 use crate::numeric::{log1p_fast, sech2, sumsq};
-use crate::poincare;
 
 /// Points per reduction chunk (fixed: results never depend on threads).
 const CHUNK: usize = 2048;
@@ -62,7 +63,7 @@ pub fn unit_points<'a>(model: Model, k: &Curvature, name: &str, x: &'a Data) -> 
                     .map(|(c, gc)| {
                         for (r, gr) in gc.iter_mut().enumerate() {
                             let i = c * CHUNK + r;
-                            match crate::ball::checked_gap(k, &sl[i * d..(i + 1) * d]) {
+                            match crate::models::ball::checked_gap(k, &sl[i * d..(i + 1) * d]) {
                                 Ok(v) => *gr = v.value(),
                                 Err(f) => return Some((i, f)),
                             }
@@ -151,7 +152,7 @@ fn normalized(weights: Option<&[f64]>, n: usize) -> Result<Option<Vec<f64>>> {
             }
             // A power of two: exact, so any subset scaled by a different
             // power gives bit-identical means (per-label = separate means).
-            let f = crate::poincare::pow2(-crate::poincare::scale_exponent_of(m));
+            let f = crate::models::poincare::pow2(-crate::models::poincare::scale_exponent_of(m));
             Ok(Some(w.iter().map(|v| v * f).collect()))
         }
     }
@@ -282,8 +283,8 @@ fn stats(pts: &UnitPoints, idx: &[usize], w: Option<&[f64]>, mu: &[f64], gmu: f6
     let parts: Vec<Stats> = idx
         .par_chunks(CHUNK)
         .map(|ch| {
-            crate::simd::dispatch(
-                crate::simd::has_fma(),
+            crate::numeric::simd::dispatch(
+                crate::numeric::simd::has_fma(),
                 #[inline(always)]
                 || {
                     let mut st = Stats { grad: vec![0f64; d], hout: vec![0f64; d * d], hscal: 0.0, f: 0.0, wsum: 0.0 };

@@ -1,0 +1,4 @@
+//! Statistics of point sets: centroids (Fréchet mean, Einstein midpoint),
+//! dispersion, and clustering.
+
+pub mod centroids;
