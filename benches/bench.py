@@ -162,7 +162,33 @@ def bench_maps():
               f"   ratio gyrokit/NumPy = {t/tb:.3f}  (max rel diff {err:.1e})")
 
 
-BENCHES = {"add": bench_add, "matrix": bench_matrix, "knn": bench_knn, "maps": bench_maps}
+def bench_models():
+    """distance_matrix and knn with model="klein" / "hyperboloid" / "halfspace"
+    against model="poincare" on the same points (converted once): every model
+    runs the same tiled kernel, so the ratios should be close to 1."""
+    rng = np.random.default_rng(13)
+    n = 2000
+    for d in (2, 16, 128):
+        x = ball_points(rng, n, d)
+        pts = {m: gk.convert(x, "poincare", m) for m in ("poincare", "klein", "hyperboloid", "halfspace")}
+        t_p = best_of(lambda: gk.distance_matrix(pts["poincare"]), repeat=7)
+        line = f"distance_matrix n=m={n} d={d:3d}: poincare {t_p*1e3:7.1f} ms"
+        for m in ("klein", "hyperboloid", "halfspace"):
+            t = best_of(lambda: gk.distance_matrix(pts[m], model=m), repeat=7)
+            line += f"   {m}/poincare = {t/t_p:.2f}"
+        print(line)
+    n, d, k = 20000, 10, 10
+    x = ball_points(rng, n, d)
+    pts = {m: gk.convert(x, "poincare", m) for m in ("poincare", "klein", "hyperboloid")}
+    t_p = best_of(lambda: gk.knn(pts["poincare"], k), repeat=3)
+    line = f"knn n={n} d={d} k={k}: poincare {t_p*1e3:7.1f} ms"
+    for m in ("klein", "hyperboloid"):
+        t = best_of(lambda: gk.knn(pts[m], k, model=m), repeat=3)
+        line += f"   {m}/poincare = {t/t_p:.2f}"
+    print(line)
+
+
+BENCHES = {"add": bench_add, "matrix": bench_matrix, "knn": bench_knn, "maps": bench_maps, "models": bench_models}
 
 
 def main(argv):

@@ -1,8 +1,8 @@
 //! Distance matrices, condensed distances, brute-force k nearest neighbours
 //! and radius queries over prepared point sets.
 //!
-//! The Poincaré and half-space kernels are register-tiled: 4 rows against a
-//! panel of 8 packed columns, squared differences accumulated in coordinate
+//! One register-tiled kernel serves every model (each is stored in its pair
+//! space, see `pairwise`): 4 rows against a panel of 8 packed columns, squared differences accumulated in coordinate
 //! order (no Gram-matrix shortcut: `|x|^2 + |y|^2 - 2 x.y` loses every digit
 //! for close pairs), then `h = |x - y|^2 a_x a_y s` and one transcendental,
 //! `R acosh(1 + 2h)`, per pair. Rankings use `h` itself (monotone in the
@@ -16,10 +16,9 @@
 use rayon::prelude::*;
 
 use crate::error::{value_err, Result};
-use crate::models::Model;
 use crate::numeric::acosh1p2_fast;
 use crate::numeric::simd;
-use crate::pairwise::{scaled_h, Prepared};
+use crate::pairwise::{pair_scale, scaled_h, PairSpace, Prepared, REFINE_BELOW};
 
 /// Output element types.
 pub trait Store: Copy + Send + Sync + Default + 'static {
@@ -78,11 +77,15 @@ impl Packed {
     }
 }
 
-/// `h` for `R` rows starting at `i0` against one packed panel.
+/// `h` for `R` rows starting at `i0` against one packed panel: squared
+/// differences accumulated in coordinate order (the order of
+/// [`seq_dist_sq`]), then finished as [`Prepared::finish_h`] does.
 #[inline(always)]
 fn tile_h<const R: usize>(
     x: &Prepared,
+    y: &Prepared,
     i0: usize,
+    j0: usize,
     panel: &[f64],
     ay: &[f64; LANES],
     s: f64,
@@ -102,70 +105,62 @@ fn tile_h<const R: usize>(
             }
         }
     }
+    let refine = x.space() != PairSpace::Own;
+    let kappa = x.curvature.kappa;
+    let valid = y.n.saturating_sub(j0).min(LANES);
     for r in 0..R {
         let ax = x.aux[i0 + r];
+        let mut close = false;
         for l in 0..LANES {
-            acc[r][l] = scaled_h(acc[r][l], ax, ay[l], s);
+            close |= refine && kappa * acc[r][l] < REFINE_BELOW;
+        }
+        if close {
+            // Rare: images closer than R/64 (see pairwise). Padding lanes
+            // (beyond y.n) are left as they are; they are never stored.
+            for l in 0..valid {
+                acc[r][l] = x.finish_h(acc[r][l], i0 + r, y, j0 + l);
+            }
+            for l in valid..LANES {
+                acc[r][l] = scaled_h(acc[r][l], ax, ay[l], s);
+            }
+        } else {
+            for l in 0..LANES {
+                acc[r][l] = scaled_h(acc[r][l], ax, ay[l], s);
+            }
         }
     }
 }
 
-/// The model constant `s` of the tiled models, or None for the generic ones.
-fn tile_scale(x: &Prepared) -> Option<f64> {
-    match x.model {
-        Model::Poincare => Some(x.curvature.kappa),
-        Model::HalfSpace => Some(0.25),
-        _ => None,
-    }
-}
-
-/// Calls `f(i, j0, hs)` for rows `rows` of `x` against all of `y`, where
-/// `hs[l]` is `h(i, j0 + l)` for the (up to 8) columns of one panel. Columns
-/// beyond `y.n` are not reported.
+/// Calls `f(i, j0, hs, valid)` for rows `rows` of `x` against all of `y`,
+/// where `hs[l]` is `h(i, j0 + l)` for the (up to 8) columns of one panel;
+/// only the first `valid` lanes are real columns.
 #[inline(always)]
 fn for_each_h(
     x: &Prepared,
     y: &Prepared,
-    packed: Option<&Packed>,
+    pk: &Packed,
     rows: std::ops::Range<usize>,
     mut f: impl FnMut(usize, usize, &[f64; LANES], usize),
 ) {
-    match (tile_scale(x), packed) {
-        (Some(s), Some(pk)) => {
-            for p in 0..pk.npanels() {
-                let (panel, ay) = pk.panel(p);
-                let j0 = p * LANES;
-                let valid = (y.n - j0).min(LANES);
-                let mut i = rows.start;
-                let mut h = [[0f64; LANES]; ROWS];
-                let mut h1 = [[0f64; LANES]; 1];
-                while i + ROWS <= rows.end {
-                    tile_h::<ROWS>(x, i, panel, ay, s, &mut h);
-                    for r in 0..ROWS {
-                        f(i + r, j0, &h[r], valid);
-                    }
-                    i += ROWS;
-                }
-                while i < rows.end {
-                    tile_h::<1>(x, i, panel, ay, s, &mut h1);
-                    f(i, j0, &h1[0], valid);
-                    i += 1;
-                }
+    let s = pair_scale(x.model, &x.curvature);
+    for p in 0..pk.npanels() {
+        let (panel, ay) = pk.panel(p);
+        let j0 = p * LANES;
+        let valid = (y.n - j0).min(LANES);
+        let mut i = rows.start;
+        let mut h = [[0f64; LANES]; ROWS];
+        let mut h1 = [[0f64; LANES]; 1];
+        while i + ROWS <= rows.end {
+            tile_h::<ROWS>(x, y, i, j0, panel, ay, s, &mut h);
+            for r in 0..ROWS {
+                f(i + r, j0, &h[r], valid);
             }
+            i += ROWS;
         }
-        _ => {
-            let mut buf = [0f64; LANES];
-            for i in rows {
-                let mut j0 = 0;
-                while j0 < y.n {
-                    let valid = (y.n - j0).min(LANES);
-                    for l in 0..LANES {
-                        buf[l] = if l < valid { x.half_delta(i, y, j0 + l) } else { 0.0 };
-                    }
-                    f(i, j0, &buf, valid);
-                    j0 += LANES;
-                }
-            }
+        while i < rows.end {
+            tile_h::<1>(x, y, i, j0, panel, ay, s, &mut h1);
+            f(i, j0, &h1[0], valid);
+            i += 1;
         }
     }
 }
@@ -184,7 +179,7 @@ pub fn distance_matrix_into<T: Store>(x: &Prepared, y: &Prepared, out: &mut [T])
     if n == 0 || m == 0 {
         return Ok(());
     }
-    let packed = tile_scale(x).map(|_| Packed::new(y));
+    let packed = Packed::new(y);
     let radius = x.curvature.radius;
     let fast = simd::has_fma();
     out.par_chunks_mut(STRIP * m).enumerate().for_each(|(s, block)| {
@@ -197,7 +192,7 @@ pub fn distance_matrix_into<T: Store>(x: &Prepared, y: &Prepared, out: &mut [T])
                 for_each_h(
                     x,
                     y,
-                    packed.as_ref(),
+                    &packed,
                     r0..r1,
                     #[inline(always)]
                     |i, j0, hs, valid| {
@@ -237,7 +232,7 @@ pub fn condensed_into<T: Store>(x: &Prepared, out: &mut [T]) -> Result<()> {
     if n < 2 {
         return Ok(());
     }
-    let packed = tile_scale(x).map(|_| Packed::new(x));
+    let packed = Packed::new(x);
     let radius = x.curvature.radius;
     let fast = simd::has_fma();
     // Split the output at strip boundaries: row i starts at i n - i (i + 1)/2.
@@ -263,7 +258,7 @@ pub fn condensed_into<T: Store>(x: &Prepared, out: &mut [T]) -> Result<()> {
                 for_each_h(
                     x,
                     x,
-                    packed.as_ref(),
+                    &packed,
                     r0..r1,
                     #[inline(always)]
                     |i, j0, hs, valid| {
@@ -367,7 +362,7 @@ pub fn knn(x: &Prepared, y: &Prepared, k: usize, exclude_self: bool) -> Result<(
     if n == 0 {
         return Ok((idx, dist));
     }
-    let packed = tile_scale(x).map(|_| Packed::new(y));
+    let packed = Packed::new(y);
     let radius = x.curvature.radius;
     let fast = simd::has_fma();
     idx.par_chunks_mut(STRIP * k).zip(dist.par_chunks_mut(STRIP * k)).enumerate().for_each(|(s, (ib, db))| {
@@ -381,7 +376,7 @@ pub fn knn(x: &Prepared, y: &Prepared, k: usize, exclude_self: bool) -> Result<(
                 for_each_h(
                     x,
                     y,
-                    packed.as_ref(),
+                    &packed,
                     r0..r1,
                     #[inline(always)]
                     |i, j0, hs, valid| {
@@ -433,7 +428,7 @@ pub fn radius_neighbors(
         let s = (r / (2.0 * radius)).sinh();
         s * s * (1.0 + 1e-12) + f64::MIN_POSITIVE
     };
-    let packed = tile_scale(x).map(|_| Packed::new(y));
+    let packed = Packed::new(y);
     let fast = simd::has_fma();
     let nstrips = n.div_ceil(STRIP);
     let parts: Vec<Vec<(Vec<i64>, Vec<f64>)>> = (0..nstrips)
@@ -449,7 +444,7 @@ pub fn radius_neighbors(
                     for_each_h(
                         x,
                         y,
-                        packed.as_ref(),
+                        &packed,
                         r0..r1,
                         #[inline(always)]
                         |i, j0, hs, valid| {

@@ -1,29 +1,55 @@
 //! Points prepared once for many pairwise distances (distance matrices,
-//! neighbour search, metric trees): validated, widened to float64, stored
-//! contiguously with a per-point factor, so that a pair costs one pass over
-//! the coordinates plus one transcendental.
+//! neighbour search, metric trees, element-wise distances): validated,
+//! widened to float64 and stored contiguously, so that a pair costs one pass
+//! over the coordinates plus one transcendental, the same for every model.
 //!
-//! For every model the pair quantity is `h = sinh(d/(2R))^2` (monotone in
-//! the distance, so rankings need no transcendental), formed from the input
-//! coordinates' differences:
-//! * Poincaré: `h = kappa |x - y|^2 a_x a_y`, `a = 1/g`;
-//! * half-space: `h = |x - y|^2 a_x a_y / 4`, `a = 1/x_d`;
-//! * Klein: `h = ((kappa (k - l).(k + l)/(s_k + s_l))^2 + kappa |k - l|^2) /
-//!   (4 s_k s_l)`, `s = sqrt(g)`;
-//! * hyperboloid: the law-of-cosines split of `hyperboloid::half_delta`.
-//! The distance is `R acosh(1 + 2h)`, via [`acosh1p2_fast`].
+//! The pair quantity is `h = sinh(d/(2R))^2` (monotone in the distance, so
+//! rankings need no transcendental); the distance is `R acosh(1 + 2h)`, via
+//! [`acosh1p2_fast`]. Every model is stored in a *pair space* where
+//! `h = |x - y|^2 a_x a_y s`:
+//! * Poincaré: its own coordinates, `a = 1/g`, `s = kappa`;
+//! * half-space: its own coordinates, `a = 1/y_d`, `s = 1/4`;
+//! * Klein and hyperboloid: the Poincaré image (the hub) of each point,
+//!   computed in double-double from the input and rounded, with the exact
+//!   factor `a = 1/g` of the image (`(1 + sqrt g_k)/(2 sqrt g_k)` for Klein,
+//!   `(1 + x0/R)/2` for the hyperboloid).
+//!
+//! So all four models run the one tiled kernel of `matrix.rs` at the same
+//! per-pair cost. The rounding of a hub point moves it by at most ~1 ulp of
+//! R, which costs `|p - q|` a relative error of about `2^-51 R / |p - q|`.
+//! Where that could matter (`kappa |p - q|^2 < 2^-12`, i.e. the images are
+//! closer than R/64), the pair is *refined*: the difference is formed from
+//! the double-double images, `(p_hi - q_hi) + (p_lo - q_lo)`, exact to
+//! ~1e-31 R. On the hyperboloid, images far out (beyond ~37 R) can be so
+//! close to the sphere that even the double-double difference has too few
+//! digits (`kappa |p - q|^2 < 2^-80`); those pairs use the model's own
+//! law-of-cosines form (`hyperboloid::half_delta`). Every path (matrix,
+//! condensed, knn, radius, tree, element-wise distance) evaluates a pair
+//! through [`pair_h`] in the same operation order, so all report
+//! bit-identical distances for the same pair.
 
 pub mod matrix;
 pub mod vptree;
 
 use ndarray::Array2;
+use rayon::prelude::*;
 
 use crate::batch::Data;
 use crate::error::{Error, Fault, Result};
 use crate::models::ball::{checked_gap, Curvature};
-use crate::models::Model;
-use crate::models::{halfspace, hyperboloid};
-use crate::numeric::{acosh1p2_fast, diff_of_squares, sumsq};
+use crate::models::{halfspace, hyperboloid, Model};
+use crate::numeric::{acosh1p2_fast, sumsq_dd, two_prod, two_sum, DD};
+
+/// Below this `kappa |p - q|^2` a pair of hub images is refined from the
+/// double-double images (see the module notes): the rounded images are
+/// then within a factor 64 of their distance, and the plain form would keep
+/// only ~13 digits.
+pub const REFINE_BELOW: f64 = 1.0 / 4096.0; // 2^-12
+
+/// Below this `kappa |p - q|^2` (double-double difference) a hyperboloid pair
+/// uses the model's own form: the double-double images no longer carry 15
+/// digits of the difference.
+const NATIVE_BELOW: f64 = 8.271806125530277e-25; // 2^-80
 
 /// `|x - y|^2` summed in coordinate order: the order the tiled distance
 /// kernels use, so that every path gives bit-identical distances.
@@ -45,6 +71,213 @@ pub fn scaled_h(d2: f64, ax: f64, ay: f64, s: f64) -> f64 {
     (d2 * (ax * ay)) * s
 }
 
+/// How a model's points are stored for pairwise work.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub enum PairSpace {
+    /// The model's own coordinates are the pair space (Poincaré, half-space).
+    Own,
+    /// Rounded hub images, refined from their low parts (Klein).
+    Hub,
+    /// Rounded hub images, refined from their low parts, and the spatial
+    /// part and `x0/R` for the far pairs (hyperboloid).
+    HubFar,
+}
+
+impl PairSpace {
+    pub fn of(model: Model) -> PairSpace {
+        match model {
+            Model::Poincare | Model::HalfSpace => PairSpace::Own,
+            Model::Klein => PairSpace::Hub,
+            Model::Hyperboloid => PairSpace::HubFar,
+        }
+    }
+    /// Extra values stored per point for refinement, for dimension `w`.
+    pub fn extra_width(self, w: usize) -> usize {
+        match self {
+            PairSpace::Own => 0,
+            PairSpace::Hub => w,
+            PairSpace::HubFar => 2 * w + 1,
+        }
+    }
+}
+
+/// The model constant `s` of `h = |x - y|^2 a_x a_y s`.
+#[inline(always)]
+pub fn pair_scale(model: Model, k: &Curvature) -> f64 {
+    if model == Model::HalfSpace {
+        0.25
+    } else {
+        k.kappa
+    }
+}
+
+/// `a / w` for a float64 `a` and a double-double `w`, to double-double
+/// accuracy (one Newton correction of the quotient).
+#[inline(always)]
+fn div_dd(a: f64, w: DD) -> DD {
+    let q1 = a / w.hi;
+    let (p, pe) = two_prod(q1, w.hi);
+    // a - q1 w, exact to the rounding of the small terms: a - p is exact
+    // (Sterbenz), pe and q1 w.lo are the error terms.
+    let r = ((a - p) - pe) - q1 * w.lo;
+    let q2 = r / w.hi;
+    let (h, l) = two_sum(q1, q2);
+    DD { hi: h, lo: l }
+}
+
+/// `sqrt(g)` for a double-double `g > 0`, to double-double accuracy.
+#[inline(always)]
+fn sqrt_dd(g: DD) -> DD {
+    let s = g.hi.sqrt();
+    let (p, pe) = two_prod(s, s);
+    let r = ((g.hi - p) - pe) + g.lo;
+    let (h, l) = two_sum(s, r / (2.0 * s));
+    DD { hi: h, lo: l }
+}
+
+/// Reads one point of `model` into its pair space: writes the pair-space
+/// coordinates to `hi` (length `w`) and the refinement data to `extra`
+/// (length `PairSpace::of(model).extra_width(w)`), and returns the factor `a`.
+/// `x` is the point as given (`w + 1` coordinates on the hyperboloid).
+///
+/// Hub images: `p = k/(1 + sqrt g_k)` (Klein), `p = x_s/(1 + c)` with
+/// `c = sqrt(1 + kappa |x_s|^2) = x0/R` (hyperboloid), each quotient in
+/// double-double from the exact inputs (the same maps as
+/// `models::convert::to_hub`, carried to twice the precision).
+#[inline(always)]
+pub fn read_pair_point(
+    model: Model,
+    k: &Curvature,
+    x: &[f64],
+    hi: &mut [f64],
+    extra: &mut [f64],
+) -> std::result::Result<f64, Fault> {
+    match model {
+        Model::Poincare => {
+            let g = checked_gap(k, x)?.value();
+            hi.copy_from_slice(x);
+            Ok(1.0 / g)
+        }
+        Model::HalfSpace => {
+            halfspace::read_point(x)?;
+            hi.copy_from_slice(x);
+            Ok(1.0 / x[x.len() - 1])
+        }
+        Model::Klein => {
+            let s = sqrt_dd(checked_gap(k, x)?);
+            let w = DD::from(1.0).add(s);
+            for ((h, l), &v) in hi.iter_mut().zip(extra.iter_mut()).zip(x) {
+                let q = div_dd(v, w);
+                *h = q.hi;
+                *l = q.lo;
+            }
+            // 1/g of the image: g = 2 s/(1 + s).
+            Ok(w.value() / (2.0 * s.value()))
+        }
+        Model::Hyperboloid => {
+            let cx = hyperboloid::read_point(k, x)?;
+            let xs = &x[1..];
+            let w_ = xs.len();
+            let c = sqrt_dd(DD::from(1.0).add(sumsq_dd(xs).mul_f64(k.kappa)));
+            let w = DD::from(1.0).add(c);
+            let (lo, rest) = extra.split_at_mut(w_);
+            for ((h, l), &v) in hi.iter_mut().zip(lo.iter_mut()).zip(xs) {
+                let q = div_dd(v, w);
+                *h = q.hi;
+                *l = q.lo;
+            }
+            rest[..w_].copy_from_slice(xs);
+            rest[w_] = cx;
+            Ok(0.5 * w.value())
+        }
+    }
+}
+
+/// `h = sinh(d/2R)^2` of one pair from the pair-space data of both points
+/// and the plain `d2 = seq_dist_sq(x_hi, y_hi)`: the one evaluation shared by
+/// the tiled kernels and the element-wise distance. `REFINE` is false for
+/// the models stored in their own coordinates.
+#[inline(always)]
+pub fn pair_h(
+    space: PairSpace,
+    k: &Curvature,
+    s: f64,
+    d2: f64,
+    x: (&[f64], &[f64], f64),
+    y: (&[f64], &[f64], f64),
+) -> f64 {
+    if space == PairSpace::Own || k.kappa * d2 >= REFINE_BELOW {
+        return scaled_h(d2, x.2, y.2, s);
+    }
+    refine_h(space, k, s, x, y)
+}
+
+/// The refined `h` of a close pair of hub images (see the module notes).
+#[inline(never)]
+#[cold]
+fn refine_h(space: PairSpace, k: &Curvature, s: f64, x: (&[f64], &[f64], f64), y: (&[f64], &[f64], f64)) -> f64 {
+    let w = x.0.len();
+    let (xl, yl) = (&x.1[..w], &y.1[..w]);
+    let mut acc = 0.0f64;
+    for i in 0..w {
+        // The high parts of close images differ exactly (Sterbenz); the low
+        // parts carry what their rounding dropped.
+        let t = (x.0[i] - y.0[i]) + (xl[i] - yl[i]);
+        acc = t.mul_add(t, acc);
+    }
+    if space == PairSpace::HubFar && k.kappa * acc < NATIVE_BELOW {
+        let (xs, cx) = (&x.1[w..2 * w], x.1[2 * w]);
+        let (ys, cy) = (&y.1[w..2 * w], y.1[2 * w]);
+        return hyperboloid::half_delta(k, xs, cx, ys, cy);
+    }
+    scaled_h(acc, x.2, y.2, s)
+}
+
+/// The hyperbolic distance from `h`.
+#[inline(always)]
+pub fn distance_from_h(k: &Curvature, h: f64) -> f64 {
+    k.radius * acosh1p2_fast(h)
+}
+
+/// The distance between two points given in `model` coordinates, exactly as
+/// the pairwise kernels compute it (bit for bit): the element-wise distance
+/// of every model. Faults carry operand 0 or 1.
+#[inline(always)]
+pub fn point_distance(
+    model: Model,
+    k: &Curvature,
+    x: &[f64],
+    y: &[f64],
+) -> std::result::Result<f64, crate::error::RowFault> {
+    use crate::error::RowFault;
+    let w = x.len() - usize::from(model == Model::Hyperboloid);
+    let space = PairSpace::of(model);
+    let ew = space.extra_width(w);
+    with_pair_scratch(2 * (w + ew), |buf| {
+        let (bx, by) = buf.split_at_mut(w + ew);
+        let (xh, xe) = bx.split_at_mut(w);
+        let (yh, ye) = by.split_at_mut(w);
+        let ax = read_pair_point(model, k, x, xh, xe).map_err(|f| RowFault::new(0, f))?;
+        let ay = read_pair_point(model, k, y, yh, ye).map_err(|f| RowFault::new(1, f))?;
+        let s = pair_scale(model, k);
+        let h = pair_h(space, k, s, seq_dist_sq(xh, yh), (xh, xe, ax), (yh, ye, ay));
+        Ok(distance_from_h(k, h))
+    })
+}
+
+/// Runs `f` with a zeroed scratch buffer of length `n` (on the stack when
+/// small).
+#[inline(always)]
+fn with_pair_scratch<R>(n: usize, f: impl FnOnce(&mut [f64]) -> R) -> R {
+    if n <= 136 {
+        let mut buf = [0f64; 136];
+        f(&mut buf[..n])
+    } else {
+        let mut buf = vec![0f64; n];
+        f(&mut buf)
+    }
+}
+
 /// Points of one model ready for pairwise work.
 #[derive(Clone, Debug)]
 pub struct Prepared {
@@ -52,20 +285,20 @@ pub struct Prepared {
     pub curvature: Curvature,
     /// Number of points.
     pub n: usize,
-    /// Coordinates per point as stored (d + 1 for the hyperboloid: x0 is
-    /// replaced by nothing; the spatial part is stored, so `w = d`).
+    /// Pair-space coordinates per point: the ball dimension d for every
+    /// model (the hyperboloid's x0 is not stored).
     pub w: usize,
-    /// Row-major `n x w` coordinates (hyperboloid: spatial parts only).
+    /// Row-major `n x w` pair-space coordinates (see the module notes).
     pub coords: Vec<f64>,
-    /// The per-point factor (see the module docs): `1/g` (Poincaré), `1/x_d`
-    /// (half-space), `sqrt(g)` (Klein), `x0/R` (hyperboloid).
+    /// The per-point factor `a` of `h = |x - y|^2 a_x a_y s`.
     pub aux: Vec<f64>,
+    /// Row-major `n x extra_width(w)` refinement data (empty for the models
+    /// stored in their own coordinates).
+    pub extra: Vec<f64>,
 }
 
-fn describe(name: &str, shape: &[usize], i: usize, f: Fault) -> Error {
-    let place = if shape.len() <= 2 { format!("row {i}") } else { format!("row {i} (flattened)") };
-    Error::Value(format!("{name}: {place} {}", f.describe()))
-}
+/// Rows per parallel task when preparing points.
+const PREP_CHUNK: usize = 4096;
 
 impl Prepared {
     /// Validates and prepares `(n, d)` points (`(n, d + 1)` for the
@@ -85,46 +318,102 @@ impl Prepared {
             )));
         }
         let w = if model == Model::Hyperboloid { width - 1 } else { width };
+        let space = PairSpace::of(model);
+        let ew = space.extra_width(w);
         let mut coords = vec![0f64; n * w];
         let mut aux = vec![0f64; n];
-        let mut row = vec![0f64; width];
+        let mut extra = vec![0f64; n * ew];
         let k = curvature;
-        for i in 0..n {
-            match x {
-                Data::F64(a) | Data::Weak(a) => {
-                    for (j, v) in row.iter_mut().enumerate() {
-                        *v = a[[i, j]];
+        let read = |i0: usize, c: &mut [f64], a: &mut [f64], e: &mut [f64]| -> Option<(usize, Fault)> {
+            let mut row = vec![0f64; width];
+            for (r, ai) in a.iter_mut().enumerate() {
+                let i = i0 + r;
+                match x {
+                    Data::F64(v) | Data::Weak(v) => {
+                        for (j, o) in row.iter_mut().enumerate() {
+                            *o = v[[i, j]];
+                        }
+                    }
+                    Data::F32(v) => {
+                        for (j, o) in row.iter_mut().enumerate() {
+                            *o = f64::from(v[[i, j]]);
+                        }
                     }
                 }
-                Data::F32(a) => {
-                    for (j, v) in row.iter_mut().enumerate() {
-                        *v = f64::from(a[[i, j]]);
-                    }
+                match read_pair_point(model, &k, &row, &mut c[r * w..(r + 1) * w], &mut e[r * ew..(r + 1) * ew]) {
+                    Ok(v) => *ai = v,
+                    Err(f) => return Some((i, f)),
                 }
             }
-            let r = &row[..];
-            let (dst, a) = match model {
-                Model::Poincare => {
-                    let g = checked_gap(&k, r).map_err(|f| describe(name, &shape, i, f))?.value();
-                    (r, 1.0 / g)
-                }
-                Model::Klein => {
-                    let g = checked_gap(&k, r).map_err(|f| describe(name, &shape, i, f))?.value();
-                    (r, g.sqrt())
-                }
-                Model::HalfSpace => {
-                    halfspace::read_point(r).map_err(|f| describe(name, &shape, i, f))?;
-                    (r, 1.0 / r[width - 1])
-                }
-                Model::Hyperboloid => {
-                    let c = hyperboloid::read_point(&k, r).map_err(|f| describe(name, &shape, i, f))?;
-                    (&r[1..], c)
-                }
-            };
-            coords[i * w..(i + 1) * w].copy_from_slice(dst);
-            aux[i] = a;
+            None
+        };
+        let fault = if n <= PREP_CHUNK {
+            read(0, &mut coords, &mut aux, &mut extra)
+        } else {
+            coords
+                .par_chunks_mut(PREP_CHUNK * w.max(1))
+                .zip(aux.par_chunks_mut(PREP_CHUNK))
+                .zip(extra.par_chunks_mut((PREP_CHUNK * ew).max(1)))
+                .enumerate()
+                .map(|(ci, ((c, a), e))| read(ci * PREP_CHUNK, c, a, e))
+                .reduce(
+                    || None,
+                    |p, q| match (p, q) {
+                        (Some(p), Some(q)) => Some(if p.0 <= q.0 { p } else { q }),
+                        (p, None) => p,
+                        (None, q) => q,
+                    },
+                )
+        };
+        if let Some((i, f)) = fault {
+            return Err(describe(name, &shape, i, f));
         }
-        Ok(Prepared { model, curvature, n, w, coords, aux })
+        Ok(Prepared { model, curvature, n, w, coords, aux, extra })
+    }
+
+    /// Rebuilds a prepared set from its parts (a saved index), checking the
+    /// lengths against the model.
+    pub fn from_parts(
+        model: Model,
+        curvature: Curvature,
+        w: usize,
+        coords: Vec<f64>,
+        aux: Vec<f64>,
+        extra: Vec<f64>,
+    ) -> Result<Prepared> {
+        let n = aux.len();
+        let ew = PairSpace::of(model).extra_width(w);
+        if w == 0 || coords.len() != n * w || extra.len() != n * ew {
+            return Err(Error::Value("inconsistent prepared point data".to_string()));
+        }
+        if !coords.iter().chain(&aux).chain(&extra).all(|v| v.is_finite()) {
+            return Err(Error::Value("prepared point data must be finite".to_string()));
+        }
+        Ok(Prepared { model, curvature, n, w, coords, aux, extra })
+    }
+
+    /// The rows `order` of `self`, in that order.
+    pub fn select(&self, order: &[usize]) -> Prepared {
+        let (w, ew) = (self.w, self.extra_width());
+        let mut coords = Vec::with_capacity(order.len() * w);
+        let mut aux = Vec::with_capacity(order.len());
+        let mut extra = Vec::with_capacity(order.len() * ew);
+        for &i in order {
+            coords.extend_from_slice(self.row(i));
+            aux.push(self.aux[i]);
+            extra.extend_from_slice(self.extra_row(i));
+        }
+        Prepared { model: self.model, curvature: self.curvature, n: order.len(), w, coords, aux, extra }
+    }
+
+    #[inline(always)]
+    pub fn space(&self) -> PairSpace {
+        PairSpace::of(self.model)
+    }
+
+    #[inline(always)]
+    pub fn extra_width(&self) -> usize {
+        self.space().extra_width(self.w)
     }
 
     #[inline(always)]
@@ -132,31 +421,37 @@ impl Prepared {
         &self.coords[i * self.w..(i + 1) * self.w]
     }
 
+    #[inline(always)]
+    pub fn extra_row(&self, i: usize) -> &[f64] {
+        let ew = self.extra_width();
+        &self.extra[i * ew..(i + 1) * ew]
+    }
+
+    /// The pair-space data of point `i`, as [`pair_h`] takes it.
+    #[inline(always)]
+    pub fn point(&self, i: usize) -> (&[f64], &[f64], f64) {
+        (self.row(i), self.extra_row(i), self.aux[i])
+    }
+
+    /// `h` of point `i` of `self` and point `j` of `o` from their plain
+    /// squared difference `d2` (the tiled kernels' entry).
+    #[inline(always)]
+    pub fn finish_h(&self, d2: f64, i: usize, o: &Prepared, j: usize) -> f64 {
+        let k = &self.curvature;
+        pair_h(self.space(), k, pair_scale(self.model, k), d2, self.point(i), o.point(j))
+    }
+
     /// `h = sinh(d/(2R))^2` between point `i` of `self` and point `j` of `o`
     /// (same model and curvature).
     #[inline(always)]
     pub fn half_delta(&self, i: usize, o: &Prepared, j: usize) -> f64 {
-        let (x, y) = (self.row(i), o.row(j));
-        let (ax, ay) = (self.aux[i], o.aux[j]);
-        let k = &self.curvature;
-        match self.model {
-            Model::Poincare => scaled_h(seq_dist_sq(x, y), ax, ay, k.kappa),
-            Model::HalfSpace => scaled_h(seq_dist_sq(x, y), ax, ay, 0.25),
-            Model::Klein => {
-                // |k|^2 - |l|^2 formed error-free: near the sphere this term
-                // dominates and a plain sum loses ~1e-11 relative.
-                let ds = diff_of_squares(x, y, 1.0);
-                let dg = k.kappa * ds / (ax + ay);
-                (dg * dg + k.kappa * seq_dist_sq(x, y)) / (4.0 * ax * ay)
-            }
-            Model::Hyperboloid => hyperboloid::half_delta(k, x, ax, y, ay),
-        }
+        self.finish_h(seq_dist_sq(self.row(i), o.row(j)), i, o, j)
     }
 
     /// The hyperbolic distance between point `i` and point `j` of `o`.
     #[inline(always)]
     pub fn distance(&self, i: usize, o: &Prepared, j: usize) -> f64 {
-        self.curvature.radius * acosh1p2_fast(self.half_delta(i, o, j))
+        distance_from_h(&self.curvature, self.half_delta(i, o, j))
     }
 
     /// Checks that two prepared sets can be compared.
@@ -171,13 +466,18 @@ impl Prepared {
         Ok(())
     }
 
-    /// The squared-norm-free "Euclidean" coordinates, for tests.
+    /// The pair-space coordinates as an array, for tests.
     pub fn coords_array(&self) -> Array2<f64> {
         Array2::from_shape_vec((self.n, self.w), self.coords.clone()).expect("shape")
     }
 
-    /// Sum of squares of one row (used by tree heuristics).
+    /// Sum of squares of one pair-space row (used by tree heuristics).
     pub fn norm_sq(&self, i: usize) -> f64 {
-        sumsq(self.row(i))
+        crate::numeric::sumsq(self.row(i))
     }
+}
+
+fn describe(name: &str, shape: &[usize], i: usize, f: Fault) -> Error {
+    let place = if shape.len() <= 2 { format!("row {i}") } else { format!("row {i} (flattened)") };
+    Error::Value(format!("{name}: {place} {}", f.describe()))
 }

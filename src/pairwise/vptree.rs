@@ -46,7 +46,7 @@ use crate::models::ball::Curvature;
 use crate::models::Model;
 use crate::numeric::acosh1p2_fast;
 use crate::numeric::simd;
-use crate::pairwise::Prepared;
+use crate::pairwise::{PairSpace, Prepared};
 
 /// Default number of points per leaf. Leaves are scanned brute force; with
 /// the cheap pair function of [`Prepared`] (a few ns per pair), leaves of
@@ -409,18 +409,6 @@ impl Builder<'_> {
     }
 }
 
-/// Rows of `p` in the order `order` (a permutation).
-fn permuted(p: &Prepared, order: &[usize]) -> Prepared {
-    let w = p.w;
-    let mut coords = Vec::with_capacity(p.n * w);
-    let mut aux = Vec::with_capacity(p.n);
-    for &i in order {
-        coords.extend_from_slice(p.row(i));
-        aux.push(p.aux[i]);
-    }
-    Prepared { model: p.model, curvature: p.curvature, n: p.n, w, coords, aux }
-}
-
 /// Room for `len` results, or a `ValueError` instead of an abort.
 fn alloc<T: Clone + Default>(len: Option<usize>, what: &str) -> Result<Vec<T>> {
     let mut v = Vec::new();
@@ -454,7 +442,7 @@ impl VpTree {
         let mut nodes = vec![Node { start: 0, end: 0, outside: 0, bounds: [0.0; 4] }; node_count(n, leaf_size)];
         Builder { pts: &pts, leaf: leaf_size, fast: simd::has_fma() }.build(0, &mut perm, &mut scratch, &mut nodes, 0);
         drop(scratch);
-        let points = permuted(&pts, &perm);
+        let points = Prepared::select(&pts, &perm);
         Ok(VpTree { points, perm, nodes, leaf_size })
     }
 
@@ -833,8 +821,16 @@ impl VpTree {
     // -----------------------------------------------------------------------
     // State (pickling): the tree is saved, not rebuilt.
 
-    /// The state as flat arrays: `(coords (n*w), aux (n), perm (n),
-    /// node_ints (3 per node: start, end, outside), node_bounds (4 per node))`.
+    /// Values per point in the saved state: the pair-space coordinates and
+    /// the refinement data (see `pairwise`).
+    pub fn state_width(&self) -> usize {
+        self.points.w + self.points.extra_width()
+    }
+
+    /// The state as flat arrays: `(points (n * state_width), aux (n), perm (n),
+    /// node_ints (3 per node: start, end, outside), node_bounds (4 per node))`;
+    /// each point's row holds its pair-space coordinates, then its
+    /// refinement data.
     pub fn to_parts(&self) -> Parts {
         let perm = self.perm.iter().map(|&i| i as i64).collect();
         let mut ints = Vec::with_capacity(3 * self.nodes.len());
@@ -843,7 +839,13 @@ impl VpTree {
             ints.extend_from_slice(&[nd.start as i64, nd.end as i64, nd.outside as i64]);
             bounds.extend_from_slice(&nd.bounds);
         }
-        (self.points.coords.clone(), self.points.aux.clone(), perm, ints, bounds)
+        let p = &self.points;
+        let mut rows = Vec::with_capacity(p.n * self.state_width());
+        for i in 0..p.n {
+            rows.extend_from_slice(p.row(i));
+            rows.extend_from_slice(p.extra_row(i));
+        }
+        (rows, p.aux.clone(), perm, ints, bounds)
     }
 
     /// Rebuilds an index from [`VpTree::to_parts`], checking everything a
@@ -853,8 +855,8 @@ impl VpTree {
         model: Model,
         curvature: Curvature,
         leaf_size: usize,
-        w: usize,
-        coords: Vec<f64>,
+        state_width: usize,
+        rows: Vec<f64>,
         aux: Vec<f64>,
         perm: &[i64],
         ints: &[i64],
@@ -862,13 +864,19 @@ impl VpTree {
     ) -> Result<VpTree> {
         let bad = |what: &str| Err(Error::Value(format!("invalid NeighborIndex state: {what}")));
         let n = aux.len();
-        if leaf_size == 0 || w == 0 || n == 0 {
-            return bad("empty index, zero width or zero leaf size");
+        // The pair-space width from the row width (w + extra_width(w)).
+        let w = match PairSpace::of(model) {
+            PairSpace::Own => state_width,
+            PairSpace::Hub => state_width / 2,
+            PairSpace::HubFar => state_width.saturating_sub(1) / 3,
+        };
+        if leaf_size == 0 || w == 0 || n == 0 || w + PairSpace::of(model).extra_width(w) != state_width {
+            return bad("empty index, zero or inconsistent width or zero leaf size");
         }
-        if n.checked_mul(w) != Some(coords.len()) {
+        if n.checked_mul(state_width) != Some(rows.len()) {
             return bad("coordinate array does not match the number of points");
         }
-        if !coords.iter().all(|v| v.is_finite()) || !aux.iter().all(|a| a.is_finite() && *a > 0.0) {
+        if !rows.iter().all(|v| v.is_finite()) || !aux.iter().all(|a| a.is_finite() && *a > 0.0) {
             return bad("non-finite coordinates or factors");
         }
         if perm.len() != n {
@@ -934,7 +942,14 @@ impl VpTree {
         if visited != nn {
             return bad("unreachable nodes");
         }
-        let points = Prepared { model, curvature, n, w, coords, aux };
+        let ew = state_width - w;
+        let mut coords = Vec::with_capacity(n * w);
+        let mut extra = Vec::with_capacity(n * ew);
+        for r in rows.chunks_exact(state_width) {
+            coords.extend_from_slice(&r[..w]);
+            extra.extend_from_slice(&r[w..]);
+        }
+        let points = Prepared::from_parts(model, curvature, w, coords, aux, extra)?;
         Ok(VpTree { points, perm: p, nodes, leaf_size })
     }
 }

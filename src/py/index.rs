@@ -19,7 +19,7 @@ type Knn<'py> = (Bound<'py, PyArray2<i64>>, Bound<'py, PyArray2<f64>>);
 type CsrArrays<'py> = (Bound<'py, PyArray1<i64>>, Bound<'py, PyArray1<i64>>, Bound<'py, PyArray1<f64>>);
 
 /// Version of the pickled state layout.
-const STATE_VERSION: i64 = 1;
+const STATE_VERSION: i64 = 2;
 
 fn model_name(m: Model) -> &'static str {
     match m {
@@ -173,7 +173,7 @@ impl PyVpTree {
             model_name(t.points.model).into_pyobject(py)?.into_any(),
             t.points.curvature.k.into_pyobject(py)?.into_any(),
             t.leaf_size.into_pyobject(py)?.into_any(),
-            to_2d(py, t.n(), t.points.w, coords)?.into_any(),
+            to_2d(py, t.n(), t.state_width(), coords)?.into_any(),
             aux.into_pyarray(py).into_any(),
             perm.into_pyarray(py).into_any(),
             to_2d(py, nn, 3, ints)?.into_any(),
