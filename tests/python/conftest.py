@@ -26,6 +26,7 @@ import pytest
 from hypothesis import HealthCheck, settings
 
 import gyrokit as gk
+import mp_models
 
 # ------------------------------------------------------------------ hypothesis
 
@@ -41,7 +42,10 @@ settings.load_profile("gyrokit")
 
 # ------------------------------------------------------------------ models
 
-MODELS = ("poincare", "klein", "hyperboloid", "halfspace")
+# The four models, in the order of the mpmath references (mp_models.MODELS):
+# ("poincare", "klein", "hyperboloid", "halfspace"). Seeds of some tests are
+# derived from MODELS.index(model): never reorder.
+MODELS = mp_models.MODELS
 MANIFOLD_MODELS = ("poincare", "klein", "hyperboloid")  # those with exp/log/transport/geodesic
 BALLS = ("poincare", "klein")
 MODULES = {

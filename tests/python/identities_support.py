@@ -29,7 +29,7 @@ import mpmath
 import numpy as np
 
 import gyrokit as gk
-from conftest import BALLS, CURVATURES, EPS, MP50, mp_distance, radius
+from conftest import BALLS, CURVATURES, EPS, MP50, mp_distance, radius, unit_vectors
 
 
 # Known defects once marked here, fixed (measured before the fix): Klein exp
@@ -221,11 +221,6 @@ def assert_valid_points(model, z, K, what):
 # ------------------------------------------------------- random geometry
 
 
-def directions(rng, n, d):
-    u = rng.normal(size=(n, d))
-    return u / norm(u)[:, None]
-
-
 def sample_rho(rng, n, rho_max):
     rho = rng.uniform(0.0, rho_max, n)
     k = n // 4
@@ -255,7 +250,7 @@ def model_points(model, rho, u, K):
 
 
 def random_points(rng, model, n, d, K, rho_max=RHO_MAX):
-    return model_points(model, sample_rho(rng, n, rho_max), directions(rng, n, d), K)
+    return model_points(model, sample_rho(rng, n, rho_max), unit_vectors(rng, n, d), K)
 
 
 def _pair(case, model, n=N):

@@ -19,7 +19,7 @@ import numpy as np
 import pytest
 
 import gyrokit as gk
-from conftest import EPS, MANIFOLD_MODELS, MODELS, MODULES, MP50, origin, radius
+from conftest import EPS, MANIFOLD_MODELS, MODELS, MODULES, MP50, origin, radius, unit_vectors
 from identities_support import (
     _mpv,
     _pair,
@@ -28,7 +28,6 @@ from identities_support import (
     C,
     CASES,
     coord_rounding,
-    directions,
     gap,
     mp_row_distances,
     N,
@@ -196,7 +195,7 @@ def test_distance_matches_handbook_formula(model, case):
     R = radius(K)
     half = N // 2
     # close pairs: nudge the spatial part / the coordinates of x
-    nudge = directions(rng, half, d) * (R * 10.0 ** rng.uniform(-12, -3, half))[:, None]
+    nudge = unit_vectors(rng, half, d) * (R * 10.0 ** rng.uniform(-12, -3, half))[:, None]
     if model == "hyperboloid":
         ys = x[:half, 1:] + nudge
         y[:half] = np.concatenate([sheet_x0(ys, K)[:, None], ys], axis=-1)

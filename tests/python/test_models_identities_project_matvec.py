@@ -18,7 +18,7 @@ import numpy as np
 import pytest
 
 import gyrokit as gk
-from conftest import BALLS, CURVATURES, EPS, MODULES, MP50, radius
+from conftest import BALLS, CURVATURES, EPS, MODULES, MP50, radius, unit_vectors
 from identities_support import (
     _mpv,
     assert_close_points,
@@ -26,7 +26,6 @@ from identities_support import (
     C,
     CASES,
     coord_rounding,
-    directions,
     N,
     norm,
     random_points,
@@ -54,7 +53,7 @@ def test_project_ball(model, margin, case):
     assert same.dtype == np.float64
     np.testing.assert_array_equal(same, inside)
     # outside, barely outside, and on the sphere (exactly R along an axis)
-    u = directions(rng, 3, d)
+    u = unit_vectors(rng, 3, d)
     axis = np.zeros((1, d)); axis[0, int(rng.integers(d))] = 1.0
     dirs = np.concatenate([u, axis, -axis])
     scales = np.array([1.5, 1.0000001, 1.0])
