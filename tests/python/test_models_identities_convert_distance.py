@@ -41,7 +41,7 @@ from identities_support import (
 )
 
 
-# ======================================================= 1. conversions
+# ======================================================= conversions
 
 
 @pytest.mark.parametrize("src,dst", list(itertools.permutations(MODELS, 2)))
@@ -113,7 +113,7 @@ def test_convert_matches_handbook_maps(case):
         np.testing.assert_allclose(back, o, rtol=0, atol=4 * EPS * R, err_msg=dst)
 
 
-# ====================================================== 2. distance in every model
+# ====================================================== distance in every model
 
 
 @pytest.mark.parametrize("model", ("klein", "hyperboloid", "halfspace"))
@@ -135,7 +135,7 @@ def test_distance_agrees_across_models(model, case):
     assert_close_values(dm, dp, tol, f"{model} distance vs poincare distance")
 
 
-# ====================================================== 3. handbook distances
+# ====================================================== handbook distances
 
 
 @MP50

@@ -13,7 +13,7 @@ import gyrokit as gk
 from conftest import MODELS
 
 
-# ====================================================== 11. dtypes
+# ====================================================== dtypes
 
 
 def _dtype_calls():

@@ -16,7 +16,7 @@ from conftest import BALLS, MODELS, MODULES, radius
 from identities_support import random_points
 
 
-# ====================================================== 10. bad input
+# ====================================================== bad input
 
 
 def _hpoints(K=-1.0, n=4, d=2):

@@ -38,7 +38,7 @@ from identities_support import (
 )
 
 
-# ====================================================== 4. exp and log
+# ====================================================== exp and log
 
 
 def _base(rng, model, d, K, explicit):

@@ -34,7 +34,7 @@ from identities_support import (
 )
 
 
-# ====================================================== 7. project
+# ====================================================== project
 
 
 @pytest.mark.parametrize("margin", (1e-12, 1e-6, 0.25))
@@ -135,7 +135,7 @@ def test_hyperboloid_project_repairs_drift(case, drift):
     gk.hyperboloid.distance(out, out, curvature=K)
 
 
-# ====================================================== 8. matvec
+# ====================================================== matvec
 
 
 @MP50
@@ -227,7 +227,7 @@ def test_matvec_bad_matrix_shapes(m):
         gk.poincare.matvec(m, np.array([[0.1, 0.2], [0.3, 0.1]]))
 
 
-# ====================================================== 9. Minkowski inner product
+# ====================================================== Minkowski inner product
 
 
 @MP50

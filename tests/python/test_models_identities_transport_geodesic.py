@@ -53,7 +53,7 @@ def test_transport_matches_mpmath(model, case):
     assert_close_values(err, np.zeros(N_MP), tol, f"{model}: Riemannian error of transport vs mpmath")
 
 
-# ====================================================== 5. transport
+# ====================================================== transport
 
 
 @pytest.mark.parametrize("model", MANIFOLD_MODELS)
@@ -96,7 +96,7 @@ def test_transport_of_log_is_minus_log(model, case):
     assert_close_values(err, np.zeros(N), tol, f"{model}: transport(log_x y) vs -log_y x")
 
 
-# ====================================================== 6. geodesic
+# ====================================================== geodesic
 
 
 @pytest.mark.parametrize("model", MANIFOLD_MODELS)
