@@ -12,14 +12,7 @@ import pytest
 
 import gyrokit as gk
 from gyrokit.kmeans import KMeans, NotFittedError
-
-MODELS = ("poincare", "klein", "hyperboloid", "halfspace")
-DIST = {
-    "poincare": gk.poincare.distance,
-    "klein": gk.klein.distance,
-    "hyperboloid": gk.hyperboloid.distance,
-    "halfspace": gk.halfspace.distance,
-}
+from conftest import DISTANCE, MODELS, ball_points
 
 
 # ------------------------------------------------------------------ helpers
@@ -86,9 +79,7 @@ def blobs(rng, n_blobs, per_blob, d, spread=0.1, min_sep=3.0, rmax=3.0, curvatur
 
 def overlapping(rng, n, d):
     """Hard data for Lloyd: one broad cloud, hyperbolic radii uniform in [0, 4]."""
-    u = rng.standard_normal((n, d))
-    u /= np.linalg.norm(u, axis=1, keepdims=True)
-    return np.tanh(rng.uniform(0, 4, n) / 2)[:, None] * u
+    return ball_points(rng, n, d, 4.0)
 
 
 # ------------------------------------------------------------------ recovery
@@ -123,7 +114,7 @@ def test_every_model_same_clustering(model):
     assert km.inertia_ == pytest.approx(base.inertia_, rel=1e-10)
     # transform in the model's own coordinates: distances to its centres
     T = km.transform(Xm)
-    np.testing.assert_allclose(T, DIST[model](Xm[:, None, :], km.cluster_centers_[None, :, :]), rtol=1e-12, atol=1e-14)
+    np.testing.assert_allclose(T, DISTANCE[model](Xm[:, None, :], km.cluster_centers_[None, :, :]), rtol=1e-12, atol=1e-14)
     np.testing.assert_array_equal(km.predict(Xm), km.labels_)
 
 
