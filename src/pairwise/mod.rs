@@ -350,12 +350,19 @@ impl Prepared {
         let fault = if n <= PREP_CHUNK {
             read(0, &mut coords, &mut aux, &mut extra)
         } else {
-            coords
-                .par_chunks_mut(PREP_CHUNK * w.max(1))
-                .zip(aux.par_chunks_mut(PREP_CHUNK))
-                .zip(extra.par_chunks_mut((PREP_CHUNK * ew).max(1)))
+            // Chunks zipped by hand: `extra` is empty for the models stored
+            // in their own coordinates, and a zip of parallel chunk
+            // iterators would stop at the shortest.
+            let mut ec = extra.chunks_mut((PREP_CHUNK * ew).max(1));
+            let parts: Vec<(&mut [f64], &mut [f64], &mut [f64])> = coords
+                .chunks_mut(PREP_CHUNK * w)
+                .zip(aux.chunks_mut(PREP_CHUNK))
+                .map(|(c, a)| (c, a, if ew == 0 { &mut [][..] } else { ec.next().expect("one extra chunk per chunk") }))
+                .collect();
+            parts
+                .into_par_iter()
                 .enumerate()
-                .map(|(ci, ((c, a), e))| read(ci * PREP_CHUNK, c, a, e))
+                .map(|(ci, (c, a, e))| read(ci * PREP_CHUNK, c, a, e))
                 .reduce(
                     || None,
                     |p, q| match (p, q) {
