@@ -22,7 +22,7 @@
 //! the double-double images, `(p_hi - q_hi) + (p_lo - q_lo)`, exact to
 //! ~1e-31 R. On the hyperboloid, images far out (beyond ~37 R) can be so
 //! close to the sphere that even the double-double difference has too few
-//! digits (`kappa |p - q|^2 < 2^-80`); those pairs use the model's own
+//! digits (`kappa |p - q|^2 < 2^-100`); those pairs use the model's own
 //! law-of-cosines form (`hyperboloid::half_delta`). Every path (matrix,
 //! condensed, knn, radius, tree, element-wise distance) evaluates a pair
 //! through [`pair_h`] in the same operation order, so all report
@@ -47,9 +47,11 @@ use crate::numeric::{acosh1p2_fast, sumsq_dd, two_prod, two_sum, DD};
 pub const REFINE_BELOW: f64 = 1.0 / 4096.0; // 2^-12
 
 /// Below this `kappa |p - q|^2` (double-double difference) a hyperboloid pair
-/// uses the model's own form: the double-double images no longer carry 15
-/// digits of the difference.
-const NATIVE_BELOW: f64 = 8.271806125530277e-25; // 2^-80
+/// uses the model's own form. The double-double images carry an absolute
+/// error of about `3 2^-104 R`, so above it the difference keeps at least
+/// 15 digits; below it (points far out on nearly the same ray, where the
+/// images crowd at the sphere, or nearly coincident points) it may not.
+const NATIVE_BELOW: f64 = 7.888609052210118e-31; // 2^-100
 
 /// `|x - y|^2` summed in coordinate order: the order the tiled distance
 /// kernels use, so that every path gives bit-identical distances.
@@ -228,6 +230,11 @@ fn refine_h(space: PairSpace, k: &Curvature, s: f64, x: (&[f64], &[f64], f64), y
     if space == PairSpace::HubFar && k.kappa * acc < NATIVE_BELOW {
         let (xs, cx) = (&x.1[w..2 * w], x.1[2 * w]);
         let (ys, cy) = (&y.1[w..2 * w], y.1[2 * w]);
+        if xs == ys {
+            // The same point (duplicates, the diagonal of a matrix): the
+            // law-of-cosines form would spend O(d^2) exact minors on 0.
+            return 0.0;
+        }
         return hyperboloid::half_delta(k, xs, cx, ys, cy);
     }
     scaled_h(acc, x.2, y.2, s)
@@ -359,18 +366,14 @@ impl Prepared {
                 .zip(aux.chunks_mut(PREP_CHUNK))
                 .map(|(c, a)| (c, a, if ew == 0 { &mut [][..] } else { ec.next().expect("one extra chunk per chunk") }))
                 .collect();
-            parts
-                .into_par_iter()
-                .enumerate()
-                .map(|(ci, (c, a, e))| read(ci * PREP_CHUNK, c, a, e))
-                .reduce(
-                    || None,
-                    |p, q| match (p, q) {
-                        (Some(p), Some(q)) => Some(if p.0 <= q.0 { p } else { q }),
-                        (p, None) => p,
-                        (None, q) => q,
-                    },
-                )
+            parts.into_par_iter().enumerate().map(|(ci, (c, a, e))| read(ci * PREP_CHUNK, c, a, e)).reduce(
+                || None,
+                |p, q| match (p, q) {
+                    (Some(p), Some(q)) => Some(if p.0 <= q.0 { p } else { q }),
+                    (p, None) => p,
+                    (None, q) => q,
+                },
+            )
         };
         if let Some((i, f)) = fault {
             return Err(describe(name, &shape, i, f));
