@@ -62,16 +62,13 @@ pub struct Prepared {
     pub aux: Vec<f64>,
 }
 
-fn describe(name: &str, shape: &[usize], i: usize, f: Fault) -> Error {
-    let place = if shape.len() <= 2 { format!("row {i}") } else { format!("row {i} (flattened)") };
-    Error::Value(format!("{name}: {place} {}", f.describe()))
-}
-
 impl Prepared {
     /// Validates and prepares `(n, d)` points (`(n, d + 1)` for the
     /// hyperboloid). `name` is the argument name used in messages.
     pub fn new(model: Model, curvature: Curvature, name: &str, x: &Data) -> Result<Prepared> {
         let shape = x.shape().to_vec();
+        let describe =
+            |name: &str, shape: &[usize], i: usize, f: Fault| crate::error::row_error(name, shape, &[i], f, x.is_f32());
         if shape.len() != 2 {
             return Err(Error::Value(format!(
                 "{name} must be a 2-D array of points, shape (n, d); got shape {shape:?}"
