@@ -317,6 +317,11 @@ def array_arg(dr: Draw, ctx: Ctx, role: str, lead=None):
     d = ctx.d
     if dr.chance(0.04):
         d = dr.pick([0, 1, 2, 4, 9])  # mismatched dimension
+    lead = list(lead)
+    while lead and int(np.prod(lead)) * max(d, 1) > 40_000:  # keep each input small (a string copy
+        i = int(np.argmax(lead))                              # of 10^7 entries is 1.5 GB)
+        lead[i] //= 2
+    lead = tuple(lead)
     n = int(np.prod(lead)) if lead else 1
     if role in ("point", "point2d"):
         width = d + 1 if ctx.model == "hyperboloid" else d
@@ -793,7 +798,7 @@ def fuzz_state(dr: Draw, name, obj, log):
 # driver
 
 SURVEY = False
-FINDINGS_PATH = os.environ.get("GYROKIT_FUZZ_FINDINGS", os.path.join(os.path.dirname(__file__), "findings.jsonl"))
+FINDINGS_PATH = os.environ.get("GYROKIT_FUZZ_FINDINGS", "findings.jsonl")
 COUNT_PATH = os.environ.get("GYROKIT_FUZZ_COUNT")
 VERBOSE = False
 _count = 0
