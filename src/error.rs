@@ -140,7 +140,7 @@ pub fn row_error(name: &str, shape: &[usize], row: &[usize], fault: Fault, was_f
                 msg.push_str(&format!(
                     ". {name} is float32, which cannot hold this point: rounding to float32 (steps of \
                      6e-8 R near the sphere) moved it onto or outside the sphere; float32 holds ball \
-                     points only up to about 17 R from the origin in the Poincaré ball, 8 R in the \
+                     points only up to about 16 R from the origin in the Poincaré ball, 8 R in the \
                      Klein ball. Pass the points as float64 (from the original data: converting the \
                      float32 array does not bring them back inside), or pull them inside with \
                      gk.poincare.project / gk.klein.project"
