@@ -50,6 +50,7 @@ inputs run so far (every 1000 inputs).
 from __future__ import annotations
 
 import base64
+import fnmatch
 import inspect
 import io
 import json
@@ -608,7 +609,10 @@ def describe_value(v) -> str:
         if v.size <= 12:
             s += f", values={v.tolist()!r}"
         return s + ")"
-    r = repr(v)
+    try:
+        r = repr(v)
+    except Exception as e:  # noqa: BLE001 - e.g. pandas cannot print big-endian frames
+        r = f"<{type(v).__name__}, repr failed: {type(e).__name__}>"
     return r if len(r) < 300 else r[:300] + "..."
 
 
@@ -618,7 +622,10 @@ def describe_call(name, args, kw) -> str:
 
 
 def check_call(name, fn, args, kw, log):
-    """Runs fn(*args, **kw) under the oracle. Returns the result or None."""
+    """Runs fn(*args, **kw) under the oracle. Returns the result or None
+    (also when the call is skipped as a known finding)."""
+    if known_issue(name, args, kw):
+        return None
     with np.errstate(all="ignore"), warnings.catch_warnings():
         warnings.simplefilter("ignore")
         finite = all(numeric_finite(a) for a in args) and all(numeric_finite(v) for k, v in kw.items() if k != "out")
@@ -666,11 +673,131 @@ def _huge(args, kw, limit=1e150) -> bool:
     return False
 
 
+def _floats(args, kw):
+    for a in list(args) + list(kw.values()):
+        if isinstance(a, (str, bytes)) or a is None:
+            continue
+        try:
+            with warnings.catch_warnings():
+                warnings.simplefilter("ignore")
+                v = np.asarray(a, dtype=np.float64)
+        except Exception:  # noqa: BLE001
+            continue
+        yield v
+
+
+def _tiny(args, kw, limit=1e-150) -> bool:
+    """Some float argument has a non-zero entry below `limit` in magnitude."""
+    with np.errstate(all="ignore"):
+        return any(v.size and np.any((v != 0) & (np.abs(v) < limit)) for v in _floats(args, kw))
+
+
+def _extreme_curvature(args, kw) -> bool:
+    try:
+        k = abs(float(kw.get("curvature", -1.0)))
+    except (TypeError, ValueError):
+        return False
+    return k > 1e150 or 0 < k < 1e-150
+
+
+def _far_geodesic(args, kw) -> bool:
+    """geodesic(x, y, t) whose point lies beyond ~30 R (t extrapolates far)."""
+    if len(args) < 3:
+        return False
+    try:
+        t = np.max(np.abs(np.asarray(args[2], dtype=np.float64)))
+        x, y = (np.asarray(a, dtype=np.float64) for a in args[:2])
+        k = float(kw.get("curvature", -1.0))
+        R = 1 / np.sqrt(-k)
+        with np.errstate(all="ignore"):
+            # textbook Poincaré/Klein bound: d(x, y) <= d(0, x) + d(0, y), d(0, x) <= 2 artanh(|x|/R) R
+            rx = np.max(np.linalg.norm(x, axis=-1)) / R
+            ry = np.max(np.linalg.norm(y, axis=-1)) / R
+            reach = 2 * (np.arctanh(min(rx, 1 - 1e-16)) + np.arctanh(min(ry, 1 - 1e-16)))
+        return bool(t * reach + reach > 30)
+    except Exception:  # noqa: BLE001
+        return False
+
+
+def _near_rim(args, kw, gap=1e-5) -> bool:
+    """A point argument within `gap` R of the sphere (ball models; the
+    hyperboloid's x0 beyond 1/gap)."""
+    model = kw.get("model", "poincare")
+    if model == "halfspace":
+        return False
+    try:
+        k = float(kw.get("curvature", -1.0))
+        R = 1 / np.sqrt(-k) if k < 0 else 1.0
+    except (TypeError, ValueError):
+        R = 1.0
+    for v in _floats(args, kw):
+        if v.ndim < 1 or v.shape[-1] < 1 or not v.size:
+            continue
+        with np.errstate(all="ignore"):
+            if model == "hyperboloid":
+                if np.any(np.abs(v[..., 0]) > R / gap):
+                    return True
+            elif np.any(1 - np.linalg.norm(v, axis=-1) / R < gap):
+                return True
+    return False
+
+
+def _bad_int(args, kw, depth=0) -> bool:
+    """An integer argument outside int64 (also inside a pickle state), or a
+    negative max_iter."""
+    for name, a in list(enumerate(args)) + list(kw.items()):
+        if isinstance(a, (int, np.integer)) and not isinstance(a, (bool, np.bool_)):
+            if not -2 ** 63 <= int(a) < 2 ** 63 or (name == "max_iter" and int(a) < 0):
+                return True
+        elif depth < 2 and isinstance(a, (tuple, list)) and len(a) < 20 and _bad_int(a, {}, depth + 1):
+            return True
+        elif depth < 2 and isinstance(a, dict) and _bad_int([], a, depth + 1):
+            return True
+    return False
+
+
+def _raises_in_array(args, kw) -> bool:
+    return any(isinstance(a, RaisesInArray) for a in list(args) + list(kw.values()))
+
+
+def _always(args, kw) -> bool:
+    return True
+
+
+# Findings of the 1 000 000-input survey in code outside the harness's
+# owner's files (reproducers in tests/fuzz/FINDINGS.md), as fnmatch patterns
+# of the call name. Each skips only the inputs that trigger it.
 KNOWN = [
     # project() loops forever when |x|^2 overflows (|x| > ~1.3e154): the gap
     # is NaN, the scale factor NaN, and the ulp-stepping loop never ends.
-    ("gyrokit.poincare.project", "hangs on |x| > 1.3e154", _huge),
-    ("gyrokit.klein.project", "hangs on |x| > 1.3e154", _huge),
+    ("gyrokit.poincare.project", "F1 hangs on |x| > 1.3e154", _huge),
+    ("gyrokit.klein.project", "F1 hangs on |x| > 1.3e154", _huge),
+    # NaN instead of a ValueError when squares of the inputs overflow
+    ("gyrokit.*.exp_map", "F2 NaN for huge tangents", _huge),
+    ("gyrokit.*.transport", "F2 NaN for huge tangents", _huge),
+    ("gyrokit.*.log_map", "F2 NaN for huge inputs", _huge),
+    ("gyrokit.*.geodesic", "F2 NaN for huge inputs", _huge),
+    ("gyrokit.halfspace.distance", "F2 NaN for coordinates near 1e308", _huge),
+    # NaN when the result lies beyond the float64 range of the ball
+    ("gyrokit.*.geodesic", "F3 NaN for far extrapolation", _far_geodesic),
+    # NaN when squares of tiny inputs underflow
+    ("gyrokit.klein.*", "F4 NaN for coordinates below 1e-150", _tiny),
+    ("gyrokit.poincare.*", "F4 NaN for coordinates below 1e-150", _tiny),
+    # NaN for curvatures beyond 1e150 in magnitude
+    ("gyrokit.*", "F5 NaN for |curvature| > 1e150", _extreme_curvature),
+    # centroids of points near the rim: NaN means, midpoints on the sphere
+    ("gyrokit.frechet_mean", "F6 NaN near the rim", _near_rim),
+    ("gyrokit.einstein_midpoint", "F6 wrong near the rim", _near_rim),
+    ("gyrokit.frechet_variance", "F6 NaN near the rim", _near_rim),
+    ("gyrokit.KMeans.*", "F6 NaN centres near the rim", _near_rim),
+    # OverflowError (not ValueError/TypeError) for out-of-range integers
+    ("gyrokit.*", "F7 OverflowError for integers outside int64 / negative max_iter", _bad_int),
+    # exceptions raised by an argument's __array__ pass through unchanged
+    ("gyrokit.KMeans.*", "F8 RuntimeError from __array__ passes through", _raises_in_array),
+    ("gyrokit.frechet_*", "F8 RuntimeError from __array__ passes through", _raises_in_array),
+    ("gyrokit.einstein_midpoint", "F8 RuntimeError from __array__ passes through", _raises_in_array),
+    # a corrupted pickle state is accepted and gives NaN distances
+    ("gyrokit.NeighborIndex.* (after state)", "F9 corrupted state accepted", _always),
 ]
 SKIP_KNOWN = os.environ.get("GYROKIT_FUZZ_NO_SKIP") != "1"
 SKIPPED = [0]
@@ -679,8 +806,8 @@ SKIPPED = [0]
 def known_issue(name, args, kw) -> bool:
     if not SKIP_KNOWN:
         return False
-    for target, _, pred in KNOWN:
-        if name == target and pred(args, kw):
+    for pattern, _, pred in KNOWN:
+        if fnmatch.fnmatchcase(name, pattern) and pred(args, kw):
             SKIPPED[0] += 1
             return True
     return False
@@ -711,8 +838,6 @@ def run_function(dr: Draw, name, fn, module, log):
     if got is None:
         return None
     args, kw = got
-    if known_issue(name, args, kw):
-        return None
     log.append((name, args, kw, None))
     return check_call(name, fn, args, kw, log)
 
