@@ -104,9 +104,10 @@ impl Fault {
 }
 
 /// How far outside the sphere (`|x|/R - 1`) rounding to float32 can put a
-/// point that was inside: a few units in the last place of float32
-/// (2^-24 = 6e-8 per coordinate, summed over the norm). Beyond this the
-/// point was outside before it was rounded.
+/// point that was inside: rounding each coordinate moves the point by at
+/// most 2^-24 |x| (6e-8 R at the sphere); the bound leaves room for the
+/// curvature's own rounding. Beyond it the point was outside before it was
+/// rounded, and the float32 hint would mislead.
 const F32_ROUNDING_REACH: f64 = 1e-6;
 
 /// The error for a bad row of an input: the one formatter of such messages,
@@ -175,5 +176,58 @@ impl RowFault {
     #[inline]
     pub fn new(arg: usize, fault: Fault) -> RowFault {
         RowFault { arg, fault }
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn msg(e: Error) -> String {
+        match e {
+            Error::Value(m) => m,
+            Error::Type(m) => panic!("expected a ValueError, got TypeError {m}"),
+        }
+    }
+
+    #[test]
+    fn names_the_argument_in_the_formula_and_the_place() {
+        let m = msg(row_error("y", &[5, 3], &[2], Fault::OutsideBall(0.25), false));
+        assert!(m.starts_with("y: row 2 is on or outside the ball (|y|/R - 1 = 2.500e-1)"), "{m}");
+        let m = msg(row_error("end", &[2, 4, 3], &[1, 2], Fault::NonFinite, false));
+        assert!(m.starts_with("end: row (1, 2) contains NaN"), "{m}");
+        let m = msg(row_error("x", &[3], &[], Fault::NonFinite, false));
+        assert!(m.starts_with("x (a single point)"), "{m}");
+        let m = msg(row_error("t", &[], &[], Fault::NonFinite, false));
+        assert!(m.starts_with("t (a single value)"), "{m}");
+        let m = msg(row_error("v", &[4, 3], &[0], Fault::AtOrAboveLight(0.5), false));
+        assert!(m.contains("|v|/c - 1"), "{m}");
+    }
+
+    #[test]
+    fn float32_hint_only_for_float32_points_just_outside() {
+        let hint = "float32, which cannot hold this point";
+        assert!(msg(row_error("x", &[9, 3], &[4], Fault::OutsideBall(8.6e-9), true)).contains(hint));
+        assert!(msg(row_error("x", &[9, 3], &[4], Fault::OutsideBall(0.0), true)).contains(hint));
+        // float64 input, or a point far outside, or another fault: no hint
+        assert!(!msg(row_error("x", &[9, 3], &[4], Fault::OutsideBall(8.6e-9), false)).contains(hint));
+        assert!(!msg(row_error("x", &[9, 3], &[4], Fault::OutsideBall(0.5), true)).contains(hint));
+        assert!(!msg(row_error("x", &[9, 3], &[4], Fault::NonFinite, true)).contains(hint));
+    }
+
+    #[test]
+    fn transposition_hint_for_wide_arrays_failing_at_row_0() {
+        let m = msg(row_error("x", &[3, 1000], &[0], Fault::OutsideBall(29.5), false));
+        assert!(m.contains("x has shape (3, 1000)") && m.contains("(x.T)"), "{m}");
+        // not for a plausible shape, a later row, a scalar operand or NaN
+        for (shape, row, f) in [
+            (vec![5usize, 3], vec![0usize], Fault::OutsideBall(1.0)),
+            (vec![3, 1000], vec![1], Fault::OutsideBall(1.0)),
+            (vec![3, 1000], vec![0, 0], Fault::NonFinite),
+            (vec![3, 1000], vec![0], Fault::NonFinite),
+        ] {
+            let m = msg(row_error("x", &shape, &row, f, false));
+            assert!(!m.contains("transpose"), "{m}");
+        }
     }
 }

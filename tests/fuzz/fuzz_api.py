@@ -42,8 +42,10 @@ Oracle, per input:
 
 Findings stop the run (after printing a reproducer) unless ``--survey`` is
 given, which appends one JSON line per new finding signature to
-``tests/fuzz/findings.jsonl`` (override with ``GYROKIT_FUZZ_FINDINGS``) and
-continues. ``GYROKIT_FUZZ_COUNT`` names a file that receives the number of
+``findings.jsonl`` in the working directory (override with
+``GYROKIT_FUZZ_FINDINGS``) and continues; ``--repro FILE.jsonl`` replays
+them. Known findings not fixed yet are skipped (``KNOWN``, with
+``tests/fuzz/FINDINGS.md``); ``GYROKIT_FUZZ_NO_SKIP=1`` runs them too. ``GYROKIT_FUZZ_COUNT`` names a file that receives the number of
 inputs run so far (every 1000 inputs).
 """
 
