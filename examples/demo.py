@@ -71,9 +71,8 @@ print(f"4. translating by b then a = translating by a ⊕ b after a rotation of 
       f"(max mismatch {np.abs(two_steps - one_step).max():.1e})")
 
 
-def to_klein(p):
-    return 2 * p / (1 + np.sum(p * p, axis=-1, keepdims=True))
-
-
-km = gk.klein.midpoint(to_klein(families[0]), to_klein(families[2]))
-print(f"   Einstein midpoint in the Klein disk {km} = Klein image of the bridge {to_klein(bridge)}")
+fams_k = gk.convert(families, "poincare", "klein")    # the same points in the Klein disk
+km = gk.klein.midpoint(fams_k[0], fams_k[2])
+bridge_k = gk.convert(bridge, "poincare", "klein")
+print(f"   Einstein midpoint in the Klein disk {km} = Klein image of the bridge {bridge_k} "
+      f"(apart by {gk.klein.distance(km, bridge_k):.1e})")

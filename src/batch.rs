@@ -14,7 +14,7 @@ use ndarray::{ArrayD, ArrayViewD, IxDyn};
 use rayon::prelude::*;
 use std::sync::Mutex;
 
-use crate::error::{Error, Fault, Result, RowFault};
+use crate::error::{looks_transposed, row_error, Error, Fault, Result, RowFault};
 
 /// Borrowed input data, float64 or float32, any strides.
 #[derive(Clone)]
@@ -144,8 +144,9 @@ pub fn layout(ops: &[Operand]) -> Result<Layout> {
                 None => d = Some((dd, o.name)),
                 Some((d0, n0)) if d0 != dd => {
                     return Err(Error::Value(format!(
-                        "mismatched point dimension: {n0} has d = {d0} but {} has d = {dd}",
-                        o.name
+                        "mismatched point dimension: {n0} has d = {d0} but {} has d = {dd}{}",
+                        o.name,
+                        transpose_hint(ops, d0, dd)
                     )))
                 }
                 _ => {}
@@ -171,6 +172,23 @@ pub fn layout(ops: &[Operand]) -> Result<Layout> {
         }
     }
     Ok(Layout { lead, d: d.map(|x| x.0).unwrap_or(0) })
+}
+
+/// For a dimension mismatch between `d0` and `d1`: a note when one point
+/// operand looks like a transposed `(d, n)` array whose first axis matches
+/// the other dimension.
+fn transpose_hint(ops: &[Operand], d0: usize, d1: usize) -> String {
+    for o in ops.iter().filter(|o| o.core == Core::Point) {
+        let s = o.data.shape();
+        if looks_transposed(s) && ((s[1] == d0 && s[0] == d1) || (s[1] == d1 && s[0] == d0)) {
+            return format!(
+                " ({} has shape ({}, {}): if it holds {} points of dimension {}, pass its transpose ({}.T); \
+                 points lie along the last axis)",
+                o.name, s[0], s[1], s[1], s[0], o.name
+            );
+        }
+    }
+    String::new()
 }
 
 /// Raw access to one operand in the broadcast frame.
@@ -277,21 +295,10 @@ fn advance(idx: &mut [usize], shape: &[usize]) {
     }
 }
 
-fn format_fault(ops: &[Operand], acc: &[Access], f: RowFault, own: &[usize], nd: usize) -> Error {
+fn format_fault(ops: &[Operand], f: RowFault, own: &[usize], nd: usize) -> Error {
     let o = &ops[f.arg];
     let nlead = o.lead_shape().len();
-    let own = &own[nd - nlead..];
-    let what = match o.core {
-        Core::Point => "point",
-        Core::Scalar => "value",
-    };
-    let _ = acc;
-    let place = match own.len() {
-        0 => format!("{} (a single {what})", o.name),
-        1 => format!("{}: row {}", o.name, own[0]),
-        _ => format!("{}: row ({})", o.name, own.iter().map(|i| i.to_string()).collect::<Vec<_>>().join(", ")),
-    };
-    Error::Value(format!("{place} {}", f.fault.describe()))
+    row_error(o.name, o.data.shape(), &own[nd - nlead..], f.fault, o.data.is_f32())
 }
 
 /// A fault located: (argument, its own flat row, the fault, its own index).
@@ -412,7 +419,7 @@ where
         }
     }
     if let Some((_, _, f, own)) = first_fault.into_inner().unwrap_or_else(|e| e.into_inner()) {
-        return Err(format_fault(ops, &acc, f, &own, nd));
+        return Err(format_fault(ops, f, &own, nd));
     }
     let out = ArrayD::from_shape_vec(IxDyn(&shape), out).expect("shape matches length");
     Ok(if f32_out { Output::F32(out.mapv(|v| v as f32)) } else { Output::F64(out) })

@@ -55,15 +55,22 @@ pub enum Fault {
 }
 
 impl Fault {
+    /// The fault in words, with `|x|` in the formulas (see [`Fault::describe_as`]).
     pub fn describe(&self) -> String {
+        self.describe_as("x")
+    }
+
+    /// The fault in words; `name` is the argument the formulas speak of
+    /// (`|y|/R - 1` for a bad `y`).
+    pub fn describe_as(&self, name: &str) -> String {
         match *self {
             Fault::NonFinite => "contains NaN or infinity".to_string(),
             Fault::OutsideBall(e) => format!(
-                "is on or outside the ball (|x|/R - 1 = {e:.3e}); points must lie strictly \
+                "is on or outside the ball (|{name}|/R - 1 = {e:.3e}); points must lie strictly \
                  inside the ball of radius R = 1/sqrt(-curvature)"
             ),
             Fault::AtOrAboveLight(e) => {
-                format!("has speed at or above c (|v|/c - 1 = {e:.3e})")
+                format!("has speed at or above c (|{name}|/c - 1 = {e:.3e})")
             }
             Fault::OffHyperboloid(e) if e.is_nan() => {
                 "has x0 <= 0 (not on the upper sheet of the hyperboloid)".to_string()
@@ -88,6 +95,74 @@ impl Fault {
             Fault::NotInHalfSpace => "has last coordinate <= 0 (outside the upper half-space)".to_string(),
         }
     }
+
+    /// Whether the fault is about where the point lies (a domain fault), as
+    /// opposed to NaN/infinity or a result that overflows.
+    fn is_domain(&self) -> bool {
+        matches!(self, Fault::OutsideBall(_) | Fault::OffHyperboloid(_) | Fault::NotInHalfSpace | Fault::BeyondRange)
+    }
+}
+
+/// How far outside the sphere (`|x|/R - 1`) rounding to float32 can put a
+/// point that was inside: rounding each coordinate moves the point by at
+/// most 2^-24 |x| (6e-8 R at the sphere); the bound leaves room for the
+/// curvature's own rounding. Beyond it the point was outside before it was
+/// rounded, and the float32 hint would mislead.
+const F32_ROUNDING_REACH: f64 = 1e-6;
+
+/// The error for a bad row of an input: the one formatter of such messages,
+/// shared by the broadcasting engine, the pairwise paths and the centroids.
+///
+/// * `name`: the argument as the user passed it (`"x"`, `"y"`, ...).
+/// * `shape`: that argument's full shape (point axis included).
+/// * `row`: the bad row's index in the argument's own leading axes (`[]` for
+///   a single point or value, `[i]` for a 2-D array of points, `[i, j]` for
+///   a 3-D one); for a scalar operand (no point axis) `row` has as many
+///   entries as `shape`.
+/// * `fault`: what is wrong with the row.
+/// * `was_f32`: the argument arrived as float32 (before widening).
+///
+/// Besides the place and the fault, the message says when float32 rounding
+/// is the likely cause (a point that float64 could hold inside the ball but
+/// float32 cannot) and when the shape suggests the array was transposed
+/// (`(d, n)` passed for `(n, d)`).
+pub fn row_error(name: &str, shape: &[usize], row: &[usize], fault: Fault, was_f32: bool) -> Error {
+    let is_point = shape.len() > row.len();
+    let place = match row.len() {
+        0 if is_point => format!("{name} (a single point)"),
+        0 => format!("{name} (a single value)"),
+        1 => format!("{name}: row {}", row[0]),
+        _ => format!("{name}: row ({})", row.iter().map(|i| i.to_string()).collect::<Vec<_>>().join(", ")),
+    };
+    let mut msg = format!("{place} {}", fault.describe_as(name));
+    if was_f32 {
+        if let Fault::OutsideBall(e) = fault {
+            if e <= F32_ROUNDING_REACH {
+                msg.push_str(&format!(
+                    ". {name} is float32, which cannot hold this point: rounding to float32 (steps of \
+                     6e-8 R near the sphere) moved it onto or outside the sphere; float32 holds ball \
+                     points only up to about 16 R from the origin in the Poincaré ball, 8 R in the \
+                     Klein ball. Pass the points as float64 (from the original data: converting the \
+                     float32 array does not bring them back inside), or pull them inside with \
+                     gk.poincare.project / gk.klein.project"
+                ));
+            }
+        }
+    }
+    if is_point && row.first() == Some(&0) && fault.is_domain() && looks_transposed(shape) {
+        let (a, b) = (shape[0], shape[1]);
+        msg.push_str(&format!(
+            ". {name} has shape ({a}, {b}), read as {a} points of dimension {b} (points lie along the \
+             last axis): if it holds {b} points of dimension {a}, pass its transpose ({name}.T)"
+        ));
+    }
+    Error::Value(msg)
+}
+
+/// A 2-D shape `(a, b)` whose last axis is much longer than the first: more
+/// likely `b` points of dimension `a` than `a` points of dimension `b`.
+pub fn looks_transposed(shape: &[usize]) -> bool {
+    shape.len() == 2 && shape[1] >= 16 && shape[1] >= 4 * shape[0]
 }
 
 /// A fault in operand number `arg` of a row kernel.
@@ -101,5 +176,58 @@ impl RowFault {
     #[inline]
     pub fn new(arg: usize, fault: Fault) -> RowFault {
         RowFault { arg, fault }
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn msg(e: Error) -> String {
+        match e {
+            Error::Value(m) => m,
+            Error::Type(m) => panic!("expected a ValueError, got TypeError {m}"),
+        }
+    }
+
+    #[test]
+    fn names_the_argument_in_the_formula_and_the_place() {
+        let m = msg(row_error("y", &[5, 3], &[2], Fault::OutsideBall(0.25), false));
+        assert!(m.starts_with("y: row 2 is on or outside the ball (|y|/R - 1 = 2.500e-1)"), "{m}");
+        let m = msg(row_error("end", &[2, 4, 3], &[1, 2], Fault::NonFinite, false));
+        assert!(m.starts_with("end: row (1, 2) contains NaN"), "{m}");
+        let m = msg(row_error("x", &[3], &[], Fault::NonFinite, false));
+        assert!(m.starts_with("x (a single point)"), "{m}");
+        let m = msg(row_error("t", &[], &[], Fault::NonFinite, false));
+        assert!(m.starts_with("t (a single value)"), "{m}");
+        let m = msg(row_error("v", &[4, 3], &[0], Fault::AtOrAboveLight(0.5), false));
+        assert!(m.contains("|v|/c - 1"), "{m}");
+    }
+
+    #[test]
+    fn float32_hint_only_for_float32_points_just_outside() {
+        let hint = "float32, which cannot hold this point";
+        assert!(msg(row_error("x", &[9, 3], &[4], Fault::OutsideBall(8.6e-9), true)).contains(hint));
+        assert!(msg(row_error("x", &[9, 3], &[4], Fault::OutsideBall(0.0), true)).contains(hint));
+        // float64 input, or a point far outside, or another fault: no hint
+        assert!(!msg(row_error("x", &[9, 3], &[4], Fault::OutsideBall(8.6e-9), false)).contains(hint));
+        assert!(!msg(row_error("x", &[9, 3], &[4], Fault::OutsideBall(0.5), true)).contains(hint));
+        assert!(!msg(row_error("x", &[9, 3], &[4], Fault::NonFinite, true)).contains(hint));
+    }
+
+    #[test]
+    fn transposition_hint_for_wide_arrays_failing_at_row_0() {
+        let m = msg(row_error("x", &[3, 1000], &[0], Fault::OutsideBall(29.5), false));
+        assert!(m.contains("x has shape (3, 1000)") && m.contains("(x.T)"), "{m}");
+        // not for a plausible shape, a later row, a scalar operand or NaN
+        for (shape, row, f) in [
+            (vec![5usize, 3], vec![0usize], Fault::OutsideBall(1.0)),
+            (vec![3, 1000], vec![1], Fault::OutsideBall(1.0)),
+            (vec![3, 1000], vec![0, 0], Fault::NonFinite),
+            (vec![3, 1000], vec![0], Fault::NonFinite),
+        ] {
+            let m = msg(row_error("x", &shape, &row, f, false));
+            assert!(!m.contains("transpose"), "{m}");
+        }
     }
 }

@@ -376,7 +376,7 @@ impl Prepared {
             )
         };
         if let Some((i, f)) = fault {
-            return Err(describe(name, &shape, i, f));
+            return Err(crate::error::row_error(name, &shape, &[i], f, x.is_f32()));
         }
         Ok(Prepared { model, curvature, n, w, coords, aux, extra })
     }
@@ -485,9 +485,4 @@ impl Prepared {
     pub fn norm_sq(&self, i: usize) -> f64 {
         crate::numeric::sumsq(self.row(i))
     }
-}
-
-fn describe(name: &str, shape: &[usize], i: usize, f: Fault) -> Error {
-    let place = if shape.len() <= 2 { format!("row {i}") } else { format!("row {i} (flattened)") };
-    Error::Value(format!("{name}: {place} {}", f.describe()))
 }

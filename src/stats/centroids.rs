@@ -72,7 +72,7 @@ pub fn unit_points<'a>(model: Model, k: &Curvature, name: &str, x: &'a Data) -> 
                     })
                     .collect();
                 if let Some((i, f)) = bad.into_iter().flatten().next() {
-                    return Err(Error::Value(format!("{name}: row {i} {}", f.describe())));
+                    return Err(crate::error::row_error(name, &shape, &[i], f, x.is_f32()));
                 }
                 return Ok(UnitPoints { n, d, p: std::borrow::Cow::Borrowed(sl), g });
             }
@@ -122,7 +122,7 @@ pub fn unit_points<'a>(model: Model, k: &Curvature, name: &str, x: &'a Data) -> 
         })
         .collect();
     if let Some((i, f)) = res.into_iter().flatten().next() {
-        return Err(Error::Value(format!("{name}: row {i} {}", f.describe())));
+        return Err(crate::error::row_error(name, &shape, &[i], f, x.is_f32()));
     }
     Ok(UnitPoints { n, d, p: std::borrow::Cow::Owned(p), g })
 }
