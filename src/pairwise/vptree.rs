@@ -46,7 +46,7 @@ use crate::models::ball::Curvature;
 use crate::models::Model;
 use crate::numeric::acosh1p2_fast;
 use crate::numeric::simd;
-use crate::pairwise::Prepared;
+use crate::pairwise::{matrix, Prepared};
 
 /// Default number of points per leaf. Leaves are scanned brute force; with
 /// the cheap pair function of [`Prepared`] (a few ns per pair), leaves of
@@ -409,6 +409,26 @@ impl Builder<'_> {
     }
 }
 
+/// Validates query points `y` (argument "y") against indexed points `pts`:
+/// same model, curvature and width.
+pub fn prepare_queries(pts: &Prepared, y: &Data) -> Result<Prepared> {
+    let shape = y.shape();
+    // Check the width first, so that a wrong d is reported as such even
+    // when the rows would also fail the model's domain check.
+    if shape.len() == 2 {
+        let want = pts.model.width(pts.w);
+        if shape[1] != want {
+            return Err(Error::Value(format!(
+                "mismatched point dimension: the index holds points with {want} coordinates but y has {}",
+                shape[1]
+            )));
+        }
+    }
+    let q = Prepared::new(pts.model, pts.curvature, "y", y)?;
+    pts.check_compatible(&q, ("the index", "y"))?;
+    Ok(q)
+}
+
 /// Rows of `p` in the order `order` (a permutation).
 fn permuted(p: &Prepared, order: &[usize]) -> Prepared {
     let w = p.w;
@@ -419,6 +439,62 @@ fn permuted(p: &Prepared, order: &[usize]) -> Prepared {
         aux.push(p.aux[i]);
     }
     Prepared { model: p.model, curvature: p.curvature, n: p.n, w, coords, aux }
+}
+
+/// The stored state of prepared points, `(coords (n w), aux (n))`, for
+/// pickling. With [`permuted`] and [`prepared_from_parts`], the only code
+/// here that knows the fields of [`Prepared`].
+pub fn prepared_parts(p: &Prepared) -> (Vec<f64>, Vec<f64>) {
+    (p.coords.clone(), p.aux.clone())
+}
+
+/// Prepared points from [`prepared_parts`], checked (a corrupted state is
+/// a `ValueError`): at least one point, finite coordinates, finite
+/// positive factors.
+pub fn prepared_from_parts(
+    model: Model,
+    curvature: Curvature,
+    w: usize,
+    coords: Vec<f64>,
+    aux: Vec<f64>,
+) -> Result<Prepared> {
+    let bad = |what: &str| Err(Error::Value(format!("invalid NeighborIndex state: {what}")));
+    let n = aux.len();
+    if w == 0 || n == 0 {
+        return bad("empty index or zero width");
+    }
+    if n.checked_mul(w) != Some(coords.len()) {
+        return bad("coordinate array does not match the number of points");
+    }
+    if !coords.iter().all(|v| v.is_finite()) || !aux.iter().all(|a| a.is_finite() && *a > 0.0) {
+        return bad("non-finite coordinates or factors");
+    }
+    Ok(Prepared { model, curvature, n, w, coords, aux })
+}
+
+/// Checks `k` against the candidates of a query: the `n` indexed points
+/// for external queries, `n - 1` for the indexed points themselves.
+fn check_k(external: bool, n: usize, k: usize) -> Result<()> {
+    let cands = if external { n } else { n.saturating_sub(1) };
+    if k < 1 {
+        return Err(Error::Value(format!("k must be at least 1, got {k}")));
+    }
+    if k > cands {
+        let what = if external {
+            format!("the index holds {cands} points")
+        } else {
+            format!("each indexed point has {cands} others (self-matches are excluded when y is None)")
+        };
+        return Err(Error::Value(format!("k = {k} is larger than the number of candidates: {what}")));
+    }
+    Ok(())
+}
+
+fn check_r(r: f64) -> Result<()> {
+    if r.is_nan() || r < 0.0 {
+        return Err(Error::Value(format!("r must be a non-negative number, got {r}")));
+    }
+    Ok(())
 }
 
 /// Room for `len` results, or a `ValueError` instead of an abort.
@@ -437,11 +513,12 @@ impl VpTree {
     /// Validates `x` (argument name `name` in messages) and builds the tree.
     pub fn new(model: Model, curvature: Curvature, name: &str, x: &Data, leaf_size: usize) -> Result<VpTree> {
         let pts = Prepared::new(model, curvature, name, x)?;
-        VpTree::from_prepared(pts, leaf_size, name)
+        VpTree::from_prepared(&pts, leaf_size, name)
     }
 
-    /// Builds the tree over already prepared points.
-    pub fn from_prepared(pts: Prepared, leaf_size: usize, name: &str) -> Result<VpTree> {
+    /// Builds the tree over already prepared points (copied into tree
+    /// order; `pts` itself is left as it is).
+    pub fn from_prepared(pts: &Prepared, leaf_size: usize, name: &str) -> Result<VpTree> {
         if leaf_size == 0 {
             return Err(Error::Value("leaf_size must be at least 1".into()));
         }
@@ -452,9 +529,9 @@ impl VpTree {
         let mut perm: Vec<usize> = (0..n).collect();
         let mut scratch = vec![(0.0f64, 0usize); n];
         let mut nodes = vec![Node { start: 0, end: 0, outside: 0, bounds: [0.0; 4] }; node_count(n, leaf_size)];
-        Builder { pts: &pts, leaf: leaf_size, fast: simd::has_fma() }.build(0, &mut perm, &mut scratch, &mut nodes, 0);
+        Builder { pts, leaf: leaf_size, fast: simd::has_fma() }.build(0, &mut perm, &mut scratch, &mut nodes, 0);
         drop(scratch);
-        let points = permuted(&pts, &perm);
+        let points = permuted(pts, &perm);
         Ok(VpTree { points, perm, nodes, leaf_size })
     }
 
@@ -470,21 +547,7 @@ impl VpTree {
 
     /// Prepares query points `y` (argument "y") for this index.
     pub fn prepare_queries(&self, y: &Data) -> Result<Prepared> {
-        let shape = y.shape();
-        // Check the width first, so that a wrong d is reported as such even
-        // when the rows would also fail the model's domain check.
-        if shape.len() == 2 {
-            let want = self.points.model.width(self.points.w);
-            if shape[1] != want {
-                return Err(Error::Value(format!(
-                    "mismatched point dimension: the index holds points with {want} coordinates but y has {}",
-                    shape[1]
-                )));
-            }
-        }
-        let q = Prepared::new(self.points.model, self.points.curvature, "y", y)?;
-        self.points.check_compatible(&q, ("the index", "y"))?;
-        Ok(q)
+        prepare_queries(&self.points, y)
     }
 
     /// The distance the index reports for the pair (query row `qi` of `q`,
@@ -497,17 +560,34 @@ impl VpTree {
 
     /// The k nearest of query row `qi` of `q` into `best`, skipping tree
     /// position `skip` (the query itself when querying the indexed points).
+    ///
+    /// Returns the number of pair evaluations spent; the search stops early
+    /// (leaving `best` incomplete) once that number exceeds `budget`, which
+    /// only [`VpTree::visited_fraction`] sets below `usize::MAX`.
     #[inline(always)]
-    fn knn_one(&self, q: &Prepared, qi: usize, skip: usize, best: &mut Best, stack: &mut Vec<(usize, f64)>) {
+    fn knn_one(
+        &self,
+        q: &Prepared,
+        qi: usize,
+        skip: usize,
+        best: &mut Best,
+        stack: &mut Vec<(usize, f64)>,
+        budget: usize,
+    ) -> usize {
         best.clear();
         stack.clear();
         stack.push((0, f64::NEG_INFINITY));
         let pts = &self.points;
+        let mut evals = 0usize;
         while let Some((ni, lb)) = stack.pop() {
+            if evals > budget {
+                break;
+            }
             if !may_hold(lb, best.tau) {
                 continue;
             }
             let node = self.nodes[ni];
+            evals += if node.is_leaf() { node.end - node.start } else { 1 };
             if node.is_leaf() {
                 for pos in node.start..node.end {
                     if pos == skip {
@@ -544,6 +624,7 @@ impl VpTree {
                 stack.push(first);
             }
         }
+        evals
     }
 
     /// All points within distance `r` of query row `qi` (pair quantity
@@ -687,31 +768,12 @@ impl VpTree {
         keys.into_iter().map(|k| k.1).collect()
     }
 
-    /// Number of candidates a query row can choose from.
-    fn candidates(&self, y: Option<&Prepared>) -> usize {
-        match y {
-            Some(_) => self.n(),
-            None => self.n() - 1,
-        }
-    }
-
     /// The `k` nearest indexed points of every query row (the indexed points
     /// themselves, each excluding itself, when `y` is `None`): row-major
     /// `(m, k)` indices and distances, each row ascending by (distance,
     /// index).
     pub fn query(&self, y: Option<&Prepared>, k: usize) -> Result<(Vec<i64>, Vec<f64>)> {
-        let cands = self.candidates(y);
-        if k < 1 {
-            return Err(Error::Value(format!("k must be at least 1, got {k}")));
-        }
-        if k > cands {
-            let what = if y.is_some() {
-                format!("the index holds {cands} points")
-            } else {
-                format!("each indexed point has {cands} others (self-matches are excluded when y is None)")
-            };
-            return Err(Error::Value(format!("k = {k} is larger than the number of candidates: {what}")));
-        }
+        check_k(y.is_some(), self.n(), k)?;
         let m = y.map_or(self.n(), |q| q.n);
         let total = m.checked_mul(k);
         let mut idx: Vec<i64> = alloc(total, "the (m, k) result")?;
@@ -726,7 +788,7 @@ impl VpTree {
                 #[inline(always)]
                 || {
                     for (i, skip) in queries {
-                        self.knn_one(q, i, skip, &mut best, &mut stack);
+                        self.knn_one(q, i, skip, &mut best, &mut stack, usize::MAX);
                         out.extend(best.items.iter().map(|e| (e.0, e.1)));
                     }
                 },
@@ -749,9 +811,7 @@ impl VpTree {
     /// (self-matches excluded when `y` is `None`), as a CSR triple, each row
     /// ascending by (distance, index).
     pub fn query_radius(&self, y: Option<&Prepared>, r: f64) -> Result<Csr> {
-        if r.is_nan() || r < 0.0 {
-            return Err(Error::Value(format!("r must be a non-negative number, got {r}")));
-        }
+        check_r(r)?;
         let m = y.map_or(self.n(), |q| q.n);
         // The leaf filter on h: sinh(r/2R)^2 loosened so that it is safe
         // whatever the rounding of sinh (see H_SLACK; 1e-6 dwarfs it).
@@ -800,6 +860,38 @@ impl VpTree {
         Ok(Csr { indptr, indices, distances })
     }
 
+    /// Mean number of pair evaluations of a `k`-nearest search, as a
+    /// fraction of `n`, over `samples` indexed points spread evenly over the
+    /// tree (each excluding itself): the measured pruning efficiency. Each
+    /// search is cut off after `cap n` evaluations (and counted as that), so
+    /// the estimate costs at most `samples cap n` evaluations. A count, not
+    /// a time: the same data always gives the same figure.
+    pub fn visited_fraction(&self, k: usize, samples: usize, cap: f64) -> f64 {
+        let n = self.n();
+        let k = k.min(n.saturating_sub(1));
+        if k == 0 {
+            return 1.0;
+        }
+        let s = samples.clamp(1, n);
+        let budget = ((cap.clamp(0.0, 1.0) * n as f64) as usize).max(1);
+        let fast = simd::has_fma();
+        let total: usize = (0..s)
+            .into_par_iter()
+            .map(|t| {
+                let pos = ((2 * t + 1) * n) / (2 * s);
+                let mut best = Best::new(k);
+                let mut stack = Vec::with_capacity(64);
+                simd::dispatch(
+                    fast,
+                    #[inline(always)]
+                    || self.knn_one(&self.points, pos, pos, &mut best, &mut stack, budget),
+                )
+                .min(budget)
+            })
+            .sum();
+        total as f64 / (s as f64 * n as f64)
+    }
+
     /// Every pair distance the index would report, row-major `(m, n)` in
     /// the caller's column order: the brute force the tree must agree with
     /// (for tests). Without `y`, row `i` is indexed point `i`.
@@ -843,7 +935,8 @@ impl VpTree {
             ints.extend_from_slice(&[nd.start as i64, nd.end as i64, nd.outside as i64]);
             bounds.extend_from_slice(&nd.bounds);
         }
-        (self.points.coords.clone(), self.points.aux.clone(), perm, ints, bounds)
+        let (coords, aux) = prepared_parts(&self.points);
+        (coords, aux, perm, ints, bounds)
     }
 
     /// Rebuilds an index from [`VpTree::to_parts`], checking everything a
@@ -861,16 +954,11 @@ impl VpTree {
         bounds: &[f64],
     ) -> Result<VpTree> {
         let bad = |what: &str| Err(Error::Value(format!("invalid NeighborIndex state: {what}")));
-        let n = aux.len();
-        if leaf_size == 0 || w == 0 || n == 0 {
-            return bad("empty index, zero width or zero leaf size");
+        if leaf_size == 0 {
+            return bad("zero leaf size");
         }
-        if n.checked_mul(w) != Some(coords.len()) {
-            return bad("coordinate array does not match the number of points");
-        }
-        if !coords.iter().all(|v| v.is_finite()) || !aux.iter().all(|a| a.is_finite() && *a > 0.0) {
-            return bad("non-finite coordinates or factors");
-        }
+        let points = prepared_from_parts(model, curvature, w, coords, aux)?;
+        let n = points.n;
         if perm.len() != n {
             return bad("permutation length");
         }
@@ -934,8 +1022,196 @@ impl VpTree {
         if visited != nn {
             return bad("unreachable nodes");
         }
-        let points = Prepared { model, curvature, n, w, coords, aux };
         Ok(VpTree { points, perm: p, nodes, leaf_size })
+    }
+}
+
+// ---------------------------------------------------------------------------
+// The index: the tree where it prunes, brute force where it cannot
+
+/// How an [`Index`] answers queries.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub enum Method {
+    /// Measure the tree's pruning on the data, then keep the cheaper of the
+    /// two (see [`Index::new`]).
+    Auto,
+    /// The vantage-point tree.
+    Tree,
+    /// The brute-force kernels of [`crate::pairwise::matrix`].
+    Brute,
+}
+
+impl Method {
+    /// Parses the `method` argument.
+    pub fn parse(s: &str) -> Result<Method> {
+        match s {
+            "auto" => Ok(Method::Auto),
+            "tree" => Ok(Method::Tree),
+            "brute" => Ok(Method::Brute),
+            _ => Err(Error::Value(format!("method must be 'auto', 'tree' or 'brute'; got {s:?}"))),
+        }
+    }
+
+    pub fn name(self) -> &'static str {
+        match self {
+            Method::Auto => "auto",
+            Method::Tree => "tree",
+            Method::Brute => "brute",
+        }
+    }
+}
+
+/// Sample searches of the `auto` rule, and their `k`.
+pub const AUTO_SAMPLES: usize = 64;
+pub const AUTO_K: usize = 10;
+
+/// The `auto` rule keeps the tree when its sample searches evaluate at most
+/// this fraction of the points. Measured (k = 10, n = 10 000 to 20 000,
+/// d = 2 to 16, one run on 2 cores): one pair evaluated by the tree (scalar,
+/// on a data-dependent walk) cost as much as 8 to 12 pairs of the tiled
+/// brute-force kernel where the tree visits most points, and 20 to 34 where
+/// it visits 1 to 3 % of them (the walk's overhead per point grows); the
+/// tree won at a visited fraction of 0.026 (0.53x brute force) and lost at
+/// 0.16 (2.2x). 1/20 keeps it only where it clearly wins.
+pub const AUTO_MAX_VISITED: f64 = 0.05;
+
+/// What an index holds: a tree, or the points in the caller's order.
+#[derive(Clone, Debug)]
+pub enum Engine {
+    Tree(VpTree),
+    Brute(Prepared),
+}
+
+/// An exact neighbour index: a vantage-point tree or brute force, with
+/// identical results (distances bit for bit, order by (distance, index)).
+#[derive(Clone, Debug)]
+pub struct Index {
+    pub engine: Engine,
+    pub leaf_size: usize,
+    /// The tree's measured visited fraction when `auto` chose ([`VpTree::visited_fraction`]); NaN otherwise.
+    pub visited: f64,
+}
+
+impl Index {
+    /// Validates `x` (named `name` in messages) and builds an index.
+    /// `Method::Auto` builds the tree (`O(n log n)`, cheap beside any
+    /// all-points query), measures [`VpTree::visited_fraction`] for
+    /// [`AUTO_K`] neighbours of [`AUTO_SAMPLES`] points, and keeps the tree
+    /// when it is at most [`AUTO_MAX_VISITED`], brute force otherwise.
+    pub fn new(
+        model: Model,
+        curvature: Curvature,
+        name: &str,
+        x: &Data,
+        leaf_size: usize,
+        method: Method,
+    ) -> Result<Index> {
+        let pts = Prepared::new(model, curvature, name, x)?;
+        Index::from_prepared(pts, leaf_size, method, name)
+    }
+
+    pub fn from_prepared(pts: Prepared, leaf_size: usize, method: Method, name: &str) -> Result<Index> {
+        if leaf_size == 0 {
+            return Err(Error::Value("leaf_size must be at least 1".into()));
+        }
+        if pts.n == 0 {
+            return Err(Error::Value(format!("{name} must hold at least one point to build an index; got 0 rows")));
+        }
+        let (engine, visited) = match method {
+            Method::Brute => (Engine::Brute(pts), f64::NAN),
+            Method::Tree => (Engine::Tree(VpTree::from_prepared(&pts, leaf_size, name)?), f64::NAN),
+            Method::Auto => {
+                let tree = VpTree::from_prepared(&pts, leaf_size, name)?;
+                let f = tree.visited_fraction(AUTO_K, AUTO_SAMPLES, 2.0 * AUTO_MAX_VISITED);
+                if f <= AUTO_MAX_VISITED {
+                    (Engine::Tree(tree), f)
+                } else {
+                    (Engine::Brute(pts), f)
+                }
+            }
+        };
+        Ok(Index { engine, leaf_size, visited })
+    }
+
+    /// The method in use (never `Auto`).
+    pub fn method(&self) -> Method {
+        match self.engine {
+            Engine::Tree(_) => Method::Tree,
+            Engine::Brute(_) => Method::Brute,
+        }
+    }
+
+    /// The indexed points (in tree order for a tree).
+    pub fn points(&self) -> &Prepared {
+        match &self.engine {
+            Engine::Tree(t) => &t.points,
+            Engine::Brute(p) => p,
+        }
+    }
+
+    pub fn n(&self) -> usize {
+        self.points().n
+    }
+
+    /// Bytes held by the index.
+    pub fn nbytes(&self) -> usize {
+        match &self.engine {
+            Engine::Tree(t) => t.nbytes(),
+            Engine::Brute(p) => 8 * (p.coords.len() + p.aux.len()),
+        }
+    }
+
+    /// Prepares query points `y` (argument "y") for this index.
+    pub fn prepare_queries(&self, y: &Data) -> Result<Prepared> {
+        prepare_queries(self.points(), y)
+    }
+
+    /// The `k` nearest indexed points of every query row (the indexed
+    /// points themselves, each excluding itself, when `y` is `None`), as in
+    /// [`VpTree::query`], whichever the method.
+    pub fn query(&self, y: Option<&Prepared>, k: usize) -> Result<(Vec<i64>, Vec<f64>)> {
+        match &self.engine {
+            Engine::Tree(t) => t.query(y, k),
+            Engine::Brute(p) => {
+                // The tree's checks and messages, so that both methods
+                // refuse the same k in the same words.
+                check_k(y.is_some(), p.n, k)?;
+                match y {
+                    Some(q) => matrix::knn(q, p, k, false),
+                    None => matrix::knn(p, p, k, true),
+                }
+            }
+        }
+    }
+
+    /// All indexed points within distance `r` (inclusive) of every query
+    /// row, as in [`VpTree::query_radius`], whichever the method.
+    pub fn query_radius(&self, y: Option<&Prepared>, r: f64) -> Result<Csr> {
+        match &self.engine {
+            Engine::Tree(t) => t.query_radius(y, r),
+            Engine::Brute(p) => {
+                check_r(r)?;
+                let (indptr, indices, distances) = match y {
+                    Some(q) => matrix::radius_neighbors(q, p, r, false)?,
+                    None => matrix::radius_neighbors(p, p, r, true)?,
+                };
+                Ok(Csr { indptr, indices, distances })
+            }
+        }
+    }
+
+    /// Every distance the index would report, row-major `(m, n)` in the
+    /// caller's order (for tests).
+    pub fn distances(&self, y: Option<&Prepared>) -> Result<Vec<f64>> {
+        match &self.engine {
+            Engine::Tree(t) => t.distances(y),
+            Engine::Brute(p) => {
+                let q = y.unwrap_or(p);
+                let mut out: Vec<f64> = alloc(q.n.checked_mul(p.n), "the (m, n) distance matrix")?;
+                matrix::distance_matrix_into(q, p, &mut out)?;
+                Ok(out)
+            }
+        }
     }
 }
 
@@ -1027,7 +1303,7 @@ mod tests {
                 let x = prep(model, c, &xa);
                 let y = prep(model, c, &ya);
                 for leaf in [1, 5, DEFAULT_LEAF_SIZE] {
-                    let tree = VpTree::from_prepared(x.clone(), leaf, "x").unwrap();
+                    let tree = VpTree::from_prepared(&x, leaf, "x").unwrap();
                     for k in [1, 7, 40] {
                         check_knn(&tree, &x, None, k);
                         check_knn(&tree, &x, Some(&y), k);
@@ -1041,7 +1317,7 @@ mod tests {
     fn k_up_to_the_number_of_candidates() {
         let c = Curvature::default();
         let x = prep(Model::Poincare, c, &points(Model::Poincare, &c, 50, 2, 6.0, 3));
-        let tree = VpTree::from_prepared(x.clone(), 4, "x").unwrap();
+        let tree = VpTree::from_prepared(&x, 4, "x").unwrap();
         check_knn(&tree, &x, None, 49);
         check_knn(&tree, &x, Some(&x), 50);
         assert!(tree.query(None, 50).is_err());
@@ -1062,7 +1338,7 @@ mod tests {
         }
         let x = prep(Model::Poincare, c, &xa);
         for leaf in [1, 3, 16] {
-            let tree = VpTree::from_prepared(x.clone(), leaf, "x").unwrap();
+            let tree = VpTree::from_prepared(&x, leaf, "x").unwrap();
             for k in [1, 5, 29, 30, 31, 60, 89] {
                 check_knn(&tree, &x, None, k);
             }
@@ -1078,7 +1354,7 @@ mod tests {
             let c = Curvature::new(-2.5).unwrap();
             let x = prep(model, c, &points(model, &c, 600, 2, 7.0 * c.radius, 5));
             let y = prep(model, c, &points(model, &c, 60, 2, 7.0 * c.radius, 6));
-            let tree = VpTree::from_prepared(x.clone(), 8, "x").unwrap();
+            let tree = VpTree::from_prepared(&x, 8, "x").unwrap();
             for r in [0.0, 0.05, 0.4, 2.0, f64::INFINITY] {
                 for q in [None, Some(&y)] {
                     let res = tree.query_radius(q, r).unwrap();
@@ -1104,7 +1380,7 @@ mod tests {
         let c = Curvature::new(-0.7).unwrap();
         for &model in &MODELS {
             let x = prep(model, c, &points(model, &c, 40, 3, 9.0, 11));
-            let tree = VpTree::from_prepared(x.clone(), 16, "x").unwrap();
+            let tree = VpTree::from_prepared(&x, 16, "x").unwrap();
             for i in 0..40 {
                 for j in 0..40 {
                     let h = x.half_delta(i, &x, j);
@@ -1119,7 +1395,7 @@ mod tests {
         let c = Curvature::default();
         let n = 5000;
         let x = prep(Model::Poincare, c, &points(Model::Poincare, &c, n, 2, 8.0, 21));
-        let tree = VpTree::from_prepared(x.clone(), 10, "x").unwrap();
+        let tree = VpTree::from_prepared(&x, 10, "x").unwrap();
         let mut perm = tree.perm.clone();
         perm.sort_unstable();
         assert_eq!(perm, (0..n).collect::<Vec<_>>());
@@ -1145,9 +1421,9 @@ mod tests {
     fn deterministic_and_independent_of_threads() {
         let c = Curvature::default();
         let x = prep(Model::Poincare, c, &points(Model::Poincare, &c, 40_000, 2, 8.0, 8));
-        let a = VpTree::from_prepared(x.clone(), 16, "x").unwrap();
+        let a = VpTree::from_prepared(&x, 16, "x").unwrap();
         let pool = rayon::ThreadPoolBuilder::new().num_threads(1).build().unwrap();
-        let b = pool.install(|| VpTree::from_prepared(x.clone(), 16, "x").unwrap());
+        let b = pool.install(|| VpTree::from_prepared(&x, 16, "x").unwrap());
         assert_eq!(a.perm, b.perm);
         assert_eq!(a.nodes, b.nodes);
         let ra = a.query(None, 5).unwrap();
@@ -1159,7 +1435,7 @@ mod tests {
     fn state_round_trip_and_corruption() {
         let c = Curvature::new(-2.0).unwrap();
         let x = prep(Model::Klein, c, &points(Model::Klein, &c, 300, 3, 5.0, 4));
-        let t = VpTree::from_prepared(x, 7, "x").unwrap();
+        let t = VpTree::from_prepared(&x, 7, "x").unwrap();
         let (co, au, pe, ints, bo) = t.to_parts();
         let u = VpTree::from_parts(Model::Klein, c, 7, 3, co.clone(), au.clone(), &pe, &ints, &bo).unwrap();
         assert_eq!(t.query(None, 6).unwrap(), u.query(None, 6).unwrap());
