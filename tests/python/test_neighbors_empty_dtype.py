@@ -17,7 +17,7 @@ import numpy as np
 import pytest
 
 import gyrokit as gk
-from gyrokit._index import METHODS, NeighborIndex
+from gyrokit._index import NeighborIndex
 
 MODELS = ("poincare", "klein", "hyperboloid", "halfspace")
 BUILT = ("tree", "brute")
