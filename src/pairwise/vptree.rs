@@ -29,6 +29,12 @@
 //! included. The search is deterministic per query and queries are
 //! independent, so results are bit-identical for any number of threads.
 //!
+//! The tree only pays where the data are intrinsically low-dimensional:
+//! [`Index`] (the core of `gyrokit.NeighborIndex`) measures how many points
+//! the tree visits on a sample of searches and falls back to the brute-force
+//! kernels of [`crate::pairwise::matrix`] where the tree would be slower
+//! (see [`AUTO_MAX_VISITED`]); both give the same results bit for bit.
+//!
 //! Layout: flat arrays. The points are stored once more, permuted into tree
 //! order (so a leaf is a contiguous run of rows); `perm[pos]` is the
 //! caller's index of the point at tree position `pos`. Nodes are in
@@ -1450,6 +1456,66 @@ mod tests {
         assert!(VpTree::from_parts(Model::Klein, c, 7, 3, co.clone(), au.clone(), &pe, &i3, &bo).is_err());
         assert!(VpTree::from_parts(Model::Klein, c, 7, 2, co.clone(), au.clone(), &pe, &ints, &bo).is_err());
         assert!(VpTree::from_parts(Model::Klein, c, 7, 3, co, au, &pe, &ints[3..], &bo[4..]).is_err());
+    }
+
+    #[test]
+    fn index_methods_agree_bit_for_bit() {
+        for &model in &MODELS {
+            for d in [2usize, 5] {
+                let c = Curvature::new(-1.3).unwrap();
+                let base = points(model, &c, 400, d, 8.0 * c.radius, 40 + d as u64);
+                // 40 exact duplicates: ties at distance 0
+                let xa = ndarray::concatenate![ndarray::Axis(0), base.view(), base.slice(ndarray::s![..40, ..])];
+                let x = prep(model, c, &xa);
+                let y = prep(model, c, &points(model, &c, 30, d, 8.0 * c.radius, 77));
+                let t = Index::from_prepared(x.clone(), 6, Method::Tree, "x").unwrap();
+                let b = Index::from_prepared(x.clone(), 6, Method::Brute, "x").unwrap();
+                let a = Index::from_prepared(x.clone(), 6, Method::Auto, "x").unwrap();
+                assert_eq!((t.method(), b.method()), (Method::Tree, Method::Brute));
+                assert!(a.visited > 0.0 && a.visited <= 1.0);
+                for q in [None, Some(&y)] {
+                    for k in [1, 10, 37] {
+                        let want = t.query(q, k).unwrap();
+                        assert_eq!(b.query(q, k).unwrap(), want, "{model:?} d {d} k {k}");
+                        assert_eq!(a.query(q, k).unwrap(), want);
+                    }
+                    for r in [0.0, 0.4, 3.0, f64::INFINITY] {
+                        assert_eq!(b.query_radius(q, r).unwrap(), t.query_radius(q, r).unwrap());
+                    }
+                    let (dt, db) = (t.distances(q).unwrap(), b.distances(q).unwrap());
+                    assert!(dt.iter().zip(&db).all(|(u, v)| u.to_bits() == v.to_bits()));
+                    // the same refusals in the same words
+                    let n = x.n + usize::from(q.is_some());
+                    assert_eq!(t.query(q, n).unwrap_err().to_string(), b.query(q, n).unwrap_err().to_string());
+                    assert_eq!(t.query(q, 0).unwrap_err().to_string(), b.query(q, 0).unwrap_err().to_string());
+                    let e = (t.query_radius(q, -1.0).unwrap_err(), b.query_radius(q, f64::NAN).unwrap_err());
+                    assert!(e.0.to_string().starts_with("r must be") && e.1.to_string().starts_with("r must be"));
+                }
+            }
+        }
+    }
+
+    #[test]
+    fn auto_keeps_the_tree_only_where_it_prunes() {
+        let c = Curvature::default();
+        let low = prep(Model::Poincare, c, &points(Model::Poincare, &c, 20_000, 2, 8.0, 1));
+        let a = Index::from_prepared(low.clone(), DEFAULT_LEAF_SIZE, Method::Auto, "x").unwrap();
+        assert_eq!(a.method(), Method::Tree);
+        assert!(a.visited <= AUTO_MAX_VISITED);
+        let high = prep(Model::Poincare, c, &points(Model::Poincare, &c, 3000, 8, 8.0, 2));
+        let b = Index::from_prepared(high.clone(), DEFAULT_LEAF_SIZE, Method::Auto, "x").unwrap();
+        assert_eq!(b.method(), Method::Brute);
+        assert!(b.visited > AUTO_MAX_VISITED);
+        // The estimate is a count: the same for the same data, and capped.
+        let t = VpTree::from_prepared(&high, DEFAULT_LEAF_SIZE, "x").unwrap();
+        assert_eq!(t.visited_fraction(10, 64, 1.0), t.visited_fraction(10, 64, 1.0));
+        assert!(t.visited_fraction(10, 64, 0.01) <= 0.01);
+        assert!(t.visited_fraction(10, 64, 1.0) > 0.3);
+        // nothing to search among a single point: brute force
+        let one = prep(Model::Poincare, c, &Array2::zeros((1, 2)));
+        assert_eq!(Index::from_prepared(one, 4, Method::Auto, "x").unwrap().method(), Method::Brute);
+        assert!(Method::parse("kd").is_err() && Method::parse("auto") == Ok(Method::Auto));
+        assert!(Index::from_prepared(low, 0, Method::Brute, "x").is_err());
     }
 
     #[test]
