@@ -64,8 +64,12 @@ class NeighborIndex:
         Builds the tree, then counts the points it visits when finding the
         10 nearest neighbours of 64 of the indexed points (spread over the
         tree); it keeps the tree if that is at most 1/20 of ``n`` on average,
-        and brute force otherwise. The count, not a clock, decides, so the
-        same data always get the same method (``.method`` tells which).
+        and brute force otherwise. Above 4096 points a tree over 4096 evenly
+        spaced rows is looked at first, and if its searches visit half of
+        those rows brute force is chosen without building the full tree
+        (so that in high dimension ``auto`` costs a few ms over brute
+        force). Counts, not a clock, decide, so the same data always get
+        the same method (``.method`` tells which).
         Measured on points at hyperbolic radius uniform in [0, 8] about the
         origin (n = 20 000, k = 10, one run on 2 cores): at d = 2 the tree
         visits 1 % of the points and takes 0.32x the brute-force time; at
