@@ -93,8 +93,9 @@ def main():
             print(f"{'':>14} method='tree' forced: {tt:.2f} s, {tt / t_knn:.2f} x gk.knn", flush=True)
         del idx, ii, dd, bi, bd
     print("* estimated from 4000 rows (see the module docstring)")
-    print("visited: what method='auto' measured, the mean fraction of the points the tree visits for the 10"
-          " nearest of 64 indexed points (each search cut off at 1/10 of n); the tree is kept at <= 1/20")
+    print("visited: what method='auto' measured, the mean fraction of the points a tree visits for the 10"
+          " nearest of 64 indexed points; the tree is kept at <= 1/20 (searches cut off at 1/10 of n). Above"
+          " 4096 points a tree over 4096 rows is looked at first: >= 1/2 there means brute force at once.")
     if not ok:
         print("ERROR: NeighborIndex results differ from gk.knn", file=sys.stderr)
         sys.exit(1)
