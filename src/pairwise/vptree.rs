@@ -29,6 +29,12 @@
 //! included. The search is deterministic per query and queries are
 //! independent, so results are bit-identical for any number of threads.
 //!
+//! The tree only pays where the data are intrinsically low-dimensional:
+//! [`Index`] (the core of `gyrokit.NeighborIndex`) measures how many points
+//! the tree visits on a sample of searches and falls back to the brute-force
+//! kernels of [`crate::pairwise::matrix`] where the tree would be slower
+//! (see [`AUTO_MAX_VISITED`]); both give the same results bit for bit.
+//!
 //! Layout: flat arrays. The points are stored once more, permuted into tree
 //! order (so a leaf is a contiguous run of rows); `perm[pos]` is the
 //! caller's index of the point at tree position `pos`. Nodes are in
@@ -46,7 +52,7 @@ use crate::models::ball::Curvature;
 use crate::models::Model;
 use crate::numeric::acosh1p2_fast;
 use crate::numeric::simd;
-use crate::pairwise::{PairSpace, Prepared};
+use crate::pairwise::{matrix, PairSpace, Prepared};
 
 /// Default number of points per leaf. Leaves are scanned brute force; with
 /// the cheap pair function of [`Prepared`] (a few ns per pair), leaves of
@@ -409,6 +415,111 @@ impl Builder<'_> {
     }
 }
 
+/// Validates query points `y` (argument "y") against indexed points `pts`:
+/// same model, curvature and width.
+pub fn prepare_queries(pts: &Prepared, y: &Data) -> Result<Prepared> {
+    let shape = y.shape();
+    // Check the width first, so that a wrong d is reported as such even
+    // when the rows would also fail the model's domain check.
+    if shape.len() == 2 {
+        let want = pts.model.width(pts.w);
+        if shape[1] != want {
+            return Err(Error::Value(format!(
+                "mismatched point dimension: the index holds points with {want} coordinates but y has {}",
+                shape[1]
+            )));
+        }
+    }
+    let q = Prepared::new(pts.model, pts.curvature, "y", y)?;
+    pts.check_compatible(&q, ("the index", "y"))?;
+    Ok(q)
+}
+
+/// Rows `order` of `p`, in that order (a permutation, or a selection).
+fn permuted(p: &Prepared, order: &[usize]) -> Prepared {
+    p.select(order)
+}
+
+/// Values per point in the saved state: the pair-space coordinates, then
+/// the refinement data (see `pairwise`).
+pub fn state_width(p: &Prepared) -> usize {
+    p.w + p.extra_width()
+}
+
+/// The stored state of prepared points, `(rows (n state_width), aux (n))`,
+/// for pickling. With [`prepared_from_parts`], the only code here that
+/// knows the layout of [`Prepared`].
+pub fn prepared_parts(p: &Prepared) -> (Vec<f64>, Vec<f64>) {
+    let mut rows = Vec::with_capacity(p.n * state_width(p));
+    for i in 0..p.n {
+        rows.extend_from_slice(p.row(i));
+        rows.extend_from_slice(p.extra_row(i));
+    }
+    (rows, p.aux.clone())
+}
+
+/// Prepared points from [`prepared_parts`], checked (a corrupted state is
+/// a `ValueError`): at least one point, a row width that fits the model,
+/// finite values, finite positive factors.
+pub fn prepared_from_parts(
+    model: Model,
+    curvature: Curvature,
+    state_width: usize,
+    rows: Vec<f64>,
+    aux: Vec<f64>,
+) -> Result<Prepared> {
+    let bad = |what: &str| Err(Error::Value(format!("invalid NeighborIndex state: {what}")));
+    let n = aux.len();
+    let space = PairSpace::of(model);
+    // The pair-space width from the row width w + extra_width(w).
+    let w = match space {
+        PairSpace::Own => state_width,
+        PairSpace::Hub => state_width / 2,
+        PairSpace::HubFar => state_width.saturating_sub(1) / 3,
+    };
+    if w == 0 || n == 0 || w + space.extra_width(w) != state_width {
+        return bad("empty index, or a row width that does not fit the model");
+    }
+    if n.checked_mul(state_width) != Some(rows.len()) {
+        return bad("coordinate array does not match the number of points");
+    }
+    if !rows.iter().all(|v| v.is_finite()) || !aux.iter().all(|a| a.is_finite() && *a > 0.0) {
+        return bad("non-finite coordinates or factors");
+    }
+    let mut coords = Vec::with_capacity(n * w);
+    let mut extra = Vec::with_capacity(n * (state_width - w));
+    for r in rows.chunks_exact(state_width) {
+        coords.extend_from_slice(&r[..w]);
+        extra.extend_from_slice(&r[w..]);
+    }
+    Prepared::from_parts(model, curvature, w, coords, aux, extra)
+}
+
+/// Checks `k` against the candidates of a query: the `n` indexed points
+/// for external queries, `n - 1` for the indexed points themselves.
+fn check_k(external: bool, n: usize, k: usize) -> Result<()> {
+    let cands = if external { n } else { n.saturating_sub(1) };
+    if k < 1 {
+        return Err(Error::Value(format!("k must be at least 1, got {k}")));
+    }
+    if k > cands {
+        let what = if external {
+            format!("the index holds {cands} points")
+        } else {
+            format!("each indexed point has {cands} others (self-matches are excluded when y is None)")
+        };
+        return Err(Error::Value(format!("k = {k} is larger than the number of candidates: {what}")));
+    }
+    Ok(())
+}
+
+fn check_r(r: f64) -> Result<()> {
+    if r.is_nan() || r < 0.0 {
+        return Err(Error::Value(format!("r must be a non-negative number, got {r}")));
+    }
+    Ok(())
+}
+
 /// Room for `len` results, or a `ValueError` instead of an abort.
 fn alloc<T: Clone + Default>(len: Option<usize>, what: &str) -> Result<Vec<T>> {
     let mut v = Vec::new();
@@ -425,11 +536,12 @@ impl VpTree {
     /// Validates `x` (argument name `name` in messages) and builds the tree.
     pub fn new(model: Model, curvature: Curvature, name: &str, x: &Data, leaf_size: usize) -> Result<VpTree> {
         let pts = Prepared::new(model, curvature, name, x)?;
-        VpTree::from_prepared(pts, leaf_size, name)
+        VpTree::from_prepared(&pts, leaf_size, name)
     }
 
-    /// Builds the tree over already prepared points.
-    pub fn from_prepared(pts: Prepared, leaf_size: usize, name: &str) -> Result<VpTree> {
+    /// Builds the tree over already prepared points (copied into tree
+    /// order; `pts` itself is left as it is).
+    pub fn from_prepared(pts: &Prepared, leaf_size: usize, name: &str) -> Result<VpTree> {
         if leaf_size == 0 {
             return Err(Error::Value("leaf_size must be at least 1".into()));
         }
@@ -440,9 +552,9 @@ impl VpTree {
         let mut perm: Vec<usize> = (0..n).collect();
         let mut scratch = vec![(0.0f64, 0usize); n];
         let mut nodes = vec![Node { start: 0, end: 0, outside: 0, bounds: [0.0; 4] }; node_count(n, leaf_size)];
-        Builder { pts: &pts, leaf: leaf_size, fast: simd::has_fma() }.build(0, &mut perm, &mut scratch, &mut nodes, 0);
+        Builder { pts, leaf: leaf_size, fast: simd::has_fma() }.build(0, &mut perm, &mut scratch, &mut nodes, 0);
         drop(scratch);
-        let points = Prepared::select(&pts, &perm);
+        let points = permuted(pts, &perm);
         Ok(VpTree { points, perm, nodes, leaf_size })
     }
 
@@ -453,26 +565,13 @@ impl VpTree {
     /// Bytes held by the index (points, permutation, nodes).
     pub fn nbytes(&self) -> usize {
         let p = &self.points;
-        8 * (p.coords.len() + p.aux.len() + self.perm.len()) + std::mem::size_of::<Node>() * self.nodes.len()
+        8 * (p.coords.len() + p.aux.len() + p.extra.len() + self.perm.len())
+            + std::mem::size_of::<Node>() * self.nodes.len()
     }
 
     /// Prepares query points `y` (argument "y") for this index.
     pub fn prepare_queries(&self, y: &Data) -> Result<Prepared> {
-        let shape = y.shape();
-        // Check the width first, so that a wrong d is reported as such even
-        // when the rows would also fail the model's domain check.
-        if shape.len() == 2 {
-            let want = self.points.model.width(self.points.w);
-            if shape[1] != want {
-                return Err(Error::Value(format!(
-                    "mismatched point dimension: the index holds points with {want} coordinates but y has {}",
-                    shape[1]
-                )));
-            }
-        }
-        let q = Prepared::new(self.points.model, self.points.curvature, "y", y)?;
-        self.points.check_compatible(&q, ("the index", "y"))?;
-        Ok(q)
+        prepare_queries(&self.points, y)
     }
 
     /// The distance the index reports for the pair (query row `qi` of `q`,
@@ -485,17 +584,34 @@ impl VpTree {
 
     /// The k nearest of query row `qi` of `q` into `best`, skipping tree
     /// position `skip` (the query itself when querying the indexed points).
+    ///
+    /// Returns the number of pair evaluations spent; the search stops early
+    /// (leaving `best` incomplete) once that number exceeds `budget`, which
+    /// only [`VpTree::visited_fraction`] sets below `usize::MAX`.
     #[inline(always)]
-    fn knn_one(&self, q: &Prepared, qi: usize, skip: usize, best: &mut Best, stack: &mut Vec<(usize, f64)>) {
+    fn knn_one(
+        &self,
+        q: &Prepared,
+        qi: usize,
+        skip: usize,
+        best: &mut Best,
+        stack: &mut Vec<(usize, f64)>,
+        budget: usize,
+    ) -> usize {
         best.clear();
         stack.clear();
         stack.push((0, f64::NEG_INFINITY));
         let pts = &self.points;
+        let mut evals = 0usize;
         while let Some((ni, lb)) = stack.pop() {
+            if evals > budget {
+                break;
+            }
             if !may_hold(lb, best.tau) {
                 continue;
             }
             let node = self.nodes[ni];
+            evals += if node.is_leaf() { node.end - node.start } else { 1 };
             if node.is_leaf() {
                 for pos in node.start..node.end {
                     if pos == skip {
@@ -532,6 +648,7 @@ impl VpTree {
                 stack.push(first);
             }
         }
+        evals
     }
 
     /// All points within distance `r` of query row `qi` (pair quantity
@@ -675,31 +792,12 @@ impl VpTree {
         keys.into_iter().map(|k| k.1).collect()
     }
 
-    /// Number of candidates a query row can choose from.
-    fn candidates(&self, y: Option<&Prepared>) -> usize {
-        match y {
-            Some(_) => self.n(),
-            None => self.n() - 1,
-        }
-    }
-
     /// The `k` nearest indexed points of every query row (the indexed points
     /// themselves, each excluding itself, when `y` is `None`): row-major
     /// `(m, k)` indices and distances, each row ascending by (distance,
     /// index).
     pub fn query(&self, y: Option<&Prepared>, k: usize) -> Result<(Vec<i64>, Vec<f64>)> {
-        let cands = self.candidates(y);
-        if k < 1 {
-            return Err(Error::Value(format!("k must be at least 1, got {k}")));
-        }
-        if k > cands {
-            let what = if y.is_some() {
-                format!("the index holds {cands} points")
-            } else {
-                format!("each indexed point has {cands} others (self-matches are excluded when y is None)")
-            };
-            return Err(Error::Value(format!("k = {k} is larger than the number of candidates: {what}")));
-        }
+        check_k(y.is_some(), self.n(), k)?;
         let m = y.map_or(self.n(), |q| q.n);
         let total = m.checked_mul(k);
         let mut idx: Vec<i64> = alloc(total, "the (m, k) result")?;
@@ -714,7 +812,7 @@ impl VpTree {
                 #[inline(always)]
                 || {
                     for (i, skip) in queries {
-                        self.knn_one(q, i, skip, &mut best, &mut stack);
+                        self.knn_one(q, i, skip, &mut best, &mut stack, usize::MAX);
                         out.extend(best.items.iter().map(|e| (e.0, e.1)));
                     }
                 },
@@ -737,9 +835,7 @@ impl VpTree {
     /// (self-matches excluded when `y` is `None`), as a CSR triple, each row
     /// ascending by (distance, index).
     pub fn query_radius(&self, y: Option<&Prepared>, r: f64) -> Result<Csr> {
-        if r.is_nan() || r < 0.0 {
-            return Err(Error::Value(format!("r must be a non-negative number, got {r}")));
-        }
+        check_r(r)?;
         let m = y.map_or(self.n(), |q| q.n);
         // The leaf filter on h: sinh(r/2R)^2 loosened so that it is safe
         // whatever the rounding of sinh (see H_SLACK; 1e-6 dwarfs it).
@@ -788,6 +884,38 @@ impl VpTree {
         Ok(Csr { indptr, indices, distances })
     }
 
+    /// Mean number of pair evaluations of a `k`-nearest search, as a
+    /// fraction of `n`, over `samples` indexed points spread evenly over the
+    /// tree (each excluding itself): the measured pruning efficiency. Each
+    /// search is cut off after `cap n` evaluations (and counted as that), so
+    /// the estimate costs at most `samples cap n` evaluations. A count, not
+    /// a time: the same data always gives the same figure.
+    pub fn visited_fraction(&self, k: usize, samples: usize, cap: f64) -> f64 {
+        let n = self.n();
+        let k = k.min(n.saturating_sub(1));
+        if k == 0 {
+            return 1.0;
+        }
+        let s = samples.clamp(1, n);
+        let budget = ((cap.clamp(0.0, 1.0) * n as f64) as usize).max(1);
+        let fast = simd::has_fma();
+        let total: usize = (0..s)
+            .into_par_iter()
+            .map(|t| {
+                let pos = ((2 * t + 1) * n) / (2 * s);
+                let mut best = Best::new(k);
+                let mut stack = Vec::with_capacity(64);
+                simd::dispatch(
+                    fast,
+                    #[inline(always)]
+                    || self.knn_one(&self.points, pos, pos, &mut best, &mut stack, budget),
+                )
+                .min(budget)
+            })
+            .sum();
+        total as f64 / (s as f64 * n as f64)
+    }
+
     /// Every pair distance the index would report, row-major `(m, n)` in
     /// the caller's column order: the brute force the tree must agree with
     /// (for tests). Without `y`, row `i` is indexed point `i`.
@@ -821,16 +949,8 @@ impl VpTree {
     // -----------------------------------------------------------------------
     // State (pickling): the tree is saved, not rebuilt.
 
-    /// Values per point in the saved state: the pair-space coordinates and
-    /// the refinement data (see `pairwise`).
-    pub fn state_width(&self) -> usize {
-        self.points.w + self.points.extra_width()
-    }
-
-    /// The state as flat arrays: `(points (n * state_width), aux (n), perm (n),
-    /// node_ints (3 per node: start, end, outside), node_bounds (4 per node))`;
-    /// each point's row holds its pair-space coordinates, then its
-    /// refinement data.
+    /// The state as flat arrays: `(coords (n*w), aux (n), perm (n),
+    /// node_ints (3 per node: start, end, outside), node_bounds (4 per node))`.
     pub fn to_parts(&self) -> Parts {
         let perm = self.perm.iter().map(|&i| i as i64).collect();
         let mut ints = Vec::with_capacity(3 * self.nodes.len());
@@ -839,13 +959,8 @@ impl VpTree {
             ints.extend_from_slice(&[nd.start as i64, nd.end as i64, nd.outside as i64]);
             bounds.extend_from_slice(&nd.bounds);
         }
-        let p = &self.points;
-        let mut rows = Vec::with_capacity(p.n * self.state_width());
-        for i in 0..p.n {
-            rows.extend_from_slice(p.row(i));
-            rows.extend_from_slice(p.extra_row(i));
-        }
-        (rows, p.aux.clone(), perm, ints, bounds)
+        let (coords, aux) = prepared_parts(&self.points);
+        (coords, aux, perm, ints, bounds)
     }
 
     /// Rebuilds an index from [`VpTree::to_parts`], checking everything a
@@ -855,30 +970,19 @@ impl VpTree {
         model: Model,
         curvature: Curvature,
         leaf_size: usize,
-        state_width: usize,
-        rows: Vec<f64>,
+        w: usize,
+        coords: Vec<f64>,
         aux: Vec<f64>,
         perm: &[i64],
         ints: &[i64],
         bounds: &[f64],
     ) -> Result<VpTree> {
         let bad = |what: &str| Err(Error::Value(format!("invalid NeighborIndex state: {what}")));
-        let n = aux.len();
-        // The pair-space width from the row width (w + extra_width(w)).
-        let w = match PairSpace::of(model) {
-            PairSpace::Own => state_width,
-            PairSpace::Hub => state_width / 2,
-            PairSpace::HubFar => state_width.saturating_sub(1) / 3,
-        };
-        if leaf_size == 0 || w == 0 || n == 0 || w + PairSpace::of(model).extra_width(w) != state_width {
-            return bad("empty index, zero or inconsistent width or zero leaf size");
+        if leaf_size == 0 {
+            return bad("zero leaf size");
         }
-        if n.checked_mul(state_width) != Some(rows.len()) {
-            return bad("coordinate array does not match the number of points");
-        }
-        if !rows.iter().all(|v| v.is_finite()) || !aux.iter().all(|a| a.is_finite() && *a > 0.0) {
-            return bad("non-finite coordinates or factors");
-        }
+        let points = prepared_from_parts(model, curvature, w, coords, aux)?;
+        let n = points.n;
         if perm.len() != n {
             return bad("permutation length");
         }
@@ -942,15 +1046,228 @@ impl VpTree {
         if visited != nn {
             return bad("unreachable nodes");
         }
-        let ew = state_width - w;
-        let mut coords = Vec::with_capacity(n * w);
-        let mut extra = Vec::with_capacity(n * ew);
-        for r in rows.chunks_exact(state_width) {
-            coords.extend_from_slice(&r[..w]);
-            extra.extend_from_slice(&r[w..]);
-        }
-        let points = Prepared::from_parts(model, curvature, w, coords, aux, extra)?;
         Ok(VpTree { points, perm: p, nodes, leaf_size })
+    }
+}
+
+// ---------------------------------------------------------------------------
+// The index: the tree where it prunes, brute force where it cannot
+
+/// The first look of the `auto` rule (see [`PRECHECK_N`]): the visited
+/// fraction of a tree over evenly spaced rows if it says brute force, None
+/// if the full tree is to be measured.
+fn first_look(pts: &Prepared, leaf_size: usize, name: &str) -> Result<Option<f64>> {
+    if pts.n <= PRECHECK_N {
+        return Ok(None);
+    }
+    let rows: Vec<usize> = (0..PRECHECK_N).map(|t| t * pts.n / PRECHECK_N).collect();
+    let sub = VpTree::from_prepared(&permuted(pts, &rows), leaf_size, name)?;
+    let f = sub.visited_fraction(AUTO_K, AUTO_SAMPLES, 1.0);
+    Ok((f >= PRECHECK_HOPELESS).then_some(f))
+}
+
+/// How an [`Index`] answers queries.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub enum Method {
+    /// Measure the tree's pruning on the data, then keep the cheaper of the
+    /// two (see [`Index::new`]).
+    Auto,
+    /// The vantage-point tree.
+    Tree,
+    /// The brute-force kernels of [`crate::pairwise::matrix`].
+    Brute,
+}
+
+impl Method {
+    /// Parses the `method` argument.
+    pub fn parse(s: &str) -> Result<Method> {
+        match s {
+            "auto" => Ok(Method::Auto),
+            "tree" => Ok(Method::Tree),
+            "brute" => Ok(Method::Brute),
+            _ => Err(Error::Value(format!("method must be 'auto', 'tree' or 'brute'; got {s:?}"))),
+        }
+    }
+
+    pub fn name(self) -> &'static str {
+        match self {
+            Method::Auto => "auto",
+            Method::Tree => "tree",
+            Method::Brute => "brute",
+        }
+    }
+}
+
+/// Sample searches of the `auto` rule, and their `k`.
+pub const AUTO_SAMPLES: usize = 64;
+pub const AUTO_K: usize = 10;
+
+/// The quick first look of the `auto` rule: above `PRECHECK_N` points, a
+/// tree over `PRECHECK_N` evenly spaced rows is measured first, and if its
+/// searches visit more than `PRECHECK_HOPELESS` of those rows, brute force
+/// is chosen without building the full tree. Where the tree prunes, a
+/// search visits a few hundred points whatever n (network maps in the disk:
+/// about 280 for k = 10 from 5 000 to 1 000 000 points); visiting half of
+/// 4096 means data of higher intrinsic dimension m, whose fraction falls
+/// only like n^(-1/m): from 1/2 it would reach [`AUTO_MAX_VISITED`] at 1000
+/// times the points for m = 3. The first look costs a few ms where the full
+/// tree cost 25 to 55 ms (d = 16, n = 20 000 and d = 10, n = 50 000: 2 to 3 %
+/// of the whole query).
+pub const PRECHECK_N: usize = 4096;
+pub const PRECHECK_HOPELESS: f64 = 0.5;
+
+/// The `auto` rule keeps the tree when its sample searches evaluate at most
+/// this fraction of the points. Measured (k = 10, n = 10 000 to 20 000,
+/// d = 2 to 16, one run on 2 cores): one pair evaluated by the tree (scalar,
+/// on a data-dependent walk) cost as much as 8 to 12 pairs of the tiled
+/// brute-force kernel where the tree visits most points, and 20 to 34 where
+/// it visits 1 to 3 % of them (the walk's overhead per point grows); the
+/// tree won at a visited fraction of 0.026 (0.53x brute force) and lost at
+/// 0.16 (2.2x). 1/20 keeps it only where it clearly wins.
+pub const AUTO_MAX_VISITED: f64 = 0.05;
+
+/// What an index holds: a tree, or the points in the caller's order.
+#[derive(Clone, Debug)]
+pub enum Engine {
+    Tree(VpTree),
+    Brute(Prepared),
+}
+
+/// An exact neighbour index: a vantage-point tree or brute force, with
+/// identical results (distances bit for bit, order by (distance, index)).
+#[derive(Clone, Debug)]
+pub struct Index {
+    pub engine: Engine,
+    pub leaf_size: usize,
+    /// The tree's measured visited fraction when `auto` chose ([`VpTree::visited_fraction`]); NaN otherwise.
+    pub visited: f64,
+}
+
+impl Index {
+    /// Validates `x` (named `name` in messages) and builds an index.
+    /// `Method::Auto` builds the tree (`O(n log n)`, cheap beside any
+    /// all-points query), measures [`VpTree::visited_fraction`] for
+    /// [`AUTO_K`] neighbours of [`AUTO_SAMPLES`] points, and keeps the tree
+    /// when it is at most [`AUTO_MAX_VISITED`], brute force otherwise;
+    /// above [`PRECHECK_N`] points a first look at a tree over a subset
+    /// may settle for brute force before the full tree is built.
+    pub fn new(
+        model: Model,
+        curvature: Curvature,
+        name: &str,
+        x: &Data,
+        leaf_size: usize,
+        method: Method,
+    ) -> Result<Index> {
+        let pts = Prepared::new(model, curvature, name, x)?;
+        Index::from_prepared(pts, leaf_size, method, name)
+    }
+
+    pub fn from_prepared(pts: Prepared, leaf_size: usize, method: Method, name: &str) -> Result<Index> {
+        if leaf_size == 0 {
+            return Err(Error::Value("leaf_size must be at least 1".into()));
+        }
+        if pts.n == 0 {
+            return Err(Error::Value(format!("{name} must hold at least one point to build an index; got 0 rows")));
+        }
+        let (engine, visited) = match method {
+            Method::Brute => (Engine::Brute(pts), f64::NAN),
+            Method::Tree => (Engine::Tree(VpTree::from_prepared(&pts, leaf_size, name)?), f64::NAN),
+            Method::Auto => match first_look(&pts, leaf_size, name)? {
+                Some(f) => (Engine::Brute(pts), f),
+                None => {
+                    let tree = VpTree::from_prepared(&pts, leaf_size, name)?;
+                    let f = tree.visited_fraction(AUTO_K, AUTO_SAMPLES, 2.0 * AUTO_MAX_VISITED);
+                    if f <= AUTO_MAX_VISITED {
+                        (Engine::Tree(tree), f)
+                    } else {
+                        (Engine::Brute(pts), f)
+                    }
+                }
+            },
+        };
+        Ok(Index { engine, leaf_size, visited })
+    }
+
+    /// The method in use (never `Auto`).
+    pub fn method(&self) -> Method {
+        match self.engine {
+            Engine::Tree(_) => Method::Tree,
+            Engine::Brute(_) => Method::Brute,
+        }
+    }
+
+    /// The indexed points (in tree order for a tree).
+    pub fn points(&self) -> &Prepared {
+        match &self.engine {
+            Engine::Tree(t) => &t.points,
+            Engine::Brute(p) => p,
+        }
+    }
+
+    pub fn n(&self) -> usize {
+        self.points().n
+    }
+
+    /// Bytes held by the index.
+    pub fn nbytes(&self) -> usize {
+        match &self.engine {
+            Engine::Tree(t) => t.nbytes(),
+            Engine::Brute(p) => 8 * (p.coords.len() + p.aux.len() + p.extra.len()),
+        }
+    }
+
+    /// Prepares query points `y` (argument "y") for this index.
+    pub fn prepare_queries(&self, y: &Data) -> Result<Prepared> {
+        prepare_queries(self.points(), y)
+    }
+
+    /// The `k` nearest indexed points of every query row (the indexed
+    /// points themselves, each excluding itself, when `y` is `None`), as in
+    /// [`VpTree::query`], whichever the method.
+    pub fn query(&self, y: Option<&Prepared>, k: usize) -> Result<(Vec<i64>, Vec<f64>)> {
+        match &self.engine {
+            Engine::Tree(t) => t.query(y, k),
+            Engine::Brute(p) => {
+                // The tree's checks and messages, so that both methods
+                // refuse the same k in the same words.
+                check_k(y.is_some(), p.n, k)?;
+                match y {
+                    Some(q) => matrix::knn(q, p, k, false),
+                    None => matrix::knn(p, p, k, true),
+                }
+            }
+        }
+    }
+
+    /// All indexed points within distance `r` (inclusive) of every query
+    /// row, as in [`VpTree::query_radius`], whichever the method.
+    pub fn query_radius(&self, y: Option<&Prepared>, r: f64) -> Result<Csr> {
+        match &self.engine {
+            Engine::Tree(t) => t.query_radius(y, r),
+            Engine::Brute(p) => {
+                check_r(r)?;
+                let (indptr, indices, distances) = match y {
+                    Some(q) => matrix::radius_neighbors(q, p, r, false)?,
+                    None => matrix::radius_neighbors(p, p, r, true)?,
+                };
+                Ok(Csr { indptr, indices, distances })
+            }
+        }
+    }
+
+    /// Every distance the index would report, row-major `(m, n)` in the
+    /// caller's order (for tests).
+    pub fn distances(&self, y: Option<&Prepared>) -> Result<Vec<f64>> {
+        match &self.engine {
+            Engine::Tree(t) => t.distances(y),
+            Engine::Brute(p) => {
+                let q = y.unwrap_or(p);
+                let mut out: Vec<f64> = alloc(q.n.checked_mul(p.n), "the (m, n) distance matrix")?;
+                matrix::distance_matrix_into(q, p, &mut out)?;
+                Ok(out)
+            }
+        }
     }
 }
 
@@ -1042,7 +1359,7 @@ mod tests {
                 let x = prep(model, c, &xa);
                 let y = prep(model, c, &ya);
                 for leaf in [1, 5, DEFAULT_LEAF_SIZE] {
-                    let tree = VpTree::from_prepared(x.clone(), leaf, "x").unwrap();
+                    let tree = VpTree::from_prepared(&x, leaf, "x").unwrap();
                     for k in [1, 7, 40] {
                         check_knn(&tree, &x, None, k);
                         check_knn(&tree, &x, Some(&y), k);
@@ -1056,7 +1373,7 @@ mod tests {
     fn k_up_to_the_number_of_candidates() {
         let c = Curvature::default();
         let x = prep(Model::Poincare, c, &points(Model::Poincare, &c, 50, 2, 6.0, 3));
-        let tree = VpTree::from_prepared(x.clone(), 4, "x").unwrap();
+        let tree = VpTree::from_prepared(&x, 4, "x").unwrap();
         check_knn(&tree, &x, None, 49);
         check_knn(&tree, &x, Some(&x), 50);
         assert!(tree.query(None, 50).is_err());
@@ -1077,7 +1394,7 @@ mod tests {
         }
         let x = prep(Model::Poincare, c, &xa);
         for leaf in [1, 3, 16] {
-            let tree = VpTree::from_prepared(x.clone(), leaf, "x").unwrap();
+            let tree = VpTree::from_prepared(&x, leaf, "x").unwrap();
             for k in [1, 5, 29, 30, 31, 60, 89] {
                 check_knn(&tree, &x, None, k);
             }
@@ -1093,7 +1410,7 @@ mod tests {
             let c = Curvature::new(-2.5).unwrap();
             let x = prep(model, c, &points(model, &c, 600, 2, 7.0 * c.radius, 5));
             let y = prep(model, c, &points(model, &c, 60, 2, 7.0 * c.radius, 6));
-            let tree = VpTree::from_prepared(x.clone(), 8, "x").unwrap();
+            let tree = VpTree::from_prepared(&x, 8, "x").unwrap();
             for r in [0.0, 0.05, 0.4, 2.0, f64::INFINITY] {
                 for q in [None, Some(&y)] {
                     let res = tree.query_radius(q, r).unwrap();
@@ -1119,7 +1436,7 @@ mod tests {
         let c = Curvature::new(-0.7).unwrap();
         for &model in &MODELS {
             let x = prep(model, c, &points(model, &c, 40, 3, 9.0, 11));
-            let tree = VpTree::from_prepared(x.clone(), 16, "x").unwrap();
+            let tree = VpTree::from_prepared(&x, 16, "x").unwrap();
             for i in 0..40 {
                 for j in 0..40 {
                     let h = x.half_delta(i, &x, j);
@@ -1134,7 +1451,7 @@ mod tests {
         let c = Curvature::default();
         let n = 5000;
         let x = prep(Model::Poincare, c, &points(Model::Poincare, &c, n, 2, 8.0, 21));
-        let tree = VpTree::from_prepared(x.clone(), 10, "x").unwrap();
+        let tree = VpTree::from_prepared(&x, 10, "x").unwrap();
         let mut perm = tree.perm.clone();
         perm.sort_unstable();
         assert_eq!(perm, (0..n).collect::<Vec<_>>());
@@ -1160,9 +1477,9 @@ mod tests {
     fn deterministic_and_independent_of_threads() {
         let c = Curvature::default();
         let x = prep(Model::Poincare, c, &points(Model::Poincare, &c, 40_000, 2, 8.0, 8));
-        let a = VpTree::from_prepared(x.clone(), 16, "x").unwrap();
+        let a = VpTree::from_prepared(&x, 16, "x").unwrap();
         let pool = rayon::ThreadPoolBuilder::new().num_threads(1).build().unwrap();
-        let b = pool.install(|| VpTree::from_prepared(x.clone(), 16, "x").unwrap());
+        let b = pool.install(|| VpTree::from_prepared(&x, 16, "x").unwrap());
         assert_eq!(a.perm, b.perm);
         assert_eq!(a.nodes, b.nodes);
         let ra = a.query(None, 5).unwrap();
@@ -1174,21 +1491,87 @@ mod tests {
     fn state_round_trip_and_corruption() {
         let c = Curvature::new(-2.0).unwrap();
         let x = prep(Model::Klein, c, &points(Model::Klein, &c, 300, 3, 5.0, 4));
-        let t = VpTree::from_prepared(x, 7, "x").unwrap();
+        let t = VpTree::from_prepared(&x, 7, "x").unwrap();
         let (co, au, pe, ints, bo) = t.to_parts();
-        let u = VpTree::from_parts(Model::Klein, c, 7, 3, co.clone(), au.clone(), &pe, &ints, &bo).unwrap();
+        let u = VpTree::from_parts(Model::Klein, c, 7, 6, co.clone(), au.clone(), &pe, &ints, &bo).unwrap();
         assert_eq!(t.query(None, 6).unwrap(), u.query(None, 6).unwrap());
         let mut p2 = pe.clone();
         p2[3] = p2[4];
-        assert!(VpTree::from_parts(Model::Klein, c, 7, 3, co.clone(), au.clone(), &p2, &ints, &bo).is_err());
+        assert!(VpTree::from_parts(Model::Klein, c, 7, 6, co.clone(), au.clone(), &p2, &ints, &bo).is_err());
         let mut i2 = ints.clone();
         i2[2] = 5000;
-        assert!(VpTree::from_parts(Model::Klein, c, 7, 3, co.clone(), au.clone(), &pe, &i2, &bo).is_err());
+        assert!(VpTree::from_parts(Model::Klein, c, 7, 6, co.clone(), au.clone(), &pe, &i2, &bo).is_err());
         let mut i3 = ints.clone();
         i3[4] += 1;
-        assert!(VpTree::from_parts(Model::Klein, c, 7, 3, co.clone(), au.clone(), &pe, &i3, &bo).is_err());
+        assert!(VpTree::from_parts(Model::Klein, c, 7, 6, co.clone(), au.clone(), &pe, &i3, &bo).is_err());
         assert!(VpTree::from_parts(Model::Klein, c, 7, 2, co.clone(), au.clone(), &pe, &ints, &bo).is_err());
-        assert!(VpTree::from_parts(Model::Klein, c, 7, 3, co, au, &pe, &ints[3..], &bo[4..]).is_err());
+        assert!(VpTree::from_parts(Model::Klein, c, 7, 6, co, au, &pe, &ints[3..], &bo[4..]).is_err());
+    }
+
+    #[test]
+    fn index_methods_agree_bit_for_bit() {
+        for &model in &MODELS {
+            for d in [2usize, 5] {
+                let c = Curvature::new(-1.3).unwrap();
+                let base = points(model, &c, 400, d, 8.0 * c.radius, 40 + d as u64);
+                // 40 exact duplicates: ties at distance 0
+                let xa = ndarray::concatenate![ndarray::Axis(0), base.view(), base.slice(ndarray::s![..40, ..])];
+                let x = prep(model, c, &xa);
+                let y = prep(model, c, &points(model, &c, 30, d, 8.0 * c.radius, 77));
+                let t = Index::from_prepared(x.clone(), 6, Method::Tree, "x").unwrap();
+                let b = Index::from_prepared(x.clone(), 6, Method::Brute, "x").unwrap();
+                let a = Index::from_prepared(x.clone(), 6, Method::Auto, "x").unwrap();
+                assert_eq!((t.method(), b.method()), (Method::Tree, Method::Brute));
+                assert!(a.visited > 0.0 && a.visited <= 1.0);
+                for q in [None, Some(&y)] {
+                    for k in [1, 10, 37] {
+                        let want = t.query(q, k).unwrap();
+                        assert_eq!(b.query(q, k).unwrap(), want, "{model:?} d {d} k {k}");
+                        assert_eq!(a.query(q, k).unwrap(), want);
+                    }
+                    for r in [0.0, 0.4, 3.0, f64::INFINITY] {
+                        assert_eq!(b.query_radius(q, r).unwrap(), t.query_radius(q, r).unwrap());
+                    }
+                    let (dt, db) = (t.distances(q).unwrap(), b.distances(q).unwrap());
+                    assert!(dt.iter().zip(&db).all(|(u, v)| u.to_bits() == v.to_bits()));
+                    // the same refusals in the same words
+                    let n = x.n + usize::from(q.is_some());
+                    assert_eq!(t.query(q, n).unwrap_err().to_string(), b.query(q, n).unwrap_err().to_string());
+                    assert_eq!(t.query(q, 0).unwrap_err().to_string(), b.query(q, 0).unwrap_err().to_string());
+                    let e = (t.query_radius(q, -1.0).unwrap_err(), b.query_radius(q, f64::NAN).unwrap_err());
+                    assert!(e.0.to_string().starts_with("r must be") && e.1.to_string().starts_with("r must be"));
+                }
+            }
+        }
+    }
+
+    #[test]
+    fn auto_keeps_the_tree_only_where_it_prunes() {
+        let c = Curvature::default();
+        let low = prep(Model::Poincare, c, &points(Model::Poincare, &c, 20_000, 2, 8.0, 1));
+        let a = Index::from_prepared(low.clone(), DEFAULT_LEAF_SIZE, Method::Auto, "x").unwrap();
+        assert_eq!(a.method(), Method::Tree);
+        assert!(a.visited <= AUTO_MAX_VISITED);
+        let high = prep(Model::Poincare, c, &points(Model::Poincare, &c, 3000, 8, 8.0, 2));
+        let b = Index::from_prepared(high.clone(), DEFAULT_LEAF_SIZE, Method::Auto, "x").unwrap();
+        assert_eq!(b.method(), Method::Brute);
+        assert!(b.visited > AUTO_MAX_VISITED);
+        // The estimate is a count: the same for the same data, and capped.
+        let t = VpTree::from_prepared(&high, DEFAULT_LEAF_SIZE, "x").unwrap();
+        assert_eq!(t.visited_fraction(10, 64, 1.0), t.visited_fraction(10, 64, 1.0));
+        assert!(t.visited_fraction(10, 64, 0.01) <= 0.01);
+        assert!(t.visited_fraction(10, 64, 1.0) > 0.3);
+        // The first look settles the high-dimensional case on a subset
+        // (and leaves the plane to the full measure).
+        let many = prep(Model::Poincare, c, &points(Model::Poincare, &c, 3 * PRECHECK_N, 10, 8.0, 4));
+        assert!(first_look(&many, DEFAULT_LEAF_SIZE, "x").unwrap().unwrap() >= PRECHECK_HOPELESS);
+        assert_eq!(first_look(&low, DEFAULT_LEAF_SIZE, "x").unwrap(), None);
+        assert_eq!(first_look(&high, DEFAULT_LEAF_SIZE, "x").unwrap(), None); // n <= PRECHECK_N
+                                                                              // nothing to search among a single point: brute force
+        let one = prep(Model::Poincare, c, &Array2::zeros((1, 2)));
+        assert_eq!(Index::from_prepared(one, 4, Method::Auto, "x").unwrap().method(), Method::Brute);
+        assert!(Method::parse("kd").is_err() && Method::parse("auto") == Ok(Method::Auto));
+        assert!(Index::from_prepared(low, 0, Method::Brute, "x").is_err());
     }
 
     #[test]

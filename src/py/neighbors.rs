@@ -1,22 +1,54 @@
 //! Wrappers for distance matrices and brute-force neighbour queries.
+//!
+//! Result dtype (SPEC): distances are float32 when every array input is
+//! float32, float64 otherwise, decided by `crate::batch::wants_f32` (the one
+//! written rule); they are always computed in float64 and rounded once.
 
-use numpy::{IntoPyArray, PyArray2, PyArrayMethods, PyUntypedArrayMethods};
+use std::mem::MaybeUninit;
+
+use numpy::{IntoPyArray, PyArray1, PyArray2, PyArrayMethods, PyUntypedArrayMethods};
 use pyo3::exceptions::{PyTypeError, PyValueError};
 use pyo3::prelude::*;
 
 use super::coerce::{coerce, coerce_opt, Arg};
-use crate::batch::Data;
+use crate::batch::{wants_f32, Data, Operand};
 use crate::models::ball::Curvature;
 use crate::models::Model;
-use crate::pairwise::matrix;
+use crate::pairwise::matrix::{self, Store};
 use crate::pairwise::Prepared;
 
 fn prepare(model: Model, c: Curvature, name: &'static str, d: Data<'_>) -> crate::error::Result<Prepared> {
     Prepared::new(model, c, name, &d)
 }
 
-fn all_f32(args: &[&Arg]) -> bool {
-    args.iter().all(|a| matches!(a.data(), Data::F32(_)))
+/// Whether the distances of a call with these point arguments are float32.
+fn f32_result(args: &[&Arg]) -> bool {
+    let ops: Vec<Operand> = args.iter().map(|a| Operand::point("x", a.data())).collect();
+    wants_f32(&ops)
+}
+
+/// Distances computed in float64 as an `(n, m)` array of the result dtype.
+pub(super) fn distances_2d(py: Python<'_>, n: usize, m: usize, d: Vec<f64>, f32: bool) -> PyResult<Bound<'_, PyAny>> {
+    fn shaped<T>(n: usize, m: usize, v: Vec<T>) -> PyResult<ndarray::Array2<T>> {
+        ndarray::Array2::from_shape_vec((n, m), v)
+            .map_err(|e| PyValueError::new_err(format!("internal error: result shape ({n}, {m}): {e}")))
+    }
+    Ok(if f32 {
+        let v: Vec<f32> = py.detach(|| d.iter().map(|&x| x as f32).collect());
+        shaped(n, m, v)?.into_pyarray(py).into_any()
+    } else {
+        shaped(n, m, d)?.into_pyarray(py).into_any()
+    })
+}
+
+/// Distances computed in float64 as a 1-D array of the result dtype.
+pub(super) fn distances_1d(py: Python<'_>, d: Vec<f64>, f32: bool) -> PyResult<Bound<'_, PyAny>> {
+    Ok(if f32 {
+        let v: Vec<f32> = py.detach(|| d.iter().map(|&x| x as f32).collect());
+        PyArray1::from_vec(py, v).into_any()
+    } else {
+        PyArray1::from_vec(py, d).into_any()
+    })
 }
 
 #[pyfunction]
@@ -34,8 +66,8 @@ fn distance_matrix<'py>(
     let xa = coerce(py, "x", x)?;
     let ya = coerce_opt(py, "y", y)?;
     let f32_out = match &ya {
-        Some(ya) => all_f32(&[&xa, ya]),
-        None => all_f32(&[&xa]),
+        Some(ya) => f32_result(&[&xa, ya]),
+        None => f32_result(&[&xa]),
     };
     let xd = xa.data();
     let yd = ya.as_ref().map(|a| a.data());
@@ -71,34 +103,70 @@ fn distance_matrix<'py>(
             Ok(o.clone().unbind())
         }
         _ => {
-            if f32_out {
-                let arr = fresh::<f32>(py, n, m);
-                {
-                    let mut rw = arr.readwrite();
-                    let sl = rw.as_slice_mut().expect("fresh arrays are contiguous");
-                    py.detach(|| matrix::distance_matrix_into(&px, pyo.as_ref().unwrap_or(&px), sl))?;
-                }
-                Ok(arr.into_any().unbind())
+            let y = pyo.as_ref().unwrap_or(&px);
+            Ok(if f32_out {
+                fresh_matrix::<f32>(py, &px, y)?.into_any().unbind()
             } else {
-                let arr = fresh::<f64>(py, n, m);
-                {
-                    let mut rw = arr.readwrite();
-                    let sl = rw.as_slice_mut().expect("fresh arrays are contiguous");
-                    py.detach(|| matrix::distance_matrix_into(&px, pyo.as_ref().unwrap_or(&px), sl))?;
-                }
-                Ok(arr.into_any().unbind())
-            }
+                fresh_matrix::<f64>(py, &px, y)?.into_any().unbind()
+            })
         }
     }
 }
 
-/// A new C-contiguous `(n, m)` array, not zero-filled: the kernels write
-/// every element before anything reads it (zero-filling 32 MB costs as much
-/// as a d = 2 distance matrix of that size).
-fn fresh<T: numpy::Element>(py: Python<'_>, n: usize, m: usize) -> Bound<'_, PyArray2<T>> {
-    // SAFETY: every element is written by distance_matrix_into before the
-    // array is handed to Python; on error the array is dropped unread.
-    unsafe { PyArray2::<T>::new(py, [n, m], false) }
+/// One element of a fresh output buffer: a `MaybeUninit`, so that a slice
+/// of them may cover memory nobody has written yet (a `&mut [f64]` over
+/// uninitialised floats would be undefined behaviour). The matrix kernel
+/// only ever stores whole elements into its output, through [`Store`].
+#[derive(Clone, Copy)]
+#[repr(transparent)]
+struct Slot<T: Copy>(MaybeUninit<T>);
+
+impl<T: Store> Default for Slot<T> {
+    fn default() -> Self {
+        Slot(MaybeUninit::uninit())
+    }
+}
+
+impl<T: Store> Store for Slot<T> {
+    #[inline(always)]
+    fn from_f64(v: f64) -> Self {
+        Slot(MaybeUninit::new(T::from_f64(v)))
+    }
+}
+
+/// The `(x.n, y.n)` distance matrix in a new C-contiguous NumPy array,
+/// written once by the kernel: not zero-filled first (zero-filling the
+/// 32 MB of a 2000 x 2000 matrix cost 30-50 % of the d = 2 matrix time,
+/// measured), not copied afterwards.
+fn fresh_matrix<'py, T: Store + numpy::Element>(
+    py: Python<'py>,
+    x: &Prepared,
+    y: &Prepared,
+) -> PyResult<Bound<'py, PyArray2<T>>> {
+    let (n, m) = (x.n, y.n);
+    let len = n
+        .checked_mul(m)
+        .ok_or_else(|| PyValueError::new_err(format!("a ({n}, {m}) distance matrix would not fit in memory")))?;
+    // SAFETY: NumPy allocates a C-contiguous, suitably aligned (n, m) array
+    // and leaves its elements uninitialised. That is sound here because no
+    // reference to them as `T` is ever made: the kernel sees them as
+    // `Slot<T>` (a `MaybeUninit`), and the array reaches Python only after
+    // the kernel has returned Ok, having stored every one of the n m
+    // elements (its contract, checked by the matrix tests against the
+    // element-wise distances); on an error it is dropped unread.
+    let arr = unsafe { PyArray2::<T>::new(py, [n, m], false) };
+    if len > 0 {
+        // SAFETY: the pointer is the start of the array's own buffer of
+        // `len` elements of `T` (fresh, C-contiguous, aligned for `T`), and
+        // `Slot<T>` is `repr(transparent)` over `MaybeUninit<T>`, so it has
+        // the layout of `T` and admits uninitialised bytes. The array was
+        // just created and is not yet visible to Python or to any other
+        // Rust reference, so this is the only access to the buffer for the
+        // lifetime of `out`.
+        let out: &mut [Slot<T>] = unsafe { std::slice::from_raw_parts_mut(arr.data() as *mut Slot<T>, len) };
+        py.detach(|| matrix::distance_matrix_into(x, y, out))?;
+    }
+    Ok(arr)
 }
 
 fn check_out(shape: &[usize], contiguous: bool, n: usize, m: usize) -> PyResult<()> {
@@ -117,7 +185,7 @@ fn condensed_distances(py: Python<'_>, x: &Bound<'_, PyAny>, model: &str, curvat
     let c = Curvature::new(curvature)?;
     let md = Model::parse(model, "model")?;
     let xa = coerce(py, "x", x)?;
-    let f32_out = all_f32(&[&xa]);
+    let f32_out = f32_result(&[&xa]);
     let xd = xa.data();
     let px = py.detach(move || prepare(md, c, "x", xd))?;
     let len = px.n * px.n.saturating_sub(1) / 2;
@@ -155,22 +223,32 @@ fn knn(
     let k = k_arg(k)?;
     let xa = coerce(py, "x", x)?;
     let ya = coerce_opt(py, "y", y)?;
+    let f32_out = match &ya {
+        Some(ya) => f32_result(&[&xa, ya]),
+        None => f32_result(&[&xa]),
+    };
     let xd = xa.data();
     let yd = ya.as_ref().map(|a| a.data());
     let (idx, dist, n) = py.detach(move || -> crate::error::Result<_> {
         let px = prepare(md, c, "x", xd)?;
         let (i, d) = match yd {
+            // k is checked against y's rows even when x is empty.
             Some(d) => {
                 let py_ = prepare(md, c, "y", d)?;
                 matrix::knn(&px, &py_, k, false)?
             }
+            // y=None with an empty x: no query row, so no row lacks
+            // candidates; the result is (0, k) like any empty query set.
+            None if px.n == 0 => (Vec::new(), Vec::new()),
             None => matrix::knn(&px, &px, k, true)?,
         };
         Ok((i, d, px.n))
     })?;
-    let i = ndarray::Array2::from_shape_vec((n, k), idx).expect("shape").into_pyarray(py);
-    let d = ndarray::Array2::from_shape_vec((n, k), dist).expect("shape").into_pyarray(py);
-    Ok((i.into_any().unbind(), d.into_any().unbind()))
+    let i = ndarray::Array2::from_shape_vec((n, k), idx)
+        .map_err(|e| PyValueError::new_err(format!("internal error: result shape ({n}, {k}): {e}")))?
+        .into_pyarray(py);
+    let d = distances_2d(py, n, k, dist, f32_out)?;
+    Ok((i.into_any().unbind(), d.unbind()))
 }
 
 #[pyfunction]
@@ -187,6 +265,10 @@ fn radius_neighbors(
     let md = Model::parse(model, "model")?;
     let xa = coerce(py, "x", x)?;
     let ya = coerce_opt(py, "y", y)?;
+    let f32_out = match &ya {
+        Some(ya) => f32_result(&[&xa, ya]),
+        None => f32_result(&[&xa]),
+    };
     let xd = xa.data();
     let yd = ya.as_ref().map(|a| a.data());
     let (p, i, d) = py.detach(move || -> crate::error::Result<_> {
@@ -202,7 +284,7 @@ fn radius_neighbors(
     Ok((
         p.into_pyarray(py).into_any().unbind(),
         i.into_pyarray(py).into_any().unbind(),
-        d.into_pyarray(py).into_any().unbind(),
+        distances_1d(py, d, f32_out)?.unbind(),
     ))
 }
 

@@ -22,7 +22,7 @@ from conftest import MODELS, uniform_points
 def test_properties_and_repr():
     rng = np.random.default_rng(1)
     x = uniform_points(rng, 33, 3, "hyperboloid", 8.0, curvature=-0.5)
-    idx = NeighborIndex(x, "hyperboloid", curvature=-0.5, leaf_size=4)
+    idx = NeighborIndex(x, "hyperboloid", curvature=-0.5, leaf_size=4, method="tree")
     assert idx.n == len(idx) == 33
     assert idx.model == "hyperboloid" and idx.curvature == -0.5 and idx.leaf_size == 4
     assert idx.nbytes > 33 * 8 * 4
@@ -76,7 +76,7 @@ def test_pickle_round_trip():
     for model in MODELS:
         x = uniform_points(rng, 400, 2, model, 8.0, curvature=-3.0)
         y = uniform_points(rng, 30, 2, model, 8.0, curvature=-3.0)
-        idx = NeighborIndex(x, model, curvature=-3.0, leaf_size=5)
+        idx = NeighborIndex(x, model, curvature=-3.0, leaf_size=5, method="tree")
         state = idx.__getstate__()
         back = pickle.loads(pickle.dumps(idx, protocol=pickle.HIGHEST_PROTOCOL))
         assert (back.n, back.model, back.curvature, back.leaf_size) == (400, model, -3.0, 5)
@@ -92,7 +92,7 @@ def test_pickle_round_trip():
 
 def test_corrupted_state_is_a_value_error():
     rng = np.random.default_rng(8)
-    idx = NeighborIndex(uniform_points(rng, 100, 2, "poincare", 8.0), leaf_size=4)
+    idx = NeighborIndex(uniform_points(rng, 100, 2, "poincare", 8.0), leaf_size=4, method="tree")
     fields = list(idx.__getstate__()["tree"])
     bad_perm = fields[6].copy()
     bad_perm[0] = bad_perm[1]

@@ -31,19 +31,19 @@ def test_float32_inputs():
     assert mixed.dtype == np.float64
     assert_bitwise(mixed, gk.distance_matrix(xu, y64))
     idx, dist = gk.knn(x32, 4, y32)
-    assert dist.dtype == np.float64 and idx.dtype == np.int64
+    assert dist.dtype == np.float32 and idx.dtype == np.int64  # the SPEC dtype rule
     ei, ed = gk.knn(xu, 4, yu)
     assert_bitwise(idx, ei)
-    assert_bitwise(dist, ed)
+    assert_bitwise(dist, ed.astype(np.float32))
     idx, dist = gk.knn(x32, 4)
     ei, ed = gk.knn(xu, 4)
     assert_bitwise(idx, ei)
-    assert_bitwise(dist, ed)
+    assert_bitwise(dist, ed.astype(np.float32))
     got = gk.radius_neighbors(x32, 1.0, y32)
     exp = gk.radius_neighbors(xu, 1.0, yu)
-    assert got[2].dtype == np.float64
+    assert got[2].dtype == np.float32
     for g, e in zip(got, exp):
-        assert_bitwise(g, e)
+        assert_bitwise(g, e.astype(g.dtype))
 
 
 def layouts(a):
