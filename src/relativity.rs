@@ -545,6 +545,9 @@ pub fn thomas_rotation_arrays<'a>(l: Light, u: Data<'a>, v: Data<'a>) -> Result<
         v,
         &mat3,
         120,
+        // A closure marked inline(always), not the function item: the
+        // kernel must be inlined into the SIMD dispatch copies.
+        #[allow(clippy::redundant_closure)]
         #[inline(always)]
         |l, us, su, vs, sv, out| thomas_rotation_s(l, us, su, vs, sv, out),
     )

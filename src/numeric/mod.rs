@@ -34,6 +34,9 @@ pub struct DD {
     pub lo: f64,
 }
 
+// Named methods rather than operator traits: every call site reads as the
+// explicit double-double operation it is.
+#[allow(clippy::should_implement_trait)]
 impl DD {
     #[inline(always)]
     pub fn new(hi: f64, lo: f64) -> DD {
