@@ -2,11 +2,11 @@
 
 from __future__ import annotations
 
-import operator
 from typing import Any, Optional, Tuple
 
 import numpy as np
 
+from ._args import count, real
 from . import _native
 
 #: Points per leaf of the tree when ``leaf_size`` is not given (16).
@@ -16,14 +16,7 @@ DEFAULT_LEAF_SIZE: int = _native.VpTree.default_leaf_size
 METHODS: Tuple[str, ...] = ("auto", "tree", "brute")
 
 
-def _count(name: str, value: Any) -> int:
-    """``value`` as a Python int (``TypeError`` naming ``name`` otherwise)."""
-    if isinstance(value, (bool, np.bool_)):
-        raise TypeError(f"{name} must be an integer, got a bool")
-    try:
-        return operator.index(value)
-    except TypeError:
-        raise TypeError(f"{name} must be an integer, got {type(value).__name__}") from None
+_count = count
 
 
 class NeighborIndex:
@@ -136,7 +129,7 @@ class NeighborIndex:
             raise TypeError(f"method must be a string, got {type(method).__name__}")
         if method not in METHODS:
             raise ValueError(f"method must be 'auto', 'tree' or 'brute'; got {method!r}")
-        self._tree = _native.VpTree(x, model, curvature, _count("leaf_size", leaf_size), method)
+        self._tree = _native.VpTree(x, model, curvature, _count("leaf_size", leaf_size, 1), method)
 
     def query(self, y: Any = None, k: int = 10) -> Tuple[np.ndarray, np.ndarray]:
         """The ``k`` nearest indexed points of each query point.
@@ -158,7 +151,7 @@ class NeighborIndex:
         ``y`` and the row). An empty ``y`` (shape ``(0, d)``) gives empty
         ``(0, k)`` arrays.
         """
-        return self._tree.query(y, _count("k", k))
+        return self._tree.query(y, _count("k", k, 1))
 
     def query_radius(self, y: Any = None, r: Optional[float] = None) -> Tuple[np.ndarray, np.ndarray, np.ndarray]:
         """All indexed points within hyperbolic distance ``r`` of each query point.
@@ -181,19 +174,13 @@ class NeighborIndex:
         """
         if r is None:
             raise TypeError("query_radius() missing required argument 'r'")
-        if isinstance(r, (bool, np.bool_, str, bytes)):
-            raise TypeError(f"r must be a real number, got {type(r).__name__}")
-        try:
-            rf = float(r)
-        except (TypeError, ValueError):
-            raise TypeError(f"r must be a real number, got {type(r).__name__}") from None
-        return self._tree.query_radius(y, rf)
+        return self._tree.query_radius(y, real("r", r))
 
     def _visited_fraction(self, k: int = 10, samples: int = 64) -> Optional[float]:
         """The tree's mean pair evaluations per ``k``-nearest search of
         ``samples`` indexed points, as a fraction of ``n`` (what ``"auto"``
         measures); ``None`` when the index holds no tree."""
-        return self._tree.visited_fraction(_count("k", k), _count("samples", samples))
+        return self._tree.visited_fraction(_count("k", k, 1), _count("samples", samples, 1))
 
     def _pair_distances(self, y: Any = None) -> np.ndarray:
         """Every distance the index would report, ``(m, n)``: the brute force

@@ -29,7 +29,7 @@ from typing import Any, Optional, Tuple
 import numpy as np
 
 from . import _native
-from ._index import _count
+from ._args import count as _count, real
 
 __all__ = ["distance_matrix", "condensed_distances", "knn", "radius_neighbors"]
 
@@ -86,7 +86,7 @@ def knn(
     tile per thread. Candidates are ranked by ``h``, which is monotone in the
     distance, so no transcendental is evaluated per pair.
     """
-    return _native.knn(x, _count("k", k), y, model, curvature)
+    return _native.knn(x, _count("k", k, 1), y, model, curvature)
 
 
 def radius_neighbors(
@@ -105,4 +105,4 @@ def radius_neighbors(
     ``indptr = [0]`` and empty ``indices`` and ``distances``.
     ``y=None`` searches ``x`` itself, excluding self-matches.
     """
-    return _native.radius_neighbors(x, r, y, model, curvature)
+    return _native.radius_neighbors(x, real("r", r), y, model, curvature)

@@ -382,7 +382,12 @@ impl Prepared {
     }
 
     /// Rebuilds a prepared set from its parts (a saved index), checking the
-    /// lengths against the model.
+    /// lengths and the domain, so that a corrupted state is an error rather
+    /// than NaN distances: points in their own coordinates are read again
+    /// and must reproduce their factor bit for bit; hub images must lie in
+    /// the closed ball with factors in `[1, 2^251]` (the largest a point of
+    /// the hyperboloid range gives), and spatial parts in the hyperboloid
+    /// range.
     pub fn from_parts(
         model: Model,
         curvature: Curvature,
@@ -392,14 +397,37 @@ impl Prepared {
         extra: Vec<f64>,
     ) -> Result<Prepared> {
         let n = aux.len();
-        let ew = PairSpace::of(model).extra_width(w);
+        let space = PairSpace::of(model);
+        let ew = space.extra_width(w);
+        let bad = |what: &str| Err(Error::Value(format!("invalid prepared point data: {what}")));
         if w == 0 || coords.len() != n * w || extra.len() != n * ew {
-            return Err(Error::Value("inconsistent prepared point data".to_string()));
+            return bad("lengths do not match the number of points");
         }
         if !coords.iter().chain(&aux).chain(&extra).all(|v| v.is_finite()) {
-            return Err(Error::Value("prepared point data must be finite".to_string()));
+            return bad("values must be finite");
         }
-        Ok(Prepared { model, curvature, n, w, coords, aux, extra })
+        let p = Prepared { model, curvature, n, w, coords, aux, extra };
+        let k = &p.curvature;
+        for i in 0..n {
+            let (row, a) = (p.row(i), p.aux[i]);
+            let ok = match space {
+                PairSpace::Own => {
+                    let mut scratch = vec![0f64; w];
+                    matches!(read_pair_point(model, k, row, &mut scratch, &mut []), Ok(b) if b == a)
+                }
+                PairSpace::Hub | PairSpace::HubFar => {
+                    let far_ok = space == PairSpace::Hub || {
+                        let e = p.extra_row(i);
+                        crate::numeric::sumsq(&e[w..2 * w]) <= hyperboloid::MAX_SPATIAL_SQ && e[2 * w] >= 1.0
+                    };
+                    far_ok && k.kappa * crate::numeric::sumsq(row) <= 1.0 && (1.0..=2f64.powi(251)).contains(&a)
+                }
+            };
+            if !ok {
+                return bad(&format!("point {i} is outside the model's domain"));
+            }
+        }
+        Ok(p)
     }
 
     /// The rows `order` of `self`, in that order.
