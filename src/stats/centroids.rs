@@ -269,16 +269,16 @@ fn einstein_unit(pts: &UnitPoints, idx: &[usize], w: Option<&[f64]>) -> Option<(
 }
 
 /// Gradient, Hessian and objective at `mu` (unit ball) over the members.
-struct Stats {
-    grad: Vec<f64>,
+pub(crate) struct Stats {
+    pub grad: Vec<f64>,
     /// Upper triangle of the outer-product part, row-major `d x d`.
-    hout: Vec<f64>,
-    hscal: f64,
-    f: f64,
-    wsum: f64,
+    pub hout: Vec<f64>,
+    pub hscal: f64,
+    pub f: f64,
+    pub wsum: f64,
 }
 
-fn stats(pts: &UnitPoints, idx: &[usize], w: Option<&[f64]>, mu: &[f64], gmu: f64) -> Stats {
+pub(crate) fn stats(pts: &UnitPoints, idx: &[usize], w: Option<&[f64]>, mu: &[f64], gmu: f64) -> Stats {
     let d = pts.d;
     let parts: Vec<Stats> = idx
         .par_chunks(CHUNK)
@@ -417,18 +417,41 @@ pub struct GroupMean {
     pub iterations: usize,
     pub converged: bool,
     pub grad_norm: f64,
+    /// `sum w d^2 / sum w` at `mu` (unit ball: times R^2 for the model).
+    pub var: f64,
 }
 
-fn frechet_group(pts: &UnitPoints, idx: &[usize], w: Option<&[f64]>, tol: f64, max_iter: usize) -> Option<GroupMean> {
+pub(crate) fn frechet_group(
+    pts: &UnitPoints,
+    idx: &[usize],
+    w: Option<&[f64]>,
+    tol: f64,
+    max_iter: usize,
+) -> Option<GroupMean> {
+    let (mu, gmu) = einstein_unit(pts, idx, w)?;
+    Some(newton_from(pts, idx, w, mu, gmu, tol, max_iter))
+}
+
+/// Newton's method for the Fréchet mean of the members, started at the
+/// unit-ball point `mu` with gap `gmu` (k-means warm-starts it from the
+/// previous centre). The members must have a positive total weight.
+pub(crate) fn newton_from(
+    pts: &UnitPoints,
+    idx: &[usize],
+    w: Option<&[f64]>,
+    mut mu: Vec<f64>,
+    mut gmu: f64,
+    tol: f64,
+    max_iter: usize,
+) -> GroupMean {
     let d = pts.d;
-    let (mut mu, mut gmu) = einstein_unit(pts, idx, w)?;
     let mut prev: Option<(Vec<f64>, f64, Vec<f64>, f64, f64)> = None; // mu, gap, step, scale, grad norm
     let mut iterations = 0;
     loop {
         let st = stats(pts, idx, w, &mu, gmu);
         let gn = sumsq(&st.grad).sqrt() / st.wsum;
         if gn <= tol {
-            return Some(GroupMean { mu, gap: gmu, iterations, converged: true, grad_norm: gn });
+            return GroupMean { mu, gap: gmu, iterations, converged: true, grad_norm: gn, var: st.f / st.wsum };
         }
         if let Some((pm, pg, ps, sc, pgn)) = &prev {
             if gn > *pgn && *sc > 1e-6 {
@@ -442,7 +465,7 @@ fn frechet_group(pts: &UnitPoints, idx: &[usize], w: Option<&[f64]>, tol: f64, m
             }
         }
         if iterations >= max_iter {
-            return Some(GroupMean { mu, gap: gmu, iterations, converged: false, grad_norm: gn });
+            return GroupMean { mu, gap: gmu, iterations, converged: false, grad_norm: gn, var: st.f / st.wsum };
         }
         iterations += 1;
         let s = newton_step(&st, d);
@@ -451,7 +474,7 @@ fn frechet_group(pts: &UnitPoints, idx: &[usize], w: Option<&[f64]>, tol: f64, m
         // resolution at mu cannot be taken, so the iterate is final.
         let res = 2.0 * f64::EPSILON * (sumsq(&mu).sqrt() * 2.0 / gmu + 1.0);
         if sumsq(&s).sqrt() <= 4.0 * res {
-            return Some(GroupMean { mu, gap: gmu, iterations, converged: true, grad_norm: gn });
+            return GroupMean { mu, gap: gmu, iterations, converged: true, grad_norm: gn, var: st.f / st.wsum };
         }
         let (m2, g2) = step(&mu, gmu, &s, 1.0);
         prev = Some((mu, gmu, s, 1.0, gn));
@@ -471,7 +494,7 @@ pub struct MeanResult {
     pub grad_norm: Vec<f64>,
 }
 
-fn to_model(model: Model, k: &Curvature, mu: &[f64], gap: f64, out: &mut [f64]) {
+pub(crate) fn to_model(model: Model, k: &Curvature, mu: &[f64], gap: f64, out: &mut [f64]) {
     let p: Vec<f64> = mu.iter().map(|v| v * k.radius).collect();
     from_hub(model, k, &p, gap, out);
 }
