@@ -269,6 +269,7 @@ fn einstein_unit(pts: &UnitPoints, idx: &[usize], w: Option<&[f64]>) -> Option<(
 }
 
 /// Gradient, Hessian and objective at `mu` (unit ball) over the members.
+#[derive(Clone)]
 pub(crate) struct Stats {
     pub grad: Vec<f64>,
     /// Upper triangle of the outer-product part, row-major `d x d`.
@@ -276,6 +277,68 @@ pub(crate) struct Stats {
     pub hscal: f64,
     pub f: f64,
     pub wsum: f64,
+}
+
+impl Stats {
+    pub(crate) fn zero(d: usize) -> Stats {
+        Stats { grad: vec![0f64; d], hout: vec![0f64; d * d], hscal: 0.0, f: 0.0, wsum: 0.0 }
+    }
+
+    /// Adds `o` (chunk sums are added in chunk order: deterministic).
+    pub(crate) fn add(&mut self, o: &Stats) {
+        self.grad.iter_mut().zip(&o.grad).for_each(|(a, b)| *a += b);
+        self.hout.iter_mut().zip(&o.hout).for_each(|(a, b)| *a += b);
+        self.hscal += o.hscal;
+        self.f += o.f;
+        self.wsum += o.wsum;
+    }
+
+    /// Adds point `p` (gap `gp`, weight `wi > 0`) at the unit-ball point
+    /// `mu` (gap `gmu`); `y` is scratch of length d.
+    #[inline(always)]
+    pub(crate) fn accumulate(&mut self, p: &[f64], gp: f64, wi: f64, mu: &[f64], gmu: f64, y: &mut [f64]) {
+        let d = mu.len();
+        let st = self;
+        // y = (-mu) ⊕ p, its gap exact: g_mu g_p / D.
+        let mut ss = 0.0;
+        for j in 0..d {
+            let s = p[j] - mu[j];
+            y[j] = s;
+            ss += s * s;
+        }
+        let den = gmu * gp + ss;
+        let (a, b) = (gmu / den, ss / den);
+        let mut t2 = 0.0;
+        for j in 0..d {
+            y[j] = a * y[j] - b * mu[j];
+            t2 += y[j] * y[j];
+        }
+        let gy = gmu * gp / den;
+        st.wsum += wi;
+        let t = t2.sqrt();
+        if t == 0.0 {
+            st.hscal += wi;
+            return;
+        }
+        // d = 2 artanh t, from the gap (fast compensated log1p).
+        let dist = log1p_fast(2.0 * t * (1.0 + t) / gy);
+        // d coth d with coth(2 artanh t) = (1 + t^2)/(2t): no exp.
+        let c = dist * (1.0 + t2) / (2.0 * t);
+        st.f += wi * dist * dist;
+        st.hscal += wi * c;
+        let fg = wi * dist / t;
+        for j in 0..d {
+            st.grad[j] += fg * y[j];
+        }
+        let fh = wi * (1.0 - c) / t2;
+        // Full outer product (vectorises better than a triangle).
+        for (r, row) in st.hout.chunks_exact_mut(d).enumerate() {
+            let yr = fh * y[r];
+            for (o, &ys) in row.iter_mut().zip(y.iter()) {
+                *o = yr.mul_add(ys, *o);
+            }
+        }
+    }
 }
 
 pub(crate) fn stats(pts: &UnitPoints, idx: &[usize], w: Option<&[f64]>, mu: &[f64], gmu: f64) -> Stats {
@@ -287,66 +350,23 @@ pub(crate) fn stats(pts: &UnitPoints, idx: &[usize], w: Option<&[f64]>, mu: &[f6
                 crate::numeric::simd::has_fma(),
                 #[inline(always)]
                 || {
-                    let mut st = Stats { grad: vec![0f64; d], hout: vec![0f64; d * d], hscal: 0.0, f: 0.0, wsum: 0.0 };
+                    let mut st = Stats::zero(d);
                     let mut y = vec![0f64; d];
                     for &i in ch {
                         let wi = w.map_or(1.0, |w| w[i]);
                         if wi == 0.0 {
                             continue;
                         }
-                        let p = &pts.p[i * d..(i + 1) * d];
-                        // y = (-mu) ⊕ p, its gap exact: g_mu g_p / D.
-                        let mut ss = 0.0;
-                        for j in 0..d {
-                            let s = p[j] - mu[j];
-                            y[j] = s;
-                            ss += s * s;
-                        }
-                        let den = gmu * pts.g[i] + ss;
-                        let (a, b) = (gmu / den, ss / den);
-                        let mut t2 = 0.0;
-                        for j in 0..d {
-                            y[j] = a * y[j] - b * mu[j];
-                            t2 += y[j] * y[j];
-                        }
-                        let gy = gmu * pts.g[i] / den;
-                        st.wsum += wi;
-                        let t = t2.sqrt();
-                        if t == 0.0 {
-                            st.hscal += wi;
-                            continue;
-                        }
-                        // d = 2 artanh t, from the gap (fast compensated log1p).
-                        let dist = log1p_fast(2.0 * t * (1.0 + t) / gy);
-                        // d coth d with coth(2 artanh t) = (1 + t^2)/(2t): no exp.
-                        let c = dist * (1.0 + t2) / (2.0 * t);
-                        st.f += wi * dist * dist;
-                        st.hscal += wi * c;
-                        let fg = wi * dist / t;
-                        for j in 0..d {
-                            st.grad[j] += fg * y[j];
-                        }
-                        let fh = wi * (1.0 - c) / t2;
-                        // Full outer product (vectorises better than a triangle).
-                        for (r, row) in st.hout.chunks_exact_mut(d).enumerate() {
-                            let yr = fh * y[r];
-                            for (o, &ys) in row.iter_mut().zip(y.iter()) {
-                                *o = yr.mul_add(ys, *o);
-                            }
-                        }
+                        st.accumulate(&pts.p[i * d..(i + 1) * d], pts.g[i], wi, mu, gmu, &mut y);
                     }
                     st
                 },
             )
         })
         .collect();
-    let mut tot = Stats { grad: vec![0f64; d], hout: vec![0f64; d * d], hscal: 0.0, f: 0.0, wsum: 0.0 };
+    let mut tot = Stats::zero(d);
     for p in parts {
-        tot.grad.iter_mut().zip(&p.grad).for_each(|(a, b)| *a += b);
-        tot.hout.iter_mut().zip(&p.hout).for_each(|(a, b)| *a += b);
-        tot.hscal += p.hscal;
-        tot.f += p.f;
-        tot.wsum += p.wsum;
+        tot.add(&p);
     }
     tot
 }
@@ -429,12 +449,21 @@ pub(crate) fn frechet_group(
     max_iter: usize,
 ) -> Option<GroupMean> {
     let (mu, gmu) = einstein_unit(pts, idx, w)?;
-    Some(newton_from(pts, idx, w, mu, gmu, tol, max_iter))
+    Some(newton_from(pts, idx, w, mu, gmu, tol, max_iter, 0.0, None))
 }
 
 /// Newton's method for the Fréchet mean of the members, started at the
 /// unit-ball point `mu` with gap `gmu` (k-means warm-starts it from the
 /// previous centre). The members must have a positive total weight.
+///
+/// `first`, if given, holds the statistics at the starting point (k-means
+/// gathers them during its assignment pass).
+///
+/// `last_step > 0` ends the iteration after a full Newton step of
+/// hyperbolic length at most `last_step` (unit ball) without evaluating the
+/// gradient there: in the quadratic regime the step leaves an error of order
+/// `last_step^2`. k-means uses it for its intermediate centres; `0` always
+/// verifies `tol`.
 pub(crate) fn newton_from(
     pts: &UnitPoints,
     idx: &[usize],
@@ -443,12 +472,17 @@ pub(crate) fn newton_from(
     mut gmu: f64,
     tol: f64,
     max_iter: usize,
+    last_step: f64,
+    mut first: Option<Stats>,
 ) -> GroupMean {
     let d = pts.d;
     let mut prev: Option<(Vec<f64>, f64, Vec<f64>, f64, f64)> = None; // mu, gap, step, scale, grad norm
     let mut iterations = 0;
     loop {
-        let st = stats(pts, idx, w, &mu, gmu);
+        let st = match first.take() {
+            Some(st) => st,
+            None => stats(pts, idx, w, &mu, gmu),
+        };
         let gn = sumsq(&st.grad).sqrt() / st.wsum;
         if gn <= tol {
             return GroupMean { mu, gap: gmu, iterations, converged: true, grad_norm: gn, var: st.f / st.wsum };
@@ -477,6 +511,10 @@ pub(crate) fn newton_from(
             return GroupMean { mu, gap: gmu, iterations, converged: true, grad_norm: gn, var: st.f / st.wsum };
         }
         let (m2, g2) = step(&mu, gmu, &s, 1.0);
+        let halving = prev.as_ref().is_some_and(|p| p.3 < 1.0);
+        if !halving && sumsq(&s).sqrt() <= last_step {
+            return GroupMean { mu: m2, gap: g2, iterations, converged: true, grad_norm: gn, var: f64::NAN };
+        }
         prev = Some((mu, gmu, s, 1.0, gn));
         mu = m2;
         gmu = g2;

@@ -35,7 +35,7 @@ use std::collections::HashMap;
 
 use rayon::prelude::*;
 
-use super::centroids::{frechet_group, newton_from, to_model, unit_points, UnitPoints};
+use super::centroids::{frechet_group, newton_from, to_model, unit_points, Stats, UnitPoints};
 use crate::batch::Data;
 use crate::error::{Error, Result};
 use crate::models::ball::{checked_gap, Curvature};
@@ -50,6 +50,12 @@ const CHUNK: usize = 4096;
 /// of `frechet_mean`), and its iteration cap.
 const CENTRE_TOL: f64 = 1e-12;
 const CENTRE_MAX_ITER: usize = 50;
+/// The intermediate centres of Lloyd's loop end after a Newton step of at
+/// most this hyperbolic length (unit ball), unverified: in Newton's
+/// quadratic regime they are then within ~1e-10 R of the cluster's mean
+/// (enough to rank points; the inertia is off by ~1e-20 per point), and the
+/// final centres are recomputed in full.
+const INTERMEDIATE_LAST_STEP: f64 = 1e-5;
 
 /// The pseudo-random generator of the seeding: xoshiro256** (Blackman and
 /// Vigna, "Scrambled linear pseudorandom number generators", 2018), its
@@ -291,10 +297,29 @@ fn distinct(n: usize, k: usize, rng: &mut Rng) -> Vec<usize> {
 // ---------------------------------------------------------------- Lloyd
 
 /// Nearest centre (ties to the lower index) and its distance, per point;
-/// returns the inertia (fixed-chunk sums in order).
-fn assign(pts: &UnitPoints, cen: &Centres, radius: f64, labels: &mut [usize], dist: &mut [f64]) -> f64 {
+/// returns the inertia (fixed-chunk sums in order) and, with `gather`, each
+/// cluster's Newton statistics at its centre (the first pass of the next
+/// update, done while the point is in cache). The centres are laid out
+/// coordinate-major so that the loop over centres vectorises; each pair's
+/// `|x - c|^2` is still summed in coordinate order (as `seq_dist_sq`).
+fn assign(
+    pts: &UnitPoints,
+    cen: &Centres,
+    radius: f64,
+    labels: &mut [usize],
+    dist: &mut [f64],
+    gather: bool,
+) -> (f64, Option<Vec<Stats>>) {
     let k = cen.a.len();
-    let sums: Vec<f64> = labels
+    let d = pts.d;
+    let mut ct = vec![0f64; d * k];
+    for j in 0..k {
+        for t in 0..d {
+            ct[t * k + j] = cen.c[j * d + t];
+        }
+    }
+    let ct = &ct;
+    let parts: Vec<(f64, Vec<Stats>)> = labels
         .par_chunks_mut(CHUNK)
         .zip(dist.par_chunks_mut(CHUNK))
         .enumerate()
@@ -303,13 +328,27 @@ fn assign(pts: &UnitPoints, cen: &Centres, radius: f64, labels: &mut [usize], di
                 has_fma(),
                 #[inline(always)]
                 || {
+                    let mut sts: Vec<Stats> =
+                        if gather { (0..k).map(|_| Stats::zero(d)).collect() } else { Vec::new() };
+                    let mut y = vec![0f64; d];
+                    let mut acc = vec![0f64; k];
                     let mut s = 0.0;
                     for (r, (l, dd)) in lc.iter_mut().zip(dc.iter_mut()).enumerate() {
                         let i = ci * CHUNK + r;
+                        let x = &pts.p[i * d..(i + 1) * d];
+                        acc.iter_mut().for_each(|v| *v = 0.0);
+                        for (t, &xt) in x.iter().enumerate() {
+                            let row = &ct[t * k..(t + 1) * k];
+                            for (a, &c) in acc.iter_mut().zip(row) {
+                                let u = xt - c;
+                                *a = u.mul_add(u, *a);
+                            }
+                        }
+                        let ax = 1.0 / pts.g[i];
                         let mut best = f64::INFINITY;
                         let mut bj = 0;
-                        for j in 0..k {
-                            let h = h_point(pts, i, cen.row(j), cen.a[j]);
+                        for (j, (&a2, &ac)) in acc.iter().zip(&cen.a).enumerate() {
+                            let h = scaled_h(a2, ax, ac, 1.0);
                             if h < best {
                                 best = h;
                                 bj = j;
@@ -319,22 +358,32 @@ fn assign(pts: &UnitPoints, cen: &Centres, radius: f64, labels: &mut [usize], di
                         let dv = radius * acosh1p2_fast(best);
                         *dd = dv;
                         s += dv * dv;
+                        if gather {
+                            sts[bj].accumulate(x, pts.g[i], 1.0, cen.row(bj), cen.g[bj], &mut y);
+                        }
                     }
-                    s
+                    (s, sts)
                 },
             )
         })
         .collect();
-    sums.iter().sum()
+    let mut inertia = 0.0;
+    let mut tot: Vec<Stats> = if gather { (0..k).map(|_| Stats::zero(d)).collect() } else { Vec::new() };
+    for (s, sts) in &parts {
+        inertia += s;
+        tot.iter_mut().zip(sts).for_each(|(a, b)| a.add(b));
+    }
+    (inertia, if gather { Some(tot) } else { None })
 }
 
 /// The empty-cluster repair, in place (see the module docs).
-fn repair(pts: &UnitPoints, labels: &mut [usize], dist: &mut [f64], cen: &mut Centres) {
+fn repair(pts: &UnitPoints, labels: &mut [usize], dist: &mut [f64], cen: &mut Centres) -> bool {
     let k = cen.a.len();
     let d = pts.d;
     let mut counts = vec![0usize; k];
     labels.iter().for_each(|&l| counts[l] += 1);
     let empty: Vec<usize> = (0..k).filter(|&j| counts[j] == 0).collect();
+    let moved = !empty.is_empty();
     for j in empty {
         let mut best = f64::NEG_INFINITY;
         let mut bi = usize::MAX;
@@ -353,6 +402,7 @@ fn repair(pts: &UnitPoints, labels: &mut [usize], dist: &mut [f64], cen: &mut Ce
         dist[bi] = 0.0;
         cen.set(j, &pts.p[bi * d..(bi + 1) * d], pts.g[bi]);
     }
+    moved
 }
 
 /// The point indices of each cluster, in input order.
@@ -379,11 +429,14 @@ fn lloyd(pts: &UnitPoints, mut cen: Centres, p: &Params, radius: f64) -> Run {
     let mut labels = vec![0usize; pts.n];
     let mut dist = vec![0f64; pts.n];
     let mut new_labels = vec![0usize; pts.n];
-    let mut history = vec![assign(pts, &cen, radius, &mut labels, &mut dist)];
+    let (inertia0, mut gathered) = assign(pts, &cen, radius, &mut labels, &mut dist, true);
+    let mut history = vec![inertia0];
     let mut n_iter = 0;
     let mut groups = Vec::new();
     for _ in 0..p.max_iter {
-        repair(pts, &mut labels, &mut dist, &mut cen);
+        if repair(pts, &mut labels, &mut dist, &mut cen) {
+            gathered = None; // clusters and centres changed: statistics from scratch
+        }
         groups = members(&labels, k);
         let means: Vec<(Vec<f64>, f64)> = groups
             .par_iter()
@@ -392,7 +445,17 @@ fn lloyd(pts: &UnitPoints, mut cen: Centres, p: &Params, radius: f64) -> Run {
                 if idx.is_empty() {
                     return (cen.row(j).to_vec(), cen.g[j]);
                 }
-                let r = newton_from(pts, idx, None, cen.row(j).to_vec(), cen.g[j], CENTRE_TOL, CENTRE_MAX_ITER);
+                let r = newton_from(
+                    pts,
+                    idx,
+                    None,
+                    cen.row(j).to_vec(),
+                    cen.g[j],
+                    CENTRE_TOL,
+                    CENTRE_MAX_ITER,
+                    INTERMEDIATE_LAST_STEP,
+                    gathered.as_ref().map(|g| g[j].clone()),
+                );
                 (r.mu, r.gap)
             })
             .collect();
@@ -404,7 +467,9 @@ fn lloyd(pts: &UnitPoints, mut cen: Centres, p: &Params, radius: f64) -> Run {
             cen.set(j, mu, *g);
         }
         n_iter += 1;
-        history.push(assign(pts, &cen, radius, &mut new_labels, &mut dist));
+        let (inertia, g) = assign(pts, &cen, radius, &mut new_labels, &mut dist, true);
+        gathered = g;
+        history.push(inertia);
         let unchanged = new_labels == labels;
         std::mem::swap(&mut labels, &mut new_labels);
         if unchanged || shift <= p.tol {
@@ -430,7 +495,7 @@ fn lloyd(pts: &UnitPoints, mut cen: Centres, p: &Params, radius: f64) -> Run {
             cen.set(j, &mu, g);
         }
     }
-    let inertia = assign(pts, &cen, radius, &mut labels, &mut dist);
+    let inertia = assign(pts, &cen, radius, &mut labels, &mut dist, false).0;
     *history.last_mut().expect("one assignment") = inertia;
     Run { cen, labels, inertia, n_iter, history }
 }
