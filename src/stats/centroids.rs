@@ -606,22 +606,81 @@ pub fn einstein_midpoint(
     Ok((keys, mean, width))
 }
 
-/// `sum w d(c, x)^2 / sum w` about `center` (in the model's coordinates).
-pub fn frechet_variance(model: Model, k: Curvature, x: &Data, center: &[f64], weights: Option<&[f64]>) -> Result<f64> {
+/// Where the Fréchet variance is taken.
+pub enum Center<'a> {
+    /// About each group's own Fréchet mean.
+    Mean { tol: f64, max_iter: usize },
+    /// About given points in the model's coordinates: one row for every
+    /// group, or one row per group (row-major, `rows x width`).
+    Given { coords: &'a [f64], rows: usize },
+}
+
+/// `sum w d(c, x)^2 / sum w` per label (one group without labels), in one
+/// pass over each group's points. Returns the sorted labels and the
+/// variances.
+pub fn frechet_variance(
+    model: Model,
+    k: Curvature,
+    x: &Data,
+    center: Center,
+    weights: Option<&[f64]>,
+    labels: Option<&[i64]>,
+) -> Result<(Vec<i64>, Vec<f64>)> {
     let pts = unit_points(model, &k, "x", x)?;
     let wn = normalized(weights, pts.n)?;
     let weights = wn.as_deref();
+    let (keys, members) = groups(labels, pts.n)?;
     let width = model.width(pts.d);
-    if center.len() != width {
-        return Err(Error::Value(format!("center has {} coordinates but x has {width} per point", center.len())));
+    let r2 = k.radius * k.radius;
+    let res: Vec<Option<f64>> = match center {
+        Center::Mean { tol, max_iter } => {
+            if !(tol >= 0.0) {
+                return Err(Error::Value(format!("tol must be >= 0, got {tol}")));
+            }
+            members.par_iter().map(|idx| frechet_group(&pts, idx, weights, tol, max_iter).map(|r| r.var)).collect()
+        }
+        Center::Given { coords, rows } => {
+            if rows == 0 || coords.len() != rows * width {
+                return Err(Error::Value(format!(
+                    "center has {} coordinates but x has {width} per point",
+                    coords.len() / rows.max(1)
+                )));
+            }
+            if rows != 1 && rows != keys.len() {
+                return Err(Error::Value(format!(
+                    "center has {rows} rows but there are {} labels (give one center, or one per label)",
+                    keys.len()
+                )));
+            }
+            let mut hub = vec![0f64; rows * pts.d];
+            let mut gaps = vec![0f64; rows];
+            for r in 0..rows {
+                let mu = &mut hub[r * pts.d..(r + 1) * pts.d];
+                let gmu = to_hub(model, &k, &coords[r * width..(r + 1) * width], mu).map_err(|f| {
+                    let row = if rows > 1 { format!(" row {r}") } else { String::new() };
+                    Error::Value(format!("center{row} {}", f.describe()))
+                })?;
+                mu.iter_mut().for_each(|v| *v *= k.sqrt_kappa);
+                gaps[r] = gmu;
+            }
+            members
+                .par_iter()
+                .enumerate()
+                .map(|(gi, idx)| {
+                    let r = if rows == 1 { 0 } else { gi };
+                    let st = stats(&pts, idx, weights, &hub[r * pts.d..(r + 1) * pts.d], gaps[r]);
+                    if st.wsum > 0.0 {
+                        Some(st.f / st.wsum)
+                    } else {
+                        None
+                    }
+                })
+                .collect()
+        }
+    };
+    let mut out = Vec::with_capacity(keys.len());
+    for (gi, v) in res.into_iter().enumerate() {
+        out.push(v.ok_or_else(|| empty_group(keys[gi], labels.is_some()))? * r2);
     }
-    let mut mu = vec![0f64; pts.d];
-    let gmu = to_hub(model, &k, center, &mut mu).map_err(|f| Error::Value(format!("center {}", f.describe())))?;
-    mu.iter_mut().for_each(|v| *v *= k.sqrt_kappa);
-    let idx: Vec<usize> = (0..pts.n).collect();
-    let st = stats(&pts, &idx, weights, &mu, gmu);
-    if !(st.wsum > 0.0) {
-        return Err(empty_group(0, false));
-    }
-    Ok(st.f / st.wsum * k.radius * k.radius)
+    Ok((keys, out))
 }
