@@ -449,76 +449,108 @@ pub(crate) fn frechet_group(
     max_iter: usize,
 ) -> Option<GroupMean> {
     let (mu, gmu) = einstein_unit(pts, idx, w)?;
-    Some(newton_from(pts, idx, w, mu, gmu, tol, max_iter, 0.0, None))
+    Some(newton_from(pts, idx, w, mu, gmu, tol, max_iter))
 }
 
-/// Newton's method for the Fréchet mean of the members, started at the
-/// unit-ball point `mu` with gap `gmu` (k-means warm-starts it from the
-/// previous centre). The members must have a positive total weight.
-///
-/// `first`, if given, holds the statistics at the starting point (k-means
-/// gathers them during its assignment pass).
-///
-/// `last_step > 0` ends the iteration after a full Newton step of
-/// hyperbolic length at most `last_step` (unit ball) without evaluating the
-/// gradient there: in the quadratic regime the step leaves an error of order
-/// `last_step^2`. k-means uses it for its intermediate centres; `0` always
-/// verifies `tol`.
-pub(crate) fn newton_from(
-    pts: &UnitPoints,
-    idx: &[usize],
-    w: Option<&[f64]>,
-    mut mu: Vec<f64>,
-    mut gmu: f64,
+/// The state of one Riemannian Newton iteration for a Fréchet mean, fed the
+/// statistics at its current iterate by whoever makes the passes over the
+/// points ([`newton_from`] for one group; k-means for all its clusters in
+/// one pass).
+pub(crate) struct Newton {
+    pub mu: Vec<f64>,
+    pub gmu: f64,
+    /// mu, gap, step, scale, grad norm of the last full step
+    prev: Option<(Vec<f64>, f64, Vec<f64>, f64, f64)>,
+    iterations: usize,
     tol: f64,
     max_iter: usize,
     last_step: f64,
-    mut first: Option<Stats>,
-) -> GroupMean {
-    let d = pts.d;
-    let mut prev: Option<(Vec<f64>, f64, Vec<f64>, f64, f64)> = None; // mu, gap, step, scale, grad norm
-    let mut iterations = 0;
-    loop {
-        let st = match first.take() {
-            Some(st) => st,
-            None => stats(pts, idx, w, &mu, gmu),
-        };
+    pub result: Option<GroupMean>,
+}
+
+impl Newton {
+    /// Starts at the unit-ball point `mu` with gap `gmu`. `last_step > 0`
+    /// ends the iteration after a full Newton step of hyperbolic length at
+    /// most `last_step` (unit ball) without evaluating the gradient there: in
+    /// the quadratic regime the step leaves an error of order `last_step^2`
+    /// (k-means uses it for its intermediate centres); `0` always verifies
+    /// `tol`.
+    pub(crate) fn new(mu: Vec<f64>, gmu: f64, tol: f64, max_iter: usize, last_step: f64) -> Newton {
+        Newton { mu, gmu, prev: None, iterations: 0, tol, max_iter, last_step, result: None }
+    }
+
+    fn finish(&mut self, converged: bool, gn: f64, var: f64) {
+        let mu = std::mem::take(&mut self.mu);
+        self.result = Some(GroupMean { mu, gap: self.gmu, iterations: self.iterations, converged, grad_norm: gn, var });
+    }
+
+    /// Takes the statistics at `self.mu` (positive total weight); returns
+    /// whether it needs the statistics at the new `self.mu` (otherwise
+    /// `result` is set).
+    pub(crate) fn advance(&mut self, st: &Stats) -> bool {
+        let d = st.grad.len();
         let gn = sumsq(&st.grad).sqrt() / st.wsum;
-        if gn <= tol {
-            return GroupMean { mu, gap: gmu, iterations, converged: true, grad_norm: gn, var: st.f / st.wsum };
+        let var = st.f / st.wsum;
+        if gn <= self.tol {
+            self.finish(true, gn, var);
+            return false;
         }
-        if let Some((pm, pg, ps, sc, pgn)) = &prev {
+        if let Some((pm, pg, ps, sc, pgn)) = &self.prev {
             if gn > *pgn && *sc > 1e-6 {
                 // Worse than before: retry the previous step at half length.
                 let scale = sc * 0.5;
                 let (m2, g2) = step(pm, *pg, ps, scale);
-                mu = m2;
-                gmu = g2;
-                prev = Some((pm.clone(), *pg, ps.clone(), scale, *pgn));
-                continue;
+                self.mu = m2;
+                self.gmu = g2;
+                self.prev = Some((pm.clone(), *pg, ps.clone(), scale, *pgn));
+                return true;
             }
         }
-        if iterations >= max_iter {
-            return GroupMean { mu, gap: gmu, iterations, converged: false, grad_norm: gn, var: st.f / st.wsum };
+        if self.iterations >= self.max_iter {
+            self.finish(false, gn, var);
+            return false;
         }
-        iterations += 1;
-        let s = newton_step(&st, d);
+        self.iterations += 1;
+        let s = newton_step(st, d);
         // Beyond ~11 R from the origin one ulp of the coordinates is more
         // than 1e-12 R of hyperbolic distance: a step below the coordinate
         // resolution at mu cannot be taken, so the iterate is final.
-        let res = 2.0 * f64::EPSILON * (sumsq(&mu).sqrt() * 2.0 / gmu + 1.0);
-        if sumsq(&s).sqrt() <= 4.0 * res {
-            return GroupMean { mu, gap: gmu, iterations, converged: true, grad_norm: gn, var: st.f / st.wsum };
+        let res = 2.0 * f64::EPSILON * (sumsq(&self.mu).sqrt() * 2.0 / self.gmu + 1.0);
+        let sn = sumsq(&s).sqrt();
+        if sn <= 4.0 * res {
+            self.finish(true, gn, var);
+            return false;
         }
-        let (m2, g2) = step(&mu, gmu, &s, 1.0);
-        let halving = prev.as_ref().is_some_and(|p| p.3 < 1.0);
-        if !halving && sumsq(&s).sqrt() <= last_step {
-            return GroupMean { mu: m2, gap: g2, iterations, converged: true, grad_norm: gn, var: f64::NAN };
+        let (m2, g2) = step(&self.mu, self.gmu, &s, 1.0);
+        let halving = self.prev.as_ref().is_some_and(|p| p.3 < 1.0);
+        if !halving && sn <= self.last_step {
+            self.mu = m2;
+            self.gmu = g2;
+            self.finish(true, gn, f64::NAN);
+            return false;
         }
-        prev = Some((mu, gmu, s, 1.0, gn));
-        mu = m2;
-        gmu = g2;
+        let old = std::mem::replace(&mut self.mu, m2);
+        self.prev = Some((old, self.gmu, s, 1.0, gn));
+        self.gmu = g2;
+        true
     }
+}
+
+/// Newton's method for the Fréchet mean of the members, started at the
+/// unit-ball point `mu` with gap `gmu`. The members must have a positive
+/// total weight.
+pub(crate) fn newton_from(
+    pts: &UnitPoints,
+    idx: &[usize],
+    w: Option<&[f64]>,
+    mu: Vec<f64>,
+    gmu: f64,
+    tol: f64,
+    max_iter: usize,
+) -> GroupMean {
+    let mut nt = Newton::new(mu, gmu, tol, max_iter, 0.0);
+    while nt.advance(&stats(pts, idx, w, &nt.mu, nt.gmu)) {}
+    nt.result.expect("finished")
 }
 
 /// Result of [`frechet_mean`]: one row per group (a single group without

@@ -35,7 +35,7 @@ use std::collections::HashMap;
 
 use rayon::prelude::*;
 
-use super::centroids::{frechet_group, newton_from, to_model, unit_points, Stats, UnitPoints};
+use super::centroids::{frechet_group, to_model, unit_points, Newton, Stats, UnitPoints};
 use crate::batch::Data;
 use crate::error::{Error, Result};
 use crate::models::ball::{checked_gap, Curvature};
@@ -416,6 +416,74 @@ fn members(labels: &[usize], k: usize) -> Vec<Vec<usize>> {
     m
 }
 
+/// Newton statistics of every cluster flagged in `need`, each at its own
+/// iterate, in one pass over the points (fixed chunks summed in order).
+fn multi_stats(pts: &UnitPoints, labels: &[usize], it: &[Newton], need: &[bool]) -> Vec<Stats> {
+    let (k, d) = (it.len(), pts.d);
+    let parts: Vec<Vec<Stats>> = labels
+        .par_chunks(CHUNK)
+        .enumerate()
+        .map(|(ci, lc)| {
+            dispatch(
+                has_fma(),
+                #[inline(always)]
+                || {
+                    let mut sts: Vec<Stats> = (0..k).map(|_| Stats::zero(d)).collect();
+                    let mut y = vec![0f64; d];
+                    for (r, &l) in lc.iter().enumerate() {
+                        if need[l] {
+                            let i = ci * CHUNK + r;
+                            sts[l].accumulate(&pts.p[i * d..(i + 1) * d], pts.g[i], 1.0, &it[l].mu, it[l].gmu, &mut y);
+                        }
+                    }
+                    sts
+                },
+            )
+        })
+        .collect();
+    let mut tot: Vec<Stats> = (0..k).map(|_| Stats::zero(d)).collect();
+    for p in &parts {
+        tot.iter_mut().zip(p).for_each(|(a, b)| a.add(b));
+    }
+    tot
+}
+
+/// The update step: every cluster's Fréchet mean by Newton's method started
+/// at its centre, all clusters advancing together so that each further
+/// round of statistics is one sequential pass over the points. `first`
+/// holds the statistics at the centres if the assignment pass gathered them.
+fn update(pts: &UnitPoints, labels: &[usize], cen: &Centres, first: Option<Vec<Stats>>) -> Vec<(Vec<f64>, f64)> {
+    let k = cen.a.len();
+    let mut it: Vec<Newton> = (0..k)
+        .map(|j| Newton::new(cen.row(j).to_vec(), cen.g[j], CENTRE_TOL, CENTRE_MAX_ITER, INTERMEDIATE_LAST_STEP))
+        .collect();
+    let mut need = vec![true; k];
+    let mut st = match first {
+        Some(s) => s,
+        None => multi_stats(pts, labels, &it, &need),
+    };
+    loop {
+        for j in 0..k {
+            if need[j] {
+                // A cluster without points (only if the repair could not
+                // fill it) keeps its centre.
+                need[j] = st[j].wsum > 0.0 && it[j].advance(&st[j]);
+            }
+        }
+        if !need.iter().any(|&b| b) {
+            break;
+        }
+        st = multi_stats(pts, labels, &it, &need);
+    }
+    it.into_iter()
+        .enumerate()
+        .map(|(j, n)| match n.result {
+            Some(r) => (r.mu, r.gap),
+            None => (cen.row(j).to_vec(), cen.g[j]),
+        })
+        .collect()
+}
+
 struct Run {
     cen: Centres,
     labels: Vec<usize>,
@@ -429,36 +497,15 @@ fn lloyd(pts: &UnitPoints, mut cen: Centres, p: &Params, radius: f64) -> Run {
     let mut labels = vec![0usize; pts.n];
     let mut dist = vec![0f64; pts.n];
     let mut new_labels = vec![0usize; pts.n];
+    let mut labels_used = vec![0usize; pts.n];
     let (inertia0, mut gathered) = assign(pts, &cen, radius, &mut labels, &mut dist, true);
     let mut history = vec![inertia0];
     let mut n_iter = 0;
-    let mut groups = Vec::new();
     for _ in 0..p.max_iter {
         if repair(pts, &mut labels, &mut dist, &mut cen) {
             gathered = None; // clusters and centres changed: statistics from scratch
         }
-        groups = members(&labels, k);
-        let means: Vec<(Vec<f64>, f64)> = groups
-            .par_iter()
-            .enumerate()
-            .map(|(j, idx)| {
-                if idx.is_empty() {
-                    return (cen.row(j).to_vec(), cen.g[j]);
-                }
-                let r = newton_from(
-                    pts,
-                    idx,
-                    None,
-                    cen.row(j).to_vec(),
-                    cen.g[j],
-                    CENTRE_TOL,
-                    CENTRE_MAX_ITER,
-                    INTERMEDIATE_LAST_STEP,
-                    gathered.as_ref().map(|g| g[j].clone()),
-                );
-                (r.mu, r.gap)
-            })
-            .collect();
+        let means = update(pts, &labels, &cen, gathered.take());
         let mut shift = 0.0;
         for (j, (mu, g)) in means.iter().enumerate() {
             let a = 1.0 / cen.g[j];
@@ -472,6 +519,8 @@ fn lloyd(pts: &UnitPoints, mut cen: Centres, p: &Params, radius: f64) -> Run {
         history.push(inertia);
         let unchanged = new_labels == labels;
         std::mem::swap(&mut labels, &mut new_labels);
+        // `new_labels` now holds the clusters this update was computed from.
+        std::mem::swap(&mut labels_used, &mut new_labels);
         if unchanged || shift <= p.tol {
             break;
         }
@@ -481,6 +530,7 @@ fn lloyd(pts: &UnitPoints, mut cen: Centres, p: &Params, radius: f64) -> Run {
     // those labels computes them (the warm starts only save iterations).
     // So a centre depends on its members alone, and runs that end with the
     // same clusters (labels permuted) report the same inertia.
+    let groups = members(&labels_used, k);
     let means: Vec<Option<(Vec<f64>, f64)>> = groups
         .par_iter()
         .map(|idx| {
