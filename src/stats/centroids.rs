@@ -294,9 +294,20 @@ impl Stats {
     }
 
     /// Adds point `p` (gap `gp`, weight `wi > 0`) at the unit-ball point
-    /// `mu` (gap `gmu`); `y` is scratch of length d.
+    /// `mu` (gap `gmu`); `y` is scratch of length d. `dist`, if given, is
+    /// their unit-ball distance as the caller already has it (k-means'
+    /// assignment), saving the logarithm.
     #[inline(always)]
-    pub(crate) fn accumulate(&mut self, p: &[f64], gp: f64, wi: f64, mu: &[f64], gmu: f64, y: &mut [f64]) {
+    pub(crate) fn accumulate(
+        &mut self,
+        p: &[f64],
+        gp: f64,
+        wi: f64,
+        mu: &[f64],
+        gmu: f64,
+        dist: Option<f64>,
+        y: &mut [f64],
+    ) {
         let d = mu.len();
         let st = self;
         // y = (-mu) ⊕ p, its gap exact: g_mu g_p / D.
@@ -321,7 +332,10 @@ impl Stats {
             return;
         }
         // d = 2 artanh t, from the gap (fast compensated log1p).
-        let dist = log1p_fast(2.0 * t * (1.0 + t) / gy);
+        let dist = match dist {
+            Some(v) => v,
+            None => log1p_fast(2.0 * t * (1.0 + t) / gy),
+        };
         // d coth d with coth(2 artanh t) = (1 + t^2)/(2t): no exp.
         let c = dist * (1.0 + t2) / (2.0 * t);
         st.f += wi * dist * dist;
@@ -357,7 +371,7 @@ pub(crate) fn stats(pts: &UnitPoints, idx: &[usize], w: Option<&[f64]>, mu: &[f6
                         if wi == 0.0 {
                             continue;
                         }
-                        st.accumulate(&pts.p[i * d..(i + 1) * d], pts.g[i], wi, mu, gmu, &mut y);
+                        st.accumulate(&pts.p[i * d..(i + 1) * d], pts.g[i], wi, mu, gmu, None, &mut y);
                     }
                     st
                 },

@@ -332,7 +332,7 @@ fn assign(
                         if gather { (0..k).map(|_| Stats::zero(d)).collect() } else { Vec::new() };
                     let mut y = vec![0f64; d];
                     let mut acc = vec![0f64; k];
-                    let mut s = 0.0;
+                    // 1. nearest centre by h (h kept in `dc` for now)
                     for (r, (l, dd)) in lc.iter_mut().zip(dc.iter_mut()).enumerate() {
                         let i = ci * CHUNK + r;
                         let x = &pts.p[i * d..(i + 1) * d];
@@ -355,11 +355,22 @@ fn assign(
                             }
                         }
                         *l = bj;
-                        let dv = radius * acosh1p2_fast(best);
-                        *dd = dv;
+                        *dd = best;
+                    }
+                    // 2. distances (a separate loop, so that it vectorises)
+                    for dd in dc.iter_mut() {
+                        *dd = radius * acosh1p2_fast(*dd);
+                    }
+                    let mut s = 0.0;
+                    for &dv in dc.iter() {
                         s += dv * dv;
-                        if gather {
-                            sts[bj].accumulate(x, pts.g[i], 1.0, cen.row(bj), cen.g[bj], &mut y);
+                    }
+                    // 3. Newton statistics at the assigned centre
+                    if gather {
+                        for (r, (&l, &dv)) in lc.iter().zip(dc.iter()).enumerate() {
+                            let i = ci * CHUNK + r;
+                            let x = &pts.p[i * d..(i + 1) * d];
+                            sts[l].accumulate(x, pts.g[i], 1.0, cen.row(l), cen.g[l], Some(dv / radius), &mut y);
                         }
                     }
                     (s, sts)
@@ -433,7 +444,15 @@ fn multi_stats(pts: &UnitPoints, labels: &[usize], it: &[Newton], need: &[bool])
                     for (r, &l) in lc.iter().enumerate() {
                         if need[l] {
                             let i = ci * CHUNK + r;
-                            sts[l].accumulate(&pts.p[i * d..(i + 1) * d], pts.g[i], 1.0, &it[l].mu, it[l].gmu, &mut y);
+                            sts[l].accumulate(
+                                &pts.p[i * d..(i + 1) * d],
+                                pts.g[i],
+                                1.0,
+                                &it[l].mu,
+                                it[l].gmu,
+                                None,
+                                &mut y,
+                            );
                         }
                     }
                     sts
