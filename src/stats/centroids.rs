@@ -466,6 +466,9 @@ pub(crate) fn frechet_group(
     Some(newton_from(pts, idx, w, mu, gmu, tol, max_iter))
 }
 
+/// mu, gap, step, scale, grad norm of the last full Newton step.
+type PrevStep = (Vec<f64>, f64, Vec<f64>, f64, f64);
+
 /// The state of one Riemannian Newton iteration for a Fréchet mean, fed the
 /// statistics at its current iterate by whoever makes the passes over the
 /// points ([`newton_from`] for one group; k-means for all its clusters in
@@ -473,8 +476,7 @@ pub(crate) fn frechet_group(
 pub(crate) struct Newton {
     pub mu: Vec<f64>,
     pub gmu: f64,
-    /// mu, gap, step, scale, grad norm of the last full step
-    prev: Option<(Vec<f64>, f64, Vec<f64>, f64, f64)>,
+    prev: Option<PrevStep>,
     iterations: usize,
     tol: f64,
     max_iter: usize,
@@ -680,7 +682,7 @@ pub fn frechet_variance(
     let r2 = k.radius * k.radius;
     let res: Vec<Option<f64>> = match center {
         Center::Mean { tol, max_iter } => {
-            if !(tol >= 0.0) {
+            if tol.is_nan() || tol < 0.0 {
                 return Err(Error::Value(format!("tol must be >= 0, got {tol}")));
             }
             members.par_iter().map(|idx| frechet_group(&pts, idx, weights, tol, max_iter).map(|r| r.var)).collect()

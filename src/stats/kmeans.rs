@@ -579,7 +579,7 @@ fn check_params(p: &Params, n: usize) -> Result<()> {
     if p.max_iter == 0 {
         return Err(Error::Value("max_iter must be >= 1, got 0".into()));
     }
-    if !(p.tol >= 0.0) {
+    if p.tol.is_nan() || p.tol < 0.0 {
         return Err(Error::Value(format!("tol must be >= 0, got {}", p.tol)));
     }
     Ok(())
