@@ -26,9 +26,14 @@ Algorithm (per run; the best of ``n_init`` runs by inertia is kept):
    centre (lowest index on ties) is moved into the empty cluster and
    becomes its centre. This never raises the inertia and never empties
    another cluster.
-4. Update: every centre becomes the Fréchet mean of its points (the Newton
-   iteration of :func:`gyrokit.frechet_mean`, to the same tolerance, started
-   at the previous centre).
+4. Update: every centre becomes the Fréchet mean of its points, by the
+   Newton iteration of :func:`gyrokit.frechet_mean` started at the previous
+   centre; these intermediate centres stop after a Newton step shorter than
+   1e-5 R (they are then within about 1e-10 R of the mean). The centres of
+   the last update are recomputed exactly as
+   ``frechet_mean(X, labels=...)`` computes them (from the Einstein
+   midpoint, to its default tolerance), so ``cluster_centers_`` depends only
+   on the final clusters.
 5. Repeat 2-4 until the labels stop changing, or the total hyperbolic
    movement of the centres ``sum_j d(c_j, c_j')`` is at most ``tol``, or
    ``max_iter`` updates were made. A final assignment makes ``labels_`` and
