@@ -299,9 +299,8 @@ fn distinct(n: usize, k: usize, rng: &mut Rng) -> Vec<usize> {
 /// Nearest centre (ties to the lower index) and its distance, per point;
 /// returns the inertia (fixed-chunk sums in order) and, with `gather`, each
 /// cluster's Newton statistics at its centre (the first pass of the next
-/// update, done while the point is in cache). The centres are laid out
-/// coordinate-major so that the loop over centres vectorises; each pair's
-/// `|x - c|^2` is still summed in coordinate order (as `seq_dist_sq`).
+/// update, done while the point is in cache). Each pair's `|x - c|^2` is
+/// summed in coordinate order (as `seq_dist_sq`).
 fn assign(
     pts: &UnitPoints,
     cen: &Centres,
@@ -312,13 +311,6 @@ fn assign(
 ) -> (f64, Option<Vec<Stats>>) {
     let k = cen.a.len();
     let d = pts.d;
-    let mut ct = vec![0f64; d * k];
-    for j in 0..k {
-        for t in 0..d {
-            ct[t * k + j] = cen.c[j * d + t];
-        }
-    }
-    let ct = &ct;
     let parts: Vec<(f64, Vec<Stats>)> = labels
         .par_chunks_mut(CHUNK)
         .zip(dist.par_chunks_mut(CHUNK))
@@ -331,31 +323,40 @@ fn assign(
                     let mut sts: Vec<Stats> =
                         if gather { (0..k).map(|_| Stats::zero(d)).collect() } else { Vec::new() };
                     let mut y = vec![0f64; d];
-                    let mut acc = vec![0f64; k];
-                    // 1. nearest centre by h (h kept in `dc` for now)
-                    for (r, (l, dd)) in lc.iter_mut().zip(dc.iter_mut()).enumerate() {
-                        let i = ci * CHUNK + r;
-                        let x = &pts.p[i * d..(i + 1) * d];
-                        acc.iter_mut().for_each(|v| *v = 0.0);
-                        for (t, &xt) in x.iter().enumerate() {
-                            let row = &ct[t * k..(t + 1) * k];
-                            for (a, &c) in acc.iter_mut().zip(row) {
-                                let u = xt - c;
+                    let mut acc = vec![0f64; CHUNK];
+                    let mut xs: Vec<f64> = Vec::with_capacity(CHUNK * d);
+                    let mut ax: Vec<f64> = Vec::with_capacity(CHUNK);
+                    // 1. nearest centre by h (h kept in `dc` for now). The
+                    // chunk's points are transposed so that the loops run over
+                    // points (vectorised); each pair's sum is still in
+                    // coordinate order, the ties still to the lower index.
+                    let len = lc.len();
+                    let base = ci * CHUNK;
+                    xs.clear();
+                    for t in 0..d {
+                        xs.extend((0..len).map(|r| pts.p[(base + r) * d + t]));
+                    }
+                    ax.clear();
+                    ax.extend(pts.g[base..base + len].iter().map(|g| 1.0 / g));
+                    dc.iter_mut().for_each(|v| *v = f64::INFINITY);
+                    lc.iter_mut().for_each(|v| *v = 0);
+                    let d2 = &mut acc[..len];
+                    for j in 0..k {
+                        d2.iter_mut().for_each(|v| *v = 0.0);
+                        for t in 0..d {
+                            let c = cen.c[j * d + t];
+                            for (a, &xv) in d2.iter_mut().zip(&xs[t * len..(t + 1) * len]) {
+                                let u = xv - c;
                                 *a = u.mul_add(u, *a);
                             }
                         }
-                        let ax = 1.0 / pts.g[i];
-                        let mut best = f64::INFINITY;
-                        let mut bj = 0;
-                        for (j, (&a2, &ac)) in acc.iter().zip(&cen.a).enumerate() {
-                            let h = scaled_h(a2, ax, ac, 1.0);
-                            if h < best {
-                                best = h;
-                                bj = j;
-                            }
+                        let aj = cen.a[j];
+                        for (((b, l), &a2), &axr) in dc.iter_mut().zip(lc.iter_mut()).zip(d2.iter()).zip(ax.iter()) {
+                            let h = scaled_h(a2, axr, aj, 1.0);
+                            let m = h < *b;
+                            *b = if m { h } else { *b };
+                            *l = if m { j } else { *l };
                         }
-                        *l = bj;
-                        *dd = best;
                     }
                     // 2. distances (a separate loop, so that it vectorises)
                     for dd in dc.iter_mut() {
