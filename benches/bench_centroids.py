@@ -27,16 +27,36 @@ threads (RAYON_NUM_THREADS, default all cores), not BLAS.
 Also: per-label means for 1000 groups (labels interleaved at random) against
 the single mean on the same points.
 
-Run: ``.venv/bin/python benches/bench_centroids.py [--quick]`` (``--quick``:
-n = 100 000).
+KMeans (``--kmeans``, or ``--kmeans-only`` for that part alone): ``gk.KMeans``
+against scikit-learn's Euclidean ``sklearn.cluster.KMeans`` on the same
+array and the same parameters (``n_clusters=10``, ``n_init=1``,
+``max_iter=100``, ``random_state=0``, k-means++ seeding, Lloyd's algorithm;
+each with its own default ``tol``), one timed fit each:
+
+* 36 607 x 10 points: an invented taxonomy (node depth ~ hyperbolic radius,
+  Gamma(3, 0.9); twelve branches, nodes scattered around their branch's
+  direction);
+* 1 000 000 x 2 points: hyperbolic radii uniform in [0, 3].
+
+scikit-learn runs with its default threads (OpenMP, all cores) for its
+Lloyd loop. gyrokit stops when the labels stop changing (its ``tol`` on the
+total centre movement, 1e-10 R, is rarely reached first); scikit-learn with
+``tol=0`` stops on the same rule ("strict convergence"), with its default
+``tol=1e-4`` (relative centre shift) usually earlier. Both are timed; the
+iteration counts and the time per iteration are printed beside the totals.
+
+Run: ``.venv/bin/python benches/bench_centroids.py [--quick] [--kmeans |
+--kmeans-only]`` (``--quick``: n = 100 000 for the mean).
 """
 
 from __future__ import annotations
 
 import os
 
-for _var in ("OPENBLAS_NUM_THREADS", "OMP_NUM_THREADS", "MKL_NUM_THREADS", "BLIS_NUM_THREADS"):
-    os.environ[_var] = "1"
+if "--kmeans-only" not in __import__("sys").argv:
+    # (not for the KMeans comparison: scikit-learn's k-means uses OpenMP threads)
+    for _var in ("OPENBLAS_NUM_THREADS", "OMP_NUM_THREADS", "MKL_NUM_THREADS", "BLIS_NUM_THREADS"):
+        os.environ[_var] = "1"
 
 import sys  # noqa: E402
 import time  # noqa: E402
@@ -134,7 +154,42 @@ def timed(f, repeat=1):
     return best, out
 
 
+def taxonomy(rng, n=36_607, d=10):
+    """Invented taxonomy: twelve branches; a node's direction scatters around
+    its branch's, its depth (hyperbolic radius) is Gamma(3, 0.9), capped at 12."""
+    branches = rng.standard_normal((12, d))
+    u = branches[rng.integers(0, 12, n)] + 0.6 * rng.standard_normal((n, d))
+    u /= np.linalg.norm(u, axis=1, keepdims=True)
+    return np.tanh(np.minimum(rng.gamma(3.0, 0.9, n), 12.0) / 2)[:, None] * u
+
+
+def kmeans_bench():
+    try:
+        from sklearn.cluster import KMeans as SkKMeans
+    except ImportError:
+        print("KMeans: scikit-learn is not installed (pip install scikit-learn); skipped")
+        return
+    rng = np.random.default_rng(7)
+    cases = [("36 607 x 10, taxonomy", taxonomy(rng)), ("1 000 000 x 2, radii in [0, 3]", ball_points(rng, 1_000_000, 2))]
+    params = dict(n_clusters=10, n_init=1, max_iter=100, random_state=0)
+    gk.KMeans(2, n_init=1).fit(cases[0][1][:500])  # warm-up (thread pool)
+    SkKMeans(2, n_init=1).fit(cases[0][1][:500])
+    print(f"KMeans, {params}, one fit each (threads: gyrokit RAYON_NUM_THREADS="
+          f"{os.environ.get('RAYON_NUM_THREADS', 'all')}, scikit-learn OMP_NUM_THREADS="
+          f"{os.environ.get('OMP_NUM_THREADS', 'all')}, {os.cpu_count()} cpus)")
+    for name, X in cases:
+        t_gk, km = timed(lambda: gk.KMeans(**params).fit(X))
+        print(f"  {name:32s} gk          {t_gk:7.3f} s ({km.n_iter_:3d} iterations, {t_gk / (km.n_iter_ + 1) * 1e3:6.1f} ms each)")
+        for label, tol in (("tol=0", 0.0), ("tol=1e-4", 1e-4)):
+            t_sk, sk = timed(lambda: SkKMeans(algorithm="lloyd", init="k-means++", tol=tol, **params).fit(X))
+            print(f"  {'':32s} sklearn {label:8s} {t_sk:7.3f} s ({sk.n_iter_:3d} iterations, {t_sk / sk.n_iter_ * 1e3:6.1f} ms each)"
+                  f"   ratio gk/sklearn {t_gk / t_sk:5.2f}x")
+
+
 def main(argv):
+    if "--kmeans-only" in argv:
+        kmeans_bench()
+        return
     n = 100_000 if "--quick" in argv else 1_000_000
     d = 16
     rng = np.random.default_rng(2024)
@@ -166,6 +221,8 @@ def main(argv):
     print(f"  per-label, 1000 groups   {t_lab * 1e3:9.1f} ms   = {t_lab / t_gk:.2f}x the single mean;"
           f" iterations max {int(np.max(rl.iterations))}, median {int(np.median(rl.iterations))},"
           f" all converged {bool(np.all(rl.converged))}, max grad_norm {float(np.max(rl.grad_norm)):.1e}")
+    if "--kmeans" in argv:
+        kmeans_bench()
     load = os.getloadavg()[0] if hasattr(os, "getloadavg") else float("nan")
     print(f"load average {load:.2f} after the run")
 

@@ -28,8 +28,8 @@ from typing import Any
 from . import halfspace, hyperboloid, klein, poincare, relativity
 from .neighbors import condensed_distances, distance_matrix, knn, radius_neighbors
 from ._index import NeighborIndex
-from .kmeans import KMeans
-from .centroids import ConvergenceWarning, FrechetMean, einstein_midpoint, frechet_mean, frechet_variance
+from .kmeans import KMeans, UnfittedError
+from .centroids import ConvergenceWarning, FrechetMean, FrechetVariance, einstein_midpoint, frechet_mean, frechet_variance
 from ._native import __version__
 from . import _native
 
@@ -53,6 +53,7 @@ def convert(x: Any, src: str, dst: str, *, curvature: float = -1.0) -> Any:
 __all__ = [
     "poincare", "klein", "hyperboloid", "halfspace", "relativity", "convert", "MODELS",
     "distance_matrix", "condensed_distances", "knn", "radius_neighbors",
-    "NeighborIndex", "KMeans", "frechet_mean", "einstein_midpoint", "frechet_variance", "FrechetMean", "ConvergenceWarning",
+    "NeighborIndex", "KMeans", "UnfittedError", "frechet_mean", "einstein_midpoint", "frechet_variance", "FrechetMean",
+    "FrechetVariance", "ConvergenceWarning",
     "__version__",
 ]

@@ -2,16 +2,26 @@
 
 Every function takes points of any model (``model="poincare"`` default,
 ``"klein"``, ``"hyperboloid"``, ``"halfspace"``), optional non-negative
-``weights`` (a zero weight drops its point) and, for the means, optional
-integer ``labels`` giving one centroid per distinct label, in the order of
-``np.unique(labels)``, computed in one pass over the data.
+``weights`` (a zero weight drops its point) and optional ``labels`` giving
+one result per distinct label, computed in one pass over the data.
+``weights`` and ``labels`` are keyword-only.
+
+Labels may be any hashable values, one per point: integers, floats,
+strings, tuples, object arrays, or a pandas ``Categorical`` (or a Series of
+that dtype). Results list the label values in ``.labels``, in the order of
+``np.unique(labels)``; for a ``Categorical``, the categories that occur, in
+the categorical's own order; for values that cannot be sorted together
+(e.g. mixed types), in order of first appearance. Missing labels (``None``,
+NaN, a categorical's missing code) raise ``ValueError`` naming the entry.
+The values are factorised once in Python; the core groups integer codes.
 """
 
 from __future__ import annotations
 
+import re
 import warnings
 from dataclasses import dataclass
-from typing import Any, Optional
+from typing import Any, Callable, Optional, Tuple, Union
 
 import numpy as np
 
@@ -24,8 +34,78 @@ def _all_f32(*arrays: Any) -> bool:
 
 
 __all__ = [
-    "FrechetMean", "ConvergenceWarning", "frechet_mean", "einstein_midpoint", "frechet_variance",
+    "FrechetMean", "FrechetVariance", "ConvergenceWarning", "frechet_mean", "einstein_midpoint", "frechet_variance",
 ]
+
+
+def _missing(v: Any) -> bool:
+    return v is None or (isinstance(v, (float, np.floating)) and v != v)
+
+
+def _factorize(labels: Any) -> Tuple[Any, Optional[np.ndarray]]:
+    """``(codes, values)``: what the core groups, and the label value of each
+    code (``None`` when the labels are integers, passed through as they are:
+    the core sorts them, which is ``np.unique`` order)."""
+    if labels is None:
+        return None, None
+    if getattr(labels, "cat", None) is not None and hasattr(labels, "array"):
+        labels = labels.array  # a pandas Series of categorical dtype: its Categorical
+    codes, cats = getattr(labels, "codes", None), getattr(labels, "categories", None)
+    if codes is not None and cats is not None:  # a pandas Categorical
+        codes = np.asarray(codes).astype(np.int64)
+        bad = np.flatnonzero(codes < 0)
+        if bad.size:
+            raise ValueError(f"labels: entry {bad[0]} is missing; every point needs a label")
+        cats = np.asarray(cats)
+        present = np.flatnonzero(np.bincount(codes, minlength=len(cats)))
+        remap = np.zeros(len(cats), dtype=np.int64)
+        remap[present] = np.arange(present.size)
+        return remap[codes], cats[present]
+    a = np.asarray(labels)
+    if a.ndim != 1:
+        # e.g. a list of tuples: one object per point
+        if isinstance(labels, (list, tuple)) and a.ndim > 1:
+            a = np.empty(len(labels), dtype=object)
+            a[:] = list(labels)
+        else:
+            raise ValueError(f"labels must be 1-D (one label per point), got shape {a.shape}")
+    if a.dtype.kind in "iu" and a.dtype.itemsize < 8 or a.dtype.kind == "i":
+        return a, None
+    if a.dtype.kind == "f":
+        bad = np.flatnonzero(np.isnan(a))
+        if bad.size:
+            raise ValueError(f"labels: entry {bad[0]} is missing (NaN); every point needs a label")
+    elif a.dtype.kind == "O":
+        for i, v in enumerate(a.tolist()):
+            if _missing(v):
+                raise ValueError(f"labels: entry {i} is missing ({v!r}); every point needs a label")
+    try:
+        values, inverse = np.unique(a, return_inverse=True)
+    except TypeError:  # values that cannot be sorted together: first appearance
+        seen: dict = {}
+        try:
+            inverse = np.array([seen.setdefault(v, len(seen)) for v in a.tolist()], dtype=np.int64)
+        except TypeError as e:
+            raise TypeError(f"labels must be hashable values: {e}") from None
+        values = np.empty(len(seen), dtype=object)
+        values[:] = list(seen)
+    return np.asarray(inverse, dtype=np.int64).reshape(-1), values
+
+
+def _named(keys: np.ndarray, values: Optional[np.ndarray]) -> np.ndarray:
+    """The label values of the core's sorted group keys."""
+    return keys if values is None else values[keys]
+
+
+def _call(f: Callable[..., Any], values: Optional[np.ndarray], *args: Any) -> Any:
+    """Calls the core; a message about ``label <code>`` names the value."""
+    try:
+        return f(*args)
+    except ValueError as e:
+        m = re.match(r"label (-?\d+):(.*)", str(e), re.S)
+        if values is None or m is None:
+            raise
+        raise ValueError(f"label {values.tolist()[int(m.group(1))]!r}:{m.group(2)}") from None
 
 
 class ConvergenceWarning(RuntimeWarning):
@@ -37,7 +117,8 @@ class FrechetMean:
     """Result of :func:`frechet_mean`.
 
     ``mean`` is ``(d,)`` (``(d+1,)`` on the hyperboloid) without labels, or
-    ``(n_labels, ...)`` with labels, rows in the order of ``labels``.
+    ``(n_labels, ...)`` with labels, rows in the order of ``labels`` (the
+    label values; see the module docstring).
     ``iterations``, ``converged`` and ``grad_norm`` are scalars without
     labels and arrays with them. ``grad_norm`` is the Riemannian norm of the
     weighted mean log vector ``sum w log_mean(x) / sum w`` at the result, in
@@ -53,9 +134,9 @@ class FrechetMean:
 
 def frechet_mean(
     x: Any,
+    *,
     weights: Any = None,
     labels: Any = None,
-    *,
     model: str = "poincare",
     curvature: float = -1.0,
     tol: float = 1e-12,
@@ -72,7 +153,9 @@ def frechet_mean(
     :class:`ConvergenceWarning` and returns the last iterate. Deterministic:
     bit-identical whatever the thread count.
     """
-    mean, labs, it, conv, gn = _native.frechet_mean(x, weights, labels, model, curvature, tol, max_iter)
+    codes, values = _factorize(labels)
+    mean, keys, it, conv, gn = _call(_native.frechet_mean, values, x, weights, codes, model, curvature, tol, max_iter)
+    labs = _named(keys, values)
     if not bool(np.all(conv)):
         bad = labs[~conv] if labels is not None else []
         where = f" (labels {list(bad)[:10]})" if labels is not None else ""
@@ -91,12 +174,13 @@ def frechet_mean(
 
 def einstein_midpoint(
     x: Any,
+    *,
     weights: Any = None,
     labels: Any = None,
-    *,
     model: str = "poincare",
     curvature: float = -1.0,
-) -> np.ndarray:
+    return_labels: bool = False,
+) -> Any:
     """The weighted Einstein midpoint (gyrocentroid) ``sum w γ k / sum w γ`` in the Klein ball.
 
     Computed from any model and returned in it: ``(d,)`` without labels,
@@ -104,22 +188,48 @@ def einstein_midpoint(
     the Poincaré ball it equals the Möbius gyromidpoint of the points (for
     two points, :func:`gyrokit.poincare.midpoint`). One pass, closed form; a
     good approximation to the Fréchet mean and its starting point.
+    ``return_labels=True`` (with ``labels``) returns ``(means, label_values)``.
     """
-    mean, _ = _native.einstein_midpoint(x, weights, labels, model, curvature)
+    codes, values = _factorize(labels)
+    mean, keys = _call(_native.einstein_midpoint, values, x, weights, codes, model, curvature)
     if _all_f32(x, weights):
         mean = mean.astype(np.float32)
-    return mean[0] if labels is None else mean
+    if labels is None:
+        return mean[0]
+    return (mean, _named(keys, values)) if return_labels else mean
+
+
+@dataclass(frozen=True)
+class FrechetVariance:
+    """Result of :func:`frechet_variance` with ``labels``: ``variance[i]`` is
+    the variance of the points labelled ``labels[i]`` (label values, in the
+    order described in the module docstring)."""
+
+    variance: np.ndarray
+    labels: np.ndarray
 
 
 def frechet_variance(
     x: Any,
     center: Any = None,
-    weights: Any = None,
     *,
+    weights: Any = None,
+    labels: Any = None,
     model: str = "poincare",
     curvature: float = -1.0,
-) -> float:
-    """``sum w d(center, x)^2 / sum w``; ``center=None`` uses the Fréchet mean."""
-    if center is None:
-        center = frechet_mean(x, weights, model=model, curvature=curvature).mean
-    return _native.frechet_variance(x, center, weights, model, curvature)
+) -> Union[float, FrechetVariance]:
+    """``sum w d(center, x)^2 / sum w``, in units of distance squared.
+
+    ``center=None`` uses the Fréchet mean (of each label's points with
+    ``labels``). Without ``labels``, returns a float. With ``labels``,
+    returns a :class:`FrechetVariance` (``.variance``, ``.labels``), computed
+    in one pass over each label's points; ``center`` is then ``None``, one
+    point for every label, or ``(n_labels, width)`` points, one per label in
+    the order of ``.labels``. Each label's variance is bit-identical to the
+    variance of that label's points alone.
+    """
+    codes, values = _factorize(labels)
+    keys, var = _call(_native.frechet_variance, values, x, center, weights, codes, model, curvature)
+    if labels is None:
+        return float(var[0])
+    return FrechetVariance(var, _named(keys, values))

@@ -18,19 +18,37 @@ Algorithm (per run; the best of ``n_init`` runs by inertia is kept):
    distinct points chosen uniformly. An ``(n_clusters, width)`` array:
    those centres (then a single run).
 2. Assignment: every point goes to its nearest centre by exact hyperbolic
-   distance, ties to the lower centre index (:func:`gyrokit.knn`).
+   distance, ties to the lower centre index (the ranking and the distances
+   of :func:`gyrokit.knn`).
 3. Empty clusters (a centre with no points, e.g. duplicate centres):
    handled deterministically, in increasing cluster index. Among the points
    whose cluster holds at least two points, the one farthest from its
    centre (lowest index on ties) is moved into the empty cluster and
    becomes its centre. This never raises the inertia and never empties
    another cluster.
-4. Update: every centre becomes the Fréchet mean of its points, all clusters
-   in one pass (:func:`gyrokit.frechet_mean` with ``labels``).
+4. Update: every centre becomes the Fréchet mean of its points, by the
+   Newton iteration of :func:`gyrokit.frechet_mean` started at the previous
+   centre; these intermediate centres stop after a Newton step shorter than
+   1e-5 R (they are then within about 1e-10 R of the mean). The centres of
+   the last update are recomputed exactly as
+   ``frechet_mean(X, labels=...)`` computes them (from the Einstein
+   midpoint, to its default tolerance), so ``cluster_centers_`` depends only
+   on the final clusters.
 5. Repeat 2-4 until the labels stop changing, or the total hyperbolic
    movement of the centres ``sum_j d(c_j, c_j')`` is at most ``tol``, or
    ``max_iter`` updates were made. A final assignment makes ``labels_`` and
    ``inertia_`` consistent with ``cluster_centers_``.
+
+The whole fit runs in the native core in one call: the points are read and
+validated once, every step uses all cores, and the result is bit-identical
+for any number of threads.
+
+Randomness: ``random_state`` feeds ``numpy.random.default_rng``, which draws
+one 64-bit seed per run (``n_init`` draws; none for an array ``init``). Each
+run's seeding then uses its own xoshiro256** generator (Blackman & Vigna
+2018) started from that seed by SplitMix64. So an int gives reproducible
+results, and ``n_init`` fits on one shared ``Generator`` replay the runs of
+one ``n_init``-run fit.
 
 If the final assignment leaves a centre without points (possible only when
 iteration stops on ``tol`` or ``max_iter``), that centre is kept as it is.
@@ -47,22 +65,22 @@ assignment of the kept run (``inertia_history_[-1] == inertia_``).
 from __future__ import annotations
 
 import numbers
-from typing import Any, Dict, List, Tuple
+from typing import Any, Dict, Tuple
 
 import numpy as np
 
-from . import _native, halfspace, hyperboloid, klein, poincare
-from .centroids import frechet_mean
+from . import _native
 from .neighbors import distance_matrix, knn
 
-__all__ = ["KMeans", "NotFittedError"]
+__all__ = ["KMeans", "UnfittedError"]
 
 _MODELS = ("poincare", "klein", "hyperboloid", "halfspace")
 _INITS = ("k-means++", "random")
 
 
-class NotFittedError(ValueError, AttributeError):
-    """``predict``/``transform``/``score`` called before ``fit``."""
+class UnfittedError(ValueError, AttributeError):
+    """A method that needs the results of ``fit`` (the cluster centres) was
+    called on an estimator that has none yet."""
 
 
 def _int_param(name: str, value: Any, low: int) -> int:
@@ -171,16 +189,24 @@ class KMeans:
                 raise ValueError(f"init must be one of {list(_INITS)} or an array of centres, got {self.init!r}")
 
     # ------------------------------------------------------------------ data
-    def _points(self, X: Any, name: str = "X") -> np.ndarray:
-        """``X`` as a validated float64 (n, width) array of the model's points."""
+    def _array(self, X: Any, name: str = "X") -> np.ndarray:
+        """``X`` as a float64/float32 (n, width) array, shape and dtype checked
+        (the point values are validated by the core, in the same pass that
+        reads them)."""
         a = np.asarray(X)
         if a.dtype.kind not in "biuf":
             raise TypeError(f"{name} must be an array of real numbers, got dtype {a.dtype}")
-        a = np.ascontiguousarray(a, dtype=np.float64)
+        if a.dtype not in (np.float64, np.float32):
+            a = a.astype(np.float64)
         if a.ndim != 2:
             raise ValueError(f"{name} must be a 2-D array of points (n, width); got shape {a.shape}")
         if a.shape[0] == 0:
             raise ValueError(f"{name} is empty: k-means needs at least one point")
+        return a
+
+    def _points(self, X: Any, name: str = "X") -> np.ndarray:
+        """``X`` as a validated float64 (n, width) array of the model's points."""
+        a = np.ascontiguousarray(self._array(X, name), dtype=np.float64)
         try:
             # One validating pass (NaN/inf, outside the ball, off the hyperboloid, ...).
             _native.einstein_midpoint(a, None, None, self.model, float(self.curvature))
@@ -193,105 +219,47 @@ class KMeans:
         idx, dist = knn(X, 1, centers, model=self.model, curvature=float(self.curvature))
         return idx[:, 0], dist[:, 0]
 
-    def _dist_to(self, X: np.ndarray, c: np.ndarray) -> np.ndarray:
-        return distance_matrix(X, c[None, :], model=self.model, curvature=float(self.curvature))[:, 0]
-
     # ------------------------------------------------------------------ seeding
-    def _kmeanspp(self, X: np.ndarray, rng: np.random.Generator) -> np.ndarray:
-        n, k = X.shape[0], int(self.n_clusters)
-        chosen = [int(rng.integers(n))]
-        d2 = self._dist_to(X, X[chosen[0]]) ** 2
-        for _ in range(1, k):
-            total = float(d2.sum())
-            if total > 0.0:
-                cum = np.cumsum(d2)
-                i = int(np.searchsorted(cum, rng.random() * cum[-1], side="right"))
-                if i >= n or d2[i] == 0.0:  # rounding at the very top of the range
-                    i = int(np.flatnonzero(d2 > 0.0)[-1])
-            else:  # every point coincides with a chosen centre
-                free = np.setdiff1d(np.arange(n), chosen)
-                i = int(free[rng.integers(free.size)])
-            chosen.append(i)
-            np.minimum(d2, self._dist_to(X, X[i]) ** 2, out=d2)
-        return X[chosen].copy()
-
-    def _seed(self, X: np.ndarray, rng: np.random.Generator) -> np.ndarray:
-        if self.init == "k-means++":
-            return self._kmeanspp(X, rng)
-        return X[rng.choice(X.shape[0], size=int(self.n_clusters), replace=False)].copy()
-
-    # ------------------------------------------------------------------ Lloyd
-    @staticmethod
-    def _repair_empty(labels: np.ndarray, dist: np.ndarray, X: np.ndarray, centers: np.ndarray, k: int) -> None:
-        """Deterministic empty-cluster repair, in place (see the module docstring)."""
-        counts = np.bincount(labels, minlength=k)
-        for j in np.flatnonzero(counts == 0):
-            movable = counts[labels] >= 2
-            cand = np.where(movable, dist, -np.inf)
-            i = int(np.argmax(cand))
-            counts[labels[i]] -= 1
-            counts[j] += 1
-            labels[i] = j
-            dist[i] = 0.0
-            centers[j] = X[i]
-
-    def _center_shift(self, a: np.ndarray, b: np.ndarray) -> float:
-        d = _native_distance(self.model, a, b, float(self.curvature))
-        return float(np.sum(d))
-
-    def _lloyd(self, X: np.ndarray, centers: np.ndarray) -> Tuple[np.ndarray, np.ndarray, float, int, List[float]]:
-        k = centers.shape[0]
-        labels, dist = self._assign(X, centers)
-        history = [float(np.dot(dist, dist))]
-        n_iter = 0
-        for _ in range(int(self.max_iter)):
-            self._repair_empty(labels, dist, X, centers, k)
-            res = frechet_mean(X, labels=labels, model=self.model, curvature=float(self.curvature))
-            # After the repair every cluster has points: rows are clusters 0..k-1.
-            new_centers = np.asarray(res.mean, dtype=np.float64)
-            shift = self._center_shift(centers, new_centers)
-            centers = new_centers
-            n_iter += 1
-            new_labels, dist = self._assign(X, centers)
-            history.append(float(np.dot(dist, dist)))
-            unchanged = bool(np.array_equal(new_labels, labels))
-            labels = new_labels
-            if unchanged or shift <= float(self.tol):
-                break
-        return centers, labels, history[-1], n_iter, history
+    def _kmeanspp(self, X: Any, rng: np.random.Generator) -> np.ndarray:
+        """The k-means++ centres the core would seed a run with, for one seed
+        drawn from ``rng`` (the seeding alone, for inspection and tests)."""
+        X = self._array(X)
+        seed = int(rng.integers(0, 2**64, dtype=np.uint64))
+        idx = _native.kmeans_plusplus(X, int(self.n_clusters), seed, self.model, float(self.curvature))
+        return np.array(X[idx], dtype=np.float64)
 
     # ------------------------------------------------------------------ API
     def fit(self, X: Any, y: Any = None) -> "KMeans":
         """Clusters ``X`` ((n, width) points of ``model``); returns ``self``."""
         self._check_params()
-        X = self._points(X)
+        X = self._array(X)
         n, k = X.shape[0], int(self.n_clusters)
         if k > n:
             raise ValueError(f"n_clusters={k} is larger than the number of points ({n})")
         if isinstance(self.init, str):
-            n_init = int(self.n_init)
-            given = None
+            init, given = self.init, None
+            rng = np.random.default_rng(self.random_state)
+            # One seed per run, drawn in turn (see the module docstring).
+            seeds = [int(rng.integers(0, 2**64, dtype=np.uint64)) for _ in range(int(self.n_init))]
         else:
-            given = self._points(self.init, "init")
+            given = self._array(self.init, "init")
             if given.shape != (k, X.shape[1]):
                 raise ValueError(f"init must have shape (n_clusters, width) = {(k, X.shape[1])}; got {given.shape}")
-            n_init = 1
-        rng = np.random.default_rng(self.random_state)
-        best = None
-        for _ in range(n_init):
-            centers = given.copy() if given is not None else self._seed(X, rng)
-            run = self._lloyd(X, centers)
-            if best is None or run[2] < best[2]:
-                best = run
-        assert best is not None
-        self.cluster_centers_, self.labels_, self.inertia_, self.n_iter_, self.inertia_history_ = best
-        self.labels_ = self.labels_.astype(np.int64, copy=False)
+            init, seeds = "given", []
+        centers, labels, inertia, n_iter, history = _native.kmeans_fit(
+            X, k, init, given, seeds, int(self.max_iter), float(self.tol), self.model, float(self.curvature)
+        )
+        self.cluster_centers_ = centers
+        self.labels_ = labels.astype(np.int64, copy=False)
+        self.inertia_ = float(inertia)
+        self.n_iter_ = int(n_iter)
+        self.inertia_history_ = list(history)
         self.n_features_in_ = X.shape[1]
         return self
 
-    def _check_fitted(self, X: Any) -> np.ndarray:
+    def _check_fitted(self, X: Any, what: str) -> np.ndarray:
         if not hasattr(self, "cluster_centers_"):
-            raise NotFittedError("this KMeans instance is not fitted yet; call fit(X) first")
+            raise UnfittedError(f"KMeans.{what} needs cluster centres, and this KMeans has none yet: run fit(X) first")
         X = self._points(X)
         if X.shape[1] != self.n_features_in_:
             raise ValueError(f"X has {X.shape[1]} coordinates per point but KMeans was fitted with {self.n_features_in_}")
@@ -299,7 +267,7 @@ class KMeans:
 
     def predict(self, X: Any) -> np.ndarray:
         """Index of the nearest cluster centre of each point (ties to the lower index)."""
-        X = self._check_fitted(X)
+        X = self._check_fitted(X, "predict")
         return self._assign(X, self.cluster_centers_)[0]
 
     def fit_predict(self, X: Any, y: Any = None) -> np.ndarray:
@@ -308,7 +276,7 @@ class KMeans:
 
     def transform(self, X: Any) -> np.ndarray:
         """Hyperbolic distances from each point to each centre, ``(n, n_clusters)``."""
-        X = self._check_fitted(X)
+        X = self._check_fitted(X, "transform")
         return distance_matrix(X, self.cluster_centers_, model=self.model, curvature=float(self.curvature))
 
     def fit_transform(self, X: Any, y: Any = None) -> np.ndarray:
@@ -317,12 +285,7 @@ class KMeans:
 
     def score(self, X: Any, y: Any = None) -> float:
         """Minus the inertia of ``X`` about the fitted centres (higher is better)."""
-        X = self._check_fitted(X)
+        X = self._check_fitted(X, "score")
         dist = self._assign(X, self.cluster_centers_)[1]
         return -float(np.dot(dist, dist))
 
-
-def _native_distance(model: str, a: np.ndarray, b: np.ndarray, curvature: float) -> np.ndarray:
-    """Row-wise distances ``d(a_i, b_i)`` in ``model``."""
-    mod = {"poincare": poincare, "klein": klein, "hyperboloid": hyperboloid, "halfspace": halfspace}[model]
-    return mod.distance(a, b, curvature=curvature)

@@ -106,30 +106,58 @@ fn einstein_midpoint(
     Ok((mean.into_any().unbind(), keys.into_pyarray(py).into_any().unbind()))
 }
 
+/// Per-label Fréchet variances: `(labels, variances)`. `center=None` takes
+/// each group's Fréchet mean; a 1-D center is used for every group, a 2-D
+/// one gives one center per label (rows in label order).
 #[pyfunction]
-#[pyo3(signature = (x, center, weights = None, model = "poincare", curvature = -1.0))]
+#[pyo3(signature = (x, center = None, weights = None, labels = None, model = "poincare", curvature = -1.0, tol = 1e-12, max_iter = 50))]
 fn frechet_variance(
     py: Python<'_>,
     x: &Bound<'_, PyAny>,
-    center: &Bound<'_, PyAny>,
+    center: Option<&Bound<'_, PyAny>>,
     weights: Option<&Bound<'_, PyAny>>,
+    labels: Option<&Bound<'_, PyAny>>,
     model: &str,
     curvature: f64,
-) -> PyResult<f64> {
+    tol: f64,
+    max_iter: usize,
+) -> PyResult<(Py<PyAny>, Py<PyAny>)> {
     let k = Curvature::new(curvature)?;
     let md = Model::parse(model, "model")?;
     let xa = coerce(py, "x", x)?;
-    let ca = coerce(py, "center", center)?;
-    let c: Vec<f64> = match ca.data() {
-        Data::F64(v) | Data::Weak(v) => v.iter().copied().collect(),
-        Data::F32(v) => v.iter().map(|&x| f64::from(x)).collect(),
+    let given = match center {
+        Some(c) if !c.is_none() => {
+            let ca = coerce(py, "center", c)?;
+            let d = ca.data();
+            let rows = match d.shape().len() {
+                1 => 1,
+                2 => d.shape()[0],
+                _ => {
+                    return Err(PyValueError::new_err(format!(
+                        "center must be one point (1-D) or one point per label (2-D), got shape {:?}",
+                        d.shape()
+                    )))
+                }
+            };
+            let v: Vec<f64> = match d {
+                Data::F64(v) | Data::Weak(v) => v.iter().copied().collect(),
+                Data::F32(v) => v.iter().map(|&x| f64::from(x)).collect(),
+            };
+            Some((v, rows))
+        }
+        _ => None,
     };
-    if ca.data().shape().len() != 1 {
-        return Err(PyValueError::new_err("center must be a single point (1-D)"));
-    }
     let w = weights_arg(py, weights)?;
+    let l = labels_arg(py, labels)?;
     let xd = xa.data();
-    Ok(py.detach(move || centroids::frechet_variance(md, k, &xd, &c, w.as_deref()))?)
+    let (keys, var) = py.detach(move || {
+        let c = match &given {
+            Some((v, rows)) => centroids::Center::Given { coords: v, rows: *rows },
+            None => centroids::Center::Mean { tol, max_iter },
+        };
+        centroids::frechet_variance(md, k, &xd, c, w.as_deref(), l.as_deref())
+    })?;
+    Ok((keys.into_pyarray(py).into_any().unbind(), var.into_pyarray(py).into_any().unbind()))
 }
 
 pub fn register(m: &Bound<'_, PyModule>) -> PyResult<()> {

@@ -10,6 +10,7 @@ mod algebra;
 mod centroids;
 pub(crate) mod coerce;
 mod index;
+mod kmeans;
 mod models;
 mod neighbors;
 mod relativity;
@@ -29,6 +30,7 @@ fn _native(m: &Bound<'_, PyModule>) -> PyResult<()> {
     centroids::register(m)?;
     models::register(m)?;
     index::register(m)?;
+    kmeans::register(m)?;
     neighbors::register(m)?;
     relativity::register(m)?;
     m.add("__version__", env!("CARGO_PKG_VERSION"))?;

@@ -269,16 +269,93 @@ fn einstein_unit(pts: &UnitPoints, idx: &[usize], w: Option<&[f64]>) -> Option<(
 }
 
 /// Gradient, Hessian and objective at `mu` (unit ball) over the members.
-struct Stats {
-    grad: Vec<f64>,
+#[derive(Clone)]
+pub(crate) struct Stats {
+    pub grad: Vec<f64>,
     /// Upper triangle of the outer-product part, row-major `d x d`.
-    hout: Vec<f64>,
-    hscal: f64,
-    f: f64,
-    wsum: f64,
+    pub hout: Vec<f64>,
+    pub hscal: f64,
+    pub f: f64,
+    pub wsum: f64,
 }
 
-fn stats(pts: &UnitPoints, idx: &[usize], w: Option<&[f64]>, mu: &[f64], gmu: f64) -> Stats {
+impl Stats {
+    pub(crate) fn zero(d: usize) -> Stats {
+        Stats { grad: vec![0f64; d], hout: vec![0f64; d * d], hscal: 0.0, f: 0.0, wsum: 0.0 }
+    }
+
+    /// Adds `o` (chunk sums are added in chunk order: deterministic).
+    pub(crate) fn add(&mut self, o: &Stats) {
+        self.grad.iter_mut().zip(&o.grad).for_each(|(a, b)| *a += b);
+        self.hout.iter_mut().zip(&o.hout).for_each(|(a, b)| *a += b);
+        self.hscal += o.hscal;
+        self.f += o.f;
+        self.wsum += o.wsum;
+    }
+
+    /// Adds point `p` (gap `gp`, weight `wi > 0`) at the unit-ball point
+    /// `mu` (gap `gmu`); `y` is scratch of length d. `dist`, if given, is
+    /// their unit-ball distance as the caller already has it (k-means'
+    /// assignment), saving the logarithm.
+    #[inline(always)]
+    pub(crate) fn accumulate(
+        &mut self,
+        p: &[f64],
+        gp: f64,
+        wi: f64,
+        mu: &[f64],
+        gmu: f64,
+        dist: Option<f64>,
+        y: &mut [f64],
+    ) {
+        let d = mu.len();
+        let st = self;
+        // y = (-mu) ⊕ p, its gap exact: g_mu g_p / D.
+        let mut ss = 0.0;
+        for j in 0..d {
+            let s = p[j] - mu[j];
+            y[j] = s;
+            ss += s * s;
+        }
+        let den = gmu * gp + ss;
+        let (a, b) = (gmu / den, ss / den);
+        let mut t2 = 0.0;
+        for j in 0..d {
+            y[j] = a * y[j] - b * mu[j];
+            t2 += y[j] * y[j];
+        }
+        let gy = gmu * gp / den;
+        st.wsum += wi;
+        let t = t2.sqrt();
+        if t == 0.0 {
+            st.hscal += wi;
+            return;
+        }
+        // d = 2 artanh t, from the gap (fast compensated log1p).
+        let dist = match dist {
+            Some(v) => v,
+            None => log1p_fast(2.0 * t * (1.0 + t) / gy),
+        };
+        // d coth d with coth(2 artanh t) = (1 + t^2)/(2t): no exp.
+        let c = dist * (1.0 + t2) / (2.0 * t);
+        st.f += wi * dist * dist;
+        st.hscal += wi * c;
+        let fg = wi * dist / t;
+        for j in 0..d {
+            st.grad[j] += fg * y[j];
+        }
+        let fh = wi * (1.0 - c) / t2;
+        // Full outer product (vectorises better than a triangle).
+        for (r, row) in st.hout.chunks_exact_mut(d).enumerate() {
+            let yr = fh * y[r];
+            for (o, &ys) in row.iter_mut().zip(y.iter()) {
+                *o = yr.mul_add(ys, *o);
+            }
+        }
+    }
+}
+
+pub(crate) fn stats(pts: &UnitPoints, idx: &[usize], w: Option<&[f64]>, mu: &[f64], gmu: f64) -> Stats {
     let d = pts.d;
     let parts: Vec<Stats> = idx
         .par_chunks(CHUNK)
@@ -287,66 +364,23 @@ fn stats(pts: &UnitPoints, idx: &[usize], w: Option<&[f64]>, mu: &[f64], gmu: f6
                 crate::numeric::simd::has_fma(),
                 #[inline(always)]
                 || {
-                    let mut st = Stats { grad: vec![0f64; d], hout: vec![0f64; d * d], hscal: 0.0, f: 0.0, wsum: 0.0 };
+                    let mut st = Stats::zero(d);
                     let mut y = vec![0f64; d];
                     for &i in ch {
                         let wi = w.map_or(1.0, |w| w[i]);
                         if wi == 0.0 {
                             continue;
                         }
-                        let p = &pts.p[i * d..(i + 1) * d];
-                        // y = (-mu) ⊕ p, its gap exact: g_mu g_p / D.
-                        let mut ss = 0.0;
-                        for j in 0..d {
-                            let s = p[j] - mu[j];
-                            y[j] = s;
-                            ss += s * s;
-                        }
-                        let den = gmu * pts.g[i] + ss;
-                        let (a, b) = (gmu / den, ss / den);
-                        let mut t2 = 0.0;
-                        for j in 0..d {
-                            y[j] = a * y[j] - b * mu[j];
-                            t2 += y[j] * y[j];
-                        }
-                        let gy = gmu * pts.g[i] / den;
-                        st.wsum += wi;
-                        let t = t2.sqrt();
-                        if t == 0.0 {
-                            st.hscal += wi;
-                            continue;
-                        }
-                        // d = 2 artanh t, from the gap (fast compensated log1p).
-                        let dist = log1p_fast(2.0 * t * (1.0 + t) / gy);
-                        // d coth d with coth(2 artanh t) = (1 + t^2)/(2t): no exp.
-                        let c = dist * (1.0 + t2) / (2.0 * t);
-                        st.f += wi * dist * dist;
-                        st.hscal += wi * c;
-                        let fg = wi * dist / t;
-                        for j in 0..d {
-                            st.grad[j] += fg * y[j];
-                        }
-                        let fh = wi * (1.0 - c) / t2;
-                        // Full outer product (vectorises better than a triangle).
-                        for (r, row) in st.hout.chunks_exact_mut(d).enumerate() {
-                            let yr = fh * y[r];
-                            for (o, &ys) in row.iter_mut().zip(y.iter()) {
-                                *o = yr.mul_add(ys, *o);
-                            }
-                        }
+                        st.accumulate(&pts.p[i * d..(i + 1) * d], pts.g[i], wi, mu, gmu, None, &mut y);
                     }
                     st
                 },
             )
         })
         .collect();
-    let mut tot = Stats { grad: vec![0f64; d], hout: vec![0f64; d * d], hscal: 0.0, f: 0.0, wsum: 0.0 };
+    let mut tot = Stats::zero(d);
     for p in parts {
-        tot.grad.iter_mut().zip(&p.grad).for_each(|(a, b)| *a += b);
-        tot.hout.iter_mut().zip(&p.hout).for_each(|(a, b)| *a += b);
-        tot.hscal += p.hscal;
-        tot.f += p.f;
-        tot.wsum += p.wsum;
+        tot.add(&p);
     }
     tot
 }
@@ -417,47 +451,122 @@ pub struct GroupMean {
     pub iterations: usize,
     pub converged: bool,
     pub grad_norm: f64,
+    /// `sum w d^2 / sum w` at `mu` (unit ball: times R^2 for the model).
+    pub var: f64,
 }
 
-fn frechet_group(pts: &UnitPoints, idx: &[usize], w: Option<&[f64]>, tol: f64, max_iter: usize) -> Option<GroupMean> {
-    let d = pts.d;
-    let (mut mu, mut gmu) = einstein_unit(pts, idx, w)?;
-    let mut prev: Option<(Vec<f64>, f64, Vec<f64>, f64, f64)> = None; // mu, gap, step, scale, grad norm
-    let mut iterations = 0;
-    loop {
-        let st = stats(pts, idx, w, &mu, gmu);
+pub(crate) fn frechet_group(
+    pts: &UnitPoints,
+    idx: &[usize],
+    w: Option<&[f64]>,
+    tol: f64,
+    max_iter: usize,
+) -> Option<GroupMean> {
+    let (mu, gmu) = einstein_unit(pts, idx, w)?;
+    Some(newton_from(pts, idx, w, mu, gmu, tol, max_iter))
+}
+
+/// mu, gap, step, scale, grad norm of the last full Newton step.
+type PrevStep = (Vec<f64>, f64, Vec<f64>, f64, f64);
+
+/// The state of one Riemannian Newton iteration for a Fréchet mean, fed the
+/// statistics at its current iterate by whoever makes the passes over the
+/// points ([`newton_from`] for one group; k-means for all its clusters in
+/// one pass).
+pub(crate) struct Newton {
+    pub mu: Vec<f64>,
+    pub gmu: f64,
+    prev: Option<PrevStep>,
+    iterations: usize,
+    tol: f64,
+    max_iter: usize,
+    last_step: f64,
+    pub result: Option<GroupMean>,
+}
+
+impl Newton {
+    /// Starts at the unit-ball point `mu` with gap `gmu`. `last_step > 0`
+    /// ends the iteration after a full Newton step of hyperbolic length at
+    /// most `last_step` (unit ball) without evaluating the gradient there: in
+    /// the quadratic regime the step leaves an error of order `last_step^2`
+    /// (k-means uses it for its intermediate centres); `0` always verifies
+    /// `tol`.
+    pub(crate) fn new(mu: Vec<f64>, gmu: f64, tol: f64, max_iter: usize, last_step: f64) -> Newton {
+        Newton { mu, gmu, prev: None, iterations: 0, tol, max_iter, last_step, result: None }
+    }
+
+    fn finish(&mut self, converged: bool, gn: f64, var: f64) {
+        let mu = std::mem::take(&mut self.mu);
+        self.result = Some(GroupMean { mu, gap: self.gmu, iterations: self.iterations, converged, grad_norm: gn, var });
+    }
+
+    /// Takes the statistics at `self.mu` (positive total weight); returns
+    /// whether it needs the statistics at the new `self.mu` (otherwise
+    /// `result` is set).
+    pub(crate) fn advance(&mut self, st: &Stats) -> bool {
+        let d = st.grad.len();
         let gn = sumsq(&st.grad).sqrt() / st.wsum;
-        if gn <= tol {
-            return Some(GroupMean { mu, gap: gmu, iterations, converged: true, grad_norm: gn });
+        let var = st.f / st.wsum;
+        if gn <= self.tol {
+            self.finish(true, gn, var);
+            return false;
         }
-        if let Some((pm, pg, ps, sc, pgn)) = &prev {
+        if let Some((pm, pg, ps, sc, pgn)) = &self.prev {
             if gn > *pgn && *sc > 1e-6 {
                 // Worse than before: retry the previous step at half length.
                 let scale = sc * 0.5;
                 let (m2, g2) = step(pm, *pg, ps, scale);
-                mu = m2;
-                gmu = g2;
-                prev = Some((pm.clone(), *pg, ps.clone(), scale, *pgn));
-                continue;
+                self.mu = m2;
+                self.gmu = g2;
+                self.prev = Some((pm.clone(), *pg, ps.clone(), scale, *pgn));
+                return true;
             }
         }
-        if iterations >= max_iter {
-            return Some(GroupMean { mu, gap: gmu, iterations, converged: false, grad_norm: gn });
+        if self.iterations >= self.max_iter {
+            self.finish(false, gn, var);
+            return false;
         }
-        iterations += 1;
-        let s = newton_step(&st, d);
+        self.iterations += 1;
+        let s = newton_step(st, d);
         // Beyond ~11 R from the origin one ulp of the coordinates is more
         // than 1e-12 R of hyperbolic distance: a step below the coordinate
         // resolution at mu cannot be taken, so the iterate is final.
-        let res = 2.0 * f64::EPSILON * (sumsq(&mu).sqrt() * 2.0 / gmu + 1.0);
-        if sumsq(&s).sqrt() <= 4.0 * res {
-            return Some(GroupMean { mu, gap: gmu, iterations, converged: true, grad_norm: gn });
+        let res = 2.0 * f64::EPSILON * (sumsq(&self.mu).sqrt() * 2.0 / self.gmu + 1.0);
+        let sn = sumsq(&s).sqrt();
+        if sn <= 4.0 * res {
+            self.finish(true, gn, var);
+            return false;
         }
-        let (m2, g2) = step(&mu, gmu, &s, 1.0);
-        prev = Some((mu, gmu, s, 1.0, gn));
-        mu = m2;
-        gmu = g2;
+        let (m2, g2) = step(&self.mu, self.gmu, &s, 1.0);
+        let halving = self.prev.as_ref().is_some_and(|p| p.3 < 1.0);
+        if !halving && sn <= self.last_step {
+            self.mu = m2;
+            self.gmu = g2;
+            self.finish(true, gn, f64::NAN);
+            return false;
+        }
+        let old = std::mem::replace(&mut self.mu, m2);
+        self.prev = Some((old, self.gmu, s, 1.0, gn));
+        self.gmu = g2;
+        true
     }
+}
+
+/// Newton's method for the Fréchet mean of the members, started at the
+/// unit-ball point `mu` with gap `gmu`. The members must have a positive
+/// total weight.
+pub(crate) fn newton_from(
+    pts: &UnitPoints,
+    idx: &[usize],
+    w: Option<&[f64]>,
+    mu: Vec<f64>,
+    gmu: f64,
+    tol: f64,
+    max_iter: usize,
+) -> GroupMean {
+    let mut nt = Newton::new(mu, gmu, tol, max_iter, 0.0);
+    while nt.advance(&stats(pts, idx, w, &nt.mu, nt.gmu)) {}
+    nt.result.expect("finished")
 }
 
 /// Result of [`frechet_mean`]: one row per group (a single group without
@@ -471,7 +580,7 @@ pub struct MeanResult {
     pub grad_norm: Vec<f64>,
 }
 
-fn to_model(model: Model, k: &Curvature, mu: &[f64], gap: f64, out: &mut [f64]) {
+pub(crate) fn to_model(model: Model, k: &Curvature, mu: &[f64], gap: f64, out: &mut [f64]) {
     let p: Vec<f64> = mu.iter().map(|v| v * k.radius).collect();
     from_hub(model, k, &p, gap, out);
 }
@@ -545,22 +654,81 @@ pub fn einstein_midpoint(
     Ok((keys, mean, width))
 }
 
-/// `sum w d(c, x)^2 / sum w` about `center` (in the model's coordinates).
-pub fn frechet_variance(model: Model, k: Curvature, x: &Data, center: &[f64], weights: Option<&[f64]>) -> Result<f64> {
+/// Where the Fréchet variance is taken.
+pub enum Center<'a> {
+    /// About each group's own Fréchet mean.
+    Mean { tol: f64, max_iter: usize },
+    /// About given points in the model's coordinates: one row for every
+    /// group, or one row per group (row-major, `rows x width`).
+    Given { coords: &'a [f64], rows: usize },
+}
+
+/// `sum w d(c, x)^2 / sum w` per label (one group without labels), in one
+/// pass over each group's points. Returns the sorted labels and the
+/// variances.
+pub fn frechet_variance(
+    model: Model,
+    k: Curvature,
+    x: &Data,
+    center: Center,
+    weights: Option<&[f64]>,
+    labels: Option<&[i64]>,
+) -> Result<(Vec<i64>, Vec<f64>)> {
     let pts = unit_points(model, &k, "x", x)?;
     let wn = normalized(weights, pts.n)?;
     let weights = wn.as_deref();
+    let (keys, members) = groups(labels, pts.n)?;
     let width = model.width(pts.d);
-    if center.len() != width {
-        return Err(Error::Value(format!("center has {} coordinates but x has {width} per point", center.len())));
+    let r2 = k.radius * k.radius;
+    let res: Vec<Option<f64>> = match center {
+        Center::Mean { tol, max_iter } => {
+            if tol.is_nan() || tol < 0.0 {
+                return Err(Error::Value(format!("tol must be >= 0, got {tol}")));
+            }
+            members.par_iter().map(|idx| frechet_group(&pts, idx, weights, tol, max_iter).map(|r| r.var)).collect()
+        }
+        Center::Given { coords, rows } => {
+            if rows == 0 || coords.len() != rows * width {
+                return Err(Error::Value(format!(
+                    "center has {} coordinates but x has {width} per point",
+                    coords.len() / rows.max(1)
+                )));
+            }
+            if rows != 1 && rows != keys.len() {
+                return Err(Error::Value(format!(
+                    "center has {rows} rows but there are {} labels (give one center, or one per label)",
+                    keys.len()
+                )));
+            }
+            let mut hub = vec![0f64; rows * pts.d];
+            let mut gaps = vec![0f64; rows];
+            for r in 0..rows {
+                let mu = &mut hub[r * pts.d..(r + 1) * pts.d];
+                let gmu = to_hub(model, &k, &coords[r * width..(r + 1) * width], mu).map_err(|f| {
+                    let row = if rows > 1 { format!(" row {r}") } else { String::new() };
+                    Error::Value(format!("center{row} {}", f.describe()))
+                })?;
+                mu.iter_mut().for_each(|v| *v *= k.sqrt_kappa);
+                gaps[r] = gmu;
+            }
+            members
+                .par_iter()
+                .enumerate()
+                .map(|(gi, idx)| {
+                    let r = if rows == 1 { 0 } else { gi };
+                    let st = stats(&pts, idx, weights, &hub[r * pts.d..(r + 1) * pts.d], gaps[r]);
+                    if st.wsum > 0.0 {
+                        Some(st.f / st.wsum)
+                    } else {
+                        None
+                    }
+                })
+                .collect()
+        }
+    };
+    let mut out = Vec::with_capacity(keys.len());
+    for (gi, v) in res.into_iter().enumerate() {
+        out.push(v.ok_or_else(|| empty_group(keys[gi], labels.is_some()))? * r2);
     }
-    let mut mu = vec![0f64; pts.d];
-    let gmu = to_hub(model, &k, center, &mut mu).map_err(|f| Error::Value(format!("center {}", f.describe())))?;
-    mu.iter_mut().for_each(|v| *v *= k.sqrt_kappa);
-    let idx: Vec<usize> = (0..pts.n).collect();
-    let st = stats(&pts, &idx, weights, &mu, gmu);
-    if !(st.wsum > 0.0) {
-        return Err(empty_group(0, false));
-    }
-    Ok(st.f / st.wsum * k.radius * k.radius)
+    Ok((keys, out))
 }

@@ -2,3 +2,4 @@
 //! dispersion, and clustering.
 
 pub mod centroids;
+pub mod kmeans;

@@ -102,8 +102,8 @@ def test_einstein_midpoint_ungar_many_points(weighted):
                 exact_p.append([b / (1 + a) for b in q])
         assert mp_hyperboloid_distance(ref, mp_mobius_gyromidpoint(np.array(exact_p, dtype=object), w)) < mpf(10) ** -40
         # gyrokit: Klein input (converted to Poincaré) and Poincaré input agree with it
-        from_klein = gk.convert(gk.einstein_midpoint(k, w if weighted else None, model="klein"), "klein", "poincare")
-        from_p = gk.einstein_midpoint(p, w if weighted else None)
+        from_klein = gk.convert(gk.einstein_midpoint(k, weights=w if weighted else None, model="klein"), "klein", "poincare")
+        from_p = gk.einstein_midpoint(p, weights=w if weighted else None)
         tol = 16 * resolution(from_p) + 2 * data_rounding(p) + 1e-15
         for got in (from_klein, from_p):
             err = float(mp_hyperboloid_distance(ref, mp_lift(got, "poincare")))
@@ -115,7 +115,7 @@ def test_einstein_midpoint_ungar_many_points(weighted):
         np_mobius = _half_mobius((w * g2) @ p / np.sum(w * (g2 - 0.5)))
         assert hd(from_p, np_mobius) <= 1e-11
         # the Einstein midpoint is close to, but not, the Fréchet mean
-        assert hd(from_p, gk.frechet_mean(p, w).mean) > 1e-6
+        assert hd(from_p, gk.frechet_mean(p, weights=w).mean) > 1e-6
 
 
 @pytest.mark.parametrize("model", MODELS)
@@ -144,8 +144,8 @@ def test_every_model_gives_the_same_mean(K):
     for model in MODELS:
         X = from_poincare(p0, model, K)
         p = to_poincare(X, model, K)  # the model floats' own Poincaré images
-        base = gk.frechet_mean(p, w, curvature=K)
-        r = gk.frechet_mean(X, w, model=model, curvature=K)
+        base = gk.frechet_mean(p, weights=w, curvature=K)
+        r = gk.frechet_mean(X, weights=w, model=model, curvature=K)
         assert r.converged
         width = 5 if model == "hyperboloid" else 4
         assert r.mean.shape == (width,)
@@ -162,11 +162,11 @@ def test_per_label_means_equal_separate_means():
     lab = (rng.integers(-3, 5, n) * 7).astype(np.int32)
     w = rng.uniform(0.0, 2.0, n)
     for weights in (None, w):
-        r = gk.frechet_mean(p, weights, lab)
+        r = gk.frechet_mean(p, weights=weights, labels=lab)
         np.testing.assert_array_equal(r.labels, np.unique(lab))
         assert r.mean.shape == (8, 4) and r.iterations.shape == (8,) and r.converged.all()
         for i, l in enumerate(np.unique(lab)):
-            s = gk.frechet_mean(p[lab == l], None if weights is None else weights[lab == l])
+            s = gk.frechet_mean(p[lab == l], weights=None if weights is None else weights[lab == l])
             # same points, same order, same chunking: the same bits
             np.testing.assert_array_equal(r.mean[i], s.mean)
             assert r.iterations[i] == s.iterations and r.grad_norm[i] == s.grad_norm

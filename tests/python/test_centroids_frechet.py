@@ -50,7 +50,7 @@ def test_matches_mpmath_minimiser(case):
     x = ball_points(rng, n, d, rmax, center=center, curvature=K)
     w = rng.uniform(0.05, 5.0, n) if weighted else None
     X = from_poincare(x, model, K)
-    r = gk.frechet_mean(X, w, model=model, curvature=K)
+    r = gk.frechet_mean(X, weights=w, model=model, curvature=K)
     assert r.converged and r.grad_norm <= 1e-12
     ref = mp_frechet_mean(X, w, K, model)  # mpmath 50-digit minimisation, on the float64 input as given
     err = float(mp_hyperboloid_distance(ref, mp_lift(r.mean, model, K), K))
@@ -110,7 +110,7 @@ def test_two_points_weighted_is_fraction_along_geodesic():
     for x, y in _pairs(rng, 4, 45):
         w = rng.uniform(0.1, 10.0, 2)
         expect = gk.poincare.geodesic(x, y, w[1] / w.sum())
-        r = gk.frechet_mean(np.array([x, y]), w)
+        r = gk.frechet_mean(np.array([x, y]), weights=w)
         assert hd(r.mean, expect) <= r.grad_norm + 16 * resolution(expect), (x, y, w)
 
 
@@ -207,11 +207,11 @@ def test_integer_weights_equal_repeated_points():
     x = ball_points(rng, 25, 3, 5.0, center=point_at(1.0, 3))
     w = rng.integers(1, 5, 25)
     rep = np.repeat(x, w, axis=0)
-    a = gk.frechet_mean(x, w.astype(float))
+    a = gk.frechet_mean(x, weights=w.astype(float))
     b = gk.frechet_mean(rep)
     assert hd(a.mean, b.mean) <= 1e-14
     assert gk.frechet_variance(x, weights=w.astype(float)) == pytest.approx(gk.frechet_variance(rep), rel=1e-13)
-    ea, eb = gk.einstein_midpoint(x, w.astype(float)), gk.einstein_midpoint(rep)
+    ea, eb = gk.einstein_midpoint(x, weights=w.astype(float)), gk.einstein_midpoint(rep)
     assert hd(ea, eb) <= 1e-14
 
 
@@ -221,10 +221,10 @@ def test_zero_weight_drops_its_point():
     w = rng.uniform(0.5, 2.0, 30)
     w[[0, 7, 29]] = 0.0
     keep = w > 0
-    a = gk.frechet_mean(x, w)
-    b = gk.frechet_mean(x[keep], w[keep])
+    a = gk.frechet_mean(x, weights=w)
+    b = gk.frechet_mean(x[keep], weights=w[keep])
     assert hd(a.mean, b.mean) <= 1e-15
-    assert hd(gk.einstein_midpoint(x, w), gk.einstein_midpoint(x[keep], w[keep])) <= 1e-15
+    assert hd(gk.einstein_midpoint(x, weights=w), gk.einstein_midpoint(x[keep], weights=w[keep])) <= 1e-15
     # the dropped points really mattered
     assert hd(gk.frechet_mean(x).mean, b.mean) > 1e-3
 
@@ -234,9 +234,9 @@ def test_weights_scale_invariant():
     rng = np.random.default_rng(6)
     x = ball_points(rng, 40, 3, 6.0, center=point_at(2.0, 3))
     w = rng.uniform(0.1, 3.0, 40)
-    base = gk.frechet_mean(x, w).mean
+    base = gk.frechet_mean(x, weights=w).mean
     for c in (1e-100, 1e-8, 1e8, 1e100):
-        assert hd(gk.frechet_mean(x, w * c).mean, base) <= 1e-14, c
+        assert hd(gk.frechet_mean(x, weights=w * c).mean, base) <= 1e-14, c
 
 
 # Was a strict xfail (defect found by this file); fixed in src/centroids.rs.
@@ -247,5 +247,5 @@ def test_weights_scale_invariant_extreme(c):
     base = gk.frechet_mean(x).mean
     with warnings.catch_warnings():
         warnings.simplefilter("error", gk.ConvergenceWarning)
-        r = gk.frechet_mean(x, np.full(40, c))
+        r = gk.frechet_mean(x, weights=np.full(40, c))
     assert r.converged and hd(r.mean, base) <= 1e-14

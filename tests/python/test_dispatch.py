@@ -148,7 +148,7 @@ SCRIPT = textwrap.dedent(
                        np.array([fm.grad_norm]))
                 labels = rng.integers(0, 5, 3000)
                 w = rng.uniform(0.1, 2.0, 3000)
-                fl = gk.frechet_mean(inner, w, labels, **kw)
+                fl = gk.frechet_mean(inner, weights=w, labels=labels, **kw)
                 record(f"frechet_mean labels {tag}", fl.mean, fl.iterations, fl.converged, fl.grad_norm)
                 for model in ("klein", "hyperboloid"):
                     fk = gk.frechet_mean(to_model(inner, model, R, K), model=model, **kw)

@@ -11,7 +11,7 @@ import numpy as np
 import pytest
 
 import gyrokit as gk
-from gyrokit.kmeans import KMeans, NotFittedError
+from gyrokit.kmeans import KMeans, UnfittedError
 from conftest import DISTANCE, MODELS, ball_points
 
 
@@ -327,9 +327,9 @@ def test_get_set_params():
 def test_fit_returns_self_and_predict_needs_fit():
     X = overlapping(np.random.default_rng(0), 50, 2)
     km = KMeans(2, random_state=0)
-    with pytest.raises(NotFittedError, match="not fitted"):
+    with pytest.raises(UnfittedError, match="run fit"):
         km.predict(X)
-    with pytest.raises(ValueError, match="not fitted"):
+    with pytest.raises(ValueError, match="run fit"):
         km.transform(X)
     assert km.fit(X) is km
     with pytest.raises(ValueError, match="3 coordinates per point but KMeans was fitted with 2"):

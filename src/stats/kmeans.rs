@@ -1,0 +1,712 @@
+//! k-means in hyperbolic space: Lloyd's algorithm with exact distances and
+//! Fréchet-mean centres, the whole fit in one call.
+//!
+//! The points are read and validated once into the unit Poincaré ball with
+//! their exact gaps ([`unit_points`], the hub representation shared with the
+//! centroids), whatever the input model. Then, per run:
+//!
+//! 1. Seeding ([`Init`]): k-means++ (D^2 sampling, Arthur & Vassilvitskii
+//!    2007: the first centre uniform, each further one drawn with probability
+//!    proportional to the squared distance to the nearest centre so far;
+//!    when every point already coincides with a centre, uniformly among the
+//!    points not chosen yet), `n_clusters` distinct points uniformly, or
+//!    given centres.
+//! 2. Assignment: every point to its nearest centre, ranked by the pair
+//!    quantity `h = sinh(d/2R)^2 = |x - c|^2 / (g_x g_c)` (unit ball; monotone
+//!    in the distance, evaluated in the order of `pairwise::scaled_h`, so a
+//!    Poincaré fit at K = -1 agrees bit for bit with `knn`), ties to the lower
+//!    centre index; the distance `R acosh(1 + 2h)` only for the winner.
+//! 3. Empty clusters, in increasing index: the point farthest from its centre
+//!    among the clusters of at least two points (lowest index on ties) moves
+//!    into the empty cluster and becomes its centre.
+//! 4. Update: each centre becomes the Fréchet mean of its points, by the
+//!    Riemannian Newton iteration of [`centroids`](super::centroids) started
+//!    at the previous centre (a warm start: late in the run one or two steps).
+//! 5. Stop when the labels no longer change, the total centre movement
+//!    `sum_j d(c_j, c_j')` is at most `tol`, or after `max_iter` updates;
+//!    the last assignment gives `labels` and `inertia`.
+//!
+//! Randomness comes from [`Rng`] (xoshiro256**), one generator per run
+//! seeded with a 64-bit seed given by the caller, so runs are independent and
+//! reproducible. Every reduction runs over fixed chunks summed in order:
+//! results are bit-identical for any number of threads.
+
+use std::collections::HashMap;
+
+use rayon::prelude::*;
+
+use super::centroids::{frechet_group, to_model, unit_points, Newton, Stats, UnitPoints};
+use crate::batch::Data;
+use crate::error::{Error, Result};
+use crate::models::ball::{checked_gap, Curvature};
+use crate::models::Model;
+use crate::numeric::acosh1p2_fast;
+use crate::numeric::simd::{dispatch, has_fma};
+use crate::pairwise::{scaled_h, seq_dist_sq};
+
+/// Points per parallel chunk (fixed: results never depend on threads).
+const CHUNK: usize = 4096;
+/// Gradient tolerance of the Newton iteration for each centre (the default
+/// of `frechet_mean`), and its iteration cap.
+const CENTRE_TOL: f64 = 1e-12;
+const CENTRE_MAX_ITER: usize = 50;
+/// The intermediate centres of Lloyd's loop end after a Newton step of at
+/// most this hyperbolic length (unit ball), unverified: in Newton's
+/// quadratic regime they are then within ~1e-10 R of the cluster's mean
+/// (enough to rank points; the inertia is off by ~1e-20 per point), and the
+/// final centres are recomputed in full.
+const INTERMEDIATE_LAST_STEP: f64 = 1e-5;
+
+/// The pseudo-random generator of the seeding: xoshiro256** (Blackman and
+/// Vigna, "Scrambled linear pseudorandom number generators", 2018), its
+/// state filled from the 64-bit seed by SplitMix64 (Steele, Lea and Flood
+/// 2014), as the authors recommend. Uniform floats are the top 53 bits times
+/// 2^-53, in [0, 1); uniform integers below `m` use Lemire's multiply-shift
+/// with rejection (unbiased).
+#[derive(Clone, Debug)]
+pub struct Rng {
+    s: [u64; 4],
+}
+
+/// One SplitMix64 step.
+pub fn splitmix64(state: &mut u64) -> u64 {
+    *state = state.wrapping_add(0x9e37_79b9_7f4a_7c15);
+    let mut z = *state;
+    z = (z ^ (z >> 30)).wrapping_mul(0xbf58_476d_1ce4_e5b9);
+    z = (z ^ (z >> 27)).wrapping_mul(0x94d0_49bb_1331_11eb);
+    z ^ (z >> 31)
+}
+
+impl Rng {
+    pub fn new(seed: u64) -> Rng {
+        let mut st = seed;
+        Rng { s: [splitmix64(&mut st), splitmix64(&mut st), splitmix64(&mut st), splitmix64(&mut st)] }
+    }
+
+    pub fn next_u64(&mut self) -> u64 {
+        let s = &mut self.s;
+        let result = s[1].wrapping_mul(5).rotate_left(7).wrapping_mul(9);
+        let t = s[1] << 17;
+        s[2] ^= s[0];
+        s[3] ^= s[1];
+        s[1] ^= s[2];
+        s[0] ^= s[3];
+        s[2] ^= t;
+        s[3] = s[3].rotate_left(45);
+        result
+    }
+
+    /// Uniform in [0, 1).
+    pub fn uniform(&mut self) -> f64 {
+        (self.next_u64() >> 11) as f64 * (1.0 / 9007199254740992.0)
+    }
+
+    /// Uniform in `0..m` (`m >= 1`).
+    pub fn below(&mut self, m: u64) -> u64 {
+        let threshold = m.wrapping_neg() % m;
+        loop {
+            let p = u128::from(self.next_u64()) * u128::from(m);
+            if (p as u64) >= threshold {
+                return (p >> 64) as u64;
+            }
+        }
+    }
+}
+
+/// How a run's first centres are chosen.
+pub enum Init<'a> {
+    PlusPlus,
+    Random,
+    /// `(n_clusters, width)` centres in the input model.
+    Given(Data<'a>),
+}
+
+/// Parameters of a fit.
+pub struct Params {
+    pub n_clusters: usize,
+    pub max_iter: usize,
+    pub tol: f64,
+}
+
+/// The kept run (lowest inertia; the earlier run on ties).
+pub struct Fit {
+    pub width: usize,
+    /// Row-major `(n_clusters, width)`, in the input model.
+    pub centers: Vec<f64>,
+    pub labels: Vec<i64>,
+    pub inertia: f64,
+    pub n_iter: usize,
+    pub history: Vec<f64>,
+}
+
+/// Centres in the unit ball: coordinates, the gaps carried by the Newton
+/// iteration, and `1/g` from the coordinates themselves (what the pairwise
+/// kernels compute for the returned centres).
+#[derive(Clone)]
+struct Centres {
+    d: usize,
+    c: Vec<f64>,
+    g: Vec<f64>,
+    a: Vec<f64>,
+}
+
+impl Centres {
+    fn new(d: usize) -> Centres {
+        Centres { d, c: Vec::new(), g: Vec::new(), a: Vec::new() }
+    }
+
+    fn row(&self, j: usize) -> &[f64] {
+        &self.c[j * self.d..(j + 1) * self.d]
+    }
+
+    fn push(&mut self, p: &[f64], g: f64) {
+        self.c.extend_from_slice(p);
+        self.g.push(g);
+        self.a.push(recip_gap(p, g));
+    }
+
+    fn set(&mut self, j: usize, p: &[f64], g: f64) {
+        let d = self.d;
+        self.c[j * d..(j + 1) * d].copy_from_slice(p);
+        self.g[j] = g;
+        self.a[j] = recip_gap(p, g);
+    }
+}
+
+/// `1/g` of a unit-ball point from its coordinates (as `Prepared` computes
+/// it), falling back to the carried gap if the coordinates round onto the
+/// sphere.
+fn recip_gap(p: &[f64], g: f64) -> f64 {
+    1.0 / checked_gap(&Curvature::default(), p).map(|v| v.value()).unwrap_or(g)
+}
+
+/// `h` between point `i` and a unit-ball point `c` with factor `ac`.
+#[inline(always)]
+fn h_point(pts: &UnitPoints, i: usize, c: &[f64], ac: f64) -> f64 {
+    let d = pts.d;
+    scaled_h(seq_dist_sq(&pts.p[i * d..(i + 1) * d], c), 1.0 / pts.g[i], ac, 1.0)
+}
+
+fn bad_points(model: Model, name: &str, e: Error) -> Error {
+    let model = Model::NAMES[model as usize];
+    Error::Value(format!("{name} is not a valid array of {model} points: {e}"))
+}
+
+// ---------------------------------------------------------------- seeding
+
+/// Squared unit distances to the nearest chosen centre, lowered by centre
+/// `c`; returns the fixed-chunk sums.
+fn lower_d2(pts: &UnitPoints, d2: &mut [f64], c: &[f64], ac: f64) -> Vec<f64> {
+    d2.par_chunks_mut(CHUNK)
+        .enumerate()
+        .map(|(ci, ch)| {
+            dispatch(
+                has_fma(),
+                #[inline(always)]
+                || {
+                    let mut s = 0.0;
+                    for (r, v) in ch.iter_mut().enumerate() {
+                        let t = acosh1p2_fast(h_point(pts, ci * CHUNK + r, c, ac));
+                        *v = v.min(t * t);
+                        s += *v;
+                    }
+                    s
+                },
+            )
+        })
+        .collect()
+}
+
+/// Index drawn with probability `d2[i] / sum d2` (the first `i` whose
+/// running sum exceeds `u * total`; the last positive entry if rounding
+/// runs past the end).
+fn draw_d2(d2: &[f64], sums: &[f64], u: f64) -> usize {
+    let total: f64 = sums.iter().sum();
+    let r = u * total;
+    let mut acc = 0.0;
+    for (ci, &s) in sums.iter().enumerate() {
+        if acc + s > r {
+            let ch = &d2[ci * CHUNK..(ci * CHUNK + CHUNK).min(d2.len())];
+            let mut a2 = acc;
+            for (k, &v) in ch.iter().enumerate() {
+                a2 += v;
+                if a2 > r {
+                    return ci * CHUNK + k;
+                }
+            }
+            if let Some(k) = ch.iter().rposition(|&v| v > 0.0) {
+                return ci * CHUNK + k;
+            }
+        }
+        acc += s;
+    }
+    d2.iter().rposition(|&v| v > 0.0).unwrap_or(0)
+}
+
+/// The `m`-th index (from 0) not in `chosen`.
+fn nth_free(chosen: &[usize], m: usize) -> usize {
+    let mut sorted = chosen.to_vec();
+    sorted.sort_unstable();
+    let mut i = m;
+    for &c in &sorted {
+        if c <= i {
+            i += 1;
+        } else {
+            break;
+        }
+    }
+    i
+}
+
+/// k-means++ seeding: indices of the chosen points.
+fn plusplus(pts: &UnitPoints, k: usize, rng: &mut Rng) -> Vec<usize> {
+    let n = pts.n;
+    let d = pts.d;
+    let mut chosen = vec![rng.below(n as u64) as usize];
+    let mut d2 = vec![f64::INFINITY; n];
+    let mut last = chosen[0];
+    for _ in 1..k {
+        let c = &pts.p[last * d..(last + 1) * d];
+        let sums = lower_d2(pts, &mut d2, c, recip_gap(c, pts.g[last]));
+        let total: f64 = sums.iter().sum();
+        let i = if total > 0.0 {
+            draw_d2(&d2, &sums, rng.uniform())
+        } else {
+            nth_free(&chosen, rng.below((n - chosen.len()) as u64) as usize)
+        };
+        chosen.push(i);
+        last = i;
+    }
+    chosen
+}
+
+/// `k` distinct indices, uniformly (a partial Fisher-Yates shuffle).
+fn distinct(n: usize, k: usize, rng: &mut Rng) -> Vec<usize> {
+    let mut swapped: HashMap<usize, usize> = HashMap::new();
+    let mut out = Vec::with_capacity(k);
+    for i in 0..k {
+        let j = i + rng.below((n - i) as u64) as usize;
+        let vj = *swapped.get(&j).unwrap_or(&j);
+        let vi = *swapped.get(&i).unwrap_or(&i);
+        swapped.insert(j, vi);
+        out.push(vj);
+    }
+    out
+}
+
+// ---------------------------------------------------------------- Lloyd
+
+/// Nearest centre (ties to the lower index) and its distance, per point;
+/// returns the inertia (fixed-chunk sums in order) and, with `gather`, each
+/// cluster's Newton statistics at its centre (the first pass of the next
+/// update, done while the point is in cache). Each pair's `|x - c|^2` is
+/// summed in coordinate order (as `seq_dist_sq`).
+fn assign(
+    pts: &UnitPoints,
+    cen: &Centres,
+    radius: f64,
+    labels: &mut [usize],
+    dist: &mut [f64],
+    gather: bool,
+) -> (f64, Option<Vec<Stats>>) {
+    let k = cen.a.len();
+    let d = pts.d;
+    let parts: Vec<(f64, Vec<Stats>)> = labels
+        .par_chunks_mut(CHUNK)
+        .zip(dist.par_chunks_mut(CHUNK))
+        .enumerate()
+        .map(|(ci, (lc, dc))| {
+            dispatch(
+                has_fma(),
+                #[inline(always)]
+                || {
+                    let mut sts: Vec<Stats> =
+                        if gather { (0..k).map(|_| Stats::zero(d)).collect() } else { Vec::new() };
+                    let mut y = vec![0f64; d];
+                    let mut acc = vec![0f64; CHUNK];
+                    let mut xs: Vec<f64> = Vec::with_capacity(CHUNK * d);
+                    let mut ax: Vec<f64> = Vec::with_capacity(CHUNK);
+                    // 1. nearest centre by h (h kept in `dc` for now). The
+                    // chunk's points are transposed so that the loops run over
+                    // points (vectorised); each pair's sum is still in
+                    // coordinate order, the ties still to the lower index.
+                    let len = lc.len();
+                    let base = ci * CHUNK;
+                    xs.clear();
+                    for t in 0..d {
+                        xs.extend((0..len).map(|r| pts.p[(base + r) * d + t]));
+                    }
+                    ax.clear();
+                    ax.extend(pts.g[base..base + len].iter().map(|g| 1.0 / g));
+                    dc.iter_mut().for_each(|v| *v = f64::INFINITY);
+                    lc.iter_mut().for_each(|v| *v = 0);
+                    let d2 = &mut acc[..len];
+                    for j in 0..k {
+                        d2.iter_mut().for_each(|v| *v = 0.0);
+                        for t in 0..d {
+                            let c = cen.c[j * d + t];
+                            for (a, &xv) in d2.iter_mut().zip(&xs[t * len..(t + 1) * len]) {
+                                let u = xv - c;
+                                *a = u.mul_add(u, *a);
+                            }
+                        }
+                        let aj = cen.a[j];
+                        for (((b, l), &a2), &axr) in dc.iter_mut().zip(lc.iter_mut()).zip(d2.iter()).zip(ax.iter()) {
+                            let h = scaled_h(a2, axr, aj, 1.0);
+                            let m = h < *b;
+                            *b = if m { h } else { *b };
+                            *l = if m { j } else { *l };
+                        }
+                    }
+                    // 2. distances (a separate loop, so that it vectorises)
+                    for dd in dc.iter_mut() {
+                        *dd = radius * acosh1p2_fast(*dd);
+                    }
+                    let mut s = 0.0;
+                    for &dv in dc.iter() {
+                        s += dv * dv;
+                    }
+                    // 3. Newton statistics at the assigned centre
+                    if gather {
+                        for (r, (&l, &dv)) in lc.iter().zip(dc.iter()).enumerate() {
+                            let i = ci * CHUNK + r;
+                            let x = &pts.p[i * d..(i + 1) * d];
+                            sts[l].accumulate(x, pts.g[i], 1.0, cen.row(l), cen.g[l], Some(dv / radius), &mut y);
+                        }
+                    }
+                    (s, sts)
+                },
+            )
+        })
+        .collect();
+    let mut inertia = 0.0;
+    let mut tot: Vec<Stats> = if gather { (0..k).map(|_| Stats::zero(d)).collect() } else { Vec::new() };
+    for (s, sts) in &parts {
+        inertia += s;
+        tot.iter_mut().zip(sts).for_each(|(a, b)| a.add(b));
+    }
+    (inertia, if gather { Some(tot) } else { None })
+}
+
+/// The empty-cluster repair, in place (see the module docs).
+fn repair(pts: &UnitPoints, labels: &mut [usize], dist: &mut [f64], cen: &mut Centres) -> bool {
+    let k = cen.a.len();
+    let d = pts.d;
+    let mut counts = vec![0usize; k];
+    labels.iter().for_each(|&l| counts[l] += 1);
+    let empty: Vec<usize> = (0..k).filter(|&j| counts[j] == 0).collect();
+    let moved = !empty.is_empty();
+    for j in empty {
+        let mut best = f64::NEG_INFINITY;
+        let mut bi = usize::MAX;
+        for (i, (&l, &dv)) in labels.iter().zip(dist.iter()).enumerate() {
+            if counts[l] >= 2 && dv > best {
+                best = dv;
+                bi = i;
+            }
+        }
+        if bi == usize::MAX {
+            continue; // no cluster has two points (cannot happen for k <= n)
+        }
+        counts[labels[bi]] -= 1;
+        counts[j] += 1;
+        labels[bi] = j;
+        dist[bi] = 0.0;
+        cen.set(j, &pts.p[bi * d..(bi + 1) * d], pts.g[bi]);
+    }
+    moved
+}
+
+/// The point indices of each cluster, in input order.
+fn members(labels: &[usize], k: usize) -> Vec<Vec<usize>> {
+    let mut counts = vec![0usize; k];
+    labels.iter().for_each(|&l| counts[l] += 1);
+    let mut m: Vec<Vec<usize>> = counts.iter().map(|&c| Vec::with_capacity(c)).collect();
+    for (i, &l) in labels.iter().enumerate() {
+        m[l].push(i);
+    }
+    m
+}
+
+/// Newton statistics of every cluster flagged in `need`, each at its own
+/// iterate, in one pass over the points (fixed chunks summed in order).
+fn multi_stats(pts: &UnitPoints, labels: &[usize], it: &[Newton], need: &[bool]) -> Vec<Stats> {
+    let (k, d) = (it.len(), pts.d);
+    let parts: Vec<Vec<Stats>> = labels
+        .par_chunks(CHUNK)
+        .enumerate()
+        .map(|(ci, lc)| {
+            dispatch(
+                has_fma(),
+                #[inline(always)]
+                || {
+                    let mut sts: Vec<Stats> = (0..k).map(|_| Stats::zero(d)).collect();
+                    let mut y = vec![0f64; d];
+                    for (r, &l) in lc.iter().enumerate() {
+                        if need[l] {
+                            let i = ci * CHUNK + r;
+                            sts[l].accumulate(
+                                &pts.p[i * d..(i + 1) * d],
+                                pts.g[i],
+                                1.0,
+                                &it[l].mu,
+                                it[l].gmu,
+                                None,
+                                &mut y,
+                            );
+                        }
+                    }
+                    sts
+                },
+            )
+        })
+        .collect();
+    let mut tot: Vec<Stats> = (0..k).map(|_| Stats::zero(d)).collect();
+    for p in &parts {
+        tot.iter_mut().zip(p).for_each(|(a, b)| a.add(b));
+    }
+    tot
+}
+
+/// The update step: every cluster's Fréchet mean by Newton's method started
+/// at its centre, all clusters advancing together so that each further
+/// round of statistics is one sequential pass over the points. `first`
+/// holds the statistics at the centres if the assignment pass gathered them.
+fn update(pts: &UnitPoints, labels: &[usize], cen: &Centres, first: Option<Vec<Stats>>) -> Vec<(Vec<f64>, f64)> {
+    let k = cen.a.len();
+    let mut it: Vec<Newton> = (0..k)
+        .map(|j| Newton::new(cen.row(j).to_vec(), cen.g[j], CENTRE_TOL, CENTRE_MAX_ITER, INTERMEDIATE_LAST_STEP))
+        .collect();
+    let mut need = vec![true; k];
+    let mut st = match first {
+        Some(s) => s,
+        None => multi_stats(pts, labels, &it, &need),
+    };
+    loop {
+        for j in 0..k {
+            if need[j] {
+                // A cluster without points (only if the repair could not
+                // fill it) keeps its centre.
+                need[j] = st[j].wsum > 0.0 && it[j].advance(&st[j]);
+            }
+        }
+        if !need.iter().any(|&b| b) {
+            break;
+        }
+        st = multi_stats(pts, labels, &it, &need);
+    }
+    it.into_iter()
+        .enumerate()
+        .map(|(j, n)| match n.result {
+            Some(r) => (r.mu, r.gap),
+            None => (cen.row(j).to_vec(), cen.g[j]),
+        })
+        .collect()
+}
+
+struct Run {
+    cen: Centres,
+    labels: Vec<usize>,
+    inertia: f64,
+    n_iter: usize,
+    history: Vec<f64>,
+}
+
+fn lloyd(pts: &UnitPoints, mut cen: Centres, p: &Params, radius: f64) -> Run {
+    let k = cen.a.len();
+    let mut labels = vec![0usize; pts.n];
+    let mut dist = vec![0f64; pts.n];
+    let mut new_labels = vec![0usize; pts.n];
+    let mut labels_used = vec![0usize; pts.n];
+    let (inertia0, mut gathered) = assign(pts, &cen, radius, &mut labels, &mut dist, true);
+    let mut history = vec![inertia0];
+    let mut n_iter = 0;
+    for _ in 0..p.max_iter {
+        if repair(pts, &mut labels, &mut dist, &mut cen) {
+            gathered = None; // clusters and centres changed: statistics from scratch
+        }
+        let means = update(pts, &labels, &cen, gathered.take());
+        let mut shift = 0.0;
+        for (j, (mu, g)) in means.iter().enumerate() {
+            let a = 1.0 / cen.g[j];
+            let h = scaled_h(seq_dist_sq(cen.row(j), mu), a, 1.0 / g, 1.0);
+            shift += radius * acosh1p2_fast(h);
+            cen.set(j, mu, *g);
+        }
+        n_iter += 1;
+        let (inertia, g) = assign(pts, &cen, radius, &mut new_labels, &mut dist, true);
+        gathered = g;
+        history.push(inertia);
+        let unchanged = new_labels == labels;
+        std::mem::swap(&mut labels, &mut new_labels);
+        // `new_labels` now holds the clusters this update was computed from.
+        std::mem::swap(&mut labels_used, &mut new_labels);
+        if unchanged || shift <= p.tol {
+            break;
+        }
+    }
+    // The final centres: the Fréchet means of the last update's clusters
+    // started at their Einstein midpoints, exactly as `frechet_mean` with
+    // those labels computes them (the warm starts only save iterations).
+    // So a centre depends on its members alone, and runs that end with the
+    // same clusters (labels permuted) report the same inertia.
+    let groups = members(&labels_used, k);
+    let means: Vec<Option<(Vec<f64>, f64)>> = groups
+        .par_iter()
+        .map(|idx| {
+            if idx.is_empty() {
+                return None;
+            }
+            frechet_group(pts, idx, None, CENTRE_TOL, CENTRE_MAX_ITER).map(|r| (r.mu, r.gap))
+        })
+        .collect();
+    for (j, m) in means.into_iter().enumerate() {
+        if let Some((mu, g)) = m {
+            cen.set(j, &mu, g);
+        }
+    }
+    let inertia = assign(pts, &cen, radius, &mut labels, &mut dist, false).0;
+    *history.last_mut().expect("one assignment") = inertia;
+    Run { cen, labels, inertia, n_iter, history }
+}
+
+fn check_params(p: &Params, n: usize) -> Result<()> {
+    if p.n_clusters == 0 {
+        return Err(Error::Value("n_clusters must be >= 1, got 0".into()));
+    }
+    if p.n_clusters > n {
+        return Err(Error::Value(format!("n_clusters={} is larger than the number of points ({n})", p.n_clusters)));
+    }
+    if p.max_iter == 0 {
+        return Err(Error::Value("max_iter must be >= 1, got 0".into()));
+    }
+    if p.tol.is_nan() || p.tol < 0.0 {
+        return Err(Error::Value(format!("tol must be >= 0, got {}", p.tol)));
+    }
+    Ok(())
+}
+
+/// k-means++ seeding alone: the indices of the chosen points of `x`.
+pub fn plusplus_indices(model: Model, k: Curvature, x: &Data, n_clusters: usize, seed: u64) -> Result<Vec<usize>> {
+    let pts = unit_points(model, &k, "x", x).map_err(|e| bad_points(model, "X", e))?;
+    check_params(&Params { n_clusters, max_iter: 1, tol: 0.0 }, pts.n)?;
+    Ok(plusplus(&pts, n_clusters, &mut Rng::new(seed)))
+}
+
+/// Fits k-means: one run per seed (one run for given centres), the run of
+/// lowest inertia kept.
+pub fn fit(model: Model, k: Curvature, x: &Data, init: Init, seeds: &[u64], p: &Params) -> Result<Fit> {
+    let pts = unit_points(model, &k, "x", x).map_err(|e| bad_points(model, "X", e))?;
+    check_params(p, pts.n)?;
+    let (d, width) = (pts.d, model.width(pts.d));
+    let given = match &init {
+        Init::Given(c) => {
+            let cp = unit_points(model, &k, "x", c).map_err(|e| bad_points(model, "init", e))?;
+            if cp.n != p.n_clusters || cp.d != d {
+                return Err(Error::Value(format!(
+                    "init must have shape (n_clusters, width) = ({}, {width}); got ({}, {})",
+                    p.n_clusters,
+                    cp.n,
+                    model.width(cp.d)
+                )));
+            }
+            let mut cen = Centres::new(d);
+            for j in 0..cp.n {
+                cen.push(&cp.p[j * d..(j + 1) * d], cp.g[j]);
+            }
+            Some(cen)
+        }
+        _ => None,
+    };
+    if given.is_none() && seeds.is_empty() {
+        return Err(Error::Value("n_init must be >= 1 (no seeds given)".into()));
+    }
+    let runs = if given.is_some() { 1 } else { seeds.len() };
+    let mut best: Option<Run> = None;
+    for r in 0..runs {
+        let cen = match &given {
+            Some(c) => c.clone(),
+            None => {
+                let mut rng = Rng::new(seeds[r]);
+                let idx = match &init {
+                    Init::Random => distinct(pts.n, p.n_clusters, &mut rng),
+                    _ => plusplus(&pts, p.n_clusters, &mut rng),
+                };
+                let mut cen = Centres::new(d);
+                for &i in &idx {
+                    cen.push(&pts.p[i * d..(i + 1) * d], pts.g[i]);
+                }
+                cen
+            }
+        };
+        let run = lloyd(&pts, cen, p, k.radius);
+        if best.as_ref().map_or(true, |b| run.inertia < b.inertia) {
+            best = Some(run);
+        }
+    }
+    let best = best.expect("at least one run");
+    let mut centers = vec![0f64; p.n_clusters * width];
+    for j in 0..p.n_clusters {
+        to_model(model, &k, best.cen.row(j), best.cen.g[j], &mut centers[j * width..(j + 1) * width]);
+    }
+    Ok(Fit {
+        width,
+        centers,
+        labels: best.labels.iter().map(|&l| l as i64).collect(),
+        inertia: best.inertia,
+        n_iter: best.n_iter,
+        history: best.history,
+    })
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn splitmix64_reference_values() {
+        // from memory: the reference C code of SplitMix64 (Vigna) seeded
+        // with 0 starts 0xe220a8397b1dcdaf, 0x6e789e6aa1b965f4.
+        let mut s = 0u64;
+        assert_eq!(splitmix64(&mut s), 0xe220_a839_7b1d_cdaf);
+        assert_eq!(splitmix64(&mut s), 0x6e78_9e6a_a1b9_65f4);
+    }
+
+    #[test]
+    fn below_is_in_range_and_roughly_uniform() {
+        let mut r = Rng::new(7);
+        let mut counts = [0usize; 5];
+        for _ in 0..50_000 {
+            counts[r.below(5) as usize] += 1;
+        }
+        // common practice: binomial counts within 5 standard deviations
+        for c in counts {
+            assert!((c as f64 - 10_000.0).abs() < 5.0 * (50_000.0f64 * 0.2 * 0.8).sqrt(), "{counts:?}");
+        }
+        let u: Vec<f64> = (0..1000).map(|_| r.uniform()).collect();
+        assert!(u.iter().all(|&v| (0.0..1.0).contains(&v)));
+    }
+
+    #[test]
+    fn distinct_and_nth_free() {
+        let mut r = Rng::new(3);
+        for _ in 0..100 {
+            let mut v = distinct(10, 10, &mut r);
+            v.sort_unstable();
+            assert_eq!(v, (0..10).collect::<Vec<_>>());
+        }
+        assert_eq!(nth_free(&[0, 2, 3], 0), 1);
+        assert_eq!(nth_free(&[0, 2, 3], 1), 4);
+        assert_eq!(nth_free(&[5], 5), 6);
+    }
+
+    #[test]
+    fn draw_d2_picks_by_running_sum() {
+        let d2 = vec![0.0, 1.0, 0.0, 3.0];
+        let sums = vec![4.0];
+        assert_eq!(draw_d2(&d2, &sums, 0.0), 1);
+        assert_eq!(draw_d2(&d2, &sums, 0.2499), 1);
+        assert_eq!(draw_d2(&d2, &sums, 0.25), 3);
+        assert_eq!(draw_d2(&d2, &sums, 0.999), 3);
+    }
+}
