@@ -13,10 +13,9 @@ use crate::batch::{finite_scalar, map_rows, point_core, scalar_core, Data, Opera
 use crate::error::{Fault, Result, RowFault};
 use crate::models::ball::Curvature;
 use crate::models::klein::chord_ends;
-use crate::models::poincare::with_scratch;
 use crate::numeric::{
     diff_of_squares, distance_from_half_delta, dot2, dot_dd, geodesic_weights, perp_scaled, sumsq, two_prod, wedge_dot,
-    wedge_sq, DD,
+    wedge_sq, with_scratch, DD,
 };
 
 /// Relative tolerance on x0 when reading a point (loose enough for float32
