@@ -110,7 +110,8 @@ impl Fault {
                 .to_string(),
             Fault::Unrepresentable(m, f32) => format!("cannot be converted: {}", ball_range_text(m, f32)),
             Fault::BeyondBall(m, f32) => format!(
-                "gives a result that {}{}; on_rim='clip' clips such results to the last radius with a warning",
+                "gives a result beyond the range of the ball model: {}{}; on_rim='clip' clips such results to the \
+                 last radius with a warning",
                 ball_range_text(m, f32),
                 if f32 { ", and float64 inputs give float64 results, which reach twice as far" } else { "" }
             ),

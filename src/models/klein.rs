@@ -156,6 +156,14 @@ pub fn to_poincare(k: &[f64], gk: f64, p: &mut [f64]) -> f64 {
     for (o, &v) in p.iter_mut().zip(k) {
         *o = v / (1.0 + a);
     }
+    poincare_gap(gk)
+}
+
+/// The gap `2a/(1 + a)` (`a = sqrt(g_k)`) of the Poincaré image of a Klein
+/// point of gap `gk`, alone.
+#[inline(always)]
+pub fn poincare_gap(gk: f64) -> f64 {
+    let a = gk.sqrt();
     2.0 * a / (1.0 + a)
 }
 
@@ -251,9 +259,9 @@ pub fn log_map_g(c: &Curvature, x: &[f64], gx: f64, y: &[f64], gy: f64, out: &mu
             let (s, w) = rest.split_at_mut(n);
             let gp = to_poincare(x, gx, p);
             let a = gy.sqrt();
-            let gq = 2.0 * a / (1.0 + a); // the gap of y's Poincaré image
-            poincare_difference(c, x, gx, y, gy, s); // p - q
-                                                     // p ⊖ q from s = p - q (Möbius form with s given), its gap exact.
+            let gq = poincare_gap(gy);
+            // s = p - q, then p ⊖ q from it (Möbius form with s given), its gap exact
+            poincare_difference(c, x, gx, y, gy, s);
             let ss = sumsq(s);
             let den = gp * gq + k * ss;
             for i in 0..n {

@@ -17,6 +17,7 @@ from __future__ import annotations
 
 import os
 import sys
+import warnings
 import zlib
 from typing import Callable, Dict, List, Tuple
 
@@ -237,7 +238,12 @@ def test_accuracy_against_mpmath(name, case, curvature, d):
                 keep[j] = False
     args = tuple(a[keep] for a in args)
 
-    got = fn(*args, curvature=curvature)
+    # Rows whose exact result float64 cannot hold are skipped below: clip
+    # them (quietly) rather than raise, so the other rows are scored.
+    rim = {} if kind == "gyration" else {"on_rim": "clip"}
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", gk.poincare.RimClipWarning)
+        got = fn(*args, curvature=curvature, **rim)
     assert got.shape == args[-1].shape
 
     errors = []
