@@ -44,8 +44,10 @@ fn all_kernels<M: GyroBall>(seed: u64) {
         let c = Curvature::new(k).unwrap();
         for d in 1..=5 {
             for _ in 0..50 {
-                let x = rng.point(&c, d, 0.9 * rng.next());
-                let y = rng.point(&c, d, 0.9 * rng.next());
+                let r = 0.9 * rng.next();
+                let x = rng.point(&c, d, r);
+                let r = 0.9 * rng.next();
+                let y = rng.point(&c, d, r);
                 let (gx, gy) = (gap(c.kappa, &x), gap(c.kappa, &y));
                 let mut z = vec![0.0; d];
                 let g = M::add_g(&c, &x, gx, &y, gy, 1.0, &mut z);
@@ -61,7 +63,8 @@ fn all_kernels<M: GyroBall>(seed: u64) {
                 let g = M::geodesic_g(&c, &x, gx, &y, gy, t, &mut z);
                 check("geodesic", &c, g, &z);
                 // a tangent short enough to stay within 0.9 R or so
-                let v: Vec<f64> = rng.point(&c, d, 0.3 * rng.next()).iter().map(|a| a * gx).collect();
+                let r = 0.3 * rng.next();
+                let v: Vec<f64> = rng.point(&c, d, r).iter().map(|a| a * gx).collect();
                 let g = M::exp_map_g(&c, &x, gx, &v, &mut z);
                 check("exp_map", &c, g, &z);
             }
@@ -86,8 +89,10 @@ fn coadd_and_matvec_return_the_gap_of_their_result() {
     for d in 1..=4 {
         for _ in 0..50 {
             // coadd is 2 ⊗ midpoint: keep the inputs within 0.6 R
-            let x = rng.point(&c, d, 0.6 * rng.next());
-            let y = rng.point(&c, d, 0.6 * rng.next());
+            let r = 0.6 * rng.next();
+            let x = rng.point(&c, d, r);
+            let r = 0.6 * rng.next();
+            let y = rng.point(&c, d, r);
             let (gx, gy) = (gap(c.kappa, &x), gap(c.kappa, &y));
             let mut z = vec![0.0; d];
             let g = poincare::coadd_g(&c, &x, gx, &y, gy, &mut z);

@@ -16,7 +16,7 @@
 //!   near the south pole.
 
 use crate::batch::{map_rows, wants_f32, Data, Operand, Output};
-use crate::error::{value_err, Fault, Result, RowFault};
+use crate::error::{Fault, Result, RowFault};
 use crate::models::ball::{checked_gap, settle, Curvature};
 use crate::models::{halfspace, hyperboloid, klein, Model};
 use crate::numeric::{gap_dd, sumsq, with_scratch};
@@ -88,11 +88,11 @@ pub fn from_hub(dst: Model, k: &Curvature, p: &[f64], g: f64, out: &mut [f64]) -
 /// Batched conversion of points from `src` to `dst`.
 pub fn convert_arrays<'a>(k: Curvature, x: Data<'a>, src: Model, dst: Model) -> Result<Output> {
     let w = x.shape().last().copied().unwrap_or(0);
-    if src == Model::Hyperboloid && w < 2 {
-        return value_err(format!("x: hyperboloid points have d + 1 >= 2 coordinates (x0 first), got {w}"));
-    }
     let d = if src == Model::Hyperboloid { w.saturating_sub(1) } else { w };
     let ops = [Operand::point("x", x)];
+    if src == Model::Hyperboloid {
+        hyperboloid::check_dim(&ops)?;
+    }
     let f32_out = wants_f32(&ops);
     map_rows(
         &ops,

@@ -42,6 +42,11 @@ FUNCS = [
     ("klein.scale", gk.klein.scale, 2, RX),
     ("klein.gyration", gk.klein.gyration, 3, ABV),
 ]
+# Results beyond what float64 holds in the ball raise by default (the rim,
+# tests/python/test_rim.py); these clauses are about everything else, so such
+# rows are clipped here, quietly.
+FUNCS = [(i, f if k == ABV else functools.partial(f, on_rim="clip"), a, k) for i, f, a, k in FUNCS]
+pytestmark = pytest.mark.filterwarnings("ignore::gyrokit.poincare.RimClipWarning")
 FUNC_IDS = [f[0] for f in FUNCS]
 
 # Sanity of the table itself: the arity column must match the kinds column,
@@ -356,8 +361,15 @@ def test_float32_inputs_give_rounded_float64_result(func):
             a *= np.float32(0.999)
     out = call(func, args32)
     assert out.dtype == np.float32
-    ref = call(func, [a.astype(np.float64) for a in args32])
-    np.testing.assert_array_equal(out, ref.astype(np.float32))
+    ref = call(func, [a.astype(np.float64) for a in args32]).astype(np.float32)
+    if func[3] != ABV:
+        # Except within a few float32 ulps of the sphere, where rounding once
+        # can put the point on it (the rim, test_rim.py): there the result
+        # is the last float32 radius inside instead.
+        rim = 1 - np.sum(ref.astype(np.longdouble) ** 2, axis=-1) < 2.0**-20
+        assert np.all(np.sum(out[rim].astype(np.longdouble) ** 2, axis=-1) < 1)
+        out, ref = out[~rim], ref[~rim]
+    np.testing.assert_array_equal(out, ref)
 
 
 @pytest.mark.parametrize("func,pos", ARG_CASES)
