@@ -197,7 +197,8 @@ pub fn settle(c: &Curvature, out: &mut [f64], g: f64, f32_out: bool) -> bool {
 
 #[inline(never)]
 fn settle_near_rim(c: &Curvature, out: &mut [f64], g: f64, f32_out: bool) -> bool {
-    if !(g >= unit_roundoff(f32_out)) {
+    // (a NaN gap is no evidence of a held result either)
+    if g.is_nan() || g < unit_roundoff(f32_out) {
         return false;
     }
     round_to(out, f32_out);

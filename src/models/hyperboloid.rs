@@ -41,7 +41,7 @@ pub fn read_point(k: &Curvature, x: &[f64]) -> std::result::Result<f64, Fault> {
         return Err(Fault::BeyondRange);
     }
     let cx = (1.0 + k.kappa * ss).sqrt();
-    if !(x[0] > 0.0) {
+    if x[0] <= 0.0 {
         return Err(Fault::OffHyperboloid(f64::NAN));
     }
     let defect = (x[0] * k.sqrt_kappa - cx).abs() / cx;
