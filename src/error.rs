@@ -50,8 +50,36 @@ pub enum Fault {
     /// A hyperboloid result beyond that range.
     ResultBeyondRange,
     /// The converted point is too close to the sphere for float64 in the
-    /// target ball model (it rounds onto the sphere).
-    Unrepresentable(&'static str),
+    /// target ball model (the rim rule of `models::ball`); carries the model
+    /// name and whether the output is float32.
+    Unrepresentable(&'static str, bool),
+    /// The exact result of a ball-model operation lies closer to the sphere
+    /// than the output dtype resolves; carries the model name and whether
+    /// the output is float32.
+    BeyondBall(&'static str, bool),
+}
+
+/// What a ball model cannot hold, written once for every message about it
+/// (conversions and operations alike). A point is held when its exact
+/// radius rounds to a radius below R: float64 radii end at `1 - 2^-53` R,
+/// so points within `2^-54` R of the sphere are not. The figures are the
+/// hyperbolic distances from the origin of that limit and of the last radius
+/// (`2 artanh` in the Poincaré ball, `artanh` in the Klein ball; mpmath),
+/// and the same for float32 (`2^-24`).
+pub fn ball_range_text(model: &str, f32: bool) -> String {
+    let klein = model == "Klein";
+    let (dtype, half, far, last) = match (f32, klein) {
+        (false, false) => ("float64", "5.6e-17", "38.1", "37.4"),
+        (false, true) => ("float64", "5.6e-17", "19.1", "18.7"),
+        (true, false) => ("float32", "3.0e-8", "18.0", "17.3"),
+        (true, true) => ("float32", "3.0e-8", "9.0", "8.7"),
+    };
+    format!(
+        "{dtype} cannot hold it strictly inside the {model} ball: it lies within {half} R of the sphere \
+         (farther than {far} R from the origin), where {dtype} radii end (the last one below R is {last} R \
+         out); the hyperboloid model holds such points (gyrokit.convert(..., 'hyperboloid'), \
+         gyrokit.hyperboloid)"
+    )
 }
 
 impl Fault {
@@ -87,10 +115,12 @@ impl Fault {
             Fault::ResultBeyondRange => "gives a point beyond the hyperboloid range (|x_1..d| at most \
                  2^250, about 1.8e75), where products of coordinates overflow float64"
                 .to_string(),
-            Fault::Unrepresentable(m) => format!(
-                "cannot be represented in the {m} model in float64: its image lies within \
-                 1.1e-16 R of the sphere and rounds onto it (the Klein ball holds points up to \
-                 about 18 R from the origin, the Poincaré ball up to about 37 R)"
+            Fault::Unrepresentable(m, f32) => format!("cannot be converted: {}", ball_range_text(m, f32)),
+            Fault::BeyondBall(m, f32) => format!(
+                "gives a result beyond the range of the ball model: {}{}; on_rim='clip' clips such results to the \
+                 last radius with a warning",
+                ball_range_text(m, f32),
+                if f32 { ", and float64 inputs give float64 results, which reach twice as far" } else { "" }
             ),
             Fault::NotInHalfSpace => "has last coordinate <= 0 (outside the upper half-space)".to_string(),
         }

@@ -26,8 +26,8 @@ use crate::batch::{map_rows, scalar_core, Core, Data, Operand, Output};
 use crate::error::{Error, Fault, Result, RowFault};
 use crate::models::ball::{checked_gap, keep_inside, Curvature};
 use crate::models::klein;
-use crate::models::poincare::{pow2, scale_exponent};
 use crate::numeric::{artanh_from_gap, minor, sumsq, sumsq_dd, two_prod, DD};
+use crate::numeric::{pow2, scale_exponent};
 
 /// The speed of light in SI units (m/s), the default `c`.
 pub const SPEED_OF_LIGHT: f64 = 299_792_458.0;

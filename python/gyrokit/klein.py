@@ -5,6 +5,18 @@ Einstein addition is relativistic velocity addition in the ball of radius
 chords. Conventions and accuracy as in :mod:`gyrokit.poincare`; the Klein
 point of a Poincaré point ``p`` is ``2 ⊗ p = 2p/(1 + kappa |p|^2)``, and this
 map carries Möbius to Einstein operations exactly.
+
+The rim (representable range): float64 radii end at ``(1 - 2^-53) R``, about
+18.7 R from the origin in hyperbolic distance in the Klein ball, half the
+Poincaré figure (float32: 8.7 R). A function whose exact result lies within
+``2^-54 R`` of the sphere, farther than about 19.1 R from the origin (float32:
+9.0 R), raises ``ValueError`` naming the row by default, or with
+``on_rim="clip"`` is clipped to the last radius with a
+:class:`RimClipWarning`; the hyperboloid model holds such points. The rule is
+the one of :mod:`gyrokit.poincare` (see *the rim* there), judged on the exact
+Klein gap ``1 - |x|^2/R^2`` of the result. Functions that take ``on_rim``:
+:func:`add`, :func:`sub`, :func:`scale`, :func:`midpoint`, :func:`exp_map`,
+:func:`geodesic`.
 """
 
 from __future__ import annotations
@@ -12,14 +24,16 @@ from __future__ import annotations
 from typing import Any
 
 from . import _native
+from ._native import RimClipWarning
 
 __all__ = [
     "add", "sub", "scale", "gyration", "midpoint",
     "distance", "exp_map", "log_map", "transport", "geodesic", "project",
+    "RimClipWarning",
 ]
 
 
-def add(x: Any, y: Any, *, curvature: float = -1.0) -> Any:
+def add(x: Any, y: Any, *, curvature: float = -1.0, on_rim: str = "raise") -> Any:
     """Einstein addition ``x ⊕ y``.
 
     Signature ``(..., d), (..., d) -> (..., d)``. With ``kappa = -curvature``
@@ -29,23 +43,38 @@ def add(x: Any, y: Any, *, curvature: float = -1.0) -> Any:
 
     Evaluated without the cancellation of ``1 + kappa <x,y>`` for nearly
     opposite points near the boundary.
+
+    Range: a result farther than about 19.1 R from the origin (9.0 R for
+    float32 results) raises ``ValueError`` naming the row, or with
+    ``on_rim="clip"`` is clipped to the last radius with a
+    :class:`RimClipWarning`; see *the rim* in the module notes.
     """
-    return _native.klein_add(x, y, curvature)
+    return _native.klein_add(x, y, curvature, on_rim)
 
 
-def sub(x: Any, y: Any, *, curvature: float = -1.0) -> Any:
-    """Einstein subtraction ``x ⊖ y = x ⊕ (-y)``; signature ``(..., d), (..., d) -> (..., d)``."""
-    return _native.klein_sub(x, y, curvature)
+def sub(x: Any, y: Any, *, curvature: float = -1.0, on_rim: str = "raise") -> Any:
+    """Einstein subtraction ``x ⊖ y = x ⊕ (-y)``; signature ``(..., d), (..., d) -> (..., d)``.
+
+    Range: a result farther than about 19.1 R from the origin (9.0 R for
+    float32 results) raises ``ValueError`` naming the row, or with
+    ``on_rim="clip"`` is clipped to the last radius with a
+    :class:`RimClipWarning`; see *the rim* in the module notes.
+    """
+    return _native.klein_sub(x, y, curvature, on_rim)
 
 
-def scale(r: Any, x: Any, *, curvature: float = -1.0) -> Any:
+def scale(r: Any, x: Any, *, curvature: float = -1.0, on_rim: str = "raise") -> Any:
     """Einstein scalar multiplication ``r ⊗ x = R tanh(r artanh(|x|/R)) x/|x|``.
 
     Signature ``(...), (..., d) -> (..., d)``; ``r`` broadcasts against
-    ``x[..., 0]``. Results with ``1 - |x|/R < 1.1e-16`` round onto the sphere
-    (not representable in float64).
+    ``x[..., 0]``.
+
+    Range: a result farther than about 19.1 R from the origin (9.0 R for
+    float32 results) raises ``ValueError`` naming the row, or with
+    ``on_rim="clip"`` is clipped to the last radius with a
+    :class:`RimClipWarning`; see *the rim* in the module notes.
     """
-    return _native.klein_scale(r, x, curvature)
+    return _native.klein_scale(r, x, curvature, on_rim)
 
 
 def gyration(a: Any, b: Any, v: Any, *, curvature: float = -1.0) -> Any:
@@ -58,13 +87,18 @@ def gyration(a: Any, b: Any, v: Any, *, curvature: float = -1.0) -> Any:
     return _native.klein_gyration(a, b, v, curvature)
 
 
-def midpoint(x: Any, y: Any, *, curvature: float = -1.0) -> Any:
+def midpoint(x: Any, y: Any, *, curvature: float = -1.0, on_rim: str = "raise") -> Any:
     """The Einstein midpoint ``(γ_x x + γ_y y)/(γ_x + γ_y)``.
 
     Signature ``(..., d), (..., d) -> (..., d)``. It is the Klein image of the
     Möbius gyromidpoint of the Poincaré images, the geodesic midpoint.
+
+    Range: never farther out than the farther input; a result farther than
+    about 19.1 R from the origin (9.0 R for float32 results) raises ``ValueError`` naming the row, or with
+    ``on_rim="clip"`` is clipped to the last radius with a
+    :class:`RimClipWarning`; see *the rim* in the module notes.
     """
-    return _native.klein_midpoint(x, y, curvature)
+    return _native.klein_midpoint(x, y, curvature, on_rim)
 
 
 def distance(x: Any, y: Any, *, curvature: float = -1.0) -> Any:
@@ -76,7 +110,7 @@ def distance(x: Any, y: Any, *, curvature: float = -1.0) -> Any:
     return _native.klein_distance(x, y, curvature)
 
 
-def exp_map(v: Any, base: Any = None, *, curvature: float = -1.0) -> Any:
+def exp_map(v: Any, base: Any = None, *, curvature: float = -1.0, on_rim: str = "raise") -> Any:
     """Exponential map at ``base`` (origin when None) in the Klein ball.
 
     Signature ``(..., d), (..., d) -> (..., d)``. Tangent vectors are ambient
@@ -89,11 +123,14 @@ def exp_map(v: Any, base: Any = None, *, curvature: float = -1.0) -> Any:
     (``A B = R^2 - |x|^2``, the smaller one taken from the product).
 
     Accuracy: <= 1e-15 relative (measured against 50-digit mpmath) for points
-    down to 1e-15 R from the sphere and tangents up to 30 R. Results closer
-    to the sphere than float64 can resolve (tangents beyond ~18 R from the
-    origin) are placed at the largest float64 radius inside the ball.
+    down to 1e-15 R from the sphere and tangents up to 30 R.
+
+    Range: a result farther than about 19.1 R from the origin (9.0 R for
+    float32 results) raises ``ValueError`` naming the row, or with
+    ``on_rim="clip"`` is clipped to the last radius with a
+    :class:`RimClipWarning`; see *the rim* in the module notes.
     """
-    return _native.klein_exp_map(v, base, curvature)
+    return _native.klein_exp_map(v, base, curvature, on_rim)
 
 
 def log_map(y: Any, base: Any = None, *, curvature: float = -1.0) -> Any:
@@ -124,12 +161,18 @@ def transport(v: Any, start: Any, end: Any, *, curvature: float = -1.0) -> Any:
     return _native.klein_transport(v, start, end, curvature)
 
 
-def geodesic(x: Any, y: Any, t: Any, *, curvature: float = -1.0) -> Any:
+def geodesic(x: Any, y: Any, t: Any, *, curvature: float = -1.0, on_rim: str = "raise") -> Any:
     """The point at fraction ``t`` of the geodesic (a straight chord) from ``x`` to ``y``.
 
     Signature ``(..., d), (..., d), (...) -> (..., d)``.
+
+    Range: for ``t`` in [0, 1] never farther out than the farther input; a
+    result farther than about 19.1 R from the origin (9.0 R for float32
+    results) raises ``ValueError`` naming the row, or with
+    ``on_rim="clip"`` is clipped to the last radius with a
+    :class:`RimClipWarning`; see *the rim* in the module notes.
     """
-    return _native.klein_geodesic(x, y, t, curvature)
+    return _native.klein_geodesic(x, y, t, curvature, on_rim)
 
 
 def project(x: Any, margin: float = 1e-12, *, curvature: float = -1.0) -> Any:

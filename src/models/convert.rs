@@ -15,12 +15,11 @@
 //!   where `1 + sqrt(kappa) p_d = (g + kappa |p'|^2)/(1 - sqrt(kappa) p_d)`
 //!   near the south pole.
 
-use crate::batch::{map_rows, Data, Operand, Output};
-use crate::error::{value_err, Fault, Result, RowFault};
-use crate::models::ball::{checked_gap, Curvature};
-use crate::models::poincare::with_scratch;
-use crate::models::{halfspace, hyperboloid, Model};
-use crate::numeric::{gap_dd, sumsq};
+use crate::batch::{map_rows, wants_f32, Data, Operand, Output};
+use crate::error::{Fault, Result, RowFault};
+use crate::models::ball::{checked_gap, settle, Curvature};
+use crate::models::{halfspace, hyperboloid, klein, Model};
+use crate::numeric::{gap_dd, sumsq, with_scratch};
 
 /// Reads a point of `src` into the hub: writes `p` (length d) and returns
 /// the gap.
@@ -32,13 +31,7 @@ pub fn to_hub(src: Model, k: &Curvature, x: &[f64], p: &mut [f64]) -> std::resul
             p.copy_from_slice(x);
             Ok(g)
         }
-        Model::Klein => {
-            let a = checked_gap(k, x)?.value().sqrt();
-            for (o, &v) in p.iter_mut().zip(x) {
-                *o = v / (1.0 + a);
-            }
-            Ok(2.0 * a / (1.0 + a))
-        }
+        Model::Klein => Ok(klein::to_poincare(x, checked_gap(k, x)?.value(), p)),
         Model::Hyperboloid => {
             let c = hyperboloid::read_point(k, x)?;
             for (o, &v) in p.iter_mut().zip(&x[1..]) {
@@ -61,17 +54,16 @@ pub fn to_hub(src: Model, k: &Curvature, x: &[f64], p: &mut [f64]) -> std::resul
     }
 }
 
-/// Writes the hub point `(p, g)` in `dst` coordinates.
+/// Writes the hub point `(p, g)` in `dst` coordinates. Returns the exact
+/// gap of the result in the ball models (1 for the others).
 #[inline(always)]
-pub fn from_hub(dst: Model, k: &Curvature, p: &[f64], g: f64, out: &mut [f64]) {
+pub fn from_hub(dst: Model, k: &Curvature, p: &[f64], g: f64, out: &mut [f64]) -> f64 {
     match dst {
-        Model::Poincare => out.copy_from_slice(p),
-        Model::Klein => {
-            let f = 2.0 / (2.0 - g);
-            for (o, &v) in out.iter_mut().zip(p) {
-                *o = f * v;
-            }
+        Model::Poincare => {
+            out.copy_from_slice(p);
+            return g;
         }
+        Model::Klein => return klein::from_poincare(p, g, out),
         Model::Hyperboloid => {
             out[0] = k.radius * (2.0 - g) / g;
             for (o, &v) in out[1..].iter_mut().zip(p) {
@@ -90,16 +82,18 @@ pub fn from_hub(dst: Model, k: &Curvature, p: &[f64], g: f64, out: &mut [f64]) {
             out[n] = k.radius * g / e;
         }
     }
+    1.0
 }
 
 /// Batched conversion of points from `src` to `dst`.
 pub fn convert_arrays<'a>(k: Curvature, x: Data<'a>, src: Model, dst: Model) -> Result<Output> {
     let w = x.shape().last().copied().unwrap_or(0);
-    if src == Model::Hyperboloid && w < 2 {
-        return value_err(format!("x: hyperboloid points have d + 1 >= 2 coordinates (x0 first), got {w}"));
-    }
     let d = if src == Model::Hyperboloid { w.saturating_sub(1) } else { w };
     let ops = [Operand::point("x", x)];
+    if src == Model::Hyperboloid {
+        hyperboloid::check_dim(&ops)?;
+    }
+    let f32_out = wants_f32(&ops);
     map_rows(
         &ops,
         &|_| vec![dst.width(d)],
@@ -113,14 +107,15 @@ pub fn convert_arrays<'a>(k: Curvature, x: Data<'a>, src: Model, dst: Model) -> 
                     let g = to_hub(src, &k, r[0], p).map_err(|f| RowFault::new(0, f))?;
                     if src == dst {
                         out.copy_from_slice(r[0]);
-                    } else {
-                        from_hub(dst, &k, p, g, out);
+                        return Ok(());
                     }
+                    let g_out = from_hub(dst, &k, p, g, out);
                     match dst {
                         Model::Poincare | Model::Klein => {
-                            if gap_dd(k.kappa, out).hi <= 0.0 {
+                            // the rim rule of ball.rs, with no opt-in to clip
+                            if !settle(&k, out, g_out, f32_out) {
                                 let name = if dst == Model::Klein { "Klein" } else { "Poincaré" };
-                                return Err(RowFault::new(0, Fault::Unrepresentable(name)));
+                                return Err(RowFault::new(0, Fault::Unrepresentable(name, f32_out)));
                             }
                         }
                         _ => {

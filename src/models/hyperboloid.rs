@@ -11,12 +11,11 @@
 
 use crate::batch::{finite_scalar, map_rows, point_core, scalar_core, Data, Operand, Output};
 use crate::error::{Fault, Result, RowFault};
-use crate::models::ball::Curvature;
+use crate::models::ball::{finite_row, Curvature};
 use crate::models::klein::chord_ends;
-use crate::models::poincare::with_scratch;
 use crate::numeric::{
     diff_of_squares, distance_from_half_delta, dot2, dot_dd, geodesic_weights, perp_scaled, sumsq, two_prod, wedge_dot,
-    wedge_sq, DD,
+    wedge_sq, with_scratch, DD,
 };
 
 /// Relative tolerance on x0 when reading a point (loose enough for float32
@@ -42,7 +41,7 @@ pub fn read_point(k: &Curvature, x: &[f64]) -> std::result::Result<f64, Fault> {
         return Err(Fault::BeyondRange);
     }
     let cx = (1.0 + k.kappa * ss).sqrt();
-    if !(x[0] > 0.0) {
+    if x[0] <= 0.0 {
         return Err(Fault::OffHyperboloid(f64::NAN));
     }
     let defect = (x[0] * k.sqrt_kappa - cx).abs() / cx;
@@ -227,13 +226,14 @@ pub fn inner(u: &[f64], v: &[f64]) -> f64 {
 
 // ---------------------------------------------------------------- batched
 
-macro_rules! point_of {
-    ($k:expr, $row:expr, $arg:expr) => {
-        read_point($k, $row).map_err(|f| RowFault::new($arg, f))?
-    };
+/// [`read_point`] for operand number `arg` of a row kernel.
+#[inline(always)]
+fn read_row(k: &Curvature, x: &[f64], arg: usize) -> std::result::Result<f64, RowFault> {
+    read_point(k, x).map_err(|f| RowFault::new(arg, f))
 }
 
-fn check_dim(ops: &[Operand]) -> Result<()> {
+/// Checks that hyperboloid operands have `d + 1 >= 2` coordinates.
+pub(crate) fn check_dim(ops: &[Operand]) -> Result<()> {
     for o in ops {
         if let Some(&n) = o.data.shape().last() {
             if n < 2 {
@@ -273,8 +273,8 @@ pub fn distance_arrays<'a>(k: Curvature, x: Data<'a>, y: Data<'a>) -> Result<Out
         20,
         #[inline(always)]
         |r, out| {
-            let cx = point_of!(&k, r[0], 0);
-            let cy = point_of!(&k, r[1], 1);
+            let cx = read_row(&k, r[0], 0)?;
+            let cy = read_row(&k, r[1], 1)?;
             out[0] = distance_s(&k, &r[0][1..], cx, &r[1][1..], cy);
             finite_out(out, 0)
         },
@@ -295,7 +295,7 @@ pub fn exp_map_arrays<'a>(k: Curvature, v: Data<'a>, base: Option<Data<'a>>) -> 
         30,
         #[inline(always)]
         |r, out| {
-            crate::models::ball::check_finite(r[0]).map_err(|f| RowFault::new(0, f))?;
+            finite_row(r[0], 0)?;
             let n = r[0].len() - 1;
             with_scratch(
                 2 * n,
@@ -303,7 +303,7 @@ pub fn exp_map_arrays<'a>(k: Curvature, v: Data<'a>, base: Option<Data<'a>>) -> 
                 |buf| {
                     let (zero, ys) = buf.split_at_mut(n);
                     let (xs, cx) = if has_base {
-                        let cx = point_of!(&k, r[1], 1);
+                        let cx = read_row(&k, r[1], 1)?;
                         (&r[1][1..], cx)
                     } else {
                         (&zero[..], 1.0)
@@ -331,14 +331,14 @@ pub fn log_map_arrays<'a>(k: Curvature, y: Data<'a>, base: Option<Data<'a>>) -> 
         30,
         #[inline(always)]
         |r, out| {
-            let cy = point_of!(&k, r[0], 0);
+            let cy = read_row(&k, r[0], 0)?;
             let n = r[0].len() - 1;
             with_scratch(
                 n,
                 #[inline(always)]
                 |zero| {
                     let (xs, cx) = if has_base {
-                        let cx = point_of!(&k, r[1], 1);
+                        let cx = read_row(&k, r[1], 1)?;
                         (&r[1][1..], cx)
                     } else {
                         (&zero[..], 1.0)
@@ -361,9 +361,9 @@ pub fn transport_arrays<'a>(k: Curvature, v: Data<'a>, start: Data<'a>, end: Dat
         40,
         #[inline(always)]
         |r, out| {
-            crate::models::ball::check_finite(r[0]).map_err(|f| RowFault::new(0, f))?;
-            let cx = point_of!(&k, r[1], 1);
-            let cy = point_of!(&k, r[2], 2);
+            finite_row(r[0], 0)?;
+            let cx = read_row(&k, r[1], 1)?;
+            let cy = read_row(&k, r[2], 2)?;
             transport_full(&k, &r[1][1..], cx, &r[2][1..], cy, &r[0][1..], out);
             finite_out(out, 0)
         },
@@ -380,8 +380,8 @@ pub fn geodesic_arrays<'a>(k: Curvature, x: Data<'a>, y: Data<'a>, t: Data<'a>) 
         30,
         #[inline(always)]
         |r, out| {
-            let cx = point_of!(&k, r[0], 0);
-            let cy = point_of!(&k, r[1], 1);
+            let cx = read_row(&k, r[0], 0)?;
+            let cy = read_row(&k, r[1], 1)?;
             let t = finite_scalar(2, r[2][0])?;
             let n = r[0].len() - 1;
             with_scratch(
@@ -408,7 +408,7 @@ pub fn project_arrays<'a>(k: Curvature, x: Data<'a>) -> Result<Output> {
         4,
         #[inline(always)]
         |r, out| {
-            crate::models::ball::check_finite(&r[0][1..]).map_err(|f| RowFault::new(0, f))?;
+            finite_row(&r[0][1..], 0)?;
             write_point(&k, &r[0][1..], out);
             finite_out(out, 0)
         },
@@ -424,8 +424,8 @@ pub fn inner_arrays<'a>(u: Data<'a>, v: Data<'a>) -> Result<Output> {
         8,
         #[inline(always)]
         |r, out| {
-            crate::models::ball::check_finite(r[0]).map_err(|f| RowFault::new(0, f))?;
-            crate::models::ball::check_finite(r[1]).map_err(|f| RowFault::new(1, f))?;
+            finite_row(r[0], 0)?;
+            finite_row(r[1], 1)?;
             out[0] = inner(r[0], r[1]);
             finite_out(out, 0)
         },

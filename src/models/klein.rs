@@ -8,13 +8,12 @@
 //! Poincaré points (Ungar's isomorphism `p -> 2 ⊗ p`); it is computed there,
 //! one formula in one place.
 
-use crate::batch::{finite_scalar, map_rows, point_core, scalar_core, Data, Operand, Output};
-use crate::error::Result;
-use crate::models::ball::{check_finite, keep_inside, Curvature};
-use crate::models::poincare::{self, gap_of, with_scratch};
+use crate::models::ball::Curvature;
+use crate::models::gyro::GyroBall;
+use crate::models::poincare;
 use crate::numeric::{
     artanh_from_gap, diff_of_squares, dist_sq, distance_from_half_delta, dot2, dot_with_sum, gap, geodesic_weights,
-    perp_scaled, sumsq,
+    perp_scaled, sumsq, with_scratch,
 };
 
 /// Einstein addition `u ⊕ (sv v)` (`sv = -1` gives `u ⊖ v`):
@@ -51,9 +50,10 @@ pub fn sub(c: &Curvature, u: &[f64], v: &[f64], out: &mut [f64]) {
     add_g(c, u, gap(c.kappa, u), v, gap(c.kappa, v), -1.0, out);
 }
 
-/// Einstein scalar multiplication; the same radial law as Möbius.
+/// Einstein scalar multiplication; the same radial law as Möbius, and the
+/// same gap of the result.
 #[inline(always)]
-pub fn scale_g(c: &Curvature, r: f64, x: &[f64], gx: f64, out: &mut [f64]) {
+pub fn scale_g(c: &Curvature, r: f64, x: &[f64], gx: f64, out: &mut [f64]) -> f64 {
     poincare::scale_g(c, r, x, gx, out)
 }
 
@@ -82,13 +82,11 @@ pub fn gyration_g(c: &Curvature, u: &[f64], gu: f64, v: &[f64], gv: f64, w: &[f6
         |buf| {
             let (pu, rest) = buf.split_at_mut(n);
             let (pv, sp) = rest.split_at_mut(n);
+            let gpu = to_poincare(u, gu, pu);
+            let gpv = to_poincare(v, gv, pv);
             for i in 0..n {
-                pu[i] = u[i] / (1.0 + au);
-                pv[i] = v[i] / (1.0 + av);
                 sp[i] = ((1.0 + av) * (u[i] + v[i]) - cv * v[i]) * q;
             }
-            let gpu = 2.0 * au / (1.0 + au);
-            let gpv = 2.0 * av / (1.0 + av);
             poincare::gyration_s(c, pu, gpu, pv, gpv, sp, w, out);
         },
     )
@@ -102,9 +100,12 @@ pub fn gyration(c: &Curvature, u: &[f64], v: &[f64], w: &[f64], out: &mut [f64])
 /// The Einstein midpoint `(γ_a a + γ_b b)/(γ_a + γ_b)` of two points,
 /// rewritten through `s = a + b` and `sqrt(g_b) - sqrt(g_a) = kappa (|a|^2 -
 /// |b|^2)/(sqrt(g_a) + sqrt(g_b))` so that nearly opposite points near the
-/// boundary keep their digits.
+/// boundary keep their digits. Returns the gap of the result,
+/// `2 sqrt(g_a g_b) E / (sqrt g_a + sqrt g_b)^2` with
+/// `E = sqrt(g_a g_b) + 1 - kappa a.b` (`-<z, z>/z0^2` for the hyperboloid
+/// sum `z = a_H + b_H`), a sum of non-negative terms.
 #[inline(always)]
-pub fn midpoint_g(c: &Curvature, a: &[f64], ga: f64, b: &[f64], gb: f64, out: &mut [f64]) {
+pub fn midpoint_g(c: &Curvature, a: &[f64], ga: f64, b: &[f64], gb: f64, out: &mut [f64]) -> f64 {
     let k = c.kappa;
     let ra = ga.sqrt();
     let rb = gb.sqrt();
@@ -115,6 +116,7 @@ pub fn midpoint_g(c: &Curvature, a: &[f64], ga: f64, b: &[f64], gb: f64, out: &m
     for i in 0..a.len() {
         out[i] = ca * a[i] + cs * (a[i] + b[i]);
     }
+    2.0 * ra * rb * one_minus_dot(c, a, ga, b, gb) / (t * t)
 }
 
 /// The Einstein midpoint of `a` and `b`.
@@ -122,10 +124,12 @@ pub fn midpoint(c: &Curvature, a: &[f64], b: &[f64], out: &mut [f64]) {
     midpoint_g(c, a, gap(c.kappa, a), b, gap(c.kappa, b), out);
 }
 
-/// `|u|/R` for a Klein point, for callers that need the rapidity.
+/// `E = sqrt(g_x g_y) + 1 - kappa x.y` as a sum of non-negative terms,
+/// `1 - kappa x.y = (g_x + g_y)/2 + kappa |x - y|^2/2` (no cancellation for
+/// nearly equal points near the sphere).
 #[inline(always)]
-pub fn speed_ratio(c: &Curvature, u: &[f64]) -> f64 {
-    (c.kappa * sumsq(u)).sqrt()
+fn one_minus_dot(c: &Curvature, x: &[f64], gx: f64, y: &[f64], gy: f64) -> f64 {
+    (gx * gy).sqrt() + 0.5 * (gx + gy) + 0.5 * c.kappa * dist_sq(x, y)
 }
 
 // ------------------------------------------------------- model layer
@@ -143,20 +147,37 @@ pub fn distance_g(c: &Curvature, k: &[f64], gk: f64, l: &[f64], gl: f64) -> f64 
     distance_from_half_delta(c.radius, half_delta)
 }
 
-/// Hyperbolic distance between two Klein points.
-pub fn distance(c: &Curvature, k: &[f64], l: &[f64]) -> f64 {
-    distance_g(c, k, gap(c.kappa, k), l, gap(c.kappa, l))
-}
-
 /// The Poincaré point of a Klein point, `p = k/(1 + a)`, and its exact gap
-/// `2a/(1 + a)` (`a = sqrt(g_k)`).
+/// `2a/(1 + a)` (`a = sqrt(g_k)`): the one map into the Poincaré ball (the
+/// conversions, the gyration and the log map use it).
 #[inline(always)]
-fn to_poincare(k: &[f64], gk: f64, p: &mut [f64]) -> f64 {
+pub fn to_poincare(k: &[f64], gk: f64, p: &mut [f64]) -> f64 {
     let a = gk.sqrt();
     for (o, &v) in p.iter_mut().zip(k) {
         *o = v / (1.0 + a);
     }
+    poincare_gap(gk)
+}
+
+/// The gap `2a/(1 + a)` (`a = sqrt(g_k)`) of the Poincaré image of a Klein
+/// point of gap `gk`, alone.
+#[inline(always)]
+pub fn poincare_gap(gk: f64) -> f64 {
+    let a = gk.sqrt();
     2.0 * a / (1.0 + a)
+}
+
+/// The Klein point of a Poincaré point of gap `gp`, `k = 2p/(2 - g_p)`
+/// (Ungar's `2 ⊗ p`), and its exact gap `(g_p/(2 - g_p))^2`: the one map out
+/// of the Poincaré ball.
+#[inline(always)]
+pub fn from_poincare(p: &[f64], gp: f64, k: &mut [f64]) -> f64 {
+    let f = 2.0 / (2.0 - gp);
+    for (o, &v) in k.iter_mut().zip(p) {
+        *o = f * v;
+    }
+    let q = gp / (2.0 - gp);
+    q * q
 }
 
 /// `p_x - p_y` for the Poincaré images of two Klein points, from the inputs:
@@ -195,14 +216,16 @@ pub(crate) fn chord_ends(kv: f64, r2g: f64) -> (f64, f64) {
 /// the distance gives `t = A B (1 - e^{-2D}) / (A e^{-2D} + B)`, a product
 /// of accurate factors. Only the input direction enters, never a rounded
 /// intermediate point near the sphere (the route through the Poincaré ball
-/// rounds the image of `x` and loses ~1e-10 for 30 R tangents).
+/// rounds the image of `x` and loses ~1e-10 for 30 R tangents). Returns
+/// the gap of the result: `1 - kappa |x + tau u|^2 = kappa (A - tau)(B + tau)`
+/// on the chord, so `g = kappa A B e^{-2D} (A + B)^2 / (A e^{-2D} + B)^2`.
 #[inline(always)]
-pub fn exp_map_g(c: &Curvature, x: &[f64], gx: f64, v: &[f64], out: &mut [f64]) {
+pub fn exp_map_g(c: &Curvature, x: &[f64], gx: f64, v: &[f64], out: &mut [f64]) -> f64 {
     let k = c.kappa;
     let vv = sumsq(v);
     if vv == 0.0 {
         out.copy_from_slice(x);
-        return;
+        return gx;
     }
     let nv = vv.sqrt();
     let xv = dot2(x, v);
@@ -211,11 +234,14 @@ pub fn exp_map_g(c: &Curvature, x: &[f64], gx: f64, v: &[f64], out: &mut [f64]) 
     let big_d = (k * vv / gx + q * q).sqrt();
     let (a, b) = chord_ends(xv / nv, gx / k);
     let em = (-2.0 * big_d).exp();
-    let t = a * b * -(-2.0 * big_d).exp_m1() / (a * em + b);
+    let den = a * em + b;
+    let t = a * b * -(-2.0 * big_d).exp_m1() / den;
     let f = t / nv;
     for i in 0..x.len() {
         out[i] = x[i] + f * v[i];
     }
+    let ab = (a + b) / den;
+    k * a * b * em * ab * ab
 }
 
 /// `log_x(y)`, computed in the Poincaré ball with the pair's difference
@@ -233,9 +259,9 @@ pub fn log_map_g(c: &Curvature, x: &[f64], gx: f64, y: &[f64], gy: f64, out: &mu
             let (s, w) = rest.split_at_mut(n);
             let gp = to_poincare(x, gx, p);
             let a = gy.sqrt();
-            let gq = 2.0 * a / (1.0 + a);
-            poincare_difference(c, x, gx, y, gy, s); // p - q
-                                                     // p ⊖ q from s = p - q (Möbius form with s given), its gap exact.
+            let gq = poincare_gap(gy);
+            // s = p - q, then p ⊖ q from it (Möbius form with s given), its gap exact
+            poincare_difference(c, x, gx, y, gy, s);
             let ss = sumsq(s);
             let den = gp * gq + k * ss;
             for i in 0..n {
@@ -333,8 +359,7 @@ pub fn transport_g(c: &Curvature, x: &[f64], gx: f64, y: &[f64], gy: f64, v: &[f
     let n = x.len();
     let k = c.kappa;
     let (ax, ay) = (gx.sqrt(), gy.sqrt());
-    // 1 - kappa x.y = (g_x + g_y)/2 + kappa |x - y|^2/2
-    let e = ax * ay + 0.5 * (gx + gy) + 0.5 * k * dist_sq(x, y);
+    let e = one_minus_dot(c, x, gx, y, gy);
     let mu = (ax + ay) / (ax * e);
     let s = ay / ax;
     if gy * sumsq(x) >= gx * sumsq(y) {
@@ -375,9 +400,10 @@ pub fn transport_g(c: &Curvature, x: &[f64], gx: f64, y: &[f64], gy: f64, v: &[f
 /// The point at fraction `t` of the geodesic (a straight chord) from `x` to
 /// `y`, in closed form through the hyperboloid (`x_H = (R, x)/sqrt(g_x)`):
 /// `(a sqrt(g_y) x + b sqrt(g_x) y) / (a sqrt(g_y) + b sqrt(g_x))` with the
-/// geodesic weights `(a, b)` of `D = d(x, y)/R`.
+/// geodesic weights `(a, b)` of `D = d(x, y)/R`. Returns the gap of the
+/// result, `g_x g_y / den^2` (`1/z0^2` for the hyperboloid point `z = a x_H + b y_H`).
 #[inline(always)]
-pub fn geodesic_g(c: &Curvature, x: &[f64], gx: f64, y: &[f64], gy: f64, t: f64, out: &mut [f64]) {
+pub fn geodesic_g(c: &Curvature, x: &[f64], gx: f64, y: &[f64], gy: f64, t: f64, out: &mut [f64]) -> f64 {
     let big_d = distance_g(c, x, gx, y, gy) * c.sqrt_kappa;
     let (a, b) = geodesic_weights(t, big_d);
     let (ca, cb) = (a * gy.sqrt(), b * gx.sqrt());
@@ -386,16 +412,55 @@ pub fn geodesic_g(c: &Curvature, x: &[f64], gx: f64, y: &[f64], gy: f64, t: f64,
     for i in 0..x.len() {
         out[i] = fa * x[i] + fb * y[i];
     }
+    gx * gy / (den * den)
 }
 
 // ---------------------------------------------------------------- batched
 
-poincare::ball_batched!();
+/// The Einstein gyrovector space of the Klein ball, for the batched forms
+/// of [`gyro`](crate::models::gyro) (`gyro::add_arrays::<Einstein>`, ...).
+#[derive(Clone, Copy, Debug)]
+pub struct Einstein;
 
-/// Batched projection into the ball of radius `(1 - margin) R` (the same
-/// repair as in the Poincaré ball: both models share the ball).
-pub fn project_arrays<'a>(c: Curvature, x: Data<'a>, margin: f64) -> Result<Output> {
-    poincare::project_arrays(c, x, margin)
+impl GyroBall for Einstein {
+    const NAME: &'static str = "Klein";
+
+    #[inline(always)]
+    fn add_g(c: &Curvature, x: &[f64], gx: f64, y: &[f64], gy: f64, sy: f64, out: &mut [f64]) -> f64 {
+        add_g(c, x, gx, y, gy, sy, out)
+    }
+    #[inline(always)]
+    fn scale_g(c: &Curvature, r: f64, x: &[f64], gx: f64, out: &mut [f64]) -> f64 {
+        scale_g(c, r, x, gx, out)
+    }
+    #[inline(always)]
+    fn gyration_g(c: &Curvature, u: &[f64], gu: f64, v: &[f64], gv: f64, w: &[f64], out: &mut [f64]) {
+        gyration_g(c, u, gu, v, gv, w, out)
+    }
+    #[inline(always)]
+    fn midpoint_g(c: &Curvature, a: &[f64], ga: f64, b: &[f64], gb: f64, out: &mut [f64]) -> f64 {
+        midpoint_g(c, a, ga, b, gb, out)
+    }
+    #[inline(always)]
+    fn distance_g(c: &Curvature, x: &[f64], gx: f64, y: &[f64], gy: f64) -> f64 {
+        distance_g(c, x, gx, y, gy)
+    }
+    #[inline(always)]
+    fn exp_map_g(c: &Curvature, x: &[f64], gx: f64, v: &[f64], out: &mut [f64]) -> f64 {
+        exp_map_g(c, x, gx, v, out)
+    }
+    #[inline(always)]
+    fn log_map_g(c: &Curvature, x: &[f64], gx: f64, y: &[f64], gy: f64, out: &mut [f64]) {
+        log_map_g(c, x, gx, y, gy, out)
+    }
+    #[inline(always)]
+    fn transport_g(c: &Curvature, x: &[f64], gx: f64, y: &[f64], gy: f64, v: &[f64], out: &mut [f64]) {
+        transport_g(c, x, gx, y, gy, v, out)
+    }
+    #[inline(always)]
+    fn geodesic_g(c: &Curvature, x: &[f64], gx: f64, y: &[f64], gy: f64, t: f64, out: &mut [f64]) -> f64 {
+        geodesic_g(c, x, gx, y, gy, t, out)
+    }
 }
 
 #[cfg(test)]
@@ -448,9 +513,7 @@ mod tests {
         let gp = to_poincare(&x, gx, &mut p);
         tangent_to_poincare(&c, &x, gx, &v, &mut dp);
         let gq = poincare::exp_map_g(&c, &p, gp, &dp, &mut q);
-        for i in 0..3 {
-            want[i] = 2.0 * q[i] / (2.0 - gq);
-        }
+        from_poincare(&q, gq, &mut want);
         let mut got = [0.0; 3];
         exp_map_g(&c, &x, gx, &v, &mut got);
         assert!(rel(&got, &want) < 1e-14, "{got:?} vs {want:?}");

@@ -1,10 +1,12 @@
-//! The four models of hyperbolic space and what they share: the curvature
-//! and ball-point validation (`ball`), one module per model with its
-//! per-point kernels and batched forms, and the conversions through the hub
-//! (`convert`).
+//! The four models of hyperbolic space and what they share: the curvature,
+//! ball-point validation, the rim rule and projection (`ball`), the
+//! interface of the two gyrovector ball models with their batched forms
+//! written once (`gyro`), one module per model with its own kernels, and the
+//! conversions through the hub (`convert`).
 
 pub mod ball;
 pub mod convert;
+pub mod gyro;
 pub mod halfspace;
 pub mod hyperboloid;
 pub mod klein;

@@ -8,12 +8,13 @@
 //! operations and by the Klein model), a per-point convenience form, and a
 //! batched form over arrays.
 
-use crate::batch::{finite_scalar, map_rows, map_rows_with, point_core, scalar_core, Data, Operand, Output};
-use crate::error::{Result, RowFault};
-use crate::models::ball::{check_finite, keep_inside, Curvature};
+use crate::batch::{map_rows, map_rows_with, point_core, wants_f32, Data, Operand, Output};
+use crate::error::Result;
+use crate::models::ball::{point_gap, Curvature, Rim};
+use crate::models::gyro::{self, GyroBall};
 use crate::numeric::{
-    artanh_from_gap, diff_of_squares, dist_sq, distance_from_half_delta, dot2, gap, gap_dd, geodesic_weights,
-    radial_scale_factor, sumsq,
+    artanh_from_gap, diff_of_squares, dist_sq, distance_from_half_delta, dot2, gap, geodesic_weights, pow2,
+    radial_scale_factor, scale_exponent, sech2, sumsq, with_scratch,
 };
 
 /// `x ⊕ (sy y)` (Möbius addition; `sy = -1` gives `x ⊖ y`). Returns the gap
@@ -54,16 +55,20 @@ pub fn sub(c: &Curvature, x: &[f64], y: &[f64], out: &mut [f64]) {
 /// `kappa (|x|^2 - |y|^2) x + g_x s` with `|x|^2 - |y|^2 = (x - y).(x + y)`
 /// formed error-free: when both points are near the boundary the
 /// denominator is tiny and the numerator must carry all its digits.
+/// Returns the gap of the result, `g_x g_y (g_x g_y + kappa |x - y|^2) / E^2`
+/// (`x ⊞ y = 2 ⊗ m` for the midpoint `m`, see [`midpoint_g`]).
 #[inline(always)]
-pub fn coadd_g(c: &Curvature, x: &[f64], gx: f64, y: &[f64], gy: f64, out: &mut [f64]) {
+pub fn coadd_g(c: &Curvature, x: &[f64], gx: f64, y: &[f64], gy: f64, out: &mut [f64]) -> f64 {
     let k = c.kappa;
     let ds = diff_of_squares(x, y, 1.0);
-    let e = gx + gy - gx * gy;
+    let p = gx * gy;
+    let e = gx + gy - p;
     let a = k * ds / e;
     let b = gx / e;
     for i in 0..x.len() {
         out[i] = a * x[i] + b * (x[i] + y[i]);
     }
+    p * (p + k * dist_sq(x, y)) / (e * e)
 }
 
 /// Möbius coaddition `x ⊞ y`.
@@ -73,14 +78,19 @@ pub fn coadd(c: &Curvature, x: &[f64], y: &[f64], out: &mut [f64]) {
 
 /// Möbius scalar multiplication `r ⊗ x = R tanh(r artanh(|x|/R)) x/|x|`,
 /// with `artanh` taken from the gap (no `1 - |x|/R`). Returns the gap of the
-/// result. Results farther than about 18.4 R from the origin round onto the
-/// sphere in float64 (1 - |r ⊗ x|/R < 1.1e-16 is not representable).
+/// result, `sech^2(r artanh t)` (`t = |x|/R`): the Einstein scalar
+/// multiplication has the same radial law, and the same gap.
 #[inline(always)]
-pub fn scale_g(c: &Curvature, r: f64, x: &[f64], gx: f64, out: &mut [f64]) {
+pub fn scale_g(c: &Curvature, r: f64, x: &[f64], gx: f64, out: &mut [f64]) -> f64 {
     let t = (c.kappa * sumsq(x)).sqrt();
     let f = radial_scale_factor(r, t, gx);
     for i in 0..x.len() {
         out[i] = f * x[i];
+    }
+    if t == 0.0 {
+        1.0
+    } else {
+        sech2(r * artanh_from_gap(t, gx))
     }
 }
 
@@ -126,45 +136,6 @@ pub fn gyration_s(c: &Curvature, u: &[f64], gu: f64, v: &[f64], gv: f64, s: &[f6
     );
 }
 
-/// The exponent `e` with `max |w_i| / 2^e` in [0.5, 1) when `w` is very
-/// large or very small, else 0 (no scaling for ordinary vectors).
-#[inline(always)]
-pub(crate) fn scale_exponent(w: &[f64]) -> i32 {
-    let m = w.iter().fold(0.0f64, |a, &b| a.max(b.abs()));
-    if (1e-150..=1e150).contains(&m) || m == 0.0 {
-        0
-    } else {
-        // frexp: m = f 2^e with f in [0.5, 1).
-        let bits = m.to_bits();
-        let raw = ((bits >> 52) & 0x7ff) as i32;
-        if raw == 0 {
-            // subnormal
-            -1021 - (m.to_bits().leading_zeros() as i32 - 12)
-        } else {
-            raw - 1022
-        }
-    }
-}
-
-/// The exponent `e` with `m / 2^e` in [0.5, 1) for finite `m > 0`.
-#[inline(always)]
-pub(crate) fn scale_exponent_of(m: f64) -> i32 {
-    let bits = m.to_bits();
-    let raw = ((bits >> 52) & 0x7ff) as i32;
-    if raw == 0 {
-        -1021 - (bits.leading_zeros() as i32 - 12)
-    } else {
-        raw - 1022
-    }
-}
-
-/// `2^e` exactly, for |e| <= 1022.
-#[inline(always)]
-pub(crate) fn pow2(e: i32) -> f64 {
-    let e = e.clamp(-1022, 1023);
-    f64::from_bits(((e + 1023) as u64) << 52)
-}
-
 /// `gyr[u, v] w` for points `u`, `v` with gaps `gu`, `gv`.
 #[inline(always)]
 pub fn gyration_g(c: &Curvature, u: &[f64], gu: f64, v: &[f64], gv: f64, w: &[f64], out: &mut [f64]) {
@@ -190,9 +161,11 @@ pub fn gyration(c: &Curvature, u: &[f64], v: &[f64], w: &[f64], out: &mut [f64])
 /// `(kappa (|a|^2 - |b|^2) a + g_a s) / (E + sqrt(g_a g_b (g_a g_b + kappa |a - b|^2)))`,
 /// `E = g_a + g_b - g_a g_b`. The square root is the exact gap of `a ⊞ b`
 /// times `E` (from `1 + cosh d(a, b)`), so no gap is recomputed from rounded
-/// coordinates.
+/// coordinates. Returns the gap of the result, `2 sqrt(g_a g_b (g_a g_b +
+/// kappa |a - b|^2)) / den` (the gap `2 s/(1 + s)` of `½ ⊗ z` for `z` of gap
+/// `s^2`).
 #[inline(always)]
-pub fn midpoint_g(c: &Curvature, a: &[f64], ga: f64, b: &[f64], gb: f64, out: &mut [f64]) {
+pub fn midpoint_g(c: &Curvature, a: &[f64], ga: f64, b: &[f64], gb: f64, out: &mut [f64]) -> f64 {
     let k = c.kappa;
     let ds = diff_of_squares(a, b, 1.0);
     let mut dab = 0.0;
@@ -208,12 +181,14 @@ pub fn midpoint_g(c: &Curvature, a: &[f64], ga: f64, b: &[f64], gb: f64, out: &m
     );
     let p = ga * gb;
     let e = ga + gb - p;
-    let den = e + (p * (p + k * dab)).sqrt();
+    let root = (p * (p + k * dab)).sqrt();
+    let den = e + root;
     let ca = k * ds / den;
     let cs = ga / den;
     for i in 0..a.len() {
         out[i] = ca * a[i] + cs * (a[i] + b[i]);
     }
+    2.0 * root / den
 }
 
 /// The Möbius gyromidpoint of `a` and `b`.
@@ -232,11 +207,6 @@ pub fn distance_g(c: &Curvature, x: &[f64], gx: f64, y: &[f64], gy: f64) -> f64 
     distance_from_half_delta(c.radius, c.kappa * dist_sq(x, y) / (gx * gy))
 }
 
-/// Hyperbolic distance between two ball points.
-pub fn distance(c: &Curvature, x: &[f64], y: &[f64]) -> f64 {
-    distance_g(c, x, gap(c.kappa, x), y, gap(c.kappa, y))
-}
-
 /// The exponential map `exp_x(v)`, through the ideal endpoint of the
 /// geodesic instead of `x ⊕ tanh(sqrt(kappa)|v|/g_x) v/(sqrt(kappa)|v|)`
 /// (that composition rounds a point within e^{-2s} of the sphere and then
@@ -249,7 +219,8 @@ pub fn distance(c: &Curvature, x: &[f64], y: &[f64]) -> f64 {
 /// with `σ = p + v/|v|` and `s = 2 sqrt(kappa) |v| / g`. `σ` cancels when `v`
 /// points back through the origin, so it is formed in double-double from
 /// the inputs (`(sqrt(kappa) |v| x + v) / |v|`). Every other term is a sum
-/// of non-negative parts.
+/// of non-negative parts. Returns the gap of the result, `2 g_x / den`
+/// (`2/(1 + y0)` for the hyperboloid image `y0 = e^{-s} x0 + sinh(s) l0`).
 #[inline(always)]
 pub fn exp_map_g(c: &Curvature, x: &[f64], gx: f64, v: &[f64], out: &mut [f64]) -> f64 {
     use crate::numeric::{sumsq_dd, DD};
@@ -285,9 +256,7 @@ pub fn exp_map_g(c: &Curvature, x: &[f64], gx: f64, v: &[f64], out: &mut [f64]) 
         // unit-ball result, then back to radius R
         out[i] = (cp * (sk * x[i]) + gx * out[i]) / den / sk;
     }
-    // gap of the result, for callers that chain (recomputed: the result is
-    // a fresh point whose coordinates are final)
-    crate::numeric::gap(c.kappa, out)
+    2.0 * gx * inv_sh / den
 }
 
 /// The logarithmic map `log_x(y) = g_x artanh(sqrt(kappa)|u|) u / (sqrt(kappa)|u|)`,
@@ -335,8 +304,10 @@ pub fn transport_g(c: &Curvature, x: &[f64], gx: f64, y: &[f64], gy: f64, v: &[f
 /// For `t` in [0, 1] every term is non-negative except where the result is
 /// near the origin, so no intermediate point near the sphere is ever rounded
 /// (the composition form rounds `(-x) ⊕ y`, which can sit 1e-24 from it).
+/// Returns the gap of the result, `2 g_x g_y / den` (`2/(1 + z0)` for the
+/// hyperboloid point `z = a x_H + b y_H`).
 #[inline(always)]
-pub fn geodesic_g(c: &Curvature, x: &[f64], gx: f64, y: &[f64], gy: f64, t: f64, out: &mut [f64]) {
+pub fn geodesic_g(c: &Curvature, x: &[f64], gx: f64, y: &[f64], gy: f64, t: f64, out: &mut [f64]) -> f64 {
     let h = c.kappa * dist_sq(x, y) / (gx * gy);
     let (a, b) = geodesic_weights(t, 2.0 * h.sqrt().asinh());
     let (ca, cb) = (a * gy, b * gx);
@@ -345,39 +316,14 @@ pub fn geodesic_g(c: &Curvature, x: &[f64], gx: f64, y: &[f64], gy: f64, t: f64,
     for i in 0..x.len() {
         out[i] = fa * x[i] + fb * y[i];
     }
-}
-
-/// Pulls a point whose norm exceeds `(1 - margin) R` back onto that sphere
-/// along its ray; points inside it are returned unchanged. `margin` is
-/// checked by the caller (0 < margin < 1, 1 - margin < 1).
-#[inline(always)]
-pub fn project(c: &Curvature, x: &[f64], margin: f64, out: &mut [f64]) {
-    let lim = 1.0 - margin;
-    let g = gap_dd(c.kappa, x);
-    // |x|/R > lim  <=>  g < 1 - lim^2 = margin (2 - margin)
-    if g.hi >= margin * (2.0 - margin) {
-        out.copy_from_slice(x);
-        return;
-    }
-    let q = (1.0 - g.value()).sqrt(); // |x|/R
-    let mut f = lim / q;
-    loop {
-        for (o, &xi) in out.iter_mut().zip(x) {
-            *o = f * xi;
-        }
-        if gap_dd(c.kappa, out).hi > 0.0 {
-            break;
-        }
-        // Rounding landed on the sphere: step inward by one ulp of f.
-        f = f64::from_bits(f.to_bits() - 1);
-    }
+    2.0 * gx * gy / den
 }
 
 /// The Möbius matrix-vector product `M ⊗ x = R tanh(|Mx|/|x| artanh(|x|/R))
-/// Mx/|Mx|` (zero when `Mx = 0`); `m` is row-major `(d_out, d_in)`. Results
-/// within 1.1e-16 R of the sphere are not representable and round onto it.
+/// Mx/|Mx|` (zero when `Mx = 0`); `m` is row-major `(d_out, d_in)`. Returns
+/// the gap of the result, `sech^2(|Mx|/|x| artanh t)`.
 #[inline(always)]
-pub fn matvec_g(c: &Curvature, m: &[f64], x: &[f64], gx: f64, out: &mut [f64]) {
+pub fn matvec_g(c: &Curvature, m: &[f64], x: &[f64], gx: f64, out: &mut [f64]) -> f64 {
     let din = x.len();
     for (o, row) in out.iter_mut().zip(m.chunks_exact(din)) {
         *o = dot2(row, x);
@@ -387,312 +333,82 @@ pub fn matvec_g(c: &Curvature, m: &[f64], x: &[f64], gx: f64, out: &mut [f64]) {
     let t = c.sqrt_kappa * nx;
     if nmx == 0.0 || t == 0.0 {
         out.iter_mut().for_each(|o| *o = 0.0);
-        return;
+        return 1.0;
     }
-    let a = artanh_from_gap(t, gx);
-    let f = c.radius * (nmx / nx * a).tanh() / nmx;
+    let a = nmx / nx * artanh_from_gap(t, gx);
+    let f = c.radius * a.tanh() / nmx;
     out.iter_mut().for_each(|o| *o *= f);
-}
-
-/// Runs `f` with a zeroed scratch buffer of length `n` (on the stack when
-/// small).
-#[inline(always)]
-pub(crate) fn with_scratch<R>(n: usize, f: impl FnOnce(&mut [f64]) -> R) -> R {
-    if n <= 32 {
-        let mut buf = [0f64; 32];
-        f(&mut buf[..n])
-    } else {
-        let mut buf = vec![0f64; n];
-        f(&mut buf)
-    }
+    sech2(a)
 }
 
 // ---------------------------------------------------------------- batched
 
-macro_rules! gap_of {
-    ($c:expr, $row:expr, $arg:expr) => {
-        $crate::models::ball::checked_gap($c, $row).map_err(|f| $crate::error::RowFault::new($arg, f))?.value()
-    };
+/// The Möbius gyrovector space of the Poincaré ball, for the batched forms
+/// of [`gyro`] (`gyro::add_arrays::<Mobius>`, ...).
+#[derive(Clone, Copy, Debug)]
+pub struct Mobius;
+
+impl GyroBall for Mobius {
+    const NAME: &'static str = "Poincaré";
+
+    #[inline(always)]
+    fn add_g(c: &Curvature, x: &[f64], gx: f64, y: &[f64], gy: f64, sy: f64, out: &mut [f64]) -> f64 {
+        add_g(c, x, gx, y, gy, sy, out)
+    }
+    #[inline(always)]
+    fn scale_g(c: &Curvature, r: f64, x: &[f64], gx: f64, out: &mut [f64]) -> f64 {
+        scale_g(c, r, x, gx, out)
+    }
+    #[inline(always)]
+    fn gyration_g(c: &Curvature, u: &[f64], gu: f64, v: &[f64], gv: f64, w: &[f64], out: &mut [f64]) {
+        gyration_g(c, u, gu, v, gv, w, out)
+    }
+    #[inline(always)]
+    fn midpoint_g(c: &Curvature, a: &[f64], ga: f64, b: &[f64], gb: f64, out: &mut [f64]) -> f64 {
+        midpoint_g(c, a, ga, b, gb, out)
+    }
+    #[inline(always)]
+    fn distance_g(c: &Curvature, x: &[f64], gx: f64, y: &[f64], gy: f64) -> f64 {
+        distance_g(c, x, gx, y, gy)
+    }
+    #[inline(always)]
+    fn exp_map_g(c: &Curvature, x: &[f64], gx: f64, v: &[f64], out: &mut [f64]) -> f64 {
+        exp_map_g(c, x, gx, v, out)
+    }
+    #[inline(always)]
+    fn log_map_g(c: &Curvature, x: &[f64], gx: f64, y: &[f64], gy: f64, out: &mut [f64]) {
+        log_map_g(c, x, gx, y, gy, out)
+    }
+    #[inline(always)]
+    fn transport_g(c: &Curvature, x: &[f64], gx: f64, y: &[f64], gy: f64, v: &[f64], out: &mut [f64]) {
+        transport_g(c, x, gx, y, gy, v, out)
+    }
+    #[inline(always)]
+    fn geodesic_g(c: &Curvature, x: &[f64], gx: f64, y: &[f64], gy: f64, t: f64, out: &mut [f64]) -> f64 {
+        geodesic_g(c, x, gx, y, gy, t, out)
+    }
 }
-pub(crate) use gap_of;
-
-/// The batched forms shared by the two ball models, written once. Invoked
-/// inside `poincare` and `klein`, where the unqualified per-point kernels
-/// (`add_g`, `scale_g`, `gyration_g`, `midpoint_g`, `distance_g`,
-/// `exp_map_g`, `log_map_g`, `transport_g`, `geodesic_g`) resolve to that
-/// model's own. The work figures only size parallel chunks.
-macro_rules! ball_batched {
-    () => {
-        fn add_like<'a>(c: Curvature, x: Data<'a>, y: Data<'a>, sy: f64) -> Result<Output> {
-            let ops = [Operand::point("x", x), Operand::point("y", y)];
-            map_rows(
-                &ops,
-                &point_core,
-                16,
-                #[inline(always)]
-                |r, out| {
-                    let gx = gap_of!(&c, r[0], 0);
-                    let gy = gap_of!(&c, r[1], 1);
-                    add_g(&c, r[0], gx, r[1], gy, sy, out);
-                    keep_inside(&c, out);
-                    Ok(())
-                },
-            )
-        }
-
-        /// Batched `x ⊕ y` over broadcast leading axes.
-        pub fn add_arrays<'a>(c: Curvature, x: Data<'a>, y: Data<'a>) -> Result<Output> {
-            add_like(c, x, y, 1.0)
-        }
-
-        /// Batched `x ⊖ y`.
-        pub fn sub_arrays<'a>(c: Curvature, x: Data<'a>, y: Data<'a>) -> Result<Output> {
-            add_like(c, x, y, -1.0)
-        }
-
-        /// Batched `r ⊗ x`; `r` broadcasts against the leading axes of `x`.
-        pub fn scale_arrays<'a>(c: Curvature, r: Data<'a>, x: Data<'a>) -> Result<Output> {
-            let ops = [Operand::scalar("r", r), Operand::point("x", x)];
-            map_rows(
-                &ops,
-                &point_core,
-                12,
-                #[inline(always)]
-                |rows, out| {
-                    let r = finite_scalar(0, rows[0][0])?;
-                    let gx = gap_of!(&c, rows[1], 1);
-                    scale_g(&c, r, rows[1], gx, out);
-                    keep_inside(&c, out);
-                    Ok(())
-                },
-            )
-        }
-
-        /// Batched `gyr[a, b] v`; `v` is any finite vector (gyrations are linear).
-        pub fn gyration_arrays<'a>(c: Curvature, a: Data<'a>, b: Data<'a>, v: Data<'a>) -> Result<Output> {
-            let ops = [Operand::point("a", a), Operand::point("b", b), Operand::point("v", v)];
-            map_rows(
-                &ops,
-                &point_core,
-                40,
-                #[inline(always)]
-                |r, out| {
-                    let ga = gap_of!(&c, r[0], 0);
-                    let gb = gap_of!(&c, r[1], 1);
-                    check_finite(r[2]).map_err(|f| $crate::error::RowFault::new(2, f))?;
-                    gyration_g(&c, r[0], ga, r[1], gb, r[2], out);
-                    Ok(())
-                },
-            )
-        }
-
-        /// Batched midpoint of `x` and `y`.
-        pub fn midpoint_arrays<'a>(c: Curvature, x: Data<'a>, y: Data<'a>) -> Result<Output> {
-            let ops = [Operand::point("x", x), Operand::point("y", y)];
-            map_rows(
-                &ops,
-                &point_core,
-                30,
-                #[inline(always)]
-                |r, out| {
-                    let gx = gap_of!(&c, r[0], 0);
-                    let gy = gap_of!(&c, r[1], 1);
-                    midpoint_g(&c, r[0], gx, r[1], gy, out);
-                    keep_inside(&c, out);
-                    Ok(())
-                },
-            )
-        }
-
-        /// Batched distance `(..., d), (..., d) -> (...)`.
-        pub fn distance_arrays<'a>(c: Curvature, x: Data<'a>, y: Data<'a>) -> Result<Output> {
-            let ops = [Operand::point("x", x), Operand::point("y", y)];
-            map_rows(
-                &ops,
-                &scalar_core,
-                16,
-                #[inline(always)]
-                |r, out| {
-                    let gx = gap_of!(&c, r[0], 0);
-                    let gy = gap_of!(&c, r[1], 1);
-                    out[0] = distance_g(&c, r[0], gx, r[1], gy);
-                    Ok(())
-                },
-            )
-        }
-
-        /// Batched exponential map; `base = None` is the origin.
-        pub fn exp_map_arrays<'a>(c: Curvature, v: Data<'a>, base: Option<Data<'a>>) -> Result<Output> {
-            match base {
-                None => {
-                    let ops = [Operand::point("v", v)];
-                    map_rows(
-                        &ops,
-                        &point_core,
-                        16,
-                        #[inline(always)]
-                        |r, out| {
-                            check_finite(r[0]).map_err(|f| $crate::error::RowFault::new(0, f))?;
-                            with_scratch(
-                                r[0].len(),
-                                #[inline(always)]
-                                |z| exp_map_g(&c, z, 1.0, r[0], out),
-                            );
-                            keep_inside(&c, out);
-                            Ok(())
-                        },
-                    )
-                }
-                Some(b) => {
-                    let ops = [Operand::point("v", v), Operand::point("base", b)];
-                    map_rows(
-                        &ops,
-                        &point_core,
-                        24,
-                        #[inline(always)]
-                        |r, out| {
-                            check_finite(r[0]).map_err(|f| $crate::error::RowFault::new(0, f))?;
-                            let gb = gap_of!(&c, r[1], 1);
-                            exp_map_g(&c, r[1], gb, r[0], out);
-                            keep_inside(&c, out);
-                            Ok(())
-                        },
-                    )
-                }
-            }
-        }
-
-        /// Batched logarithmic map; `base = None` is the origin.
-        pub fn log_map_arrays<'a>(c: Curvature, y: Data<'a>, base: Option<Data<'a>>) -> Result<Output> {
-            match base {
-                None => {
-                    let ops = [Operand::point("y", y)];
-                    map_rows(
-                        &ops,
-                        &point_core,
-                        16,
-                        #[inline(always)]
-                        |r, out| {
-                            let gy = gap_of!(&c, r[0], 0);
-                            with_scratch(
-                                r[0].len(),
-                                #[inline(always)]
-                                |z| log_map_g(&c, z, 1.0, r[0], gy, out),
-                            );
-                            Ok(())
-                        },
-                    )
-                }
-                Some(b) => {
-                    let ops = [Operand::point("y", y), Operand::point("base", b)];
-                    map_rows(
-                        &ops,
-                        &point_core,
-                        24,
-                        #[inline(always)]
-                        |r, out| {
-                            let gy = gap_of!(&c, r[0], 0);
-                            let gb = gap_of!(&c, r[1], 1);
-                            log_map_g(&c, r[1], gb, r[0], gy, out);
-                            Ok(())
-                        },
-                    )
-                }
-            }
-        }
-
-        /// Batched parallel transport of `v` from `start` to `end`.
-        pub fn transport_arrays<'a>(c: Curvature, v: Data<'a>, start: Data<'a>, end: Data<'a>) -> Result<Output> {
-            let ops = [Operand::point("v", v), Operand::point("start", start), Operand::point("end", end)];
-            map_rows(
-                &ops,
-                &point_core,
-                60,
-                #[inline(always)]
-                |r, out| {
-                    check_finite(r[0]).map_err(|f| $crate::error::RowFault::new(0, f))?;
-                    let gs = gap_of!(&c, r[1], 1);
-                    let ge = gap_of!(&c, r[2], 2);
-                    transport_g(&c, r[1], gs, r[2], ge, r[0], out);
-                    Ok(())
-                },
-            )
-        }
-
-        /// Batched geodesic interpolation; `t` broadcasts against the leading axes.
-        pub fn geodesic_arrays<'a>(c: Curvature, x: Data<'a>, y: Data<'a>, t: Data<'a>) -> Result<Output> {
-            let ops = [Operand::point("x", x), Operand::point("y", y), Operand::scalar("t", t)];
-            map_rows(
-                &ops,
-                &point_core,
-                30,
-                #[inline(always)]
-                |r, out| {
-                    let gx = gap_of!(&c, r[0], 0);
-                    let gy = gap_of!(&c, r[1], 1);
-                    let t = finite_scalar(2, r[2][0])?;
-                    geodesic_g(&c, r[0], gx, r[1], gy, t, out);
-                    keep_inside(&c, out);
-                    Ok(())
-                },
-            )
-        }
-    };
-}
-pub(crate) use ball_batched;
-
-ball_batched!();
 
 /// Batched `x ⊞ y`.
-pub fn coadd_arrays<'a>(c: Curvature, x: Data<'a>, y: Data<'a>) -> Result<Output> {
+pub fn coadd_arrays<'a>(c: Curvature, x: Data<'a>, y: Data<'a>, rim: &Rim) -> Result<Output> {
     let ops = [Operand::point("x", x), Operand::point("y", y)];
+    let (f32_out, arg) = (wants_f32(&ops), gyro::blame(&ops));
     map_rows(
         &ops,
         &point_core,
         30,
         #[inline(always)]
         |r, out| {
-            let gx = gap_of!(&c, r[0], 0);
-            let gy = gap_of!(&c, r[1], 1);
-            coadd_g(&c, r[0], gx, r[1], gy, out);
-            keep_inside(&c, out);
-            Ok(())
-        },
-    )
-}
-
-/// Checks a projection margin: finite, in (0, 1), and with `1 - margin < 1`.
-pub fn check_margin(margin: f64) -> Result<()> {
-    if margin.is_finite() && margin > 0.0 && margin < 1.0 && 1.0 - margin < 1.0 {
-        Ok(())
-    } else {
-        crate::error::value_err(format!(
-            "margin must satisfy 1.1e-16 < margin < 1 (so that 1 - margin < 1 in float64), got {margin}"
-        ))
-    }
-}
-
-/// Batched projection into the ball of radius `(1 - margin) R`.
-pub fn project_arrays<'a>(c: Curvature, x: Data<'a>, margin: f64) -> Result<Output> {
-    check_margin(margin)?;
-    // A float32 result must still be inside after rounding to float32.
-    let margin = if x.is_f32() { margin.max(4.0 * f32::EPSILON as f64) } else { margin };
-    let ops = [Operand::point("x", x)];
-    map_rows(
-        &ops,
-        &point_core,
-        8,
-        #[inline(always)]
-        |r, out| {
-            check_finite(r[0]).map_err(|f| RowFault::new(0, f))?;
-            project(&c, r[0], margin, out);
-            Ok(())
+            let gx = point_gap(&c, r[0], 0)?;
+            let gy = point_gap(&c, r[1], 1)?;
+            let g = coadd_g(&c, r[0], gx, r[1], gy, out);
+            rim.apply(&c, out, g, f32_out, Mobius::NAME, arg)
         },
     )
 }
 
 /// Batched Möbius matrix-vector product; `m` is `(d_out, d_in)`.
-pub fn matvec_arrays<'a>(c: Curvature, m: Data<'a>, x: Data<'a>) -> Result<Output> {
+pub fn matvec_arrays<'a>(c: Curvature, m: Data<'a>, x: Data<'a>, rim: &Rim) -> Result<Output> {
     let ms = m.shape().to_vec();
     if ms.len() != 2 || ms[0] == 0 || ms[1] == 0 {
         return crate::error::value_err(format!(
@@ -718,6 +434,7 @@ pub fn matvec_arrays<'a>(c: Curvature, m: Data<'a>, x: Data<'a>) -> Result<Outpu
     let ops = [Operand::point("x", x)];
     // The dtype policy counts m too: float32 only if m is float32 as well.
     let force_f64 = !m_f32 && !m.is_weak();
+    let f32_out = wants_f32(&ops) && !force_f64;
     map_rows_with(
         &ops,
         &|_| vec![dout],
@@ -725,10 +442,9 @@ pub fn matvec_arrays<'a>(c: Curvature, m: Data<'a>, x: Data<'a>) -> Result<Outpu
         force_f64,
         #[inline(always)]
         |r, out| {
-            let gx = gap_of!(&c, r[0], 0);
-            matvec_g(&c, &mm, r[0], gx, out);
-            keep_inside(&c, out);
-            Ok(())
+            let gx = point_gap(&c, r[0], 0)?;
+            let g = matvec_g(&c, &mm, r[0], gx, out);
+            rim.apply(&c, out, g, f32_out, Mobius::NAME, 0)
         },
     )
 }

@@ -417,6 +417,51 @@ pub fn acosh1p2_fast(h: f64) -> f64 {
     log1p_fast(2.0 * h + 2.0 * (h * (1.0 + h)).sqrt())
 }
 
+/// Runs `f` with a zeroed scratch buffer of length `n` (on the stack when
+/// small).
+#[inline(always)]
+pub fn with_scratch<R>(n: usize, f: impl FnOnce(&mut [f64]) -> R) -> R {
+    if n <= 32 {
+        let mut buf = [0f64; 32];
+        f(&mut buf[..n])
+    } else {
+        let mut buf = vec![0f64; n];
+        f(&mut buf)
+    }
+}
+
+/// The exponent `e` with `m / 2^e` in [0.5, 1) for finite `m > 0` (frexp).
+#[inline(always)]
+pub fn scale_exponent_of(m: f64) -> i32 {
+    let bits = m.to_bits();
+    let raw = ((bits >> 52) & 0x7ff) as i32;
+    if raw == 0 {
+        // subnormal
+        -1021 - (bits.leading_zeros() as i32 - 12)
+    } else {
+        raw - 1022
+    }
+}
+
+/// The exponent `e` with `max |w_i| / 2^e` in [0.5, 1) when `w` is very
+/// large or very small, else 0 (no scaling for ordinary vectors).
+#[inline(always)]
+pub fn scale_exponent(w: &[f64]) -> i32 {
+    let m = w.iter().fold(0.0f64, |a, &b| a.max(b.abs()));
+    if (1e-150..=1e150).contains(&m) || m == 0.0 {
+        0
+    } else {
+        scale_exponent_of(m)
+    }
+}
+
+/// `2^e` exactly, for |e| <= 1022.
+#[inline(always)]
+pub fn pow2(e: i32) -> f64 {
+    let e = e.clamp(-1022, 1023);
+    f64::from_bits(((e + 1023) as u64) << 52)
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;

@@ -3,15 +3,21 @@
 
 use pyo3::prelude::*;
 
+use super::algebra::with_rim;
 use super::coerce::{binary, coerce, coerce_opt, ternary, to_py};
 use crate::batch::{Data, Output};
 use crate::error::Result;
-use crate::models::ball::Curvature;
+use crate::models::ball::{self, Curvature, Rim};
 use crate::models::convert::convert_arrays;
+use crate::models::gyro::{self, GyroBall};
+use crate::models::klein::Einstein;
+use crate::models::poincare::{self, Mobius};
 use crate::models::Model;
-use crate::models::{halfspace, hyperboloid, klein, poincare};
+use crate::models::{halfspace, hyperboloid};
 
 type WithBase = for<'a> fn(Curvature, Data<'a>, Option<Data<'a>>) -> Result<Output>;
+type WithBaseRim = for<'a, 'r> fn(Curvature, Data<'a>, Option<Data<'a>>, &'r Rim) -> Result<Output>;
+type GeodesicRim = for<'a, 'r> fn(Curvature, Data<'a>, Data<'a>, Data<'a>, &'r Rim) -> Result<Output>;
 
 fn with_base(
     py: Python<'_>,
@@ -29,6 +35,87 @@ fn with_base(
     let out = py.detach(move || f(c, vd, bd))?;
     to_py(py, out)
 }
+
+#[pyfunction]
+#[pyo3(signature = (v, base = None, curvature = -1.0, on_rim = "raise"))]
+fn poincare_exp_map(
+    py: Python<'_>,
+    v: &Bound<'_, PyAny>,
+    base: Option<&Bound<'_, PyAny>>,
+    curvature: f64,
+    on_rim: &str,
+) -> PyResult<Py<PyAny>> {
+    exp_map_rim(py, "poincare.exp_map", Mobius::NAME, v, base, curvature, on_rim, gyro::exp_map_arrays::<Mobius>)
+}
+
+#[pyfunction]
+#[pyo3(signature = (v, base = None, curvature = -1.0, on_rim = "raise"))]
+fn klein_exp_map(
+    py: Python<'_>,
+    v: &Bound<'_, PyAny>,
+    base: Option<&Bound<'_, PyAny>>,
+    curvature: f64,
+    on_rim: &str,
+) -> PyResult<Py<PyAny>> {
+    exp_map_rim(py, "klein.exp_map", Einstein::NAME, v, base, curvature, on_rim, gyro::exp_map_arrays::<Einstein>)
+}
+
+#[allow(clippy::too_many_arguments)]
+fn exp_map_rim(
+    py: Python<'_>,
+    func: &str,
+    model: &str,
+    v: &Bound<'_, PyAny>,
+    base: Option<&Bound<'_, PyAny>>,
+    curvature: f64,
+    on_rim: &str,
+    f: WithBaseRim,
+) -> PyResult<Py<PyAny>> {
+    let c = Curvature::new(curvature)?;
+    let va = coerce(py, "v", v)?;
+    let ba = coerce_opt(py, "base", base)?;
+    let vd = va.data();
+    let bd = ba.as_ref().map(|b| b.data());
+    with_rim(py, func, model, on_rim, move |rim| f(c, vd, bd, rim))
+}
+
+#[allow(clippy::too_many_arguments)]
+fn geodesic_rim(
+    py: Python<'_>,
+    func: &str,
+    model: &str,
+    x: &Bound<'_, PyAny>,
+    y: &Bound<'_, PyAny>,
+    t: &Bound<'_, PyAny>,
+    curvature: f64,
+    on_rim: &str,
+    f: GeodesicRim,
+) -> PyResult<Py<PyAny>> {
+    let c = Curvature::new(curvature)?;
+    let (xa, ya, ta) = (coerce(py, "x", x)?, coerce(py, "y", y)?, coerce(py, "t", t)?);
+    let (xd, yd, td) = (xa.data(), ya.data(), ta.data());
+    with_rim(py, func, model, on_rim, move |rim| f(c, xd, yd, td, rim))
+}
+
+macro_rules! geodesic_rim_fn {
+    ($pyname:ident, $func:literal, $m:ty) => {
+        #[pyfunction]
+        #[pyo3(signature = (x, y, t, curvature = -1.0, on_rim = "raise"))]
+        fn $pyname(
+            py: Python<'_>,
+            x: &Bound<'_, PyAny>,
+            y: &Bound<'_, PyAny>,
+            t: &Bound<'_, PyAny>,
+            curvature: f64,
+            on_rim: &str,
+        ) -> PyResult<Py<PyAny>> {
+            geodesic_rim(py, $func, <$m>::NAME, x, y, t, curvature, on_rim, gyro::geodesic_arrays::<$m>)
+        }
+    };
+}
+
+geodesic_rim_fn!(poincare_geodesic, "poincare.geodesic", Mobius);
+geodesic_rim_fn!(klein_geodesic, "klein.geodesic", Einstein);
 
 macro_rules! distance_fn {
     ($pyname:ident, $core:path) => {
@@ -87,41 +174,37 @@ macro_rules! geodesic_fn {
     };
 }
 
-distance_fn!(poincare_distance, poincare::distance_arrays);
-distance_fn!(klein_distance, klein::distance_arrays);
+distance_fn!(poincare_distance, gyro::distance_arrays::<Mobius>);
+distance_fn!(klein_distance, gyro::distance_arrays::<Einstein>);
 distance_fn!(hyperboloid_distance, hyperboloid::distance_arrays);
 distance_fn!(halfspace_distance, halfspace::distance_arrays);
-base_fn!(poincare_exp_map, poincare::exp_map_arrays, v);
-base_fn!(klein_exp_map, klein::exp_map_arrays, v);
 base_fn!(hyperboloid_exp_map, hyperboloid::exp_map_arrays, v);
-base_fn!(poincare_log_map, poincare::log_map_arrays, y);
-base_fn!(klein_log_map, klein::log_map_arrays, y);
+base_fn!(poincare_log_map, gyro::log_map_arrays::<Mobius>, y);
+base_fn!(klein_log_map, gyro::log_map_arrays::<Einstein>, y);
 base_fn!(hyperboloid_log_map, hyperboloid::log_map_arrays, y);
-transport_fn!(poincare_transport, poincare::transport_arrays);
-transport_fn!(klein_transport, klein::transport_arrays);
+transport_fn!(poincare_transport, gyro::transport_arrays::<Mobius>);
+transport_fn!(klein_transport, gyro::transport_arrays::<Einstein>);
 transport_fn!(hyperboloid_transport, hyperboloid::transport_arrays);
-geodesic_fn!(poincare_geodesic, poincare::geodesic_arrays);
-geodesic_fn!(klein_geodesic, klein::geodesic_arrays);
 geodesic_fn!(hyperboloid_geodesic, hyperboloid::geodesic_arrays);
 
-#[pyfunction]
-#[pyo3(signature = (x, margin = 1e-12, curvature = -1.0))]
-fn poincare_project(py: Python<'_>, x: &Bound<'_, PyAny>, margin: f64, curvature: f64) -> PyResult<Py<PyAny>> {
+fn ball_project(py: Python<'_>, x: &Bound<'_, PyAny>, margin: f64, curvature: f64) -> PyResult<Py<PyAny>> {
     let c = Curvature::new(curvature)?;
     let xa = coerce(py, "x", x)?;
     let xd = xa.data();
-    let out = py.detach(move || poincare::project_arrays(c, xd, margin))?;
+    let out = py.detach(move || ball::project_arrays(c, xd, margin))?;
     to_py(py, out)
 }
 
 #[pyfunction]
 #[pyo3(signature = (x, margin = 1e-12, curvature = -1.0))]
+fn poincare_project(py: Python<'_>, x: &Bound<'_, PyAny>, margin: f64, curvature: f64) -> PyResult<Py<PyAny>> {
+    ball_project(py, x, margin, curvature)
+}
+
+#[pyfunction]
+#[pyo3(signature = (x, margin = 1e-12, curvature = -1.0))]
 fn klein_project(py: Python<'_>, x: &Bound<'_, PyAny>, margin: f64, curvature: f64) -> PyResult<Py<PyAny>> {
-    let c = Curvature::new(curvature)?;
-    let xa = coerce(py, "x", x)?;
-    let xd = xa.data();
-    let out = py.detach(move || klein::project_arrays(c, xd, margin))?;
-    to_py(py, out)
+    ball_project(py, x, margin, curvature)
 }
 
 #[pyfunction]
@@ -144,14 +227,19 @@ fn hyperboloid_inner(py: Python<'_>, u: &Bound<'_, PyAny>, v: &Bound<'_, PyAny>)
 }
 
 #[pyfunction]
-#[pyo3(signature = (m, x, curvature = -1.0))]
-fn poincare_matvec(py: Python<'_>, m: &Bound<'_, PyAny>, x: &Bound<'_, PyAny>, curvature: f64) -> PyResult<Py<PyAny>> {
+#[pyo3(signature = (m, x, curvature = -1.0, on_rim = "raise"))]
+fn poincare_matvec(
+    py: Python<'_>,
+    m: &Bound<'_, PyAny>,
+    x: &Bound<'_, PyAny>,
+    curvature: f64,
+    on_rim: &str,
+) -> PyResult<Py<PyAny>> {
     let c = Curvature::new(curvature)?;
     let ma = coerce(py, "m", m)?;
     let xa = coerce(py, "x", x)?;
     let (md, xd) = (ma.data(), xa.data());
-    let out = py.detach(move || poincare::matvec_arrays(c, md, xd))?;
-    to_py(py, out)
+    with_rim(py, "poincare.matvec", Mobius::NAME, on_rim, move |rim| poincare::matvec_arrays(c, md, xd, rim))
 }
 
 #[pyfunction]

@@ -152,7 +152,7 @@ fn normalized(weights: Option<&[f64]>, n: usize) -> Result<Option<Vec<f64>>> {
             }
             // A power of two: exact, so any subset scaled by a different
             // power gives bit-identical means (per-label = separate means).
-            let f = crate::models::poincare::pow2(-crate::models::poincare::scale_exponent_of(m));
+            let f = crate::numeric::pow2(-crate::numeric::scale_exponent_of(m));
             Ok(Some(w.iter().map(|v| v * f).collect()))
         }
     }

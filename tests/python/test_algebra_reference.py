@@ -18,6 +18,7 @@ part 2 is test_algebra_closed_forms.py, part 3 test_algebra_axioms.py.
 
 from __future__ import annotations
 
+import warnings
 from typing import Dict, Tuple
 
 import numpy as np
@@ -86,7 +87,12 @@ def test_accuracy_against_mpmath(name, case, curvature, d):
                 keep[j] = False
     args = tuple(a[keep] for a in args)
 
-    got = fn(*args, curvature=curvature)
+    # Rows whose exact result float64 cannot hold are skipped below: clip
+    # them (quietly) rather than raise, so the other rows are scored.
+    rim = {} if kind == "gyration" else {"on_rim": "clip"}
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", gk.poincare.RimClipWarning)
+        got = fn(*args, curvature=curvature, **rim)
     assert got.shape == args[-1].shape
 
     errors = []

@@ -10,6 +10,7 @@ import numpy as np
 import pytest
 
 from conftest import rim_points
+pytestmark = pytest.mark.filterwarnings("ignore::gyrokit.poincare.RimClipWarning")
 from contract_support import (
     ARG_CASES,
     call,

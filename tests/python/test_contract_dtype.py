@@ -8,7 +8,8 @@ import numpy as np
 import pytest
 
 from conftest import rim_points
-from contract_support import ARG_CASES, call, FUNC_IDS, FUNCS, make_args, names, SCALE_FUNCS
+pytestmark = pytest.mark.filterwarnings("ignore::gyrokit.poincare.RimClipWarning")
+from contract_support import ABV, ARG_CASES, call, FUNC_IDS, FUNCS, make_args, names, SCALE_FUNCS
 
 
 # ------------------------------------------------------------------- curvature
@@ -76,8 +77,15 @@ def test_float32_inputs_give_rounded_float64_result(func):
             a *= np.float32(0.999)
     out = call(func, args32)
     assert out.dtype == np.float32
-    ref = call(func, [a.astype(np.float64) for a in args32])
-    np.testing.assert_array_equal(out, ref.astype(np.float32))
+    ref = call(func, [a.astype(np.float64) for a in args32]).astype(np.float32)
+    if func[3] != ABV:
+        # Except within a few float32 ulps of the sphere, where rounding once
+        # can put the point on it (the rim, test_rim.py): there the result
+        # is the last float32 radius inside instead.
+        rim = 1 - np.sum(ref.astype(np.longdouble) ** 2, axis=-1) < 2.0**-20
+        assert np.all(np.sum(out[rim].astype(np.longdouble) ** 2, axis=-1) < 1)
+        out, ref = out[~rim], ref[~rim]
+    np.testing.assert_array_equal(out, ref)
 
 
 @pytest.mark.parametrize("func,pos", ARG_CASES)

@@ -7,6 +7,7 @@ from __future__ import annotations
 import numpy as np
 import pytest
 
+pytestmark = pytest.mark.filterwarnings("ignore::gyrokit.poincare.RimClipWarning")
 from contract_support import call, FUNC_IDS, FUNCS, make_args, TOL
 
 

@@ -13,6 +13,7 @@ import numpy as np
 import pytest
 
 from conftest import radius
+pytestmark = pytest.mark.filterwarnings("ignore::gyrokit.poincare.RimClipWarning")
 from contract_support import big_args, call, FUNC_IDS, FUNCS, make_args
 
 

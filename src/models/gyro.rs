@@ -1,0 +1,288 @@
+//! The two gyrovector ball models behind one interface: the Möbius space
+//! of the Poincaré ball ([`Mobius`](crate::models::poincare::Mobius)) and
+//! the Einstein space of the Klein ball
+//! ([`Einstein`](crate::models::klein::Einstein)). Each model implements
+//! the per-point kernels of [`GyroBall`] on a zero-sized type; the batched
+//! forms over arrays are written once here, generic over the model, and
+//! monomorphised: with `#[inline(always)]` on the kernels and on the row
+//! closures, each copy compiled inside `simd::dispatch` inlines everything.
+//!
+//! Kernels that produce a point return its exact gap (from the gap
+//! identities of the operation, never recomputed from rounded coordinates),
+//! which the rim rule ([`Rim`], `ball.rs`) needs to tell a result that
+//! float64 cannot hold from one that only its last rounding put on the
+//! sphere. The work figures passed to `map_rows` only size parallel chunks.
+
+use crate::batch::{finite_scalar, map_rows, point_core, scalar_core, wants_f32, Core, Data, Operand, Output};
+use crate::error::Result;
+use crate::models::ball::{finite_row, point_gap, Curvature, Rim};
+use crate::numeric::with_scratch;
+
+/// The per-point kernels of a gyrovector ball model. Every `g` argument is
+/// the gap `1 - kappa |x|^2` of the point before it.
+pub trait GyroBall: Copy + Send + Sync + 'static {
+    /// The model's name in messages ("Poincaré", "Klein").
+    const NAME: &'static str;
+
+    /// `x ⊕ (sy y)` (`sy = -1` gives `x ⊖ y`); returns the exact gap.
+    fn add_g(c: &Curvature, x: &[f64], gx: f64, y: &[f64], gy: f64, sy: f64, out: &mut [f64]) -> f64;
+    /// `r ⊗ x`; returns the exact gap.
+    fn scale_g(c: &Curvature, r: f64, x: &[f64], gx: f64, out: &mut [f64]) -> f64;
+    /// `gyr[u, v] w` for any vector `w`.
+    fn gyration_g(c: &Curvature, u: &[f64], gu: f64, v: &[f64], gv: f64, w: &[f64], out: &mut [f64]);
+    /// The midpoint of the geodesic from `a` to `b`; returns the exact gap.
+    fn midpoint_g(c: &Curvature, a: &[f64], ga: f64, b: &[f64], gb: f64, out: &mut [f64]) -> f64;
+    /// The hyperbolic distance.
+    fn distance_g(c: &Curvature, x: &[f64], gx: f64, y: &[f64], gy: f64) -> f64;
+    /// `exp_x(v)`; returns the exact gap.
+    fn exp_map_g(c: &Curvature, x: &[f64], gx: f64, v: &[f64], out: &mut [f64]) -> f64;
+    /// `log_x(y)`.
+    fn log_map_g(c: &Curvature, x: &[f64], gx: f64, y: &[f64], gy: f64, out: &mut [f64]);
+    /// Parallel transport of `v` from `x` to `y`.
+    fn transport_g(c: &Curvature, x: &[f64], gx: f64, y: &[f64], gy: f64, v: &[f64], out: &mut [f64]);
+    /// The point at fraction `t` of the geodesic from `x` to `y`; returns
+    /// the exact gap.
+    fn geodesic_g(c: &Curvature, x: &[f64], gx: f64, y: &[f64], gy: f64, t: f64, out: &mut [f64]) -> f64;
+}
+
+/// The operand a result beyond the rim is blamed on: the point (or scalar)
+/// operand with the most rows of its own (the first among equals), so that
+/// the message names the row of the result whenever one operand spans the
+/// broadcast shape.
+pub(crate) fn blame(ops: &[Operand]) -> usize {
+    let rows = |o: &Operand| -> usize {
+        let s = o.data.shape();
+        match o.core {
+            Core::Point => s[..s.len().saturating_sub(1)].iter().product(),
+            Core::Scalar => s.iter().product(),
+        }
+    };
+    let mut best = 0;
+    for (i, o) in ops.iter().enumerate() {
+        if rows(o) > rows(&ops[best]) {
+            best = i;
+        }
+    }
+    best
+}
+
+fn add_like<'a, M: GyroBall>(c: Curvature, x: Data<'a>, y: Data<'a>, sy: f64, rim: &Rim) -> Result<Output> {
+    let ops = [Operand::point("x", x), Operand::point("y", y)];
+    let (f32_out, arg) = (wants_f32(&ops), blame(&ops));
+    map_rows(
+        &ops,
+        &point_core,
+        16,
+        #[inline(always)]
+        |r, out| {
+            let gx = point_gap(&c, r[0], 0)?;
+            let gy = point_gap(&c, r[1], 1)?;
+            let g = M::add_g(&c, r[0], gx, r[1], gy, sy, out);
+            rim.apply(&c, out, g, f32_out, M::NAME, arg)
+        },
+    )
+}
+
+/// Batched `x ⊕ y` over broadcast leading axes.
+pub fn add_arrays<'a, M: GyroBall>(c: Curvature, x: Data<'a>, y: Data<'a>, rim: &Rim) -> Result<Output> {
+    add_like::<M>(c, x, y, 1.0, rim)
+}
+
+/// Batched `x ⊖ y`.
+pub fn sub_arrays<'a, M: GyroBall>(c: Curvature, x: Data<'a>, y: Data<'a>, rim: &Rim) -> Result<Output> {
+    add_like::<M>(c, x, y, -1.0, rim)
+}
+
+/// Batched `r ⊗ x`; `r` broadcasts against the leading axes of `x`.
+pub fn scale_arrays<'a, M: GyroBall>(c: Curvature, r: Data<'a>, x: Data<'a>, rim: &Rim) -> Result<Output> {
+    let ops = [Operand::scalar("r", r), Operand::point("x", x)];
+    let (f32_out, arg) = (wants_f32(&ops), blame(&ops));
+    map_rows(
+        &ops,
+        &point_core,
+        12,
+        #[inline(always)]
+        |rows, out| {
+            let r = finite_scalar(0, rows[0][0])?;
+            let gx = point_gap(&c, rows[1], 1)?;
+            let g = M::scale_g(&c, r, rows[1], gx, out);
+            rim.apply(&c, out, g, f32_out, M::NAME, arg)
+        },
+    )
+}
+
+/// Batched `gyr[a, b] v`; `v` is any finite vector (gyrations are linear).
+pub fn gyration_arrays<'a, M: GyroBall>(c: Curvature, a: Data<'a>, b: Data<'a>, v: Data<'a>) -> Result<Output> {
+    let ops = [Operand::point("a", a), Operand::point("b", b), Operand::point("v", v)];
+    map_rows(
+        &ops,
+        &point_core,
+        40,
+        #[inline(always)]
+        |r, out| {
+            let ga = point_gap(&c, r[0], 0)?;
+            let gb = point_gap(&c, r[1], 1)?;
+            finite_row(r[2], 2)?;
+            M::gyration_g(&c, r[0], ga, r[1], gb, r[2], out);
+            Ok(())
+        },
+    )
+}
+
+/// Batched midpoint of `x` and `y`.
+pub fn midpoint_arrays<'a, M: GyroBall>(c: Curvature, x: Data<'a>, y: Data<'a>, rim: &Rim) -> Result<Output> {
+    let ops = [Operand::point("x", x), Operand::point("y", y)];
+    let (f32_out, arg) = (wants_f32(&ops), blame(&ops));
+    map_rows(
+        &ops,
+        &point_core,
+        30,
+        #[inline(always)]
+        |r, out| {
+            let gx = point_gap(&c, r[0], 0)?;
+            let gy = point_gap(&c, r[1], 1)?;
+            let g = M::midpoint_g(&c, r[0], gx, r[1], gy, out);
+            rim.apply(&c, out, g, f32_out, M::NAME, arg)
+        },
+    )
+}
+
+/// Batched distance `(..., d), (..., d) -> (...)`.
+pub fn distance_arrays<'a, M: GyroBall>(c: Curvature, x: Data<'a>, y: Data<'a>) -> Result<Output> {
+    let ops = [Operand::point("x", x), Operand::point("y", y)];
+    map_rows(
+        &ops,
+        &scalar_core,
+        16,
+        #[inline(always)]
+        |r, out| {
+            let gx = point_gap(&c, r[0], 0)?;
+            let gy = point_gap(&c, r[1], 1)?;
+            out[0] = M::distance_g(&c, r[0], gx, r[1], gy);
+            Ok(())
+        },
+    )
+}
+
+/// Batched exponential map; `base = None` is the origin.
+pub fn exp_map_arrays<'a, M: GyroBall>(c: Curvature, v: Data<'a>, base: Option<Data<'a>>, rim: &Rim) -> Result<Output> {
+    match base {
+        None => {
+            let ops = [Operand::point("v", v)];
+            let (f32_out, arg) = (wants_f32(&ops), blame(&ops));
+            map_rows(
+                &ops,
+                &point_core,
+                16,
+                #[inline(always)]
+                |r, out| {
+                    finite_row(r[0], 0)?;
+                    let g = with_scratch(
+                        r[0].len(),
+                        #[inline(always)]
+                        |z| M::exp_map_g(&c, z, 1.0, r[0], out),
+                    );
+                    rim.apply(&c, out, g, f32_out, M::NAME, arg)
+                },
+            )
+        }
+        Some(b) => {
+            let ops = [Operand::point("v", v), Operand::point("base", b)];
+            let (f32_out, arg) = (wants_f32(&ops), blame(&ops));
+            map_rows(
+                &ops,
+                &point_core,
+                24,
+                #[inline(always)]
+                |r, out| {
+                    finite_row(r[0], 0)?;
+                    let gb = point_gap(&c, r[1], 1)?;
+                    let g = M::exp_map_g(&c, r[1], gb, r[0], out);
+                    rim.apply(&c, out, g, f32_out, M::NAME, arg)
+                },
+            )
+        }
+    }
+}
+
+/// Batched logarithmic map; `base = None` is the origin.
+pub fn log_map_arrays<'a, M: GyroBall>(c: Curvature, y: Data<'a>, base: Option<Data<'a>>) -> Result<Output> {
+    match base {
+        None => {
+            let ops = [Operand::point("y", y)];
+            map_rows(
+                &ops,
+                &point_core,
+                16,
+                #[inline(always)]
+                |r, out| {
+                    let gy = point_gap(&c, r[0], 0)?;
+                    with_scratch(
+                        r[0].len(),
+                        #[inline(always)]
+                        |z| M::log_map_g(&c, z, 1.0, r[0], gy, out),
+                    );
+                    Ok(())
+                },
+            )
+        }
+        Some(b) => {
+            let ops = [Operand::point("y", y), Operand::point("base", b)];
+            map_rows(
+                &ops,
+                &point_core,
+                24,
+                #[inline(always)]
+                |r, out| {
+                    let gy = point_gap(&c, r[0], 0)?;
+                    let gb = point_gap(&c, r[1], 1)?;
+                    M::log_map_g(&c, r[1], gb, r[0], gy, out);
+                    Ok(())
+                },
+            )
+        }
+    }
+}
+
+/// Batched parallel transport of `v` from `start` to `end`.
+pub fn transport_arrays<'a, M: GyroBall>(c: Curvature, v: Data<'a>, start: Data<'a>, end: Data<'a>) -> Result<Output> {
+    let ops = [Operand::point("v", v), Operand::point("start", start), Operand::point("end", end)];
+    map_rows(
+        &ops,
+        &point_core,
+        60,
+        #[inline(always)]
+        |r, out| {
+            finite_row(r[0], 0)?;
+            let gs = point_gap(&c, r[1], 1)?;
+            let ge = point_gap(&c, r[2], 2)?;
+            M::transport_g(&c, r[1], gs, r[2], ge, r[0], out);
+            Ok(())
+        },
+    )
+}
+
+/// Batched geodesic interpolation; `t` broadcasts against the leading axes.
+pub fn geodesic_arrays<'a, M: GyroBall>(
+    c: Curvature,
+    x: Data<'a>,
+    y: Data<'a>,
+    t: Data<'a>,
+    rim: &Rim,
+) -> Result<Output> {
+    let ops = [Operand::point("x", x), Operand::point("y", y), Operand::scalar("t", t)];
+    let (f32_out, arg) = (wants_f32(&ops), blame(&ops));
+    map_rows(
+        &ops,
+        &point_core,
+        30,
+        #[inline(always)]
+        |r, out| {
+            let gx = point_gap(&c, r[0], 0)?;
+            let gy = point_gap(&c, r[1], 1)?;
+            let t = finite_scalar(2, r[2][0])?;
+            let g = M::geodesic_g(&c, r[0], gx, r[1], gy, t, out);
+            rim.apply(&c, out, g, f32_out, M::NAME, arg)
+        },
+    )
+}
