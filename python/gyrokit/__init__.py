@@ -54,6 +54,6 @@ __all__ = [
     "poincare", "klein", "hyperboloid", "halfspace", "relativity", "convert", "MODELS",
     "distance_matrix", "condensed_distances", "knn", "radius_neighbors",
     "NeighborIndex", "KMeans", "UnfittedError", "frechet_mean", "einstein_midpoint", "frechet_variance", "FrechetMean",
-    "FrechetVariance", "ConvergenceWarning",
+    "FrechetVariance", "ConvergenceWarning", "RimClipWarning",
     "__version__",
 ]

@@ -5,7 +5,7 @@ naming the argument (never an OverflowError from the conversion to C types)."""
 from __future__ import annotations
 
 import operator
-from typing import Any
+from typing import Any, Optional
 
 import numpy as np
 
@@ -13,19 +13,20 @@ import numpy as np
 INT_MAX = 2**63 - 1
 
 
-def count(name: str, value: Any, low: int = 0) -> int:
-    """``value`` as a Python int in ``[low, 2**63 - 1]``: ``TypeError`` naming
-    ``name`` for bools and non-integers, ``ValueError`` out of range."""
+def count(name: str, value: Any, low: Optional[int] = None) -> int:
+    """``value`` as a Python int in ``[low, 2**63 - 1]`` (``low`` None: any
+    int64, the core checks the domain): ``TypeError`` naming ``name`` for
+    bools and non-integers, ``ValueError`` out of range."""
     if isinstance(value, (bool, np.bool_)):
         raise TypeError(f"{name} must be an integer, got a bool")
     try:
         v = operator.index(value)
     except TypeError:
         raise TypeError(f"{name} must be an integer, got {type(value).__name__}") from None
-    if v < low:
-        raise ValueError(f"{name} must be at least {low}, got {v}")
-    if v > INT_MAX:
-        raise ValueError(f"{name} = {v} is too large (at most 2**63 - 1)")
+    if low is not None and v < low:
+        raise ValueError(f"{name} must be >= {low}, got {v}")
+    if not -INT_MAX - 1 <= v <= INT_MAX:
+        raise ValueError(f"{name} = {v} is out of range (a 64-bit integer)")
     return v
 
 

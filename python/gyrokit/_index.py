@@ -129,7 +129,7 @@ class NeighborIndex:
             raise TypeError(f"method must be a string, got {type(method).__name__}")
         if method not in METHODS:
             raise ValueError(f"method must be 'auto', 'tree' or 'brute'; got {method!r}")
-        self._tree = _native.VpTree(x, model, curvature, _count("leaf_size", leaf_size, 1), method)
+        self._tree = _native.VpTree(x, model, curvature, _count("leaf_size", leaf_size), method)
 
     def query(self, y: Any = None, k: int = 10) -> Tuple[np.ndarray, np.ndarray]:
         """The ``k`` nearest indexed points of each query point.
@@ -151,7 +151,7 @@ class NeighborIndex:
         ``y`` and the row). An empty ``y`` (shape ``(0, d)``) gives empty
         ``(0, k)`` arrays.
         """
-        return self._tree.query(y, _count("k", k, 1))
+        return self._tree.query(y, _count("k", k))
 
     def query_radius(self, y: Any = None, r: Optional[float] = None) -> Tuple[np.ndarray, np.ndarray, np.ndarray]:
         """All indexed points within hyperbolic distance ``r`` of each query point.
@@ -180,7 +180,7 @@ class NeighborIndex:
         """The tree's mean pair evaluations per ``k``-nearest search of
         ``samples`` indexed points, as a fraction of ``n`` (what ``"auto"``
         measures); ``None`` when the index holds no tree."""
-        return self._tree.visited_fraction(_count("k", k, 1), _count("samples", samples, 1))
+        return self._tree.visited_fraction(_count("k", k), _count("samples", samples))
 
     def _pair_distances(self, y: Any = None) -> np.ndarray:
         """Every distance the index would report, ``(m, n)``: the brute force
@@ -251,6 +251,10 @@ class NeighborIndex:
                     raise ValueError(f"invalid NeighborIndex state: {key!r} must be a tuple") from None
                 if len(parts) != fields:
                     raise ValueError(f"invalid NeighborIndex state: expected {fields} fields, got {len(parts)}")
-                self._tree = build(*parts, float32=bool(f32))
+                try:
+                    self._tree = build(*parts, float32=bool(f32))
+                except (OverflowError, TypeError) as e:
+                    # integers beyond int64 or wrongly typed fields
+                    raise ValueError(f"invalid NeighborIndex state: {e}") from None
                 return
         raise ValueError("invalid NeighborIndex state: expected a dict with key 'tree' or 'points'")

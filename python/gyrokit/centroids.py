@@ -25,6 +25,7 @@ from typing import Any, Callable, Optional, Tuple, Union
 
 import numpy as np
 
+from ._args import count
 from . import _native
 
 def _all_f32(*arrays: Any) -> bool:
@@ -154,6 +155,7 @@ def frechet_mean(
     bit-identical whatever the thread count.
     """
     codes, values = _factorize(labels)
+    max_iter = count("max_iter", max_iter, 0)
     mean, keys, it, conv, gn = _call(_native.frechet_mean, values, x, weights, codes, model, curvature, tol, max_iter)
     labs = _named(keys, values)
     if not bool(np.all(conv)):

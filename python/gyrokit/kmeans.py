@@ -64,11 +64,11 @@ assignment of the kept run (``inertia_history_[-1] == inertia_``).
 
 from __future__ import annotations
 
-import numbers
 from typing import Any, Dict, Tuple
 
 import numpy as np
 
+from ._args import count
 from . import _native
 from .neighbors import distance_matrix, knn
 
@@ -83,12 +83,7 @@ class UnfittedError(ValueError, AttributeError):
     called on an estimator that has none yet."""
 
 
-def _int_param(name: str, value: Any, low: int) -> int:
-    if isinstance(value, bool) or not isinstance(value, numbers.Integral):
-        raise TypeError(f"{name} must be an integer, got {value!r}")
-    if value < low:
-        raise ValueError(f"{name} must be >= {low}, got {value}")
-    return int(value)
+_int_param = count
 
 
 class KMeans:

@@ -86,7 +86,7 @@ def knn(
     tile per thread. Candidates are ranked by ``h``, which is monotone in the
     distance, so no transcendental is evaluated per pair.
     """
-    return _native.knn(x, _count("k", k, 1), y, model, curvature)
+    return _native.knn(x, _count("k", k), y, model, curvature)
 
 
 def radius_neighbors(

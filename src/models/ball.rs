@@ -7,6 +7,9 @@ use crate::batch::{map_rows, point_core, Data, Operand, Output};
 use crate::error::{value_err, Fault, Result, RowFault};
 use crate::numeric::{gap_dd, sumsq, sumsq_dd, with_scratch, DD};
 
+/// Smallest `kappa = -K` accepted (2^-500); the largest is its inverse.
+const MIN_KAPPA: f64 = 3.054936363499605e-151; // 2^-500
+
 /// Sectional curvature `K < 0`, with the derived constants every kernel uses.
 #[derive(Clone, Copy, Debug, PartialEq)]
 pub struct Curvature {
@@ -29,8 +32,12 @@ impl Curvature {
         }
         let kappa = -k;
         let sqrt_kappa = kappa.sqrt();
-        if !(kappa.is_normal() && sqrt_kappa.is_normal() && (1.0 / sqrt_kappa).is_finite()) {
-            return value_err(format!("curvature {k} is too close to 0 or too large in magnitude"));
+        // |K| within 2^-500..2^500 (about 3e-151..3e150): products such as
+        // kappa |x|^2 |y|^2 and R^2 kappa then stay in float64's range.
+        if !(MIN_KAPPA..=1.0 / MIN_KAPPA).contains(&kappa) {
+            return value_err(format!(
+                "curvature {k} is out of range: |curvature| must lie between 2^-500 and 2^500 (about 3e-151 and 3e150)"
+            ));
         }
         Ok(Curvature { k, kappa, sqrt_kappa, radius: 1.0 / sqrt_kappa })
     }
@@ -295,7 +302,20 @@ pub fn project(c: &Curvature, x: &[f64], margin: f64, out: &mut [f64]) {
         out.copy_from_slice(x);
         return;
     }
-    pull_to(c, x, (1.0 - g.value()).sqrt(), lim, false, out);
+    if g.hi.is_finite() {
+        pull_to(c, x, (1.0 - g.value()).sqrt(), lim, false, out);
+        return;
+    }
+    // |x|^2 overflows: the ray is the same for x scaled by a power of two
+    // (exact), whose norm fits.
+    let e = crate::numeric::scale_exponent(x);
+    with_scratch(x.len(), |xs| {
+        let f = crate::numeric::pow2(-e);
+        for (o, &v) in xs.iter_mut().zip(x) {
+            *o = v * f;
+        }
+        pull_to(c, xs, (c.kappa * sumsq_dd(xs).value()).sqrt(), lim, false, out);
+    });
 }
 
 /// Checks a projection margin: finite, in (0, 1), and with `1 - margin < 1`.

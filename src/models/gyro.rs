@@ -13,7 +13,7 @@
 //! float64 cannot hold from one that only its last rounding put on the
 //! sphere. The work figures passed to `map_rows` only size parallel chunks.
 
-use crate::batch::{finite_scalar, map_rows, point_core, scalar_core, wants_f32, Core, Data, Operand, Output};
+use crate::batch::{finite_scalar, map_rows, point_core, wants_f32, Core, Data, Operand, Output};
 use crate::error::Result;
 use crate::models::ball::{finite_row, point_gap, Curvature, Rim};
 use crate::numeric::with_scratch;
@@ -32,8 +32,6 @@ pub trait GyroBall: Copy + Send + Sync + 'static {
     fn gyration_g(c: &Curvature, u: &[f64], gu: f64, v: &[f64], gv: f64, w: &[f64], out: &mut [f64]);
     /// The midpoint of the geodesic from `a` to `b`; returns the exact gap.
     fn midpoint_g(c: &Curvature, a: &[f64], ga: f64, b: &[f64], gb: f64, out: &mut [f64]) -> f64;
-    /// The hyperbolic distance.
-    fn distance_g(c: &Curvature, x: &[f64], gx: f64, y: &[f64], gy: f64) -> f64;
     /// `exp_x(v)`; returns the exact gap.
     fn exp_map_g(c: &Curvature, x: &[f64], gx: f64, v: &[f64], out: &mut [f64]) -> f64;
     /// `log_x(y)`.
@@ -143,23 +141,6 @@ pub fn midpoint_arrays<'a, M: GyroBall>(c: Curvature, x: Data<'a>, y: Data<'a>, 
             let gy = point_gap(&c, r[1], 1)?;
             let g = M::midpoint_g(&c, r[0], gx, r[1], gy, out);
             rim.apply(&c, out, g, f32_out, M::NAME, arg)
-        },
-    )
-}
-
-/// Batched distance `(..., d), (..., d) -> (...)`.
-pub fn distance_arrays<'a, M: GyroBall>(c: Curvature, x: Data<'a>, y: Data<'a>) -> Result<Output> {
-    let ops = [Operand::point("x", x), Operand::point("y", y)];
-    map_rows(
-        &ops,
-        &scalar_core,
-        16,
-        #[inline(always)]
-        |r, out| {
-            let gx = point_gap(&c, r[0], 0)?;
-            let gy = point_gap(&c, r[1], 1)?;
-            out[0] = M::distance_g(&c, r[0], gx, r[1], gy);
-            Ok(())
         },
     )
 }

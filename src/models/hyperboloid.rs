@@ -14,8 +14,8 @@ use crate::error::{Fault, Result, RowFault};
 use crate::models::ball::{finite_row, Curvature};
 use crate::models::klein::chord_ends;
 use crate::numeric::{
-    diff_of_squares, distance_from_half_delta, dot2, dot_dd, geodesic_weights, perp_scaled, sumsq, two_prod, wedge_dot,
-    wedge_sq, with_scratch, DD,
+    diff_of_squares, dot2, dot_dd, geodesic_weights, perp_scaled, sumsq, two_prod, wedge_dot, wedge_sq, with_scratch,
+    DD,
 };
 
 /// Relative tolerance on x0 when reading a point (loose enough for float32
@@ -64,12 +64,6 @@ pub fn half_delta(k: &Curvature, xs: &[f64], cx: f64, ys: &[f64], cy: f64) -> f6
     let p = dot2(xs, ys);
     let t2 = if p <= 0.0 { kk * (nx * ny - p) } else { kk * wedge_sq(xs, ys) / (nx * ny + p) };
     0.5 * (t1 + t2)
-}
-
-/// Hyperbolic distance between two hyperboloid points (spatial parts).
-#[inline(always)]
-pub fn distance_s(k: &Curvature, xs: &[f64], cx: f64, ys: &[f64], cy: f64) -> f64 {
-    distance_from_half_delta(k.radius, half_delta(k, xs, cx, ys, cy))
 }
 
 /// Writes the point with spatial part `ys` (x0 recomputed).
@@ -261,24 +255,6 @@ fn point_out(out: &[f64], arg: usize) -> std::result::Result<(), RowFault> {
         return Err(RowFault::new(arg, Fault::ResultBeyondRange));
     }
     finite_out(out, arg)
-}
-
-/// Batched distance `(..., d+1), (..., d+1) -> (...)`.
-pub fn distance_arrays<'a>(k: Curvature, x: Data<'a>, y: Data<'a>) -> Result<Output> {
-    let ops = [Operand::point("x", x), Operand::point("y", y)];
-    check_dim(&ops)?;
-    map_rows(
-        &ops,
-        &scalar_core,
-        20,
-        #[inline(always)]
-        |r, out| {
-            let cx = read_row(&k, r[0], 0)?;
-            let cy = read_row(&k, r[1], 1)?;
-            out[0] = distance_s(&k, &r[0][1..], cx, &r[1][1..], cy);
-            finite_out(out, 0)
-        },
-    )
 }
 
 /// Batched exponential map; `base = None` is the origin `(R, 0, ..., 0)`.

@@ -442,10 +442,6 @@ impl GyroBall for Einstein {
         midpoint_g(c, a, ga, b, gb, out)
     }
     #[inline(always)]
-    fn distance_g(c: &Curvature, x: &[f64], gx: f64, y: &[f64], gy: f64) -> f64 {
-        distance_g(c, x, gx, y, gy)
-    }
-    #[inline(always)]
     fn exp_map_g(c: &Curvature, x: &[f64], gx: f64, v: &[f64], out: &mut [f64]) -> f64 {
         exp_map_g(c, x, gx, v, out)
     }

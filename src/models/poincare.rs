@@ -13,8 +13,8 @@ use crate::error::Result;
 use crate::models::ball::{point_gap, Curvature, Rim};
 use crate::models::gyro::{self, GyroBall};
 use crate::numeric::{
-    artanh_from_gap, diff_of_squares, dist_sq, distance_from_half_delta, dot2, gap, geodesic_weights, pow2,
-    radial_scale_factor, scale_exponent, sech2, sumsq, with_scratch,
+    artanh_from_gap, diff_of_squares, dist_sq, dot2, gap, geodesic_weights, pow2, radial_scale_factor, scale_exponent,
+    sech2, sumsq, with_scratch,
 };
 
 /// `x ⊕ (sy y)` (Möbius addition; `sy = -1` gives `x ⊖ y`). Returns the gap
@@ -198,15 +198,6 @@ pub fn midpoint(c: &Curvature, a: &[f64], b: &[f64], out: &mut [f64]) {
 
 // ------------------------------------------------------- model layer
 
-/// Hyperbolic distance `d = 2R asinh(sqrt(kappa |x - y|^2 / (g_x g_y)))`:
-/// `cosh(d/R) = 1 + 2 kappa |x - y|^2/(g_x g_y)` (the Poincaré distance
-/// formula) taken through asinh, so that points 1e-12 apart keep their
-/// digits, with `x - y` formed from the inputs and the gaps carried.
-#[inline(always)]
-pub fn distance_g(c: &Curvature, x: &[f64], gx: f64, y: &[f64], gy: f64) -> f64 {
-    distance_from_half_delta(c.radius, c.kappa * dist_sq(x, y) / (gx * gy))
-}
-
 /// The exponential map `exp_x(v)`, through the ideal endpoint of the
 /// geodesic instead of `x ⊕ tanh(sqrt(kappa)|v|/g_x) v/(sqrt(kappa)|v|)`
 /// (that composition rounds a point within e^{-2s} of the sphere and then
@@ -366,10 +357,6 @@ impl GyroBall for Mobius {
     #[inline(always)]
     fn midpoint_g(c: &Curvature, a: &[f64], ga: f64, b: &[f64], gb: f64, out: &mut [f64]) -> f64 {
         midpoint_g(c, a, ga, b, gb, out)
-    }
-    #[inline(always)]
-    fn distance_g(c: &Curvature, x: &[f64], gx: f64, y: &[f64], gy: f64) -> f64 {
-        distance_g(c, x, gx, y, gy)
     }
     #[inline(always)]
     fn exp_map_g(c: &Curvature, x: &[f64], gx: f64, v: &[f64], out: &mut [f64]) -> f64 {

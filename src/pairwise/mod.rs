@@ -34,7 +34,7 @@ pub mod vptree;
 use ndarray::Array2;
 use rayon::prelude::*;
 
-use crate::batch::Data;
+use crate::batch::{map_rows, scalar_core, Data, Operand, Output};
 use crate::error::{Error, Fault, Result};
 use crate::models::ball::{checked_gap, Curvature};
 use crate::models::{halfspace, hyperboloid, Model};
@@ -270,6 +270,26 @@ pub fn point_distance(
         let h = pair_h(space, k, s, seq_dist_sq(xh, yh), (xh, xe, ax), (yh, ye, ay));
         Ok(distance_from_h(k, h))
     })
+}
+
+/// The element-wise distance of every model, `(..., w), (..., w) -> (...)`
+/// (`w = d + 1` on the hyperboloid): [`point_distance`] per broadcast row,
+/// so it agrees bit for bit with the matrix and neighbour paths.
+pub fn distance_arrays<'a>(model: Model, k: Curvature, x: Data<'a>, y: Data<'a>) -> Result<Output> {
+    let ops = [Operand::point("x", x), Operand::point("y", y)];
+    if model == Model::Hyperboloid {
+        hyperboloid::check_dim(&ops)?;
+    }
+    map_rows(
+        &ops,
+        &scalar_core,
+        16,
+        #[inline(always)]
+        |r, out| {
+            out[0] = point_distance(model, &k, r[0], r[1])?;
+            Ok(())
+        },
+    )
 }
 
 /// Runs `f` with a zeroed scratch buffer of length `n` (on the stack when

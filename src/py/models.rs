@@ -10,10 +10,11 @@ use crate::error::Result;
 use crate::models::ball::{self, Curvature, Rim};
 use crate::models::convert::convert_arrays;
 use crate::models::gyro::{self, GyroBall};
+use crate::models::hyperboloid;
 use crate::models::klein::Einstein;
 use crate::models::poincare::{self, Mobius};
 use crate::models::Model;
-use crate::models::{halfspace, hyperboloid};
+use crate::pairwise;
 
 type WithBase = for<'a> fn(Curvature, Data<'a>, Option<Data<'a>>) -> Result<Output>;
 type WithBaseRim = for<'a, 'r> fn(Curvature, Data<'a>, Option<Data<'a>>, &'r Rim) -> Result<Output>;
@@ -118,11 +119,11 @@ geodesic_rim_fn!(poincare_geodesic, "poincare.geodesic", Mobius);
 geodesic_rim_fn!(klein_geodesic, "klein.geodesic", Einstein);
 
 macro_rules! distance_fn {
-    ($pyname:ident, $core:path) => {
+    ($pyname:ident, $core:expr) => {
         #[pyfunction]
         #[pyo3(signature = (x, y, curvature = -1.0))]
         fn $pyname(py: Python<'_>, x: &Bound<'_, PyAny>, y: &Bound<'_, PyAny>, curvature: f64) -> PyResult<Py<PyAny>> {
-            binary(py, ["x", "y"], x, y, curvature, $core)
+            binary(py, ["x", "y"], x, y, curvature, |c, x, y| pairwise::distance_arrays($core, c, x, y))
         }
     };
 }
@@ -174,10 +175,10 @@ macro_rules! geodesic_fn {
     };
 }
 
-distance_fn!(poincare_distance, gyro::distance_arrays::<Mobius>);
-distance_fn!(klein_distance, gyro::distance_arrays::<Einstein>);
-distance_fn!(hyperboloid_distance, hyperboloid::distance_arrays);
-distance_fn!(halfspace_distance, halfspace::distance_arrays);
+distance_fn!(poincare_distance, Model::Poincare);
+distance_fn!(klein_distance, Model::Klein);
+distance_fn!(hyperboloid_distance, Model::Hyperboloid);
+distance_fn!(halfspace_distance, Model::HalfSpace);
 base_fn!(hyperboloid_exp_map, hyperboloid::exp_map_arrays, v);
 base_fn!(poincare_log_map, gyro::log_map_arrays::<Mobius>, y);
 base_fn!(klein_log_map, gyro::log_map_arrays::<Einstein>, y);

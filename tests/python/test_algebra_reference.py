@@ -24,6 +24,8 @@ from typing import Dict, Tuple
 import numpy as np
 import pytest
 
+import gyrokit as gk
+
 import mp_reference as ref
 from conftest import radius
 from algebra_support import (

@@ -31,3 +31,17 @@ def test_out_of_range_scalars_are_value_errors(call, name):
 def test_non_integers_are_type_errors(bad):
     with pytest.raises(TypeError, match="^k must be an integer"):
         gk.knn(X, bad)
+
+
+@pytest.mark.parametrize(
+    "call, name",
+    [
+        (lambda: gk.frechet_mean(X, max_iter=-1), "max_iter"),
+        (lambda: gk.frechet_mean(X, max_iter=2**64), "max_iter"),
+        (lambda: gk.KMeans(2, max_iter=2**64).fit(X), "max_iter"),
+        (lambda: gk.KMeans(2, n_init=2**70).fit(X), "n_init"),
+    ],
+)
+def test_out_of_range_iteration_counts_are_value_errors(call, name):
+    with pytest.raises(ValueError, match=rf"^{name}\b"):
+        call()
