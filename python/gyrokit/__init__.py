@@ -29,6 +29,7 @@ from . import halfspace, hyperboloid, klein, poincare, relativity
 from .neighbors import condensed_distances, distance_matrix, knn, radius_neighbors
 from ._index import NeighborIndex
 from .kmeans import KMeans, UnfittedError
+from ._native import RimClipWarning
 from .centroids import ConvergenceWarning, FrechetMean, FrechetVariance, einstein_midpoint, frechet_mean, frechet_variance
 from ._native import __version__
 from . import _native
