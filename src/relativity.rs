@@ -62,10 +62,17 @@ pub struct Speed {
 }
 
 impl Light {
-    /// Validates `c` (finite, positive, with `1/c^2` a normal float64, the
-    /// same range as [`Curvature::from_radius`]).
+    /// Validates `c`: finite, positive, with `c^2` and `1/c^2` normal
+    /// float64 numbers. The kernels work with `c` scaled into [1, 2) (the
+    /// ball below is that of the scaled `c`), so `c` itself may lie outside
+    /// the curvature range of the ball models.
     pub fn new(c: f64) -> Result<Light> {
-        Curvature::from_radius(c)?;
+        let c2 = c * c;
+        if !(c.is_finite() && c > 0.0 && c2.is_normal() && (1.0 / c2).is_normal()) {
+            return Err(crate::error::Error::Value(format!(
+                "c must be a finite positive number with c^2 and 1/c^2 within float64's normal range, got {c}"
+            )));
+        }
         // c is a positive normal number here: read its binary exponent.
         let e = ((c.to_bits() >> 52) & 0x7ff) as i32 - 1023;
         let (down, up) = (pow2(-e), pow2(e));
