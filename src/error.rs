@@ -42,6 +42,10 @@ pub enum Fault {
     OffHyperboloid(f64),
     /// A half-space point with last coordinate <= 0.
     NotInHalfSpace,
+    /// A half-space point with a coordinate beyond 2^250 in magnitude or a
+    /// last coordinate below 2^-250, where `|y - z|^2 / (y_d z_d)` would
+    /// overflow float64.
+    BeyondHalfSpaceRange,
     /// The result of a valid input overflows float64.
     Overflow,
     /// A hyperboloid point whose spatial coordinates exceed the range in
@@ -123,13 +127,24 @@ impl Fault {
                 if f32 { ", and float64 inputs give float64 results, which reach twice as far" } else { "" }
             ),
             Fault::NotInHalfSpace => "has last coordinate <= 0 (outside the upper half-space)".to_string(),
+            Fault::BeyondHalfSpaceRange => "lies beyond the half-space range: coordinates must be at most 2^250 \
+                 (about 1.8e75) in magnitude and the last one at least 2^-250 (about 5.5e-76), so that \
+                 |y - z|^2 / (y_d z_d) fits in float64 (the hyperboloid model reaches as far)"
+                .to_string(),
         }
     }
 
     /// Whether the fault is about where the point lies (a domain fault), as
     /// opposed to NaN/infinity or a result that overflows.
     fn is_domain(&self) -> bool {
-        matches!(self, Fault::OutsideBall(_) | Fault::OffHyperboloid(_) | Fault::NotInHalfSpace | Fault::BeyondRange)
+        matches!(
+            self,
+            Fault::OutsideBall(_)
+                | Fault::OffHyperboloid(_)
+                | Fault::NotInHalfSpace
+                | Fault::BeyondRange
+                | Fault::BeyondHalfSpaceRange
+        )
     }
 }
 

@@ -8,15 +8,23 @@
 
 use crate::error::Fault;
 
-/// Checks a half-space point: finite with last coordinate > 0.
+/// Smallest last coordinate read (2^-250); coordinates are at most its
+/// inverse in magnitude.
+const MIN_LAST: f64 = 5.527147875260445e-76; // 2^-250
+
+/// Checks a half-space point: finite, last coordinate > 0, within the range
+/// (see [`Fault::BeyondHalfSpaceRange`]).
 #[inline(always)]
 pub fn read_point(y: &[f64]) -> std::result::Result<(), Fault> {
     if !y.iter().all(|v| v.is_finite()) {
         return Err(Fault::NonFinite);
     }
-    if y[y.len() - 1] > 0.0 {
-        Ok(())
-    } else {
-        Err(Fault::NotInHalfSpace)
+    let yd = y[y.len() - 1];
+    if !(yd > 0.0) {
+        return Err(Fault::NotInHalfSpace);
     }
+    if yd < MIN_LAST || y.iter().any(|v| v.abs() > 1.0 / MIN_LAST) {
+        return Err(Fault::BeyondHalfSpaceRange);
+    }
+    Ok(())
 }

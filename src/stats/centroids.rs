@@ -258,14 +258,33 @@ fn einstein_unit(pts: &UnitPoints, idx: &[usize], w: Option<&[f64]>) -> Option<(
     if g > 0.5 {
         return Some((m, g));
     }
-    let i0 = *idx.iter().find(|&&i| w.map_or(1.0, |w| w[i]) > 0.0)?;
-    let c = &pts.p[i0 * d..(i0 + 1) * d];
-    let gc = pts.g[i0];
-    let (num, den) = einstein_sums(pts, idx, w, Some((c, gc)));
-    let (m2, g2) = einstein_point(num, den);
-    let mut out = vec![0f64; d];
-    let g = poincare::add_g(&Curvature::default(), c, gc, &m2, g2, 1.0, &mut out);
-    Some((out, g))
+    // Translate by a point near the result, so that the translated members
+    // lie around the origin and their average is well conditioned: the
+    // direct estimate, taken as an exact point with the gap of its rounded
+    // coordinates (any centre is exact, only its nearness matters). A member
+    // as the centre can leave the others beyond float64's resolution of the
+    // sphere (two members 40 R apart), and their sum on it. The estimate
+    // itself may have rounded onto the sphere: then the first member.
+    // A second round, centred on the first result, removes what the
+    // distance of the first centre from the result cost.
+    let mut est = m;
+    let mut last = None;
+    for _ in 0..2 {
+        let gm = crate::numeric::gap_dd(1.0, &est).value();
+        let (c, gc): (Vec<f64>, f64) = if gm > 0.0 && est.iter().all(|v| v.is_finite()) {
+            (est.clone(), gm)
+        } else {
+            let i0 = *idx.iter().find(|&&i| w.map_or(1.0, |w| w[i]) > 0.0)?;
+            (pts.p[i0 * d..(i0 + 1) * d].to_vec(), pts.g[i0])
+        };
+        let (num, den) = einstein_sums(pts, idx, w, Some((&c, gc)));
+        let (m2, g2) = einstein_point(num, den);
+        let mut out = vec![0f64; d];
+        let g = poincare::add_g(&Curvature::default(), &c, gc, &m2, g2, 1.0, &mut out);
+        est = out.clone();
+        last = Some((out, g));
+    }
+    last
 }
 
 /// Gradient, Hessian and objective at `mu` (unit ball) over the members.

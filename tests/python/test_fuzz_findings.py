@@ -49,3 +49,42 @@ def test_corrupted_index_state_is_a_value_error():
         # the intact state still round-trips
         again = pickle.loads(pickle.dumps(idx))
         np.testing.assert_array_equal(again.query(x[:5], 3)[1], idx.query(x[:5], 3)[1])
+
+
+@pytest.mark.parametrize("y, z", [([0.0, 1e308], [0.0, 1.0]), ([1e308], [1472988787330559.5]), ([0.0, 1e-300], [0.0, 1.0])])
+def test_halfspace_points_beyond_the_range_are_value_errors(y, z):
+    # F2: |y - z|^2 overflowed and the distance came back NaN.
+    with pytest.raises(ValueError, match="beyond the half-space range"):
+        gk.halfspace.distance(y, z)
+    with pytest.raises(ValueError, match="beyond the half-space range"):
+        gk.distance_matrix(np.array([y, z]), model="halfspace")
+
+
+def test_halfspace_points_inside_the_range_keep_their_digits():
+    # The largest range: y_d from 2^-250 to 2^250 apart on one vertical line,
+    # distance R ln(y_d / z_d) = 500 ln 2 (Ratcliffe, the upper half-space
+    # metric, from memory).
+    d = gk.halfspace.distance([0.0, 2.0**-250], [0.0, 2.0**250])
+    assert d == pytest.approx(500 * np.log(2), rel=1e-15)
+
+
+@pytest.mark.parametrize(
+    "x",
+    [
+        [[1 - 1e-11, 0.0], [-(1 - 1e-6), 0.0]],  # 40 R apart, one at 26 R
+        [[-0.9925404685657815, 0.12191561904358976], [0.6586740956439864, 0.7524268774344611]],
+    ],
+)
+def test_centroids_of_two_far_points_are_their_midpoint(x):
+    # F6: the Einstein midpoint landed on the sphere and the Fréchet mean was
+    # NaN. For two points with equal weights both are the geodesic midpoint
+    # (the gyromidpoint; Ungar, Analytic Hyperbolic Geometry, from memory;
+    # the Fréchet mean of two points is their midpoint: common practice).
+    x = np.array(x)
+    mid = gk.poincare.midpoint(x[0], x[1])
+    d = gk.poincare.distance(x[0], x[1])
+    for m in (gk.einstein_midpoint(x), gk.frechet_mean(x).mean):
+        assert np.all(np.isfinite(m))
+        # within a few ulps of the output's radius resolution
+        assert gk.poincare.distance(m, mid) < 1e-12 * d
+        assert abs(gk.poincare.distance(m, x[0]) - gk.poincare.distance(m, x[1])) < 1e-12 * d
