@@ -45,8 +45,10 @@ def convert(x: Any, src: str, dst: str, *, curvature: float = -1.0) -> Any:
     its exact gap ``1 - |p|^2/R^2``, so points within 1e-15 R of the sphere
     convert to relative accuracy ~1e-16 (hyperboloid coordinates up to
     ~1e15 R). Distances are preserved. Points that map beyond the float64
-    range (e.g. half-space points with ``y_d`` below ~1e-300 R, going to the
-    hyperboloid) raise ``ValueError``.
+    range of the target model (the ball models: about 37 R from the origin
+    in the Poincaré ball, 18 R in Klein; the hyperboloid: ``|x_1..d|`` up to
+    2^250) raise ``ValueError``; half-space points are read with coordinates
+    up to 2^250 in magnitude and ``y_d`` at least 2^-250.
     """
     return _native.convert(x, src, dst, curvature)
 

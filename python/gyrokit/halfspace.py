@@ -17,6 +17,10 @@ __all__ = ["distance"]
 def distance(x: Any, y: Any, *, curvature: float = -1.0) -> Any:
     """Hyperbolic distance, ``cosh(d/R) = 1 + |x - y|^2 / (2 x_d y_d)``, through asinh.
 
-    Signature ``(..., d), (..., d) -> (...)``.
+    Signature ``(..., d), (..., d) -> (...)``. Points must have coordinates
+    of at most 2^250 (about 1.8e75) in magnitude and a last coordinate of at
+    least 2^-250, so that ``|x - y|^2 / (x_d y_d)`` fits in float64; others
+    raise ``ValueError``. Computed by the kernel of :func:`gyrokit.distance_matrix`,
+    bit for bit.
     """
     return _native.halfspace_distance(x, y, curvature)

@@ -124,7 +124,12 @@ def test_hyperboloid_results_beyond_range_rejected():
     # exp_map and conversions whose result would lie beyond the range raise
     with pytest.raises(ValueError, match=r"^v\b.*beyond the hyperboloid range"):
         gk.hyperboloid.exp_map(np.array([0.0, 180.0, 0.0]))
+    # a half-space point inside its own range (coordinates up to 2^250) whose
+    # hyperboloid image lies beyond the hyperboloid's
     with pytest.raises(ValueError, match=r"^x\b.*beyond the hyperboloid range"):
+        gk.convert(np.array([1e38, 1.0]), "halfspace", "hyperboloid")
+    # and one beyond the half-space range itself
+    with pytest.raises(ValueError, match=r"^x\b.*beyond the half-space range"):
         gk.convert(np.array([0.3, 1e-200]), "halfspace", "hyperboloid")
     y = gk.hyperboloid.exp_map(np.array([0.0, 170.0, 0.0]))
     assert abs(np.arcsinh(y[1]) - 170.0) < 1e-13 * 170.0
