@@ -81,7 +81,7 @@ impl Packed {
 /// differences accumulated in coordinate order (the order of
 /// [`seq_dist_sq`]), then finished as [`Prepared::finish_h`] does.
 #[inline(always)]
-fn tile_h<const R: usize>(
+fn tile_h<const R: usize, const REFINE: bool>(
     x: &Prepared,
     y: &Prepared,
     i0: usize,
@@ -105,14 +105,13 @@ fn tile_h<const R: usize>(
             }
         }
     }
-    let refine = x.space() != PairSpace::Own;
     let kappa = x.curvature.kappa;
     let valid = y.n.saturating_sub(j0).min(LANES);
     for r in 0..R {
         let ax = x.aux[i0 + r];
         let mut close = false;
         for l in 0..LANES {
-            close |= refine && kappa * acc[r][l] < REFINE_BELOW;
+            close |= REFINE && kappa * acc[r][l] < REFINE_BELOW;
         }
         if close {
             // Rare: images closer than R/64 (see pairwise). Padding lanes
@@ -140,6 +139,23 @@ fn for_each_h(
     y: &Prepared,
     pk: &Packed,
     rows: std::ops::Range<usize>,
+    f: impl FnMut(usize, usize, &[f64; LANES], usize),
+) {
+    // Monomorphised on whether the model's pair space can need refinement,
+    // so the models stored in their own coordinates carry no check at all.
+    if x.space() == PairSpace::Own {
+        for_each_h_in::<false>(x, y, pk, rows, f)
+    } else {
+        for_each_h_in::<true>(x, y, pk, rows, f)
+    }
+}
+
+#[inline(always)]
+fn for_each_h_in<const REFINE: bool>(
+    x: &Prepared,
+    y: &Prepared,
+    pk: &Packed,
+    rows: std::ops::Range<usize>,
     mut f: impl FnMut(usize, usize, &[f64; LANES], usize),
 ) {
     let s = pair_scale(x.model, &x.curvature);
@@ -151,14 +167,14 @@ fn for_each_h(
         let mut h = [[0f64; LANES]; ROWS];
         let mut h1 = [[0f64; LANES]; 1];
         while i + ROWS <= rows.end {
-            tile_h::<ROWS>(x, y, i, j0, panel, ay, s, &mut h);
+            tile_h::<ROWS, REFINE>(x, y, i, j0, panel, ay, s, &mut h);
             for r in 0..ROWS {
                 f(i + r, j0, &h[r], valid);
             }
             i += ROWS;
         }
         while i < rows.end {
-            tile_h::<1>(x, y, i, j0, panel, ay, s, &mut h1);
+            tile_h::<1, REFINE>(x, y, i, j0, panel, ay, s, &mut h1);
             f(i, j0, &h1[0], valid);
             i += 1;
         }
