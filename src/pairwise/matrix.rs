@@ -16,9 +16,8 @@
 use rayon::prelude::*;
 
 use crate::error::{value_err, Result};
-use crate::numeric::acosh1p2_fast;
 use crate::numeric::simd;
-use crate::pairwise::{pair_scale, scaled_h, PairSpace, Prepared, REFINE_BELOW};
+use crate::pairwise::{distance_from_h, pair_scale, scaled_h, PairSpace, Prepared, REFINE_BELOW};
 
 /// Output element types.
 pub trait Store: Copy + Send + Sync + Default + 'static {
@@ -196,7 +195,7 @@ pub fn distance_matrix_into<T: Store>(x: &Prepared, y: &Prepared, out: &mut [T])
         return Ok(());
     }
     let packed = Packed::new(y);
-    let radius = x.curvature.radius;
+    let kc = &x.curvature;
     let fast = simd::has_fma();
     out.par_chunks_mut(STRIP * m).enumerate().for_each(|(s, block)| {
         let r0 = s * STRIP;
@@ -216,7 +215,7 @@ pub fn distance_matrix_into<T: Store>(x: &Prepared, y: &Prepared, out: &mut [T])
                         // transcendental vectorises; only valid lanes are stored.
                         let mut dv = [0f64; LANES];
                         for l in 0..LANES {
-                            dv[l] = radius * acosh1p2_fast(hs[l]);
+                            dv[l] = distance_from_h(kc, hs[l]);
                         }
                         let at = (i - r0) * m + j0;
                         if valid == LANES {
@@ -249,7 +248,7 @@ pub fn condensed_into<T: Store>(x: &Prepared, out: &mut [T]) -> Result<()> {
         return Ok(());
     }
     let packed = Packed::new(x);
-    let radius = x.curvature.radius;
+    let kc = &x.curvature;
     let fast = simd::has_fma();
     // Split the output at strip boundaries: row i starts at i n - i (i + 1)/2.
     let start = |i: usize| i * n - i * (i + 1) / 2;
@@ -283,7 +282,7 @@ pub fn condensed_into<T: Store>(x: &Prepared, out: &mut [T]) -> Result<()> {
                         }
                         let mut dv = [0f64; LANES];
                         for l in 0..LANES {
-                            dv[l] = radius * acosh1p2_fast(hs[l]);
+                            dv[l] = distance_from_h(kc, hs[l]);
                         }
                         for l in 0..valid {
                             let j = j0 + l;
@@ -379,7 +378,7 @@ pub fn knn(x: &Prepared, y: &Prepared, k: usize, exclude_self: bool) -> Result<(
         return Ok((idx, dist));
     }
     let packed = Packed::new(y);
-    let radius = x.curvature.radius;
+    let kc = &x.curvature;
     let fast = simd::has_fma();
     idx.par_chunks_mut(STRIP * k).zip(dist.par_chunks_mut(STRIP * k)).enumerate().for_each(|(s, (ib, db))| {
         let r0 = s * STRIP;
@@ -414,7 +413,7 @@ pub fn knn(x: &Prepared, y: &Prepared, k: usize, exclude_self: bool) -> Result<(
         );
         for (r, t) in tops.into_iter().enumerate() {
             // Settle by (distance, index) over the k and their near-ties.
-            let mut dd: Vec<f64> = t.h.iter().map(|&h| radius * acosh1p2_fast(h)).collect();
+            let mut dd: Vec<f64> = t.h.iter().map(|&h| distance_from_h(kc, h)).collect();
             let mut jj: Vec<i64> = t.j.iter().map(|&j| j as i64).collect();
             sort_pairs(&mut dd, &mut jj);
             ib[r * k..(r + 1) * k].copy_from_slice(&jj[..k]);
@@ -438,10 +437,10 @@ pub fn radius_neighbors(
         return value_err(format!("r must be a distance >= 0, got {r}"));
     }
     let n = x.n;
-    let radius = x.curvature.radius;
+    let kc = &x.curvature;
     // h at distance r, with slack: candidates are confirmed by their distance.
     let hr = {
-        let s = (r / (2.0 * radius)).sinh();
+        let s = (r / (2.0 * kc.radius)).sinh();
         s * s * (1.0 + 1e-12) + f64::MIN_POSITIVE
     };
     let packed = Packed::new(y);
@@ -470,7 +469,7 @@ pub fn radius_neighbors(
                                     if exclude_self && j == i {
                                         continue;
                                     }
-                                    let d = radius * acosh1p2_fast(h);
+                                    let d = distance_from_h(kc, h);
                                     if d <= r {
                                         let row = &mut rows[i - r0];
                                         row.0.push(j as i64);

@@ -50,9 +50,8 @@ use crate::batch::Data;
 use crate::error::{Error, Result};
 use crate::models::ball::Curvature;
 use crate::models::Model;
-use crate::numeric::acosh1p2_fast;
 use crate::numeric::simd;
-use crate::pairwise::{matrix, PairSpace, Prepared};
+use crate::pairwise::{distance_from_h, matrix, PairSpace, Prepared};
 
 /// Default number of points per leaf. Leaves are scanned brute force; with
 /// the cheap pair function of [`Prepared`] (a few ns per pair), leaves of
@@ -340,7 +339,7 @@ fn child_bounds(pts: &Prepared, items: &[(f64, usize)]) -> [f64; 2] {
         lo = lo.min(h);
         hi = hi.max(h);
     }
-    let dist = |h: f64| pts.curvature.radius * acosh1p2_fast(h);
+    let dist = |h: f64| distance_from_h(&pts.curvature, h);
     let (dlo, dhi) = (dist(lo), dist(hi));
     if dlo.is_nan() || dhi.is_nan() {
         return [0.0, f64::INFINITY];
@@ -579,7 +578,7 @@ impl VpTree {
     /// filter can look at `h` first.
     #[inline(always)]
     fn dist_from_h(&self, q: &Prepared, h: f64) -> f64 {
-        q.curvature.radius * acosh1p2_fast(h)
+        distance_from_h(&q.curvature, h)
     }
 
     /// The k nearest of query row `qi` of `q` into `best`, skipping tree
