@@ -7,11 +7,15 @@
 //! SIMD dispatch), `batch` (the broadcasting engine of element-wise
 //! functions), `models` (the four models and the conversions through the
 //! hub), `pairwise` (prepared point sets, matrices, neighbours, the tree
-//! index), `stats` (centroids, dispersion, clustering), `relativity`
+//! index), `stats` (centroids, dispersion, clustering), `embed` (tree
+//! embedding, h-MDS, learned graph embeddings), `metrics` (distortion,
+//! reconstruction, tree distances), `relativity`
 //! (velocities in physical units), `py` (the pyo3 layer).
 
 pub mod batch;
+pub mod embed;
 pub mod error;
+pub mod metrics;
 pub mod models;
 pub mod numeric;
 pub mod pairwise;

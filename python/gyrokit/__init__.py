@@ -25,7 +25,7 @@ from __future__ import annotations
 
 from typing import Any
 
-from . import halfspace, hyperboloid, klein, poincare, relativity
+from . import embed, halfspace, hyperboloid, klein, metrics, poincare, relativity
 from .neighbors import condensed_distances, distance_matrix, knn, radius_neighbors
 from ._index import NeighborIndex
 from .kmeans import KMeans, UnfittedError
@@ -54,7 +54,7 @@ def convert(x: Any, src: str, dst: str, *, curvature: float = -1.0) -> Any:
 
 
 __all__ = [
-    "poincare", "klein", "hyperboloid", "halfspace", "relativity", "convert", "MODELS",
+    "poincare", "klein", "hyperboloid", "halfspace", "relativity", "embed", "metrics", "convert", "MODELS",
     "distance_matrix", "condensed_distances", "knn", "radius_neighbors",
     "NeighborIndex", "KMeans", "UnfittedError", "frechet_mean", "einstein_midpoint", "frechet_variance", "FrechetMean",
     "FrechetVariance", "ConvergenceWarning", "RimClipWarning",

@@ -1,0 +1,2 @@
+//! Getting data into hyperbolic space: combinatorial tree embedding,
+//! hyperbolic multidimensional scaling, learned graph embeddings.

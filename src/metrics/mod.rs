@@ -1,0 +1,2 @@
+//! Judging an embedding: distortion, graph reconstruction (mean average
+//! precision, mean rank), exact tree distances.
