@@ -53,6 +53,19 @@ def convert(x: Any, src: str, dst: str, *, curvature: float = -1.0) -> Any:
     return _native.convert(x, src, dst, curvature)
 
 
+# Submodules with optional dependencies, imported on first access
+# (``gk.dask`` needs the ``dask`` extra).
+_LAZY = ("dask",)
+
+
+def __getattr__(name: str) -> Any:
+    if name in _LAZY:
+        import importlib
+
+        return importlib.import_module(f"{__name__}.{name}")
+    raise AttributeError(f"module {__name__!r} has no attribute {name!r}")
+
+
 __all__ = [
     "poincare", "klein", "hyperboloid", "halfspace", "relativity", "embed", "metrics", "convert", "MODELS",
     "distance_matrix", "condensed_distances", "knn", "radius_neighbors",

@@ -1,0 +1,246 @@
+"""The same analysis on dask arrays: out of core and on a cluster.
+
+Install with ``pip install gyrokit[dask]`` (dask and distributed). Every
+function takes dask arrays (or anything :func:`dask.array.asarray` accepts:
+NumPy arrays, ``np.memmap``, zarr arrays) of points along the last axis,
+rows chunked any way (the coordinate axis is brought into one chunk), and
+builds ordinary dask tasks that call the Rust core on one block each: no
+scheduler or transport of our own, so the same code runs on the threaded
+scheduler, on a ``distributed.LocalCluster`` or on a multi-machine cluster
+(only the ``Client`` address changes).
+
+Results are the in-memory functions' results, bit for bit, whatever the
+chunking: every pair distance is computed by the same kernel in the same
+operation order (``gk.distance_matrix``), and neighbour candidates are
+merged by the same total order (distance, then index) as ``gk.knn``.
+
+Errors in a block (a point outside the ball, NaN) are raised when the
+result is computed, as a ``ValueError`` naming the argument and the row of
+the whole array (not of the block).
+"""
+
+from __future__ import annotations
+
+import re
+from typing import Any, List, Optional, Tuple
+
+import numpy as np
+
+from . import _native
+from ._args import count as _count
+
+try:
+    import dask
+    import dask.array as da
+except ImportError as e:  # pragma: no cover - exercised without the extra
+    raise ImportError(
+        "gyrokit.dask needs dask: install the extra with `pip install gyrokit[dask]` "
+        "(dask[array] and distributed)"
+    ) from e
+
+__all__ = ["distance_matrix", "knn"]
+
+_ROW = re.compile(r"^(\w+): row (\d+)")
+
+
+def _shift_rows(e: ValueError, offsets: dict) -> ValueError:
+    """The core names rows of the block it saw; name the rows of the whole array."""
+    msg = str(e)
+    m = _ROW.match(msg)
+    if m is None or m.group(1) not in offsets:
+        return e
+    row = int(m.group(2)) + offsets[m.group(1)]
+    return ValueError(f"{m.group(1)}: row {row}{msg[m.end():]}")
+
+
+def _width(model: str) -> None:
+    if model not in ("poincare", "klein", "hyperboloid", "halfspace"):
+        # The core's message names the valid models.
+        _native.distance_matrix(np.zeros((0, 1)), None, model, -1.0, None)
+
+
+def _as_points(name: str, a: Any) -> "da.Array":
+    if not isinstance(a, da.Array):
+        a = da.asarray(a)
+    if a.ndim != 2:
+        raise ValueError(f"{name}: expected a 2-d array of points (n, d), got {a.ndim} dimension(s)")
+    if a.dtype.kind not in "fiub":
+        raise TypeError(f"{name}: expected a real array, got dtype {a.dtype}")
+    if a.dtype.kind != "f":
+        a = a.astype(np.float64)
+    if a.numblocks[1] != 1:
+        a = a.rechunk({1: -1})
+    return a
+
+
+def _starts(chunks: Tuple[int, ...]) -> List[int]:
+    return list(np.concatenate([[0], np.cumsum(chunks)[:-1]]).astype(int)) if chunks else []
+
+
+def _out_dtype(*arrays: "da.Array") -> np.dtype:
+    """float32 when every array argument is float32 (the library's one dtype rule)."""
+    return np.dtype(np.float32) if all(a.dtype == np.float32 for a in arrays) else np.dtype(np.float64)
+
+
+def distance_matrix(
+    x: Any,
+    y: Any = None,
+    *,
+    model: str = "poincare",
+    curvature: float = -1.0,
+) -> "da.Array":
+    """All pairwise distances as a lazy ``(n, m)`` dask array, block ``(i, j)``
+    from row blocks ``i`` of ``x`` and ``j`` of ``y`` (``y=None`` uses ``x``).
+
+    Bit-identical to :func:`gyrokit.distance_matrix` on the same data,
+    whatever the chunking. Store a result larger than memory with
+    ``da.to_zarr`` or ``da.store`` into a ``np.memmap``.
+    """
+    _width(model)
+    x = _as_points("x", x)
+    yy = x if y is None else _as_points("y", y)
+    if yy.shape[1] != x.shape[1]:
+        raise ValueError(f"x and y must have the same number of coordinates, got {x.shape[1]} and {yy.shape[1]}")
+    dtype = _out_dtype(x, yy)
+    xs, ys = _starts(x.chunks[0]), _starts(yy.chunks[0])
+    same = y is None
+
+    def block(xb: np.ndarray, yb: np.ndarray, x0: int, y0: int) -> np.ndarray:
+        try:
+            return _native.distance_matrix(xb, yb, model, curvature, None)
+        except ValueError as e:
+            if same:
+                # Both blocks come from x: name x for a bad row of either.
+                raise _rename(e, x0, y0) from None
+            raise _shift_rows(e, {"x": x0, "y": y0}) from None
+
+    task = dask.delayed(block, pure=True)
+    xblocks, yblocks = x.to_delayed().ravel(), yy.to_delayed().ravel()
+    return da.block(
+        [
+            [
+                da.from_delayed(task(xb, yb, xs[i], ys[j]), (x.chunks[0][i], yy.chunks[0][j]), dtype=dtype)
+                for j, yb in enumerate(yblocks)
+            ]
+            for i, xb in enumerate(xblocks)
+        ]
+    )
+
+
+def _merge(k: int, *parts: Tuple[np.ndarray, np.ndarray]) -> Tuple[np.ndarray, np.ndarray]:
+    """The k smallest candidates per row by (distance, index): a total order, so
+    the result does not depend on how the blocks were grouped."""
+    idx = np.concatenate([p[0] for p in parts], axis=1)
+    dist = np.concatenate([p[1] for p in parts], axis=1)
+    order = np.lexsort((idx, dist), axis=1)[:, :k]
+    return np.take_along_axis(idx, order, 1), np.take_along_axis(dist, order, 1)
+
+
+def _block_knn(
+    xb: np.ndarray,
+    yb: np.ndarray,
+    k: int,
+    x0: int,
+    y0: int,
+    model: str,
+    curvature: float,
+    self_block: bool,
+    names: Tuple[str, str],
+) -> Tuple[np.ndarray, np.ndarray]:
+    """Candidates of one (x block, y block) pair: global indices, float64 distances."""
+    # float32 values are exact in float64: the distances are the ones the core
+    # computes for float32 input, before the final rounding.
+    xb = np.asarray(xb, dtype=np.float64)
+    yb = np.asarray(yb, dtype=np.float64)
+    kk = min(k + (1 if self_block else 0), yb.shape[0])
+    try:
+        idx, dist = _native.knn(xb, kk, yb, model, curvature)
+    except ValueError as e:
+        if names == ("x", "y"):
+            raise _shift_rows(e, {"x": x0, "y": y0}) from None
+        raise _rename(e, x0, y0) from None
+    idx = idx + y0
+    if self_block:
+        # Drop each row's own index (a duplicate elsewhere at distance 0
+        # stays). kk = min(k + 1, block rows): a row that did not meet itself
+        # among its kk candidates keeps its best kk - 1 >= k, and when kk is
+        # the whole block every row met itself.
+        own = idx == (np.arange(xb.shape[0]) + x0)[:, None]
+        order = np.argsort(own, axis=1, kind="stable")[:, : kk - 1]
+        idx = np.take_along_axis(idx, order, 1)
+        dist = np.take_along_axis(dist, order, 1)
+    return idx, dist
+
+
+def _rename(e: ValueError, x0: int, y0: int) -> ValueError:
+    """y=None: both blocks come from x."""
+    msg = str(e)
+    m = _ROW.match(msg)
+    if m is None:
+        return e
+    row = int(m.group(2)) + (x0 if m.group(1) == "x" else y0)
+    return ValueError(f"x: row {row}{msg[m.end():].replace('|y|', '|x|')}")
+
+
+def knn(
+    x: Any,
+    k: int,
+    y: Any = None,
+    *,
+    model: str = "poincare",
+    curvature: float = -1.0,
+) -> Tuple["da.Array", "da.Array"]:
+    """The ``k`` nearest rows of ``y`` to each row of ``x``, exact.
+
+    Returns lazy ``(indices (n, k) int64, distances (n, k))`` dask arrays,
+    chunked like the rows of ``x``; compute both together
+    (``dask.compute(idx, dist)``) so that each block is searched once. Each
+    pair of row blocks gives its ``k`` best candidates (``gk.knn`` on the
+    two blocks); the candidates of a row block are merged by (distance,
+    index), the tie rule of :func:`gyrokit.knn`, in a binary tree of tasks,
+    so the results equal ``gk.knn``'s exactly (distances float32 when every
+    input is float32, ranked in float64). ``y=None`` searches ``x`` itself
+    and excludes each point's own row. Memory per task: two blocks and
+    ``2k`` candidates per row.
+    """
+    _width(model)
+    k = _count("k", k, 1)
+    x = _as_points("x", x)
+    yy = x if y is None else _as_points("y", y)
+    if yy.shape[1] != x.shape[1]:
+        raise ValueError(f"x and y must have the same number of coordinates, got {x.shape[1]} and {yy.shape[1]}")
+    n, m = x.shape[0], yy.shape[0]
+    candidates = m - 1 if y is None else m
+    if k > candidates and not (y is None and n == 0):
+        raise ValueError(f"k = {k} exceeds the number of candidates ({candidates})")
+    dtype = _out_dtype(x, yy)
+    xs, ys = _starts(x.chunks[0]), _starts(yy.chunks[0])
+    xblocks = x.to_delayed().ravel()
+    yblocks = yy.to_delayed().ravel()
+    names = ("x", "x") if y is None else ("x", "y")
+    part = dask.delayed(_block_knn, pure=True, nout=2)
+    merge = dask.delayed(_merge, pure=True, nout=2)
+    idx_blocks, dist_blocks = [], []
+    for i, xb in enumerate(xblocks):
+        leaves = [
+            part(xb, yb, k, xs[i], ys[j], model, curvature, y is None and i == j, names)
+            for j, yb in enumerate(yblocks)
+        ]
+        while len(leaves) > 1:
+            leaves = [merge(k, *leaves[a : a + 2]) for a in range(0, len(leaves), 2)]
+        rows = x.chunks[0][i]
+        if leaves:
+            top = merge(k, leaves[0])
+            ib, db = top[0], top[1]
+        else:
+            ib = np.empty((rows, k), np.int64)
+            db = np.empty((rows, k), np.float64)
+        idx_blocks.append(da.from_delayed(ib, (rows, k), dtype=np.int64))
+        dist_blocks.append(da.from_delayed(db, (rows, k), dtype=np.float64))
+    if not idx_blocks:
+        return da.zeros((0, k), dtype=np.int64), da.zeros((0, k), dtype=dtype)
+    idx = da.concatenate(idx_blocks, axis=0)
+    dist = da.concatenate(dist_blocks, axis=0)
+    if dtype == np.float32:
+        dist = dist.astype(np.float32)
+    return idx, dist
