@@ -10,7 +10,7 @@ use crate::models::ball::Curvature;
 use crate::models::Model;
 use crate::stats::centroids;
 
-fn weights_arg(py: Python<'_>, w: Option<&Bound<'_, PyAny>>) -> PyResult<Option<Vec<f64>>> {
+pub(crate) fn weights_arg(py: Python<'_>, w: Option<&Bound<'_, PyAny>>) -> PyResult<Option<Vec<f64>>> {
     match w {
         Some(w) if !w.is_none() => {
             let a = coerce(py, "weights", w)?;
@@ -30,7 +30,7 @@ fn weights_arg(py: Python<'_>, w: Option<&Bound<'_, PyAny>>) -> PyResult<Option<
     }
 }
 
-fn labels_arg(py: Python<'_>, l: Option<&Bound<'_, PyAny>>) -> PyResult<Option<Vec<i64>>> {
+pub(crate) fn labels_arg(py: Python<'_>, l: Option<&Bound<'_, PyAny>>) -> PyResult<Option<Vec<i64>>> {
     match l {
         Some(l) if !l.is_none() => {
             let np = py.import("numpy")?;

@@ -13,6 +13,7 @@ mod index;
 mod kmeans;
 mod models;
 mod neighbors;
+mod partial;
 mod relativity;
 
 impl From<Error> for PyErr {
@@ -32,6 +33,7 @@ fn _native(m: &Bound<'_, PyModule>) -> PyResult<()> {
     index::register(m)?;
     kmeans::register(m)?;
     neighbors::register(m)?;
+    partial::register(m)?;
     relativity::register(m)?;
     m.add("__version__", env!("CARGO_PKG_VERSION"))?;
     Ok(())

@@ -146,15 +146,20 @@ fn normalized(weights: Option<&[f64]>, n: usize) -> Result<Option<Vec<f64>>> {
         None => Ok(None),
         Some(w) => {
             check_weights(w, n)?;
-            let m = w.iter().fold(0.0f64, |a, &b| a.max(b));
-            if m == 0.0 {
-                return Ok(Some(w.to_vec()));
-            }
-            // A power of two: exact, so any subset scaled by a different
-            // power gives bit-identical means (per-label = separate means).
-            let f = crate::numeric::pow2(-crate::numeric::scale_exponent_of(m));
+            let f = weight_factor(w.iter().fold(0.0f64, |a, &b| a.max(b)));
             Ok(Some(w.iter().map(|v| v * f).collect()))
         }
+    }
+}
+
+/// The factor weights are scaled by, from their maximum: a power of two, so
+/// exact, and any subset scaled by a different power gives bit-identical
+/// means (per-label = separate means). 1 when all weights are zero.
+pub(crate) fn weight_factor(max: f64) -> f64 {
+    if max == 0.0 {
+        1.0
+    } else {
+        crate::numeric::pow2(-crate::numeric::scale_exponent_of(max))
     }
 }
 
@@ -186,7 +191,12 @@ pub fn groups(labels: Option<&[i64]>, n: usize) -> Result<(Vec<i64>, Vec<Vec<usi
 /// The Einstein sums `(sum w 2p'/g', sum w (2 - g')/g')` of the members
 /// translated by `-c` (`p' = (-c) ⊕ p`, exact gap carried; `c = None` is no
 /// translation).
-fn einstein_sums(pts: &UnitPoints, idx: &[usize], w: Option<&[f64]>, c: Option<(&[f64], f64)>) -> (Vec<f64>, f64) {
+pub(crate) fn einstein_sums(
+    pts: &UnitPoints,
+    idx: &[usize],
+    w: Option<&[f64]>,
+    c: Option<(&[f64], f64)>,
+) -> (Vec<f64>, f64) {
     let d = pts.d;
     let unit = Curvature::default();
     let parts: Vec<(Vec<f64>, f64)> = idx
@@ -231,7 +241,7 @@ fn einstein_sums(pts: &UnitPoints, idx: &[usize], w: Option<&[f64]>, c: Option<(
 }
 
 /// Klein sums to the Poincaré point with its gap.
-fn einstein_point(mut num: Vec<f64>, den: f64) -> (Vec<f64>, f64) {
+pub(crate) fn einstein_point(mut num: Vec<f64>, den: f64) -> (Vec<f64>, f64) {
     num.iter_mut().for_each(|v| *v /= den);
     let gk = (1.0 - crate::numeric::sumsq_dd(&num).value()).max(0.0);
     let a = gk.sqrt();
@@ -247,49 +257,12 @@ fn einstein_point(mut num: Vec<f64>, den: f64) -> (Vec<f64>, f64) {
 /// result translated back: the gyrocentroid commutes with gyrotranslations
 /// (Ungar).
 fn einstein_unit(pts: &UnitPoints, idx: &[usize], w: Option<&[f64]>) -> Option<(Vec<f64>, f64)> {
-    let d = pts.d;
-    let (num, den) = einstein_sums(pts, idx, w, None);
-    if !(den > 0.0) {
-        return None;
-    }
-    let (m, g) = einstein_point(num, den);
-    // The Klein gap 1 - |m_K|^2 loses ~eps/g_K relative; accept the direct
-    // result only where that is negligible (g_K > 0.1 <=> Poincaré gap > ~0.46).
-    if g > 0.5 {
-        return Some((m, g));
-    }
-    // Translate by a point near the result, so that the translated members
-    // lie around the origin and their average is well conditioned: the
-    // direct estimate, taken as an exact point with the gap of its rounded
-    // coordinates (any centre is exact, only its nearness matters). A member
-    // as the centre can leave the others beyond float64's resolution of the
-    // sphere (two members 40 R apart), and their sum on it. The estimate
-    // itself may have rounded onto the sphere: then the first member.
-    // A second round, centred on the first result, removes what the
-    // distance of the first centre from the result cost.
-    let mut est = m;
-    let mut last = None;
-    for _ in 0..2 {
-        let gm = crate::numeric::gap_dd(1.0, &est).value();
-        let (c, gc): (Vec<f64>, f64) = if gm > 0.0 && est.iter().all(|v| v.is_finite()) {
-            (est.clone(), gm)
-        } else {
-            let i0 = *idx.iter().find(|&&i| w.map_or(1.0, |w| w[i]) > 0.0)?;
-            (pts.p[i0 * d..(i0 + 1) * d].to_vec(), pts.g[i0])
-        };
-        let (num, den) = einstein_sums(pts, idx, w, Some((&c, gc)));
-        let (m2, g2) = einstein_point(num, den);
-        let mut out = vec![0f64; d];
-        let g = poincare::add_g(&Curvature::default(), &c, gc, &m2, g2, 1.0, &mut out);
-        est = out.clone();
-        last = Some((out, g));
-    }
-    last
+    super::partial::run(pts, idx, w, None).map(|r| (r.mu, r.gap))
 }
 
 /// Gradient, Hessian and objective at `mu` (unit ball) over the members.
 #[derive(Clone)]
-pub(crate) struct Stats {
+pub struct Stats {
     pub grad: Vec<f64>,
     /// Upper triangle of the outer-product part, row-major `d x d`.
     pub hout: Vec<f64>,
@@ -481,8 +454,7 @@ pub(crate) fn frechet_group(
     tol: f64,
     max_iter: usize,
 ) -> Option<GroupMean> {
-    let (mu, gmu) = einstein_unit(pts, idx, w)?;
-    Some(newton_from(pts, idx, w, mu, gmu, tol, max_iter))
+    super::partial::run(pts, idx, w, Some((tol, max_iter)))
 }
 
 /// mu, gap, step, scale, grad norm of the last full Newton step.
@@ -569,23 +541,6 @@ impl Newton {
         self.gmu = g2;
         true
     }
-}
-
-/// Newton's method for the Fréchet mean of the members, started at the
-/// unit-ball point `mu` with gap `gmu`. The members must have a positive
-/// total weight.
-pub(crate) fn newton_from(
-    pts: &UnitPoints,
-    idx: &[usize],
-    w: Option<&[f64]>,
-    mu: Vec<f64>,
-    gmu: f64,
-    tol: f64,
-    max_iter: usize,
-) -> GroupMean {
-    let mut nt = Newton::new(mu, gmu, tol, max_iter, 0.0);
-    while nt.advance(&stats(pts, idx, w, &nt.mu, nt.gmu)) {}
-    nt.result.expect("finished")
 }
 
 /// Result of [`frechet_mean`]: one row per group (a single group without

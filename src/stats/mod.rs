@@ -3,3 +3,4 @@
 
 pub mod centroids;
 pub mod kmeans;
+pub mod partial;

@@ -195,3 +195,17 @@ def _mpmath_precision_restored():
     prec = mpmath.mp.prec
     yield
     mpmath.mp.prec = prec
+
+
+@pytest.fixture(scope="session")
+def client():
+    """A distributed.LocalCluster of two worker processes (2 GiB each), shared
+    by the gyrokit.dask tests and closed at the end of the session."""
+    distributed = pytest.importorskip("distributed")
+    cluster = distributed.LocalCluster(
+        n_workers=2, threads_per_worker=1, processes=True, dashboard_address=None, memory_limit="2GiB"
+    )
+    c = distributed.Client(cluster)
+    yield c
+    c.close()
+    cluster.close()

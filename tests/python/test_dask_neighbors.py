@@ -19,17 +19,6 @@ distributed = pytest.importorskip("distributed")
 from conftest import MODELS  # noqa: E402
 
 
-@pytest.fixture(scope="module")
-def client():
-    cluster = distributed.LocalCluster(
-        n_workers=2, threads_per_worker=1, processes=True, dashboard_address=None, memory_limit="2GiB"
-    )
-    c = distributed.Client(cluster)
-    yield c
-    c.close()
-    cluster.close()
-
-
 def _ball(n: int, d: int, seed: int, rmax: float = 3.0) -> np.ndarray:
     rng = np.random.default_rng(seed)
     v = rng.normal(size=(n, d))

@@ -1,0 +1,279 @@
+//! Centroids from partial sums: the Einstein start and the Newton iteration
+//! of [`super::centroids`] written as a state machine that asks for sums
+//! over the points and is fed them. The in-memory functions feed it sums
+//! over all members at once; a distributed caller (gyrokit.dask) feeds it
+//! the sums of each chunk of the data, computed where the chunk lives by
+//! [`chunk_sums`], in a fixed order. The iteration is the same code either
+//! way, so the two agree up to the rounding of the sums' grouping.
+
+use crate::batch::Data;
+use crate::error::{Error, Result};
+use crate::models::ball::Curvature;
+use crate::models::poincare;
+use crate::models::Model;
+
+use super::centroids::{einstein_point, einstein_sums, stats, unit_points, weight_factor, GroupMean, Newton, Stats};
+
+/// A point of the unit ball with its exact gap.
+pub type Hub = (Vec<f64>, f64);
+
+/// The sums a driver needs next.
+#[derive(Clone, Debug, PartialEq)]
+pub enum Query {
+    /// Einstein sums of the members, translated by `-c` when a centre is given.
+    Einstein(Option<Hub>),
+    /// Newton statistics at `mu` (gradient, Hessian, objective).
+    Stats(Hub),
+}
+
+/// Sums of some of the members answering a [`Query`].
+#[derive(Clone)]
+pub enum Sums {
+    /// `(sum w 2p'/g', sum w (2 - g')/g')` and the first member of positive
+    /// weight in input order (needed when the direct estimate has rounded
+    /// onto the sphere).
+    Einstein {
+        num: Vec<f64>,
+        den: f64,
+        first: Option<Hub>,
+    },
+    Stats(Stats),
+}
+
+impl Sums {
+    /// The sums of no members.
+    pub fn zero(q: &Query, d: usize) -> Sums {
+        match q {
+            Query::Einstein(_) => Sums::Einstein { num: vec![0f64; d], den: 0.0, first: None },
+            Query::Stats(_) => Sums::Stats(Stats::zero(d)),
+        }
+    }
+
+    /// Adds the sums of later members (callers add in input order).
+    pub fn add(&mut self, o: &Sums) {
+        match (self, o) {
+            (Sums::Einstein { num, den, first }, Sums::Einstein { num: n2, den: d2, first: f2 }) => {
+                num.iter_mut().zip(n2).for_each(|(a, b)| *a += b);
+                *den += d2;
+                if first.is_none() {
+                    first.clone_from(f2);
+                }
+            }
+            (Sums::Stats(a), Sums::Stats(b)) => a.add(b),
+            _ => panic!("sums of different queries"),
+        }
+    }
+}
+
+enum Phase {
+    /// The direct Einstein sums.
+    Direct,
+    /// Translated Einstein sums about `centre` (round 0 or 1).
+    Translated {
+        round: usize,
+        centre: Hub,
+    },
+    Newton(Box<Newton>),
+    Done(Option<GroupMean>),
+}
+
+/// One group's centroid: the Einstein midpoint alone (`newton = false`) or
+/// the Fréchet mean started there.
+pub struct Driver {
+    phase: Phase,
+    first: Option<Hub>,
+    newton: Option<(f64, usize)>,
+}
+
+impl Driver {
+    /// `newton`: `Some((tol, max_iter))` for the Fréchet mean, `None` for the
+    /// Einstein midpoint.
+    pub fn new(newton: Option<(f64, usize)>) -> Driver {
+        Driver { phase: Phase::Direct, first: None, newton }
+    }
+
+    /// What the driver needs next; `None` when done.
+    pub fn query(&self) -> Option<Query> {
+        match &self.phase {
+            Phase::Direct => Some(Query::Einstein(None)),
+            Phase::Translated { centre, .. } => Some(Query::Einstein(Some(centre.clone()))),
+            Phase::Newton(nt) => Some(Query::Stats((nt.mu.clone(), nt.gmu))),
+            Phase::Done(_) => None,
+        }
+    }
+
+    /// The result once done: `None` for a group without positive weight. For
+    /// the Einstein midpoint only `mu` and `gap` are meaningful.
+    pub fn result(&self) -> Option<&GroupMean> {
+        match &self.phase {
+            Phase::Done(r) => r.as_ref(),
+            _ => None,
+        }
+    }
+
+    pub fn is_done(&self) -> bool {
+        matches!(self.phase, Phase::Done(_))
+    }
+
+    fn start(&mut self, mu: Vec<f64>, gmu: f64) {
+        self.phase = match self.newton {
+            Some((tol, max_iter)) => Phase::Newton(Box::new(Newton::new(mu, gmu, tol, max_iter, 0.0))),
+            None => Phase::Done(Some(GroupMean {
+                mu,
+                gap: gmu,
+                iterations: 0,
+                converged: true,
+                grad_norm: f64::NAN,
+                var: f64::NAN,
+            })),
+        };
+    }
+
+    /// The centre of the next translated round: the estimate as an exact
+    /// point with the gap of its rounded coordinates, or, where it rounded
+    /// onto the sphere, the first member (see `centroids::einstein_unit`).
+    fn centre(&self, est: Vec<f64>) -> Option<Hub> {
+        let gm = crate::numeric::gap_dd(1.0, &est).value();
+        if gm > 0.0 && est.iter().all(|v| v.is_finite()) {
+            Some((est, gm))
+        } else {
+            self.first.clone()
+        }
+    }
+
+    /// Feeds the sums over all members answering [`Driver::query`].
+    pub fn feed(&mut self, s: Sums) {
+        let phase = std::mem::replace(&mut self.phase, Phase::Done(None));
+        match (phase, s) {
+            (Phase::Direct, Sums::Einstein { num, den, first }) => {
+                self.first = first;
+                if !(den > 0.0) {
+                    return;
+                }
+                let (m, g) = einstein_point(num, den);
+                // The Klein gap 1 - |m_K|^2 loses ~eps/g_K relative; accept
+                // the direct result only where that is negligible.
+                if g > 0.5 {
+                    return self.start(m, g);
+                }
+                if let Some(centre) = self.centre(m) {
+                    self.phase = Phase::Translated { round: 0, centre };
+                }
+            }
+            (Phase::Translated { round, centre }, Sums::Einstein { num, den, .. }) => {
+                let (m2, g2) = einstein_point(num, den);
+                let mut out = vec![0f64; m2.len()];
+                let g = poincare::add_g(&Curvature::default(), &centre.0, centre.1, &m2, g2, 1.0, &mut out);
+                if round == 1 {
+                    return self.start(out, g);
+                }
+                if let Some(c) = self.centre(out) {
+                    self.phase = Phase::Translated { round: 1, centre: c };
+                }
+            }
+            (Phase::Newton(mut nt), Sums::Stats(st)) => {
+                if nt.advance(&st) {
+                    self.phase = Phase::Newton(nt);
+                } else {
+                    self.phase = Phase::Done(nt.result.take());
+                }
+            }
+            _ => panic!("sums do not answer the driver's query"),
+        }
+    }
+}
+
+/// Runs a driver to the end on in-memory members.
+pub(crate) fn run(
+    pts: &super::centroids::UnitPoints,
+    idx: &[usize],
+    w: Option<&[f64]>,
+    newton: Option<(f64, usize)>,
+) -> Option<GroupMean> {
+    let mut dr = Driver::new(newton);
+    while let Some(q) = dr.query() {
+        dr.feed(member_sums(pts, idx, w, &q));
+    }
+    match dr.phase {
+        Phase::Done(r) => r,
+        _ => unreachable!(),
+    }
+}
+
+/// The sums of the members `idx` answering `q`.
+fn member_sums(pts: &super::centroids::UnitPoints, idx: &[usize], w: Option<&[f64]>, q: &Query) -> Sums {
+    match q {
+        Query::Einstein(c) => {
+            let (num, den) = einstein_sums(pts, idx, w, c.as_ref().map(|(v, g)| (v.as_slice(), *g)));
+            let first = match c {
+                None => idx.iter().find(|&&i| w.map_or(1.0, |w| w[i]) > 0.0).map(|&i| {
+                    let d = pts.d;
+                    (pts.p[i * d..(i + 1) * d].to_vec(), pts.g[i])
+                }),
+                Some(_) => None,
+            };
+            Sums::Einstein { num, den, first }
+        }
+        Query::Stats((mu, gmu)) => Sums::Stats(stats(pts, idx, w, mu, *gmu)),
+    }
+}
+
+/// The sums of one chunk of the data for every group's query.
+///
+/// `codes` are the chunk's group numbers in `0..queries.len()` (`None`: one
+/// group). `wmax` is the largest weight of the whole data set (weights are
+/// scaled by the power of two the in-memory functions use, so sums of all
+/// chunks equal the in-memory sums up to grouping). Rows in errors are rows
+/// of the chunk.
+pub fn chunk_sums(
+    model: Model,
+    k: &Curvature,
+    x: &Data,
+    weights: Option<&[f64]>,
+    wmax: f64,
+    codes: Option<&[i64]>,
+    queries: &[Option<Query>],
+) -> Result<Vec<Option<Sums>>> {
+    let pts = unit_points(model, k, "x", x)?;
+    let w: Option<Vec<f64>> = match weights {
+        Some(w) => {
+            super::centroids::check_weights(w, pts.n)?;
+            let f = weight_factor(wmax);
+            Some(w.iter().map(|v| v * f).collect())
+        }
+        None => None,
+    };
+    let g = queries.len();
+    let mut members: Vec<Vec<usize>> = vec![Vec::new(); g];
+    match codes {
+        None => {
+            if g != 1 {
+                return Err(Error::Value(format!("{g} queries but no labels")));
+            }
+            members[0] = (0..pts.n).collect();
+        }
+        Some(c) => {
+            if c.len() != pts.n {
+                return Err(Error::Value(format!("labels has length {} but x has {} points", c.len(), pts.n)));
+            }
+            for (i, &l) in c.iter().enumerate() {
+                if l < 0 || l as usize >= g {
+                    return Err(Error::Value(format!("labels: entry {i} is {l}, not a group number below {g}")));
+                }
+                members[l as usize].push(i);
+            }
+        }
+    }
+    for q in queries.iter().flatten() {
+        let (Query::Einstein(Some((mu, _))) | Query::Stats((mu, _))) = q else { continue };
+        if mu.len() != pts.d {
+            return Err(Error::Value(format!("a query point has {} coordinates, x has {}", mu.len(), pts.d)));
+        }
+    }
+    use rayon::prelude::*;
+    Ok(queries
+        .par_iter()
+        .zip(members.par_iter())
+        .map(|(q, idx)| q.as_ref().map(|q| member_sums(&pts, idx, w.as_deref(), q)))
+        .collect())
+}
