@@ -43,16 +43,6 @@ __all__ = ["distance_matrix", "knn", "frechet_mean", "einstein_midpoint"]
 _ROW = re.compile(r"^(\w+): row (\d+)")
 
 
-def _shift_rows(e: ValueError, offsets: dict) -> ValueError:
-    """The core names rows of the block it saw; name the rows of the whole array."""
-    msg = str(e)
-    m = _ROW.match(msg)
-    if m is None or m.group(1) not in offsets:
-        return e
-    row = int(m.group(2)) + offsets[m.group(1)]
-    return ValueError(f"{m.group(1)}: row {row}{msg[m.end():]}")
-
-
 def _width(model: str) -> None:
     if model not in ("poincare", "klein", "hyperboloid", "halfspace"):
         # The core's message names the valid models.
@@ -111,8 +101,8 @@ def distance_matrix(
         except ValueError as e:
             if same:
                 # Both blocks come from x: name x for a bad row of either.
-                raise _rename(e, x0, y0) from None
-            raise _shift_rows(e, {"x": x0, "y": y0}) from None
+                raise _relabel(e, {"x": ("x", x0), "y": ("x", y0)}) from None
+            raise _relabel(e, {"x": ("x", x0), "y": ("y", y0)}) from None
 
     task = dask.delayed(block, pure=True)
     xblocks, yblocks = x.to_delayed().ravel(), yy.to_delayed().ravel()
@@ -136,50 +126,46 @@ def _merge(k: int, *parts: Tuple[np.ndarray, np.ndarray]) -> Tuple[np.ndarray, n
     return np.take_along_axis(idx, order, 1), np.take_along_axis(dist, order, 1)
 
 
-def _block_knn(
-    xb: np.ndarray,
-    yb: np.ndarray,
-    k: int,
-    x0: int,
-    y0: int,
-    model: str,
-    curvature: float,
-    self_block: bool,
-    names: Tuple[str, str],
-) -> Tuple[np.ndarray, np.ndarray]:
-    """Candidates of one (x block, y block) pair: global indices, float64 distances."""
-    # float32 values are exact in float64: the distances are the ones the core
-    # computes for float32 input, before the final rounding.
-    xb = np.asarray(xb, dtype=np.float64)
-    yb = np.asarray(yb, dtype=np.float64)
-    kk = min(k + (1 if self_block else 0), yb.shape[0])
-    try:
-        idx, dist = _native.knn(xb, kk, yb, model, curvature)
-    except ValueError as e:
-        if names == ("x", "y"):
-            raise _shift_rows(e, {"x": x0, "y": y0}) from None
-        raise _rename(e, x0, y0) from None
-    idx = idx + y0
-    if self_block:
-        # Drop each row's own index (a duplicate elsewhere at distance 0
-        # stays). kk = min(k + 1, block rows): a row that did not meet itself
-        # among its kk candidates keeps its best kk - 1 >= k, and when kk is
-        # the whole block every row met itself.
-        own = idx == (np.arange(xb.shape[0]) + x0)[:, None]
-        order = np.argsort(own, axis=1, kind="stable")[:, : kk - 1]
-        idx = np.take_along_axis(idx, order, 1)
-        dist = np.take_along_axis(dist, order, 1)
-    return idx, dist
-
-
-def _rename(e: ValueError, x0: int, y0: int) -> ValueError:
-    """y=None: both blocks come from x."""
+def _relabel(e: ValueError, names: dict) -> ValueError:
+    """Renames the core's argument (``names``: core name -> (public name,
+    first row of the block)) and shifts its row to the whole array's."""
     msg = str(e)
     m = _ROW.match(msg)
-    if m is None:
+    if m is None or m.group(1) not in names:
         return e
-    row = int(m.group(2)) + (x0 if m.group(1) == "x" else y0)
-    return ValueError(f"x: row {row}{msg[m.end():].replace('|y|', '|x|')}")
+    public, start = names[m.group(1)]
+    rest = msg[m.end():].replace(f"|{m.group(1)}|", f"|{public}|")
+    return ValueError(f"{public}: row {int(m.group(2)) + start}{rest}")
+
+
+def _block_index(yb: np.ndarray, model: str, curvature: float, name: str, y0: int) -> Any:
+    """The neighbour index of one row block (tree or brute force, chosen by
+    ``NeighborIndex``'s rule); float64, so candidates are ranked in float64."""
+    from ._index import NeighborIndex
+
+    try:
+        return NeighborIndex(np.asarray(yb, dtype=np.float64), model, curvature=curvature)
+    except ValueError as e:
+        raise _relabel(e, {"x": (name, y0)}) from None
+
+
+def _block_query(
+    index: Any, xb: np.ndarray, k: int, x0: int, y0: int, self_block: bool
+) -> Tuple[np.ndarray, np.ndarray]:
+    """Candidates of one (x block, y block) pair: global indices, float64 distances."""
+    rows = xb.shape[0]
+    kk = min(k, len(index) - (1 if self_block else 0))
+    if rows == 0:
+        return np.empty((0, k), np.int64), np.empty((0, k), np.float64)
+    if kk < 1:
+        return np.empty((rows, 0), np.int64), np.empty((rows, 0), np.float64)
+    try:
+        # The diagonal block of a self-search: the index's own points, each
+        # excluding itself (duplicates at distance 0 stay), as gk.knn does.
+        idx, dist = index.query(None if self_block else np.asarray(xb, dtype=np.float64), kk)
+    except ValueError as e:
+        raise _relabel(e, {"y": ("x", x0)}) from None
+    return idx + y0, dist
 
 
 def knn(
@@ -194,14 +180,17 @@ def knn(
 
     Returns lazy ``(indices (n, k) int64, distances (n, k))`` dask arrays,
     chunked like the rows of ``x``; compute both together
-    (``dask.compute(idx, dist)``) so that each block is searched once. Each
-    pair of row blocks gives its ``k`` best candidates (``gk.knn`` on the
-    two blocks); the candidates of a row block are merged by (distance,
-    index), the tie rule of :func:`gyrokit.knn`, in a binary tree of tasks,
-    so the results equal ``gk.knn``'s exactly (distances float32 when every
-    input is float32, ranked in float64). ``y=None`` searches ``x`` itself
-    and excludes each point's own row. Memory per task: two blocks and
-    ``2k`` candidates per row.
+    (``dask.compute(idx, dist)``) so that each block is searched once.
+    Every row block of ``y`` gets a :class:`gyrokit.NeighborIndex` (a task;
+    tree or brute force by the index's own rule, so low dimensions get a
+    tree and never pay for all pairs), which every row block of ``x``
+    queries for its ``k`` best candidates; the candidates of a row block are
+    merged by (distance, index), the tie rule of :func:`gyrokit.knn`, in a
+    binary tree of tasks, so the results equal ``gk.knn``'s exactly
+    (distances float32 when every input is float32, ranked in float64).
+    ``y=None`` searches ``x`` itself and excludes each point's own row
+    (duplicates at distance 0 stay). Memory per task: one index, one block
+    of queries and ``2k`` candidates per row.
     """
     _width(model)
     k = _count("k", k, 1)
@@ -217,15 +206,13 @@ def knn(
     xs, ys = _starts(x.chunks[0]), _starts(yy.chunks[0])
     xblocks = x.to_delayed().ravel()
     yblocks = yy.to_delayed().ravel()
-    names = ("x", "x") if y is None else ("x", "y")
-    part = dask.delayed(_block_knn, pure=True, nout=2)
+    build = dask.delayed(_block_index, pure=True)
+    indexes = [build(yb, model, curvature, "x" if y is None else "y", ys[j]) for j, yb in enumerate(yblocks)]
+    part = dask.delayed(_block_query, pure=True, nout=2)
     merge = dask.delayed(_merge, pure=True, nout=2)
     idx_blocks, dist_blocks = [], []
     for i, xb in enumerate(xblocks):
-        leaves = [
-            part(xb, yb, k, xs[i], ys[j], model, curvature, y is None and i == j, names)
-            for j, yb in enumerate(yblocks)
-        ]
+        leaves = [part(ix, xb, k, xs[i], ys[j], y is None and i == j) for j, ix in enumerate(indexes)]
         while len(leaves) > 1:
             leaves = [merge(k, *leaves[a : a + 2]) for a in range(0, len(leaves), 2)]
         rows = x.chunks[0][i]
@@ -277,7 +264,7 @@ def _chunk_sums(
         m = re.match(r"^(weights|labels): entry (\d+)", msg)
         if m is not None:
             raise ValueError(f"{m.group(1)}: entry {int(m.group(2)) + x0}{msg[m.end():]}") from None
-        raise _shift_rows(e, {"x": x0}) from None
+        raise _relabel(e, {"x": ("x", x0)}) from None
 
 
 def _centroids(
