@@ -150,22 +150,31 @@ def _block_index(yb: np.ndarray, model: str, curvature: float, name: str, y0: in
 
 
 def _block_query(
-    index: Any, xb: np.ndarray, k: int, x0: int, y0: int, self_block: bool
+    index: Any, xb: np.ndarray, k: int, x0: int, y0: int, self_search: bool
 ) -> Tuple[np.ndarray, np.ndarray]:
-    """Candidates of one (x block, y block) pair: global indices, float64 distances."""
+    """Candidates of one (x block, index block) pair: global indices, float64 distances."""
     rows = xb.shape[0]
-    kk = min(k, len(index) - (1 if self_block else 0))
+    kk = min(k + (1 if self_search else 0), len(index))
     if rows == 0:
         return np.empty((0, k), np.int64), np.empty((0, k), np.float64)
-    if kk < 1:
-        return np.empty((rows, 0), np.int64), np.empty((rows, 0), np.float64)
     try:
-        # The diagonal block of a self-search: the index's own points, each
-        # excluding itself (duplicates at distance 0 stay), as gk.knn does.
-        idx, dist = index.query(None if self_block else np.asarray(xb, dtype=np.float64), kk)
+        idx, dist = index.query(np.asarray(xb, dtype=np.float64), kk)
     except ValueError as e:
         raise _relabel(e, {"y": ("x", x0)}) from None
-    return idx + y0, dist
+    idx = idx + y0
+    if self_search:
+        # Drop each row's own index (duplicates at distance 0 stay, as in
+        # gk.knn): the row's other candidates move up, and the freed last
+        # slot gets a sentinel that sorts after every real candidate.
+        own = idx == (np.arange(rows) + x0)[:, None]
+        if own.any():
+            order = np.argsort(own, axis=1, kind="stable")
+            idx = np.take_along_axis(idx, order, 1)
+            dist = np.take_along_axis(dist, order, 1)
+            hit = own.any(axis=1)
+            idx[hit, -1] = np.iinfo(np.int64).max
+            dist[hit, -1] = np.inf
+    return idx, dist
 
 
 def knn(
@@ -175,16 +184,19 @@ def knn(
     *,
     model: str = "poincare",
     curvature: float = -1.0,
+    index_bytes: int = 256 * 2**20,
 ) -> Tuple["da.Array", "da.Array"]:
     """The ``k`` nearest rows of ``y`` to each row of ``x``, exact.
 
     Returns lazy ``(indices (n, k) int64, distances (n, k))`` dask arrays,
     chunked like the rows of ``x``; compute both together
     (``dask.compute(idx, dist)``) so that each block is searched once.
-    Every row block of ``y`` gets a :class:`gyrokit.NeighborIndex` (a task;
-    tree or brute force by the index's own rule, so low dimensions get a
-    tree and never pay for all pairs), which every row block of ``x``
-    queries for its ``k`` best candidates; the candidates of a row block are
+    ``y`` is cut into blocks of at most ``index_bytes`` of points (256 MiB
+    by default: one block for up to 16 million points at d = 2), each
+    indexed by a :class:`gyrokit.NeighborIndex` in one task (tree or brute
+    force by the index's own rule, so low dimensions get a tree and never
+    pay for all pairs), which every row block of ``x`` queries, on the
+    workers, for its ``k`` best candidates; the candidates of a row block are
     merged by (distance, index), the tie rule of :func:`gyrokit.knn`, in a
     binary tree of tasks, so the results equal ``gk.knn``'s exactly
     (distances float32 when every input is float32, ranked in float64).
@@ -204,6 +216,12 @@ def knn(
         raise ValueError(f"k = {k} exceeds the number of candidates ({candidates})")
     dtype = _out_dtype(x, yy)
     xs, ys = _starts(x.chunks[0]), _starts(yy.chunks[0])
+    # Index blocks of at most index_bytes of points: one index for all of y
+    # when it fits, so that every query runs against one tree.
+    per = max(1, _count("index_bytes", index_bytes, 1) // (8 * max(1, yy.shape[1])))
+    if m > 0:
+        yy = yy.rechunk({0: min(per, m)})
+    ys = _starts(yy.chunks[0])
     xblocks = x.to_delayed().ravel()
     yblocks = yy.to_delayed().ravel()
     build = dask.delayed(_block_index, pure=True)
@@ -212,7 +230,7 @@ def knn(
     merge = dask.delayed(_merge, pure=True, nout=2)
     idx_blocks, dist_blocks = [], []
     for i, xb in enumerate(xblocks):
-        leaves = [part(ix, xb, k, xs[i], ys[j], y is None and i == j) for j, ix in enumerate(indexes)]
+        leaves = [part(ix, xb, k, xs[i], ys[j], y is None) for j, ix in enumerate(indexes)]
         while len(leaves) > 1:
             leaves = [merge(k, *leaves[a : a + 2]) for a in range(0, len(leaves), 2)]
         rows = x.chunks[0][i]

@@ -49,14 +49,16 @@ def test_distance_matrix_bit_identical(client, model, chunks):
 @pytest.mark.parametrize("model", MODELS)
 @pytest.mark.parametrize("chunks", CHUNKS)
 @pytest.mark.parametrize("k", [1, 7, 40])
-def test_knn_identical(client, model, chunks, k):
+@pytest.mark.parametrize("index_bytes", [256 * 2**20, 8 * 5 * 150])
+def test_knn_identical(client, model, chunks, k, index_bytes):
+    # index_bytes: one index over all candidates, or index blocks of 150 rows
     x = _points(model, 523, 4, 3)
     dx = da.from_array(x, chunks=(chunks, -1))
-    idx, dist = dask.compute(*gk.dask.knn(dx, k, model=model))
+    idx, dist = dask.compute(*gk.dask.knn(dx, k, model=model, index_bytes=index_bytes))
     ref_i, ref_d = gk.knn(x, k, model=model)
     assert np.array_equal(idx, ref_i) and np.array_equal(dist, ref_d)
     y = _points(model, 300, 4, 4)
-    idx, dist = dask.compute(*gk.dask.knn(dx, k, da.from_array(y, chunks=(64, -1)), model=model))
+    idx, dist = dask.compute(*gk.dask.knn(dx, k, da.from_array(y, chunks=(64, -1)), model=model, index_bytes=index_bytes))
     ref_i, ref_d = gk.knn(x, k, y, model=model)
     assert np.array_equal(idx, ref_i) and np.array_equal(dist, ref_d)
 
@@ -65,8 +67,8 @@ def test_knn_duplicates_and_ties(client):
     # Exact duplicates across blocks: the tie rule (distance, then index) decides.
     base = _ball(200, 2, 5)
     x = np.vstack([base, base[:60], base[:60]])
-    for chunks in [(140, 140, 40), (1, 319)]:
-        idx, dist = dask.compute(*gk.dask.knn(da.from_array(x, chunks=(chunks, -1)), 5))
+    for chunks, nbytes in [((140, 140, 40), 8 * 2 * 100), ((1, 319), 8 * 2 * 3), ((320,), 2**20)]:
+        idx, dist = dask.compute(*gk.dask.knn(da.from_array(x, chunks=(chunks, -1)), 5, index_bytes=nbytes))
         ref_i, ref_d = gk.knn(x, 5)
         assert np.array_equal(idx, ref_i) and np.array_equal(dist, ref_d)
 
