@@ -277,3 +277,81 @@ pub fn chunk_sums(
         .map(|(q, idx)| q.as_ref().map(|q| member_sums(&pts, idx, w.as_deref(), q)))
         .collect())
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::stats::centroids::frechet_mean;
+
+    /// Points of the unit Poincaré ball, radii up to `rmax` (a small LCG:
+    /// common practice for reproducible test data).
+    fn points(n: usize, d: usize, rmax: f64, seed: u64) -> Vec<f64> {
+        let mut s = seed;
+        let mut u = || {
+            s = s.wrapping_mul(6364136223846793005).wrapping_add(1442695040888963407);
+            (s >> 11) as f64 / (1u64 << 53) as f64
+        };
+        let mut out = Vec::with_capacity(n * d);
+        for _ in 0..n {
+            let v: Vec<f64> = (0..d).map(|_| u() - 0.5).collect();
+            let nv = v.iter().map(|a| a * a).sum::<f64>().sqrt();
+            let r = (0.5 * rmax * u()).tanh();
+            out.extend(v.iter().map(|a| a / nv * r));
+        }
+        out
+    }
+
+    /// Runs the driver on chunk sums of the given chunk length, as a
+    /// distributed caller does.
+    fn chunked(x: &[f64], d: usize, w: Option<&[f64]>, len: usize) -> GroupMean {
+        let k = Curvature::default();
+        let mut dr = Driver::new(Some((1e-12, 50)));
+        let wmax = w.map_or(1.0, |w| w.iter().fold(0.0f64, |a, &b| a.max(b)));
+        while let Some(q) = dr.query() {
+            let mut tot: Option<Sums> = None;
+            for (c, xc) in x.chunks(len * d).enumerate() {
+                let a = ndarray::ArrayView2::from_shape((xc.len() / d, d), xc).unwrap().into_dyn();
+                let wc = w.map(|w| &w[c * len..c * len + xc.len() / d]);
+                let s = chunk_sums(Model::Poincare, &k, &Data::F64(a), wc, wmax, None, &[Some(q.clone())]).unwrap();
+                let s = s.into_iter().next().unwrap().unwrap();
+                match &mut tot {
+                    Some(t) => t.add(&s),
+                    None => tot = Some(s),
+                }
+            }
+            dr.feed(tot.unwrap());
+        }
+        dr.result().unwrap().clone_mean()
+    }
+
+    impl GroupMean {
+        fn clone_mean(&self) -> GroupMean {
+            GroupMean { mu: self.mu.clone(), ..*self }
+        }
+    }
+
+    #[test]
+    fn chunk_sums_give_the_in_memory_mean() {
+        let (n, d) = (5000, 3);
+        for (rmax, seed) in [(3.0, 1), (30.0, 2)] {
+            let x = points(n, d, rmax, seed);
+            let w: Vec<f64> = (0..n).map(|i| ((i * 7919) % 13) as f64 * 0.25).collect();
+            let a = ndarray::ArrayView2::from_shape((n, d), &x[..]).unwrap().into_dyn();
+            let whole =
+                frechet_mean(Model::Poincare, Curvature::default(), &Data::F64(a), Some(&w), None, 1e-12, 50).unwrap();
+            for len in [n, 1, 777, 2048] {
+                let got = chunked(&x, d, Some(&w), len);
+                let mut g = vec![0f64; d];
+                super::super::centroids::to_model(Model::Poincare, &Curvature::default(), &got.mu, got.gap, &mut g);
+                // One chunk: the same sums in the same order, the same bits.
+                if len == n {
+                    assert_eq!(g, whole.mean, "rmax {rmax}");
+                }
+                let dist =
+                    crate::pairwise::point_distance(Model::Poincare, &Curvature::default(), &g, &whole.mean).unwrap();
+                assert!(dist <= 1e-13, "rmax {rmax}, chunks of {len}: {dist:e}");
+                assert!(got.converged);
+            }
+        }
+    }
+}
