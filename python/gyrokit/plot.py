@@ -1,0 +1,279 @@
+"""Drawing hyperbolic point sets in the Poincaré disk (matplotlib).
+
+matplotlib is an optional extra: ``pip install gyrokit[plot]``. It is
+imported when a plotting function is called, never by ``import gyrokit``.
+
+Edges are drawn as exact geodesic arcs: the arc of the circle orthogonal to
+the boundary through both end points (a diameter when they are collinear
+with the centre). Every arc is written as one Möbius image of the segment
+``[0, 1]`` (see ``_geodesic_arcs``), so circles and diameters come out of
+the same formula and no case switch is needed; all edges are computed in a
+few vectorised NumPy passes and drawn as one ``LineCollection``.
+
+Points crowded at the rim: the Poincaré picture shrinks Euclidean sizes by
+``(1 - |x|^2/R^2)/2``, so deep hierarchies pile up on the boundary. Two
+remedies: ``center=`` moves a point of interest to the middle (an isometry:
+the picture is still exact), and ``radial_compression=c > 1`` divides every
+hyperbolic distance from the centre by ``c`` for display only (a point at
+distance ``rho`` is drawn at Euclidean radius ``R tanh(rho / (2 R c))``), which
+spreads the rim out; the drawing is then no longer the Poincaré disk (arcs
+are bent, angles change) and the Axes carries a note saying so.
+"""
+
+from __future__ import annotations
+
+from typing import Any, Optional, Tuple
+
+import numpy as np
+
+from ._args import count, real
+
+__all__ = ["disk"]
+
+_MODELS = ("poincare", "klein", "hyperboloid", "halfspace")
+
+
+def _matplotlib() -> Tuple[Any, Any, Any]:
+    """``(pyplot, LineCollection, Circle)``, or an ImportError naming the extra."""
+    try:
+        import matplotlib.pyplot as plt
+        from matplotlib.collections import LineCollection
+        from matplotlib.patches import Circle
+    except ImportError as e:
+        raise ImportError(
+            "gyrokit.plot needs matplotlib, an optional extra: pip install gyrokit[plot] "
+            f"(or pip install matplotlib); the import failed with: {e}"
+        ) from None
+    return plt, LineCollection, Circle
+
+
+def _geodesic_arcs(a: Any, b: Any, samples: int = 32) -> np.ndarray:
+    """Points along the geodesics of the unit Poincaré disk from ``a`` to ``b``.
+
+    ``a``, ``b``: ``(m, 2)`` points of the open unit disk. Returns
+    ``(m, samples, 2)``: row ``i`` runs from ``a[i]`` (exactly) to ``b[i]``
+    (to rounding) along the arc of the circle orthogonal to the unit circle
+    through both, or the diameter through them.
+
+    With complex coordinates, every circle or line through ``a`` and ``b``
+    is ``z(t) = (a (1 - t) + b l t) / ((1 - t) + l t)``, ``t`` in ``[0, 1]``,
+    for a unit ``l = e^{i phi}``: along it the angle of
+    ``(z - a)/(b - z)`` is ``phi``, so ``phi`` is the inscribed angle of
+    the chord ``ab`` (the locus of a constant inscribed angle is a circular
+    arc; ``phi = 0`` the straight segment). The geodesic circle also passes
+    through the inverse point ``a* = a/|a|^2``, which lies off the arc, so
+    ``phi = arg((a - a*)/(b - a*)) = arg(1 - a conj(b))`` (the factor
+    ``|a|^2 > 0`` divides out, and ``a = 0`` gives ``phi = 0``: the
+    diameter). Collinear end points give ``Im(a conj(b)) = a x b = 0`` and
+    ``phi = 0`` exactly, so the diameter case needs no threshold. The real
+    part ``1 - a.b`` is formed as ``(g_a + g_b + |a - b|^2)/2`` with
+    ``g = 1 - |.|^2``, which does not cancel for two points near the rim.
+    Since ``|phi| < pi/2`` the parameter speed varies by at most a factor
+    ``1/cos(phi/2)^2 < 2``, so uniform ``t`` spaces the samples evenly
+    enough to draw.
+    """
+    a = np.asarray(a, dtype=np.float64)
+    b = np.asarray(b, dtype=np.float64)
+    samples = count("samples", samples, 2)
+    za = a[:, 0] + 1j * a[:, 1]
+    zb = b[:, 0] + 1j * b[:, 1]
+    ga = 1.0 - np.einsum("ij,ij->i", a, a)
+    gb = 1.0 - np.einsum("ij,ij->i", b, b)
+    diff = a - b
+    re = 0.5 * (ga + gb + np.einsum("ij,ij->i", diff, diff))  # 1 - a.b
+    im = a[:, 0] * b[:, 1] - a[:, 1] * b[:, 0]  # Im(1 - a conj(b)) = a x b
+    lam = (re + 1j * im) / np.hypot(re, im)
+    t = np.linspace(0.0, 1.0, samples)[None, :]
+    s = 1.0 - t
+    z = (za[:, None] * s + (zb * lam)[:, None] * t) / (s + lam[:, None] * t)
+    out = np.empty(z.shape + (2,))
+    out[..., 0] = z.real
+    out[..., 1] = z.imag
+    out[:, 0] = a
+    out[:, -1] = b
+    return out
+
+
+def _compress(p: np.ndarray, c: float) -> np.ndarray:
+    """The display transform of ``radial_compression``: unit-disk points at
+    hyperbolic distance ``rho`` from the centre moved to radius ``tanh(rho/(2c))``
+    along their ray (``rho = 2 artanh |p|``)."""
+    r = np.sqrt(np.sum(p * p, axis=-1, keepdims=True))
+    with np.errstate(invalid="ignore", divide="ignore"):
+        f = np.where(r > 0, np.tanh(np.arctanh(np.minimum(r, 1.0)) / c) / r, 1.0 / c)
+    return p * f
+
+
+def _edges(edges: Any, n: int) -> np.ndarray:
+    """``edges`` as an ``(m, 2)`` int64 array of row indices into ``x``."""
+    if hasattr(edges, "edges") and hasattr(edges, "nodes"):  # a networkx graph on nodes 0..n-1
+        edges = list(edges.edges())
+    e = np.asarray(edges)
+    if e.size == 0:
+        return np.zeros((0, 2), dtype=np.int64)
+    if e.dtype.kind not in "iu" and not (e.dtype.kind == "f" and np.all(np.isfinite(e)) and np.all(e == np.round(e))):
+        raise TypeError(f"edges must be integer indices into the rows of x, got dtype {e.dtype}")
+    if e.ndim != 2 or e.shape[1] != 2:
+        raise ValueError(f"edges must have shape (m, 2), one (i, j) pair of row indices per edge; got {e.shape}")
+    e = e.astype(np.int64)
+    bad = np.flatnonzero(np.any((e < 0) | (e >= n), axis=1))
+    if bad.size:
+        raise ValueError(f"edges: row {bad[0]} = {e[bad[0]].tolist()} refers to a point outside 0..{n - 1}")
+    return e
+
+
+def disk(
+    x: Any,
+    *,
+    edges: Any = None,
+    labels: Any = None,
+    model: str = "poincare",
+    curvature: float = -1.0,
+    center: Any = None,
+    ax: Any = None,
+    radial_compression: float = 1.0,
+    arc_samples: int = 32,
+    point_size: Optional[float] = None,
+    point_color: Any = "C0",
+    edge_color: Any = "0.55",
+    edge_width: float = 0.6,
+    legend: bool = True,
+    boundary: bool = True,
+) -> Any:
+    """Draw 2-D hyperbolic points (and edges between them) in the Poincaré disk.
+
+    Parameters
+    ----------
+    x : (n, 2) points of ``model`` (``(n, 3)`` on the hyperboloid); ``(n, 1)``
+        points are drawn on the horizontal diameter. Converted to the
+        Poincaré disk with :func:`gyrokit.convert`. Higher dimensions raise
+        ``ValueError``: reduce them first with
+        ``gyrokit.PrincipalGeodesicAnalysis(2).fit_transform(x)``.
+    edges : (m, 2) int array of row indices into ``x`` (or a networkx graph on
+        the nodes ``0..n-1``), drawn as geodesic arcs in one ``LineCollection``.
+    labels : (n,) hashable values (the rules of :func:`gyrokit.frechet_mean`);
+        points are coloured by label and the legend has one entry per label.
+    model, curvature : the model of ``x`` and ``center``, and K < 0. The disk
+        is drawn at its true radius ``R = 1/sqrt(-K)``.
+    center : a point of ``model`` (or an int: the row of ``x``) moved to the
+        middle by the Möbius translation ``p -> (-c) ⊕ p`` (an isometry).
+    ax : a matplotlib Axes to draw into (default: a new figure's).
+    radial_compression : ``c >= 1``, display only: a point at hyperbolic
+        distance ``rho`` from the centre is drawn at radius
+        ``R tanh(rho / (2 R c))``, spreading out points crowded at the rim;
+        ``c = 1`` (default) is the exact Poincaré picture. With ``c > 1`` the
+        Axes is annotated "display: hyperbolic radii / c".
+    arc_samples : points per drawn arc (default 32).
+    point_size, point_color : marker size (default from ``n``) and colour when
+        there are no labels.
+    edge_color, edge_width : the arcs' colour and line width.
+    legend : draw the legend of the labels.
+    boundary : draw the boundary circle.
+
+    Returns the matplotlib Axes. The Axes is square, without ticks, in the
+    Poincaré coordinates of the (translated) points; the arcs are
+    ``ax.collections`` entries with ``gid == "gyrokit-edges"``, the points
+    ``gid == "gyrokit-points"``.
+    """
+    plt, LineCollection, Circle = _matplotlib()
+    from . import convert, poincare  # noqa: PLC0415  (the package imports this module)
+
+    if not isinstance(model, str) or model not in _MODELS:
+        raise ValueError(f"model must be one of {list(_MODELS)}, got {model!r}")
+    k = real("curvature", curvature)
+    if not (np.isfinite(k) and k < 0):
+        raise ValueError(f"curvature must be finite and < 0, got {curvature!r}")
+    R = 1.0 / np.sqrt(-k)
+    c = real("radial_compression", radial_compression)
+    if not (np.isfinite(c) and c >= 1.0):
+        raise ValueError(f"radial_compression must be a finite number >= 1, got {radial_compression!r}")
+    arc_samples = count("arc_samples", arc_samples, 2)
+
+    a = np.asarray(x)
+    if a.dtype.kind not in "biuf":
+        raise TypeError(f"x must be an array of real numbers, got dtype {a.dtype}")
+    if a.ndim != 2:
+        raise ValueError(f"x must be a 2-D array of points (n, width); got shape {a.shape}")
+    d = a.shape[1] - (1 if model == "hyperboloid" else 0)
+    if d > 2:
+        raise ValueError(
+            f"x holds {d}-dimensional points and the disk shows 2: reduce them first, e.g. "
+            f"gyrokit.PrincipalGeodesicAnalysis(2, model={model!r}).fit_transform(x) (its result is a Poincaré disk)"
+        )
+    if d < 1:
+        raise ValueError(f"x must hold points of dimension 1 or 2; got width {a.shape[1]} for model {model!r}")
+    n = a.shape[0]
+    p = np.asarray(convert(a.astype(np.float64), model, "poincare", curvature=k), dtype=np.float64).reshape(n, d)
+    if d == 1:
+        p = np.concatenate([p, np.zeros((n, 1))], axis=1)
+
+    if center is not None:
+        if isinstance(center, (int, np.integer)) and not isinstance(center, (bool, np.bool_)):
+            i = int(center)
+            if not -n <= i < n:
+                raise ValueError(f"center = {i} is not a row of x (n = {n})")
+            cp = p[i]
+        else:
+            cm = np.asarray(center, dtype=np.float64)
+            if cm.shape != (a.shape[1],):
+                raise ValueError(f"center must be one point of {model} with {a.shape[1]} coordinates, got shape {cm.shape}")
+            cp = np.asarray(convert(cm, model, "poincare", curvature=k), dtype=np.float64).reshape(d)
+            if d == 1:
+                cp = np.array([cp[0], 0.0])
+        if n:
+            p = np.asarray(poincare.add(-cp, p, curvature=k), dtype=np.float64)
+
+    u = p / R  # the unit disk: the arc and display formulas are scale-free
+    lines = None
+    if edges is not None:
+        e = _edges(edges, n)
+        lines = _geodesic_arcs(u[e[:, 0]], u[e[:, 1]], arc_samples)
+    if c != 1.0:
+        u = _compress(u, c)
+        if lines is not None:
+            lines = _compress(lines, c)
+
+    if ax is None:
+        _, ax = plt.subplots(figsize=(6, 6))
+    if boundary:
+        ax.add_patch(Circle((0.0, 0.0), R, fill=False, color="0.2", lw=1.0, gid="gyrokit-boundary"))
+    if lines is not None and len(lines):
+        lc = LineCollection(lines * R, colors=edge_color, linewidths=edge_width, zorder=1, gid="gyrokit-edges")
+        ax.add_collection(lc)
+
+    if point_size is None:
+        point_size = float(np.clip(2000.0 / max(n, 1), 2.0, 40.0))
+    xy = u * R
+    if labels is None:
+        ax.scatter(xy[:, 0], xy[:, 1], s=point_size, c=[point_color], zorder=2, gid="gyrokit-points", linewidths=0)
+    else:
+        from .centroids import _factorize
+
+        codes, values = _factorize(labels)
+        codes = np.asarray(codes).reshape(-1)
+        if codes.shape[0] != n:
+            raise ValueError(f"labels must have one entry per point: {codes.shape[0]} labels for {n} points")
+        if values is None:  # integer labels: their distinct values, in order
+            values, codes = np.unique(codes, return_inverse=True)
+        codes = np.asarray(codes, dtype=np.int64).reshape(-1)
+        m = len(values)
+        cmap = plt.get_cmap("tab10" if m <= 10 else "tab20" if m <= 20 else "turbo")
+        colors = cmap(np.arange(m) % cmap.N) if m <= 20 else cmap(np.linspace(0.0, 1.0, m))
+        ax.scatter(xy[:, 0], xy[:, 1], s=point_size, c=colors[codes], zorder=2, gid="gyrokit-points", linewidths=0)
+        if legend:
+            from matplotlib.lines import Line2D
+
+            handles = [
+                Line2D([], [], ls="", marker="o", color=colors[j], label=str(v)) for j, v in enumerate(list(values))
+            ]
+            ax.legend(handles=handles, loc="upper left", bbox_to_anchor=(1.0, 1.0), frameon=False,
+                      ncol=1 if m <= 25 else 2, fontsize="small")
+    if c != 1.0:
+        ax.text(0.0, -1.08 * R, f"display: hyperbolic radii / {c:g}", ha="center", va="top", fontsize="small",
+                gid="gyrokit-display-note")
+    lim = 1.04 * R
+    ax.set_xlim(-lim, lim)
+    ax.set_ylim(-lim, lim)
+    ax.set_aspect("equal")
+    ax.set_axis_off()
+    return ax
