@@ -47,13 +47,16 @@ def _matplotlib() -> Tuple[Any, Any, Any]:
     return plt, LineCollection, Circle
 
 
-def _geodesic_arcs(a: Any, b: Any, samples: int = 32) -> np.ndarray:
+def _geodesic_arcs(a: Any, b: Any, samples: Optional[int] = 32, tol: float = 2.5e-4) -> Tuple[np.ndarray, np.ndarray]:
     """Points along the geodesics of the unit Poincaré disk from ``a`` to ``b``.
 
     ``a``, ``b``: ``(m, 2)`` points of the open unit disk. Returns
-    ``(m, samples, 2)``: row ``i`` runs from ``a[i]`` (exactly) to ``b[i]``
-    (to rounding) along the arc of the circle orthogonal to the unit circle
-    through both, or the diameter through them.
+    ``(vertices, counts)``: ``counts[i]`` points of edge ``i`` (``samples``
+    each, or with ``samples=None`` as few as keep the polyline within ``tol``
+    of the arc, from 2 for a diameter up to 64), stacked edge after edge in
+    ``vertices`` ``(sum(counts), 2)``. Edge ``i`` runs from ``a[i]`` (exactly)
+    to ``b[i]`` (exactly) along the arc of the circle orthogonal to the unit
+    circle through both, or the diameter through them.
 
     With complex coordinates, every circle or line through ``a`` and ``b``
     is ``z(t) = (a (1 - t) + b l t) / ((1 - t) + l t)``, ``t`` in ``[0, 1]``,
@@ -64,34 +67,57 @@ def _geodesic_arcs(a: Any, b: Any, samples: int = 32) -> np.ndarray:
     through the inverse point ``a* = a/|a|^2``, which lies off the arc, so
     ``phi = arg((a - a*)/(b - a*)) = arg(1 - a conj(b))`` (the factor
     ``|a|^2 > 0`` divides out, and ``a = 0`` gives ``phi = 0``: the
-    diameter). Collinear end points give ``Im(a conj(b)) = a x b = 0`` and
-    ``phi = 0`` exactly, so the diameter case needs no threshold. The real
-    part ``1 - a.b`` is formed as ``(g_a + g_b + |a - b|^2)/2`` with
+    diameter). Collinear end points give ``Im(1 - a conj(b)) = a x b = 0``
+    and ``phi = 0`` exactly, so the diameter case needs no threshold. The
+    real part ``1 - a.b`` is formed as ``(g_a + g_b + |a - b|^2)/2`` with
     ``g = 1 - |.|^2``, which does not cancel for two points near the rim.
     Since ``|phi| < pi/2`` the parameter speed varies by at most a factor
     ``1/cos(phi/2)^2 < 2``, so uniform ``t`` spaces the samples evenly
-    enough to draw.
+    enough to draw. Evaluated as ``z = a + (b - a) w``,
+    ``w = t / (t + (1 - t) conj(l))``, in real arithmetic.
     """
     a = np.asarray(a, dtype=np.float64)
     b = np.asarray(b, dtype=np.float64)
-    samples = count("samples", samples, 2)
-    za = a[:, 0] + 1j * a[:, 1]
-    zb = b[:, 0] + 1j * b[:, 1]
+    m = a.shape[0]
     ga = 1.0 - np.einsum("ij,ij->i", a, a)
     gb = 1.0 - np.einsum("ij,ij->i", b, b)
-    diff = a - b
-    re = 0.5 * (ga + gb + np.einsum("ij,ij->i", diff, diff))  # 1 - a.b
+    diff = b - a
+    chord2 = np.einsum("ij,ij->i", diff, diff)
+    re = 0.5 * (ga + gb + chord2)  # 1 - a.b
     im = a[:, 0] * b[:, 1] - a[:, 1] * b[:, 0]  # Im(1 - a conj(b)) = a x b
-    lam = (re + 1j * im) / np.hypot(re, im)
-    t = np.linspace(0.0, 1.0, samples)[None, :]
+    h = np.hypot(re, im)
+    cos, sin = re / h, im / h
+    if samples is None:
+        # A polyline of k equal pieces on an arc of radius r turning by 2|phi|
+        # strays r (1 - cos(phi/k)) ~ r phi^2 / (2 k^2) from it, with
+        # r = |b - a| / (2 sin|phi|); uniform t makes the pieces unequal, the
+        # longest up to 1/cos(phi/2)^2 = 2/(1 + cos(phi)) times the mean.
+        with np.errstate(divide="ignore", invalid="ignore"):
+            r = np.sqrt(chord2) / (2.0 * np.abs(sin))
+            phi = np.arctan2(np.abs(sin), cos)
+            k = np.ceil(2.0 / (1.0 + cos) * phi * np.sqrt(r / (2.0 * tol)))
+        k = np.where(np.isfinite(k), k, 1.0)
+        counts = (np.clip(k, 1.0, 63.0) + 1.0).astype(np.int64)
+    else:
+        counts = np.full(m, int(samples), dtype=np.int64)
+    total = int(counts.sum())
+    edge = np.repeat(np.arange(m), counts)
+    first = np.cumsum(counts) - counts
+    t = (np.arange(total) - first[edge]) / (counts[edge] - 1.0)
     s = 1.0 - t
-    z = (za[:, None] * s + (zb * lam)[:, None] * t) / (s + lam[:, None] * t)
-    out = np.empty(z.shape + (2,))
-    out[..., 0] = z.real
-    out[..., 1] = z.imag
-    out[:, 0] = a
-    out[:, -1] = b
-    return out
+    # w = t / (t + s conj(l)) = t (dr + i s sin) / (dr^2 + (s sin)^2), dr = t + s cos
+    dr = t + s * cos[edge]
+    di = s * sin[edge]
+    q = t / (dr * dr + di * di)
+    wr, wi = dr * q, di * q
+    dx, dy = diff[edge, 0], diff[edge, 1]
+    out = np.empty((total, 2))
+    out[:, 0] = a[edge, 0] + (dx * wr - dy * wi)
+    out[:, 1] = a[edge, 1] + (dx * wi + dy * wr)
+    last = first + counts - 1
+    out[first] = a
+    out[last] = b
+    return out, counts
 
 
 def _compress(p: np.ndarray, c: float) -> np.ndarray:
@@ -132,7 +158,7 @@ def disk(
     center: Any = None,
     ax: Any = None,
     radial_compression: float = 1.0,
-    arc_samples: int = 32,
+    arc_samples: Optional[int] = None,
     point_size: Optional[float] = None,
     point_color: Any = "C0",
     edge_color: Any = "0.55",
@@ -163,7 +189,9 @@ def disk(
         ``R tanh(rho / (2 R c))``, spreading out points crowded at the rim;
         ``c = 1`` (default) is the exact Poincaré picture. With ``c > 1`` the
         Axes is annotated "display: hyperbolic radii / c".
-    arc_samples : points per drawn arc (default 32).
+    arc_samples : points per drawn arc; default ``None``: as many as keep the
+        polyline within 2.5e-4 R of the true arc (2 for a diameter, at most 64;
+        32 each with ``radial_compression > 1``).
     point_size, point_color : marker size (default from ``n``) and colour when
         there are no labels.
     edge_color, edge_width : the arcs' colour and line width.
@@ -187,7 +215,8 @@ def disk(
     c = real("radial_compression", radial_compression)
     if not (np.isfinite(c) and c >= 1.0):
         raise ValueError(f"radial_compression must be a finite number >= 1, got {radial_compression!r}")
-    arc_samples = count("arc_samples", arc_samples, 2)
+    if arc_samples is not None:
+        arc_samples = count("arc_samples", arc_samples, 2)
 
     a = np.asarray(x)
     if a.dtype.kind not in "biuf":
@@ -224,22 +253,26 @@ def disk(
             p = np.asarray(poincare.add(-cp, p, curvature=k), dtype=np.float64)
 
     u = p / R  # the unit disk: the arc and display formulas are scale-free
-    lines = None
+    verts = counts = None
     if edges is not None:
         e = _edges(edges, n)
-        lines = _geodesic_arcs(u[e[:, 0]], u[e[:, 1]], arc_samples)
+        # bent by the display transform, arcs need their samples whatever their shape
+        samples = arc_samples if arc_samples is not None or c == 1.0 else 32
+        verts, counts = _geodesic_arcs(u[e[:, 0]], u[e[:, 1]], samples)
     if c != 1.0:
         u = _compress(u, c)
-        if lines is not None:
-            lines = _compress(lines, c)
+        if verts is not None:
+            verts = _compress(verts, c)
 
     if ax is None:
         _, ax = plt.subplots(figsize=(6, 6))
     if boundary:
         ax.add_patch(Circle((0.0, 0.0), R, fill=False, color="0.2", lw=1.0, gid="gyrokit-boundary"))
-    if lines is not None and len(lines):
-        lc = LineCollection(lines * R, colors=edge_color, linewidths=edge_width, zorder=1, gid="gyrokit-edges")
-        ax.add_collection(lc)
+    if verts is not None and len(counts):
+        # One LineCollection; its segments are views into one vertex array.
+        segments = np.split(verts * R, np.cumsum(counts)[:-1])
+        lc = LineCollection(segments, colors=edge_color, linewidths=edge_width, zorder=1, gid="gyrokit-edges")
+        ax.add_collection(lc, autolim=False)
 
     if point_size is None:
         point_size = float(np.clip(2000.0 / max(n, 1), 2.0, 40.0))

@@ -29,6 +29,7 @@ def _close_figures():
 
 
 def _edges_of(ax):
+    """The plotted arcs, one array per edge, from the one LineCollection."""
     (lc,) = [c for c in ax.collections if c.get_gid() == "gyrokit-edges"]
     return [np.asarray(s) for s in lc.get_segments()]
 
@@ -54,6 +55,10 @@ def _hard_pairs():
     return np.concatenate([a, hard_a]), np.concatenate([b, hard_b])
 
 
+def _cross(u, v):
+    return u[..., 0] * v[..., 1] - u[..., 1] * v[..., 0]
+
+
 def _circle_through(p, q, r):
     """Centre and radius of the circle through three points (the
     circumcentre formula from the perpendicular bisectors, common practice)."""
@@ -74,7 +79,7 @@ def test_arcs_are_circles_orthogonal_to_the_boundary_through_both_ends(curvature
     x = np.concatenate([a, b]) * R
     m = len(a)
     edges = np.stack([np.arange(m), np.arange(m) + m], axis=1)
-    ax = gk.plot.disk(x, edges=edges, curvature=curvature)
+    ax = gk.plot.disk(x, edges=edges, curvature=curvature, arc_samples=32)
     segs = _edges_of(ax)
     assert len(segs) == m
     curved = 0
@@ -105,6 +110,35 @@ def test_arcs_are_circles_orthogonal_to_the_boundary_through_both_ends(curvature
     assert curved > 150
 
 
+def test_adaptive_sampling_stays_within_its_tolerance_of_the_arc():
+    """Default arc_samples: diameters get 2 points, every polyline piece
+    strays at most 2.5e-4 R from the circle (sagitta of a chord of length l on
+    a circle of radius r: r - sqrt(r^2 - l^2/4), handbook)."""
+    a, b = _hard_pairs()
+    x = np.concatenate([a, b])
+    m = len(a)
+    edges = np.stack([np.arange(m), np.arange(m) + m], axis=1)
+    segs = _edges_of(gk.plot.disk(x, edges=edges))
+    dense = _edges_of(gk.plot.disk(x, edges=edges, arc_samples=64))
+    counts = np.array([len(s) for s in segs])
+    assert counts.min() >= 2 and counts.max() <= 64
+    assert len(segs[m - 7]) == 2  # [0.6, 0] to [-0.9, 1e-13]: 1e-13 off a diameter
+    for s, d in zip(segs, dense):
+        np.testing.assert_array_equal(s[[0, -1]], d[[0, -1]])
+        L = np.linalg.norm(d[-1] - d[0])
+        if L < 1e-3:
+            continue
+        dev = np.abs(_cross(d - d[0], d[-1] - d[0])) / L
+        if len(s) == 2:
+            # a straight piece: the arc must be within tolerance of the chord
+            assert dev.max() <= 2.6e-4
+            continue
+        c, r = _circle_through(d[0], d[len(d) // 2], d[-1])
+        piece = np.linalg.norm(np.diff(s, axis=0), axis=1)
+        sag = r - np.sqrt(np.maximum(r * r - piece * piece / 4, 0))
+        assert sag.max() <= 2.6e-4
+
+
 def test_every_sample_lies_on_the_geodesic_distance_additivity():
     """d(a, p) + d(p, b) = d(a, b) for every plotted point p of the edge a-b
     (equality in the triangle inequality holds exactly on the geodesic
@@ -114,7 +148,7 @@ def test_every_sample_lies_on_the_geodesic_distance_additivity():
     x = np.concatenate([a, b])
     m = len(a)
     edges = np.stack([np.arange(m), np.arange(m) + m], axis=1)
-    segs = np.array(_edges_of(gk.plot.disk(x, edges=edges)))
+    segs = np.array(_edges_of(gk.plot.disk(x, edges=edges, arc_samples=32)))
     A = np.broadcast_to(a[:, None, :], segs.shape)
     B = np.broadcast_to(b[:, None, :], segs.shape)
     dab = gk.poincare.distance(a, b)[:, None]
@@ -232,6 +266,7 @@ def test_one_collection_for_many_edges_and_ax_returned():
     assert ax is ax0
     assert len([c for c in ax.collections if c.get_gid() == "gyrokit-edges"]) == 1
     assert np.array(_edges_of(ax)).shape == (5000, 8, 2)
+    assert len(_edges_of(gk.plot.disk(p, edges=e))) == 5000
     fig.savefig(__import__("io").BytesIO(), format="png")
 
 
