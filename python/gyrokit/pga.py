@@ -49,6 +49,16 @@ __all__ = ["PrincipalGeodesicAnalysis"]
 _MODELS = ("poincare", "klein", "hyperboloid", "halfspace")
 
 
+def _as_array(name: str, value: Any, dtype: Any = None) -> np.ndarray:
+    """``np.asarray(value, dtype)``; an exception from the conversion (an
+    object whose ``__array__`` raises, ragged lists, strings for a float
+    dtype) becomes a ``TypeError`` naming the argument."""
+    try:
+        return np.asarray(value, dtype=dtype)
+    except Exception as e:  # noqa: BLE001 - whatever the caller's object raises
+        raise TypeError(f"{name} must be an array of real numbers: {type(e).__name__}: {e}") from None
+
+
 class PrincipalGeodesicAnalysis:
     """Principal geodesic analysis (tangent-space, at the Fréchet mean).
 
@@ -116,7 +126,7 @@ class PrincipalGeodesicAnalysis:
     # ------------------------------------------------------------------ data
     @staticmethod
     def _array(X: Any, name: str) -> np.ndarray:
-        a = np.asarray(X)
+        a = _as_array(name, X)
         if a.dtype.kind not in "biuf":
             raise TypeError(f"{name} must be an array of real numbers, got dtype {a.dtype}")
         if a.ndim != 2:
@@ -150,6 +160,7 @@ class PrincipalGeodesicAnalysis:
         from . import convert, frechet_mean
 
         k = self._check_params()
+        X = self._array(X, "X")
         P = self._to_poincare(X, "X", k)
         n, d = P.shape
         if n == 0:
@@ -171,7 +182,7 @@ class PrincipalGeodesicAnalysis:
         self.explained_variance_ = var[:nc].copy()
         self.explained_variance_ratio_ = var[:nc] / total if total > 0 else np.zeros(nc)
         self.n_components_ = nc
-        self.n_features_in_ = int(np.asarray(X).shape[1])
+        self.n_features_in_ = int(X.shape[1])
         self._curvature = k
         self.mean_ = np.asarray(convert(self._mean_p, "poincare", self.model, curvature=k), dtype=np.float64)
         return self

@@ -27,6 +27,7 @@ from typing import Any, Optional, Tuple
 import numpy as np
 
 from ._args import count, real
+from .pga import _as_array
 
 __all__ = ["disk"]
 
@@ -134,7 +135,7 @@ def _edges(edges: Any, n: int) -> np.ndarray:
     """``edges`` as an ``(m, 2)`` int64 array of row indices into ``x``."""
     if hasattr(edges, "edges") and hasattr(edges, "nodes"):  # a networkx graph on nodes 0..n-1
         edges = list(edges.edges())
-    e = np.asarray(edges)
+    e = _as_array("edges", edges)
     if e.size == 0:
         return np.zeros((0, 2), dtype=np.int64)
     if e.dtype.kind not in "iu" and not (e.dtype.kind == "f" and np.all(np.isfinite(e)) and np.all(e == np.round(e))):
@@ -218,7 +219,7 @@ def disk(
     if arc_samples is not None:
         arc_samples = count("arc_samples", arc_samples, 2)
 
-    a = np.asarray(x)
+    a = _as_array("x", x)
     if a.dtype.kind not in "biuf":
         raise TypeError(f"x must be an array of real numbers, got dtype {a.dtype}")
     if a.ndim != 2:
@@ -243,7 +244,7 @@ def disk(
                 raise ValueError(f"center = {i} is not a row of x (n = {n})")
             cp = p[i]
         else:
-            cm = np.asarray(center, dtype=np.float64)
+            cm = _as_array("center", center, np.float64)
             if cm.shape != (a.shape[1],):
                 raise ValueError(f"center must be one point of {model} with {a.shape[1]} coordinates, got shape {cm.shape}")
             cp = np.asarray(convert(cm, model, "poincare", curvature=k), dtype=np.float64).reshape(d)
@@ -282,7 +283,12 @@ def disk(
     else:
         from .centroids import _factorize
 
-        codes, values = _factorize(labels)
+        try:
+            codes, values = _factorize(labels)
+        except (ValueError, TypeError):
+            raise
+        except Exception as e:  # noqa: BLE001 - an object whose __array__ raises
+            raise TypeError(f"labels must be one hashable value per point: {type(e).__name__}: {e}") from None
         codes = np.asarray(codes).reshape(-1)
         if codes.shape[0] != n:
             raise ValueError(f"labels must have one entry per point: {codes.shape[0]} labels for {n} points")

@@ -322,3 +322,29 @@ def test_missing_matplotlib_is_a_clear_import_error_and_gyrokit_imports_without_
     )
     out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True).stdout.split()
     assert out == ["(3,", "2)", "True"]
+
+
+def test_graphs_categoricals_and_unconvertible_arguments():
+    import networkx as nx
+    import pandas as pd
+
+    p = np.random.default_rng(8).uniform(-0.5, 0.5, size=(4, 2))
+    ax = gk.plot.disk(p, edges=nx.path_graph(4), labels=pd.Categorical(["x", "y", "x", "z"]))
+    ends = np.array([[s[0], s[-1]] for s in _edges_of(ax)])
+    np.testing.assert_array_equal(ends, np.stack([p[:-1], p[1:]], axis=1))
+    assert [t.get_text() for t in ax.get_legend().get_texts()] == ["x", "y", "z"]
+
+    class Unconvertible:
+        def __array__(self, *args, **kwargs):
+            raise RuntimeError("no array here")
+
+    for name in ("edges", "labels", "center"):
+        with pytest.raises(TypeError, match=name):
+            gk.plot.disk(p, **{name: Unconvertible()})
+    with pytest.raises(TypeError, match="x must be"):
+        gk.plot.disk(Unconvertible())
+    with pytest.raises(TypeError, match="X must be"):
+        gk.PrincipalGeodesicAnalysis(2).fit(Unconvertible())
+    # empty input: an empty picture
+    ax = gk.plot.disk(np.zeros((0, 2)), edges=np.zeros((0, 2), dtype=int), labels=[])
+    assert len(_points_of(ax)) == 0
