@@ -9,15 +9,21 @@ geodesics.
 
 Tangent coordinates. The tangent vectors are expressed in an orthonormal
 frame of ``T_m`` (Riemannian units: a coordinate vector's Euclidean length
-is the hyperbolic distance ``d(m, x)``). The work is done in the Poincaré
-ball, whose metric at ``m`` is conformal, ``lambda_m^2 <.,.>`` with
-``lambda_m = 2/(1 - |m|^2/R^2)``, so the frame is ``e_i/lambda_m`` and the
-coordinates of ``log_m(x)`` are ``u = lambda_m log_m(x)``. They are computed
-as ``u = 2 log_0((-m) ⊕ x)``: the Möbius translation ``p -> (-m) ⊕ p`` is an
-isometry whose differential at ``m`` is ``(lambda_m/2) I`` (no rotation),
-so the two agree, and the translated form needs no rounded ``lambda_m`` for
-a mean near the rim. The inverse is ``exp_m`` in the same frame:
-``x = m ⊕ exp_0(u/2)``.
+is the hyperbolic distance ``d(m, x)``): the standard frame at the origin,
+carried to ``m`` by parallel transport along the geodesic. Klein and
+hyperboloid data are analysed in their own model: ``log_m(x)`` (the core's
+``log_map``) is transported back to the origin (the core's ``transport``),
+where the Klein metric is Euclidean and the hyperboloid's is that of the
+spatial coordinates; so far-out hyperboloid data (beyond the Poincaré
+ball's float64 range of about 37 R) can be analysed. Poincaré data (and
+half-space data, converted to the Poincaré ball, since the half-space has no
+log map here) use the conformal metric ``lambda_m^2 <.,.>``,
+``lambda_m = 2/(1 - |m|^2/R^2)``: the coordinates of ``log_m(x)`` are
+``u = lambda_m log_m(x)``, computed as ``u = 2 log_0((-m) ⊕ x)`` (the Möbius
+translation ``p -> (-m) ⊕ p`` is an isometry whose differential at ``m`` is
+``(lambda_m/2) I``, no rotation: the transport to the origin), which needs
+no rounded ``lambda_m`` for a mean near the rim. The inverse is ``exp_m`` in
+the same frame (``x = m ⊕ exp_0(u/2)`` in the Poincaré ball).
 
 No centring: at the Fréchet mean the log vectors average to zero (the
 stationarity condition of the mean, up to its tolerance ``grad_norm``), so
@@ -30,9 +36,9 @@ scikit-learn's ``PCA`` of the same tangent vectors normalises by ``n - 1``.
 ball of the same curvature: the component coordinates ``c`` of a point,
 mapped by the exponential at that ball's origin, so the origin stands for
 the mean and a point's distance from the origin is ``|c| <= d(m, x)``, with
-equality when all components are kept. Input of any model is converted to
-the Poincaré ball (:func:`gyrokit.convert`), so its points must lie within
-its float64 range (about 37 R from the origin).
+equality when all components are kept; a point farther than about 38 R from
+the mean cannot be held by that ball in float64 and raises ``ValueError``
+naming the row.
 """
 
 from __future__ import annotations
@@ -133,26 +139,60 @@ class PrincipalGeodesicAnalysis:
             raise ValueError(f"{name} must be a 2-D array of points (n, width); got shape {a.shape}")
         return np.ascontiguousarray(a, dtype=np.float64)
 
-    def _to_poincare(self, X: Any, name: str, k: float) -> np.ndarray:
-        """``X`` (points of ``model``) as validated float64 Poincaré points."""
+    def _hub(self) -> str:
+        """The model the analysis runs in: the input's, except the half-space
+        (which has no log map of its own), analysed in the Poincaré ball."""
+        return "poincare" if self.model == "halfspace" else self.model
+
+    def _points(self, X: Any, name: str, k: float) -> np.ndarray:
+        """``X`` (points of ``model``) as validated float64 points of the hub model."""
         from . import convert
 
         a = self._array(X, name)
         if a.shape[0] == 0:
-            return np.zeros((0, a.shape[1] - (1 if self.model == "hyperboloid" else 0)))
+            return a
         try:
-            return np.asarray(convert(a, self.model, "poincare", curvature=k), dtype=np.float64)
+            return np.asarray(convert(a, self.model, self._hub(), curvature=k), dtype=np.float64)
         except ValueError as e:
             raise ValueError(f"{name} is not a valid array of {self.model} points: {e}") from None
 
+    def _origin(self, d: int, k: float) -> np.ndarray:
+        o = np.zeros(d + (1 if self._hub() == "hyperboloid" else 0))
+        if self._hub() == "hyperboloid":
+            o[0] = 1.0 / np.sqrt(-k)
+        return o
+
     def _tangent(self, P: np.ndarray, k: float) -> np.ndarray:
-        """Orthonormal tangent coordinates at the mean, ``2 log_0((-m) ⊕ x)``."""
-        from . import poincare
+        """Orthonormal tangent coordinates at the mean."""
+        from . import hyperboloid, klein, poincare
 
         if P.shape[0] == 0:
-            return P.copy()
-        y = poincare.add(-self._mean_p, P, curvature=k)
-        return 2.0 * np.asarray(poincare.log_map(y, curvature=k), dtype=np.float64)
+            return np.zeros((0, self._d))
+        m = self._mean_h
+        if self._hub() == "poincare":
+            # 2 log_0((-m) ⊕ x): the translation's differential is (lambda_m/2) I
+            return 2.0 * np.asarray(poincare.log_map(poincare.add(-m, P, curvature=k), curvature=k), dtype=np.float64)
+        # log at the mean, carried to the origin by parallel transport (the
+        # frame transported from the origin: the one of the Poincaré case);
+        # at the origin the Klein metric is Euclidean and the hyperboloid's
+        # is that of the spatial part.
+        mod = klein if self._hub() == "klein" else hyperboloid
+        v = mod.log_map(P, m, curvature=k)
+        w = np.asarray(mod.transport(v, m, self._origin(self._d, k), curvature=k), dtype=np.float64)
+        return w[:, 1:] if self._hub() == "hyperboloid" else w
+
+    def _from_tangent(self, U: np.ndarray, k: float) -> np.ndarray:
+        """Points of the hub model ``exp_m`` of orthonormal tangent coordinates at the mean."""
+        from . import hyperboloid, klein, poincare
+
+        m = self._mean_h
+        if self._hub() == "poincare":
+            return np.asarray(poincare.add(m, poincare.exp_map(U / 2.0, curvature=k), curvature=k), dtype=np.float64)
+        mod = klein if self._hub() == "klein" else hyperboloid
+        if self._hub() == "hyperboloid":
+            U = np.concatenate([np.zeros((U.shape[0], 1)), U], axis=1)
+        v = mod.transport(U, self._origin(self._d, k), m, curvature=k)
+        return np.asarray(mod.exp_map(v, m, curvature=k), dtype=np.float64)
 
     # ------------------------------------------------------------------ API
     def fit(self, X: Any, y: Any = None) -> "PrincipalGeodesicAnalysis":
@@ -161,14 +201,16 @@ class PrincipalGeodesicAnalysis:
 
         k = self._check_params()
         X = self._array(X, "X")
-        P = self._to_poincare(X, "X", k)
-        n, d = P.shape
+        P = self._points(X, "X", k)
+        n = P.shape[0]
+        d = P.shape[1] - (1 if self._hub() == "hyperboloid" else 0)
         if n == 0:
             raise ValueError("X is empty: principal geodesic analysis needs at least one point")
         nc = int(self.n_components)
         if nc > d:
             raise ValueError(f"n_components={nc} is larger than the dimension of the points (d = {d})")
-        self._mean_p = np.asarray(frechet_mean(P, curvature=k).mean, dtype=np.float64)
+        self._d = d
+        self._mean_h = np.asarray(frechet_mean(P, model=self._hub(), curvature=k).mean, dtype=np.float64)
         U = self._tangent(P, k)
         _, s, vt = np.linalg.svd(U, full_matrices=True)
         s = np.concatenate([s, np.zeros(d - s.size)])  # n < d: the missing directions carry no variance
@@ -184,7 +226,7 @@ class PrincipalGeodesicAnalysis:
         self.n_components_ = nc
         self.n_features_in_ = int(X.shape[1])
         self._curvature = k
-        self.mean_ = np.asarray(convert(self._mean_p, "poincare", self.model, curvature=k), dtype=np.float64)
+        self.mean_ = np.asarray(convert(self._mean_h, self._hub(), self.model, curvature=k), dtype=np.float64)
         return self
 
     def _check_fitted(self, what: str) -> float:
@@ -211,7 +253,7 @@ class PrincipalGeodesicAnalysis:
                 f"X has {a.shape[1]} coordinates per point but PrincipalGeodesicAnalysis was fitted with "
                 f"{self.n_features_in_}"
             )
-        P = self._to_poincare(a, "X", k)
+        P = self._points(a, "X", k)
         C = self._tangent(P, k) @ self.components_.T
         if C.shape[0] == 0:
             return C
@@ -244,6 +286,5 @@ class PrincipalGeodesicAnalysis:
             C = 2.0 * np.asarray(poincare.log_map(z, curvature=k), dtype=np.float64)
         except ValueError as e:
             raise ValueError(f"Z is not a valid array of points of the {self.n_components_}-dimensional Poincaré ball: {e}") from None
-        U = C @ self.components_
-        P = poincare.add(self._mean_p, poincare.exp_map(U / 2.0, curvature=k), curvature=k)
-        return np.asarray(convert(P, "poincare", self.model, curvature=k), dtype=np.float64)
+        P = self._from_tangent(C @ self.components_, k)
+        return np.asarray(convert(P, self._hub(), self.model, curvature=k), dtype=np.float64)

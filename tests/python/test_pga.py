@@ -76,6 +76,58 @@ def test_all_components_keep_every_distance_to_the_mean(curvature):
     assert np.all(2 * R * np.arctanh(np.linalg.norm(z2, axis=1) / R) <= dm * (1 + 1e-12))
 
 
+@pytest.mark.parametrize("model", ["klein", "hyperboloid", "halfspace"])
+def test_every_model_keeps_distances_to_the_mean(model):
+    K = -2.0
+    R = 1 / np.sqrt(-K)
+    x = gk.convert(_cloud(n=120, d=4, seed=11, curvature=K), "poincare", model, curvature=K)
+    pga = gk.PrincipalGeodesicAnalysis(4, model=model, curvature=K).fit(x)
+    z = pga.transform(x)
+    dz = 2 * R * np.arctanh(np.linalg.norm(z, axis=1) / R)  # Beardon 7.2
+    mean_p = gk.convert(pga.mean_, model, "poincare", curvature=K)
+    xp = gk.convert(x, model, "poincare", curvature=K)
+    # reference: the textbook arccosh form in float64 (the points are well inside)
+    g = (1 - (mean_p @ mean_p) / R**2) * (1 - np.sum(xp * xp, axis=1) / R**2)
+    ref = R * np.arccosh(1 + 2 * np.sum((xp - mean_p) ** 2, axis=1) / R**2 / g)
+    np.testing.assert_allclose(dz, ref, rtol=1e-9)
+    np.testing.assert_allclose(pga.inverse_transform(z), x, rtol=1e-11, atol=1e-12)
+
+
+def test_far_out_hyperboloid_data():
+    """A cloud about 60 R from the origin: beyond the Poincaré ball's float64
+    range, analysed on the hyperboloid. Distances to the mean against mpmath
+    at 120 digits: d = R acosh(-<m, x>_L / R^2) (Minkowski form, Ratcliffe,
+    Foundations of Hyperbolic Manifolds, 3.2), of the points the spatial
+    coordinates define."""
+    rng = np.random.default_rng(12)
+    d = 3
+    base = np.zeros(d + 1)
+    base[0] = np.cosh(60.0)
+    base[1] = np.sinh(60.0)
+    v = rng.normal(size=(50, d)) * np.array([1.0, 0.3, 0.1])
+    tang = gk.hyperboloid.transport(np.concatenate([np.zeros((50, 1)), v], axis=1), np.eye(d + 1)[0], base)
+    x = gk.hyperboloid.exp_map(tang, base)
+    with pytest.raises(ValueError):
+        gk.convert(x, "hyperboloid", "poincare")  # out of the ball's range indeed
+    pga = gk.PrincipalGeodesicAnalysis(d, model="hyperboloid").fit(x)
+    z = pga.transform(x)
+    dz = 2 * np.arctanh(np.linalg.norm(z, axis=1))
+    mpmath.mp.dps = 120
+
+    def on_sheet(p):  # the point the spatial coordinates define (x0 = sqrt(1 + |x_s|^2), exactly)
+        s = [mpmath.mpf(float(c)) for c in p[1:]]
+        return [mpmath.sqrt(1 + sum(c * c for c in s))] + s
+
+    m = on_sheet(pga.mean_)
+    for i in range(0, 50, 7):
+        xi = on_sheet(x[i])
+        ref = mpmath.acosh(m[0] * xi[0] - sum(a * b for a, b in zip(m[1:], xi[1:])))
+        assert abs(dz[i] - float(ref)) <= 1e-9 * float(ref)
+    assert pga.explained_variance_ratio_[0] > 0.8
+    back = pga.inverse_transform(z)
+    np.testing.assert_allclose(back, x, rtol=1e-8)
+
+
 def test_matches_sklearn_pca_of_the_tangent_vectors():
     x = _cloud(n=400, d=6, seed=3)
     k = 4
