@@ -65,6 +65,51 @@ def _as_array(name: str, value: Any, dtype: Any = None) -> np.ndarray:
         raise TypeError(f"{name} must be an array of real numbers: {type(e).__name__}: {e}") from None
 
 
+def _hub_of(model: str) -> str:
+    """The model an analysis runs in: the input's, except the half-space
+    (which has no log map of its own), handled in the Poincaré ball."""
+    return "poincare" if model == "halfspace" else model
+
+
+def _origin_of(hub: str, d: int, k: float) -> np.ndarray:
+    o = np.zeros(d + (1 if hub == "hyperboloid" else 0))
+    if hub == "hyperboloid":
+        o[0] = 1.0 / np.sqrt(-k)
+    return o
+
+
+def _tangent_at(P: np.ndarray, base: np.ndarray, hub: str, d: int, k: float) -> np.ndarray:
+    """Orthonormal (Riemannian) coordinates ``(n, d)`` of ``log_base(P)``, in the
+    frame at ``base`` transported from the standard frame at the origin (see
+    the module notes); ``P`` and ``base`` points of ``hub``."""
+    from . import hyperboloid, klein, poincare
+
+    if P.shape[0] == 0:
+        return np.zeros((0, d))
+    if hub == "poincare":
+        # 2 log_0((-m) ⊕ x): the translation's differential is (lambda_m/2) I
+        return 2.0 * np.asarray(poincare.log_map(poincare.add(-base, P, curvature=k), curvature=k), dtype=np.float64)
+    # log at the base, carried to the origin by parallel transport; there the
+    # Klein metric is Euclidean and the hyperboloid's that of the spatial part
+    mod = klein if hub == "klein" else hyperboloid
+    v = mod.log_map(P, base, curvature=k)
+    w = np.asarray(mod.transport(v, base, _origin_of(hub, d, k), curvature=k), dtype=np.float64)
+    return w[:, 1:] if hub == "hyperboloid" else w
+
+
+def _exp_at(U: np.ndarray, base: np.ndarray, hub: str, d: int, k: float) -> np.ndarray:
+    """Points of ``hub``: ``exp_base`` of orthonormal coordinates ``U`` (the inverse of ``_tangent_at``)."""
+    from . import hyperboloid, klein, poincare
+
+    if hub == "poincare":
+        return np.asarray(poincare.add(base, poincare.exp_map(U / 2.0, curvature=k), curvature=k), dtype=np.float64)
+    mod = klein if hub == "klein" else hyperboloid
+    if hub == "hyperboloid":
+        U = np.concatenate([np.zeros((U.shape[0], 1)), U], axis=1)
+    v = mod.transport(U, _origin_of(hub, d, k), base, curvature=k)
+    return np.asarray(mod.exp_map(v, base, curvature=k), dtype=np.float64)
+
+
 class PrincipalGeodesicAnalysis:
     """Principal geodesic analysis (tangent-space, at the Fréchet mean).
 
@@ -140,9 +185,7 @@ class PrincipalGeodesicAnalysis:
         return np.ascontiguousarray(a, dtype=np.float64)
 
     def _hub(self) -> str:
-        """The model the analysis runs in: the input's, except the half-space
-        (which has no log map of its own), analysed in the Poincaré ball."""
-        return "poincare" if self.model == "halfspace" else self.model
+        return _hub_of(self.model)
 
     def _points(self, X: Any, name: str, k: float) -> np.ndarray:
         """``X`` (points of ``model``) as validated float64 points of the hub model."""
@@ -156,43 +199,13 @@ class PrincipalGeodesicAnalysis:
         except ValueError as e:
             raise ValueError(f"{name} is not a valid array of {self.model} points: {e}") from None
 
-    def _origin(self, d: int, k: float) -> np.ndarray:
-        o = np.zeros(d + (1 if self._hub() == "hyperboloid" else 0))
-        if self._hub() == "hyperboloid":
-            o[0] = 1.0 / np.sqrt(-k)
-        return o
-
     def _tangent(self, P: np.ndarray, k: float) -> np.ndarray:
         """Orthonormal tangent coordinates at the mean."""
-        from . import hyperboloid, klein, poincare
-
-        if P.shape[0] == 0:
-            return np.zeros((0, self._d))
-        m = self._mean_h
-        if self._hub() == "poincare":
-            # 2 log_0((-m) ⊕ x): the translation's differential is (lambda_m/2) I
-            return 2.0 * np.asarray(poincare.log_map(poincare.add(-m, P, curvature=k), curvature=k), dtype=np.float64)
-        # log at the mean, carried to the origin by parallel transport (the
-        # frame transported from the origin: the one of the Poincaré case);
-        # at the origin the Klein metric is Euclidean and the hyperboloid's
-        # is that of the spatial part.
-        mod = klein if self._hub() == "klein" else hyperboloid
-        v = mod.log_map(P, m, curvature=k)
-        w = np.asarray(mod.transport(v, m, self._origin(self._d, k), curvature=k), dtype=np.float64)
-        return w[:, 1:] if self._hub() == "hyperboloid" else w
+        return _tangent_at(P, self._mean_h, self._hub(), self._d, k)
 
     def _from_tangent(self, U: np.ndarray, k: float) -> np.ndarray:
-        """Points of the hub model ``exp_m`` of orthonormal tangent coordinates at the mean."""
-        from . import hyperboloid, klein, poincare
-
-        m = self._mean_h
-        if self._hub() == "poincare":
-            return np.asarray(poincare.add(m, poincare.exp_map(U / 2.0, curvature=k), curvature=k), dtype=np.float64)
-        mod = klein if self._hub() == "klein" else hyperboloid
-        if self._hub() == "hyperboloid":
-            U = np.concatenate([np.zeros((U.shape[0], 1)), U], axis=1)
-        v = mod.transport(U, self._origin(self._d, k), m, curvature=k)
-        return np.asarray(mod.exp_map(v, m, curvature=k), dtype=np.float64)
+        """Points of the hub model: ``exp_m`` of orthonormal tangent coordinates at the mean."""
+        return _exp_at(U, self._mean_h, self._hub(), self._d, k)
 
     # ------------------------------------------------------------------ API
     def fit(self, X: Any, y: Any = None) -> "PrincipalGeodesicAnalysis":

@@ -22,12 +22,14 @@ are bent, angles change) and the Axes carries a note saying so.
 
 from __future__ import annotations
 
-from typing import Any, Optional, Tuple
+import contextlib
+import warnings
+from typing import Any, Iterator, Optional, Tuple
 
 import numpy as np
 
 from ._args import count, real
-from .pga import _as_array
+from .pga import _as_array, _hub_of, _origin_of, _tangent_at
 
 __all__ = ["disk"]
 
@@ -121,6 +123,20 @@ def _geodesic_arcs(a: Any, b: Any, samples: Optional[int] = 32, tol: float = 2.5
     return out, counts
 
 
+@contextlib.contextmanager
+def _quiet_rim(c: float) -> Iterator[None]:
+    """Points farther than about 38 R from the centre are drawn at the last
+    float64 radius: in the exact picture (``c == 1``) that is where they are,
+    to far below a pixel, so the clipping warning is dropped; with a radial
+    compression they would be drawn too close in, and the warning stays."""
+    from ._native import RimClipWarning
+
+    with warnings.catch_warnings():
+        if c == 1.0:
+            warnings.simplefilter("ignore", RimClipWarning)
+        yield
+
+
 def _compress(p: np.ndarray, c: float) -> np.ndarray:
     """The display transform of ``radial_compression``: unit-disk points at
     hyperbolic distance ``rho`` from the centre moved to radius ``tanh(rho/(2c))``
@@ -190,6 +206,9 @@ def disk(
         ``R tanh(rho / (2 R c))``, spreading out points crowded at the rim;
         ``c = 1`` (default) is the exact Poincaré picture. With ``c > 1`` the
         Axes is annotated "display: hyperbolic radii / c".
+        Points farther than about 38 R from the centre (hyperboloid data can
+        be) are drawn at the rim; with ``c > 1`` a ``RimClipWarning`` says
+        they are drawn too close in.
     arc_samples : points per drawn arc; default ``None``: as many as keep the
         polyline within 2.5e-4 R of the true arc (2 for a diameter, at most 64;
         32 each with ``radial_compression > 1``).
@@ -233,25 +252,40 @@ def disk(
     if d < 1:
         raise ValueError(f"x must hold points of dimension 1 or 2; got width {a.shape[1]} for model {model!r}")
     n = a.shape[0]
-    p = np.asarray(convert(a.astype(np.float64), model, "poincare", curvature=k), dtype=np.float64).reshape(n, d)
-    if d == 1:
-        p = np.concatenate([p, np.zeros((n, 1))], axis=1)
-
+    hub = _hub_of(model)
+    P = np.asarray(convert(a.astype(np.float64), model, hub, curvature=k), dtype=np.float64).reshape(n, a.shape[1])
+    base = None
     if center is not None:
         if isinstance(center, (int, np.integer)) and not isinstance(center, (bool, np.bool_)):
             i = int(center)
             if not -n <= i < n:
                 raise ValueError(f"center = {i} is not a row of x (n = {n})")
-            cp = p[i]
+            base = P[i]
         else:
             cm = _as_array("center", center, np.float64)
             if cm.shape != (a.shape[1],):
                 raise ValueError(f"center must be one point of {model} with {a.shape[1]} coordinates, got shape {cm.shape}")
-            cp = np.asarray(convert(cm, model, "poincare", curvature=k), dtype=np.float64).reshape(d)
-            if d == 1:
-                cp = np.array([cp[0], 0.0])
-        if n:
-            p = np.asarray(poincare.add(-cp, p, curvature=k), dtype=np.float64)
+            base = np.asarray(convert(cm, model, hub, curvature=k), dtype=np.float64).reshape(-1)
+    if hub == "poincare" and base is None:
+        p = P
+    elif n == 0:
+        p = np.zeros((0, d))
+    elif hub == "poincare":
+        # the Möbius translation taking the centre to the origin
+        with _quiet_rim(c):
+            p = np.asarray(poincare.add(-base, P, curvature=k, on_rim="clip"), dtype=np.float64)
+    else:
+        # Klein and hyperboloid points placed from their own model: the
+        # isometry taking the centre (or the origin) to the origin without
+        # rotation is exp_0 o (transport to the origin) o log_centre (the
+        # Möbius translation of the Poincaré case), so hyperboloid points
+        # beyond the ball's float64 range are drawn too (at the rim, with a
+        # when farther than about 38 R from the centre)
+        W = _tangent_at(P, _origin_of(hub, d, k) if base is None else base, hub, d, k)
+        with _quiet_rim(c):
+            p = np.asarray(poincare.exp_map(W / 2.0, curvature=k, on_rim="clip"), dtype=np.float64)
+    if d == 1:
+        p = np.concatenate([p, np.zeros((n, 1))], axis=1)
 
     u = p / R  # the unit disk: the arc and display formulas are scale-free
     verts = counts = None

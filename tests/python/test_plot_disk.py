@@ -348,3 +348,39 @@ def test_graphs_categoricals_and_unconvertible_arguments():
     # empty input: an empty picture
     ax = gk.plot.disk(np.zeros((0, 2)), edges=np.zeros((0, 2), dtype=int), labels=[])
     assert len(_points_of(ax)) == 0
+
+
+def test_far_out_hyperboloid_points_are_placed_from_their_own_model():
+    """Points about 60 R from the origin (beyond the Poincaré ball's float64
+    range) recentred on one of them: each drawn at Euclidean radius
+    tanh(d/2) for its distance d from the centre, against mpmath at 120
+    digits (Minkowski form d = acosh(-<c, x>_L), Ratcliffe 3.2, of the points
+    the spatial coordinates define)."""
+    import warnings
+
+    rng = np.random.default_rng(13)
+    base = np.array([np.cosh(60.0), np.sinh(60.0), 0.0])
+    v = rng.normal(size=(30, 2))
+    tang = gk.hyperboloid.transport(np.concatenate([np.zeros((30, 1)), v], axis=1), np.eye(3)[0], base)
+    x = gk.hyperboloid.exp_map(tang, base)
+    got = _points_of(gk.plot.disk(x, model="hyperboloid", center=3, edges=[[3, 4], [5, 6]]))
+    assert np.linalg.norm(got[3]) < 1e-15
+    mpmath.mp.dps = 120
+
+    def on_sheet(p):
+        s = [mpmath.mpf(float(c)) for c in p[1:]]
+        return [mpmath.sqrt(1 + sum(c * c for c in s))] + s
+
+    c = on_sheet(x[3])
+    for i in range(30):
+        xi = on_sheet(x[i])
+        ref = float(mpmath.acosh(max(c[0] * xi[0] - c[1] * xi[1] - c[2] * xi[2], 1)))
+        assert abs(2 * np.arctanh(np.linalg.norm(got[i])) - ref) <= 1e-9 * max(ref, 1e-3)
+    # without a centre they lie beyond the float64 disk: drawn on the rim, quietly
+    with warnings.catch_warnings():
+        warnings.simplefilter("error")
+        far = _points_of(gk.plot.disk(x, model="hyperboloid"))
+    np.testing.assert_allclose(np.linalg.norm(far, axis=1), 1.0, atol=1e-15)
+    # with a display compression, drawn too close in: said so
+    with pytest.warns(gk.RimClipWarning):
+        gk.plot.disk(x, model="hyperboloid", radial_compression=2.0)
