@@ -188,8 +188,12 @@ def disk(
     Parameters
     ----------
     x : (n, 2) points of ``model`` (``(n, 3)`` on the hyperboloid); ``(n, 1)``
-        points are drawn on the horizontal diameter. Converted to the
-        Poincaré disk with :func:`gyrokit.convert`. Higher dimensions raise
+        points are drawn on the horizontal diameter. Half-space points are
+        converted to the Poincaré disk (:func:`gyrokit.convert`); Klein and
+        hyperboloid points are placed from their own model (the log map at
+        the centre, parallel transport to the origin, the disk's exp map),
+        so hyperboloid points beyond the disk's float64 range can be drawn
+        around a ``center`` near them. Higher dimensions raise
         ``ValueError``: reduce them first with
         ``gyrokit.PrincipalGeodesicAnalysis(2).fit_transform(x)``.
     edges : (m, 2) int array of row indices into ``x`` (or a networkx graph on
@@ -279,8 +283,8 @@ def disk(
         # isometry taking the centre (or the origin) to the origin without
         # rotation is exp_0 o (transport to the origin) o log_centre (the
         # Möbius translation of the Poincaré case), so hyperboloid points
-        # beyond the ball's float64 range are drawn too (at the rim, with a
-        # when farther than about 38 R from the centre)
+        # beyond the ball's float64 range are drawn too (at the rim when
+        # farther than about 38 R from the centre)
         W = _tangent_at(P, _origin_of(hub, d, k) if base is None else base, hub, d, k)
         with _quiet_rim(c):
             p = np.asarray(poincare.exp_map(W / 2.0, curvature=k, on_rim="clip"), dtype=np.float64)
@@ -299,6 +303,22 @@ def disk(
         if verts is not None:
             verts = _compress(verts, c)
 
+    if labels is not None:
+        from .centroids import _factorize
+
+        try:
+            codes, values = _factorize(labels)
+        except (ValueError, TypeError):
+            raise
+        except Exception as e:  # noqa: BLE001 - an object whose __array__ raises
+            raise TypeError(f"labels must be one hashable value per point: {type(e).__name__}: {e}") from None
+        codes = np.asarray(codes).reshape(-1)
+        if codes.shape[0] != n:
+            raise ValueError(f"labels must have one entry per point: {codes.shape[0]} labels for {n} points")
+        if values is None:  # integer labels: their distinct values, in order
+            values, codes = np.unique(codes, return_inverse=True)
+        codes = np.asarray(codes, dtype=np.int64).reshape(-1)
+
     if ax is None:
         _, ax = plt.subplots(figsize=(6, 6))
     if boundary:
@@ -315,20 +335,6 @@ def disk(
     if labels is None:
         ax.scatter(xy[:, 0], xy[:, 1], s=point_size, c=[point_color], zorder=2, gid="gyrokit-points", linewidths=0)
     else:
-        from .centroids import _factorize
-
-        try:
-            codes, values = _factorize(labels)
-        except (ValueError, TypeError):
-            raise
-        except Exception as e:  # noqa: BLE001 - an object whose __array__ raises
-            raise TypeError(f"labels must be one hashable value per point: {type(e).__name__}: {e}") from None
-        codes = np.asarray(codes).reshape(-1)
-        if codes.shape[0] != n:
-            raise ValueError(f"labels must have one entry per point: {codes.shape[0]} labels for {n} points")
-        if values is None:  # integer labels: their distinct values, in order
-            values, codes = np.unique(codes, return_inverse=True)
-        codes = np.asarray(codes, dtype=np.int64).reshape(-1)
         m = len(values)
         cmap = plt.get_cmap("tab10" if m <= 10 else "tab20" if m <= 20 else "turbo")
         colors = cmap(np.arange(m) % cmap.N) if m <= 20 else cmap(np.linspace(0.0, 1.0, m))

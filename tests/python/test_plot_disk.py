@@ -230,8 +230,12 @@ def test_labels_one_legend_entry_each_and_colours_by_label():
             same = colors[lab == v]
             assert np.all(same == same[0])
         assert len({tuple(c) for c in colors}) == len(expect)
+    plt.close("all")
     with pytest.raises(ValueError, match="one entry per point"):
         gk.plot.disk(p, labels=np.arange(59))
+    with pytest.raises(ValueError, match="edges: row 0"):
+        gk.plot.disk(p, edges=[[0, 60]])
+    assert plt.get_fignums() == []  # bad input is refused before a figure is made
 
 
 def _points_of_colors(ax):
