@@ -241,6 +241,18 @@ def disk(
         raise ValueError(f"radial_compression must be a finite number >= 1, got {radial_compression!r}")
     if arc_samples is not None:
         arc_samples = count("arc_samples", arc_samples, 2)
+    if point_size is not None:
+        point_size = real("point_size", point_size)
+        if not (np.isfinite(point_size) and point_size > 0):
+            raise ValueError(f"point_size must be a finite number > 0, got {point_size!r}")
+    edge_width = real("edge_width", edge_width)
+    if not (np.isfinite(edge_width) and edge_width >= 0):
+        raise ValueError(f"edge_width must be a finite number >= 0, got {edge_width!r}")
+    if ax is not None:
+        from matplotlib.axes import Axes
+
+        if not isinstance(ax, Axes):
+            raise TypeError(f"ax must be a matplotlib Axes (or None for a new figure), got {type(ax).__name__}")
 
     a = _as_array("x", x)
     if a.dtype.kind not in "biuf":

@@ -310,6 +310,12 @@ def test_bad_input_names_the_argument_and_row():
         gk.plot.disk(good, center=[2.0, 0.0])
     with pytest.raises(TypeError, match="x must be"):
         gk.plot.disk(np.array([["a", "b"]]))
+    with pytest.raises(TypeError, match="ax must be a matplotlib Axes"):
+        gk.plot.disk(good, ax=np.zeros(2))
+    with pytest.raises(ValueError, match="point_size"):
+        gk.plot.disk(good, point_size=-1.0)
+    with pytest.raises(TypeError, match="edge_width"):
+        gk.plot.disk(good, edge_width="thin")
 
 
 def test_missing_matplotlib_is_a_clear_import_error_and_gyrokit_imports_without_it(monkeypatch):
