@@ -19,13 +19,17 @@ Submodules:
 ``gyrokit.relativity``
     Relativistic velocities in physical units (Einstein addition, Thomas
     rotation, boosts, precession).
+``gyrokit.plot``
+    Drawing in the Poincaré disk (needs the optional extra matplotlib:
+    ``pip install gyrokit[plot]``; imported only when a plot is drawn).
 """
 
 from __future__ import annotations
 
 from typing import Any
 
-from . import embed, halfspace, hyperboloid, klein, metrics, poincare, relativity
+from . import embed, halfspace, hyperboloid, klein, metrics, plot, poincare, relativity
+from .pga import PrincipalGeodesicAnalysis
 from .neighbors import condensed_distances, distance_matrix, knn, radius_neighbors
 from ._index import NeighborIndex
 from .kmeans import KMeans, UnfittedError
@@ -67,9 +71,9 @@ def __getattr__(name: str) -> Any:
 
 
 __all__ = [
-    "poincare", "klein", "hyperboloid", "halfspace", "relativity", "embed", "metrics", "convert", "MODELS",
+    "poincare", "klein", "hyperboloid", "halfspace", "relativity", "embed", "metrics", "plot", "convert", "MODELS",
     "distance_matrix", "condensed_distances", "knn", "radius_neighbors",
-    "NeighborIndex", "KMeans", "UnfittedError", "frechet_mean", "einstein_midpoint", "frechet_variance", "FrechetMean",
+    "NeighborIndex", "KMeans", "PrincipalGeodesicAnalysis", "UnfittedError", "frechet_mean", "einstein_midpoint", "frechet_variance", "FrechetMean",
     "FrechetVariance", "ConvergenceWarning", "RimClipWarning",
     "__version__",
 ]

@@ -828,7 +828,13 @@ def run_function(dr: Draw, name, fn, module, log):
         return None
     args, kw = got
     log.append((name, args, kw, None))
-    return check_call(name, fn, args, kw, log)
+    try:
+        return check_call(name, fn, args, kw, log)
+    finally:
+        if module == "plot":  # drawn figures stay open in pyplot until closed
+            import matplotlib.pyplot as plt
+
+            plt.close("all")
 
 
 def run_class(dr: Draw, name, cls, module, log):
