@@ -1,2 +1,3 @@
 //! Judging an embedding: distortion, graph reconstruction (mean average
 //! precision, mean rank), exact tree distances.
+pub mod tree_distances;
