@@ -89,10 +89,9 @@ impl Tree {
         Tree::build(par, root, "parent")
     }
 
-    /// From `(parent, child)` rows: the `n - 1` edges of a tree on nodes
-    /// `0..n`; the root is the node that is never a child.
-    pub fn from_edges(edges: &[[i64; 2]]) -> Result<Tree> {
-        let n = edges.len() + 1;
+    /// From `(parent, child)` rows on nodes `0..n` (`n - 1` rows for a
+    /// tree); the root is the node that is never a child.
+    pub fn from_edges(n: usize, edges: &[[i64; 2]]) -> Result<Tree> {
         check_size(n)?;
         let mut par = vec![NONE; n];
         let mut row_of = vec![u32::MAX; n];
@@ -100,8 +99,7 @@ impl Tree {
             for v in [p, c] {
                 if v < 0 || v >= n as i64 {
                     return value_err(format!(
-                        "edges: row {r} names node {v}, out of range: {} edges of a tree name nodes 0..{}",
-                        n - 1,
+                        "edges: row {r} names node {v}, out of range: the edges of a tree on {n} nodes name nodes 0..{}",
                         n - 1
                     ));
                 }
@@ -119,8 +117,18 @@ impl Tree {
             par[c] = p as u32;
             row_of[c] = r as u32;
         }
-        // n - 1 rows with distinct children leave exactly one node that is no child.
-        let root = par.iter().position(|&p| p == NONE).expect("one node without parent");
+        let mut roots = par.iter().enumerate().filter(|(_, &p)| p == NONE).map(|(v, _)| v);
+        let Some(root) = roots.next() else {
+            return value_err(format!(
+                "edges: every node is a child, so the edges form a cycle (through node {}); a tree has one root",
+                on_cycle(&par, 0)
+            ));
+        };
+        if let Some(other) = roots.next() {
+            return value_err(format!(
+                "edges: nodes {root} and {other} are both never a child: two roots (the edges do not connect them)"
+            ));
+        }
         Tree::build(par, root, "edges")
     }
 
@@ -419,11 +427,11 @@ mod tests {
         assert!(e.contains("node 1 lies on a cycle"), "{e}");
         let e = err(Tree::from_parents(&[1, 2, 0]));
         assert!(e.contains("no node has parent -1") && e.contains("node 0"), "{e}");
-        let e = err(Tree::from_edges(&[[0, 1], [2, 1]]));
+        let e = err(Tree::from_edges(3, &[[0, 1], [2, 1]]));
         assert!(e.contains("node 1 has two parents, 0 (row 0) and 2 (row 1)"), "{e}");
-        let e = err(Tree::from_edges(&[[0, 1], [1, 7]]));
+        let e = err(Tree::from_edges(3, &[[0, 1], [1, 7]]));
         assert!(e.contains("row 1 names node 7"), "{e}");
-        let e = err(Tree::from_edges(&[[1, 2], [2, 1]]));
+        let e = err(Tree::from_edges(3, &[[1, 2], [2, 1]]));
         assert!(e.contains("two parents") || e.contains("cycle"), "{e}");
         let e = err(Tree::from_undirected(4, &[[0, 1], [1, 2], [2, 0]], 0));
         assert!(e.contains("cycle"), "{e}");
@@ -431,7 +439,9 @@ mod tests {
         assert!(e.contains("node 2 is not connected"), "{e}");
         let t = Tree::from_undirected(3, &[[2, 1], [0, 1]], 2).unwrap();
         assert_eq!(t.parent, vec![1, 2, NONE]);
-        let t = Tree::from_edges(&[]).unwrap();
+        let e = err(Tree::from_edges(4, &[[0, 1], [2, 3]]));
+        assert!(e.contains("nodes 0 and 2 are both never a child"), "{e}");
+        let t = Tree::from_edges(1, &[]).unwrap();
         assert_eq!((t.n, t.root), (1, 0));
     }
 }

@@ -118,14 +118,26 @@ pub fn spherical_code(m: usize, d: usize) -> Vec<f64> {
     }
     if d == 2 {
         for j in 0..m {
-            let a = 2.0 * std::f64::consts::PI * j as f64 / m as f64;
-            c[2 * j] = a.cos();
-            c[2 * j + 1] = a.sin();
+            // the quarter turns exactly (sin(pi) is 1.2e-16 in float64): a
+            // path then stays on its ray, where float64 keeps every digit
+            let (x, y) = match (4 * j) % m {
+                0 => [(1.0, 0.0), (0.0, 1.0), (-1.0, 0.0), (0.0, -1.0)][4 * j / m],
+                _ => {
+                    let a = 2.0 * std::f64::consts::PI * j as f64 / m as f64;
+                    (a.cos(), a.sin())
+                }
+            };
+            c[2 * j] = x;
+            c[2 * j + 1] = y;
         }
         return c;
     }
-    if m == 1 {
+    if m <= 2 {
+        // one word, or two opposite ones, exactly on the first axis
         c[0] = 1.0;
+        if m == 2 {
+            c[d] = -1.0;
+        }
         return c;
     }
     if m <= d + 1 {
