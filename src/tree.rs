@@ -31,6 +31,18 @@ pub struct Tree {
     /// node are contiguous in it, in CSR order.
     pub bfs: Vec<u32>,
     pub level_start: Vec<u32>,
+    /// In breadth-first positions: the position of the parent of the node
+    /// at position `q`, and the positions of its children,
+    /// `bfs_child[q]..bfs_child[q + 1]` (so that a pass in breadth-first
+    /// order reads everything it needs in order, not by node number).
+    pub bfs_parent: Vec<u32>,
+    pub bfs_child: Vec<u32>,
+}
+
+/// What LCA queries need (built on demand: the embedding does not):
+/// depth-first preorder with subtree ranges, and skew-binary jump pointers.
+#[derive(Clone, Debug)]
+pub struct Ancestry {
     /// Depth-first preorder: `pre[tin[v]] = v`, and the subtree of `v` is
     /// `pre[tin[v]..tout[v]]`.
     pub pre: Vec<u32>,
@@ -226,21 +238,27 @@ impl Tree {
         // breadth-first order, by level
         let mut depth = vec![0u32; n];
         let mut bfs = Vec::with_capacity(n);
+        let mut bfs_parent = Vec::with_capacity(n);
+        let mut bfs_child = Vec::with_capacity(n + 1);
         let mut level_start = vec![0u32];
         bfs.push(root as u32);
+        bfs_parent.push(NONE);
         let mut lo = 0;
         while lo < bfs.len() {
             let hi = bfs.len();
             level_start.push(hi as u32);
             for i in lo..hi {
                 let u = bfs[i] as usize;
+                bfs_child.push(bfs.len() as u32);
                 for &c in &children[child_start[u] as usize..child_start[u + 1] as usize] {
                     depth[c as usize] = depth[u] + 1;
                     bfs.push(c);
+                    bfs_parent.push(i as u32);
                 }
             }
             lo = hi;
         }
+        bfs_child.push(bfs.len() as u32);
         if bfs.len() < n {
             let mut reached = vec![false; n];
             for &v in &bfs {
@@ -252,6 +270,25 @@ impl Tree {
                 "{arg}: node {c} lies on a cycle of parent links (node {start} does not lead to the root {root}); not a tree"
             ));
         }
+        Ok(Tree { n, root, parent: par, child_start, children, depth, bfs, level_start, bfs_parent, bfs_child })
+    }
+
+    /// Number of children of `v`.
+    #[inline(always)]
+    pub fn degree(&self, v: usize) -> usize {
+        (self.child_start[v + 1] - self.child_start[v]) as usize
+    }
+
+    /// The largest depth.
+    pub fn height(&self) -> usize {
+        self.level_start.len().saturating_sub(2)
+    }
+
+    /// The preorder ranges and jump pointers of this tree.
+    pub fn ancestry(&self) -> Ancestry {
+        let (n, root) = (self.n, self.root);
+        let (child_start, children, par, depth, bfs) =
+            (&self.child_start, &self.children, &self.parent, &self.depth, &self.bfs);
         // depth-first preorder and subtree ranges (iterative)
         let mut pre = Vec::with_capacity(n);
         let mut tin = vec![0u32; n];
@@ -282,20 +319,11 @@ impl Tree {
             let jjp = jump[jp] as usize;
             jump[v] = if p != root && depth[p] - depth[jp] == depth[jp] - depth[jjp] { jjp as u32 } else { p as u32 };
         }
-        Ok(Tree { n, root, parent: par, child_start, children, depth, bfs, level_start, pre, tin, tout, jump })
+        Ancestry { pre, tin, tout, jump }
     }
+}
 
-    /// Number of children of `v`.
-    #[inline(always)]
-    pub fn degree(&self, v: usize) -> usize {
-        (self.child_start[v + 1] - self.child_start[v]) as usize
-    }
-
-    /// The largest depth.
-    pub fn height(&self) -> usize {
-        self.level_start.len().saturating_sub(2)
-    }
-
+impl Ancestry {
     /// Whether `a` is an ancestor of `v` (or `v` itself).
     #[inline(always)]
     pub fn is_ancestor(&self, a: usize, v: usize) -> bool {
@@ -304,7 +332,7 @@ impl Tree {
 
     /// The lowest common ancestor of `u` and `v`, O(log n).
     #[inline(always)]
-    pub fn lca(&self, u: usize, v: usize) -> usize {
+    pub fn lca(&self, t: &Tree, u: usize, v: usize) -> usize {
         if self.is_ancestor(u, v) {
             return u;
         }
@@ -314,18 +342,18 @@ impl Tree {
         // climb from u to the deepest ancestor that is not an ancestor of v;
         // its parent is the answer
         let mut a = u;
-        while !self.is_ancestor(self.parent[a] as usize, v) {
+        while !self.is_ancestor(t.parent[a] as usize, v) {
             let j = self.jump[a] as usize;
-            a = if self.is_ancestor(j, v) { self.parent[a] as usize } else { j };
+            a = if self.is_ancestor(j, v) { t.parent[a] as usize } else { j };
         }
-        self.parent[a] as usize
+        t.parent[a] as usize
     }
 
     /// Hop count between `u` and `v`.
     #[inline(always)]
-    pub fn hops(&self, u: usize, v: usize) -> u32 {
-        let a = self.lca(u, v);
-        self.depth[u] + self.depth[v] - 2 * self.depth[a]
+    pub fn hops(&self, t: &Tree, u: usize, v: usize) -> u32 {
+        let a = self.lca(t, u, v);
+        t.depth[u] + t.depth[v] - 2 * t.depth[a]
     }
 }
 
@@ -369,13 +397,16 @@ mod tests {
         assert_eq!(t.depth, vec![0, 1, 1, 1, 2, 2, 2]);
         assert_eq!(t.bfs, vec![0, 1, 2, 3, 4, 5, 6]);
         assert_eq!(t.level_start, vec![0, 1, 4, 7]);
-        assert_eq!(t.pre, vec![0, 1, 4, 5, 2, 3, 6]);
+        assert_eq!(t.bfs_parent, vec![NONE, 0, 0, 0, 1, 1, 3]);
+        assert_eq!(t.bfs_child, vec![1, 4, 6, 6, 7, 7, 7, 7]);
+        let a = t.ancestry();
+        assert_eq!(a.pre, vec![0, 1, 4, 5, 2, 3, 6]);
         assert_eq!(t.height(), 2);
-        assert_eq!(t.lca(4, 5), 1);
-        assert_eq!(t.lca(4, 6), 0);
-        assert_eq!(t.lca(6, 3), 3);
-        assert_eq!(t.hops(4, 6), 4);
-        assert_eq!(t.hops(5, 5), 0);
+        assert_eq!(a.lca(&t, 4, 5), 1);
+        assert_eq!(a.lca(&t, 4, 6), 0);
+        assert_eq!(a.lca(&t, 6, 3), 3);
+        assert_eq!(a.hops(&t, 4, 6), 4);
+        assert_eq!(a.hops(&t, 5, 5), 0);
     }
 
     #[test]
@@ -388,6 +419,7 @@ mod tests {
             parent.push(i);
         }
         let t = Tree::from_parents(&parent).unwrap();
+        let anc = t.ancestry();
         let naive = |mut u: usize, mut v: usize| {
             let mut h = 0;
             while t.depth[u] > t.depth[v] {
@@ -412,7 +444,7 @@ mod tests {
             let u = (s >> 33) as usize % m;
             s = s.wrapping_mul(6364136223846793005).wrapping_add(1442695040888963407);
             let v = (s >> 33) as usize % m;
-            assert_eq!(t.hops(u, v), naive(u, v), "{u} {v}");
+            assert_eq!(anc.hops(&t, u, v), naive(u, v), "{u} {v}");
         }
     }
 

@@ -33,7 +33,6 @@
 //! R in the Klein ball. No representation in float64 coordinates does better.
 
 use rayon::prelude::*;
-use std::collections::HashMap;
 
 use crate::error::{value_err, Result};
 use crate::models::ball::{settle, Curvature};
@@ -298,12 +297,15 @@ pub fn embed(tree: &Tree, dim: usize, scale: Option<f64>, model: Model, k: Curva
         (0..n).filter(|&v| tree.degree(v) > 0).map(|v| tree.degree(v) + usize::from(v != tree.root)).collect();
     sizes.sort_unstable();
     sizes.dedup();
-    let codes: HashMap<usize, Vec<f64>> = sizes.par_iter().map(|&m| (m, spherical_code(m, d))).collect();
+    let built: Vec<(usize, Vec<f64>)> = sizes.par_iter().map(|&m| (m, spherical_code(m, d))).collect();
+    let mut codes: Vec<Vec<f64>> = vec![Vec::new(); sizes.last().map_or(0, |&m| m + 1)];
+    for (m, c) in built {
+        codes[m] = c;
+    }
 
     let mut hp = vec![0.0f64; n * d];
     let mut hg = vec![1.0f64; n];
     let mut dir = vec![0.0f64; n * d];
-    let root = tree.root;
     let levels = tree.level_start.len() - 1;
     for l in 1..levels {
         let (lo, hi) = (tree.level_start[l] as usize, tree.level_start[l + 1] as usize);
@@ -313,13 +315,12 @@ pub fn embed(tree: &Tree, dim: usize, scale: Option<f64>, model: Model, k: Curva
         let (cur_p, cur_g, cur_a) =
             (&mut rest_p[..(hi - lo) * d], &mut rest_g[..hi - lo], &mut rest_a[..(hi - lo) * d]);
         let place = |q: usize, p_out: &mut [f64], g_out: &mut f64, a_out: &mut [f64]| {
-            let v = tree.bfs[q] as usize;
-            let par = tree.parent[v] as usize;
-            let qp = pos[par] as usize;
-            let first = pos[tree.children[tree.child_start[par] as usize] as usize] as usize;
-            let has_parent = usize::from(par != root);
-            let m = tree.degree(par) + has_parent;
-            let code = &codes[&m];
+            // everything read in breadth-first positions: near-sequential
+            let qp = tree.bfs_parent[q] as usize;
+            let first = tree.bfs_child[qp] as usize;
+            let has_parent = usize::from(qp != 0);
+            let m = (tree.bfs_child[qp + 1] as usize - first) + has_parent;
+            let code = &codes[m];
             let word = q - first + has_parent;
             let cw = &code[word * d..(word + 1) * d];
             let xp = &done_p[qp * d..(qp + 1) * d];
@@ -336,7 +337,7 @@ pub fn embed(tree: &Tree, dim: usize, scale: Option<f64>, model: Model, k: Curva
                     b[i] = t * w[i];
                 }
                 *g_out = poincare::add_g(&one, xp, gp, b, gb, 1.0, p_out);
-                if tree.degree(v) > 0 {
+                if tree.bfs_child[q + 1] > tree.bfs_child[q] {
                     poincare::gyration_g(&one, xp, gp, b, gb, w, a_out);
                     a_out.iter_mut().for_each(|x| *x = -*x);
                     normalize(a_out);

@@ -23,10 +23,11 @@ pub fn pair_hops(tree: &Tree, pairs: &[[i64; 2]]) -> Result<Vec<i32>> {
             }
         }
     }
+    let anc = tree.ancestry();
     let mut out = vec![0i32; pairs.len()];
     out.par_chunks_mut(4096).zip(pairs.par_chunks(4096)).for_each(|(o, p)| {
         for (o, &[a, b]) in o.iter_mut().zip(p) {
-            *o = tree.hops(a as usize, b as usize) as i32;
+            *o = anc.hops(tree, a as usize, b as usize) as i32;
         }
     });
     Ok(out)
@@ -38,15 +39,16 @@ pub fn all_hops(tree: &Tree) -> Result<Vec<i32>> {
     if n.checked_mul(n).is_none_or(|m| m > isize::MAX as usize / 4) {
         return value_err(format!("an ({n}, {n}) table of hop counts does not fit in memory; pass pairs="));
     }
+    let anc = tree.ancestry();
     let mut out = vec![0i32; n * n];
     out.par_chunks_mut(n).enumerate().for_each_init(
         || vec![0u32; n],
         |lca_depth, (u, row)| {
             // lca_depth[pos] = depth of the LCA of u and pre[pos]
             let mut a = u;
-            let (mut lo, mut hi) = (tree.tin[u] as usize, tree.tin[u] as usize);
+            let (mut lo, mut hi) = (anc.tin[u] as usize, anc.tin[u] as usize);
             loop {
-                let (alo, ahi) = (tree.tin[a] as usize, tree.tout[a] as usize);
+                let (alo, ahi) = (anc.tin[a] as usize, anc.tout[a] as usize);
                 let da = tree.depth[a];
                 lca_depth[alo..lo].fill(da);
                 lca_depth[hi..ahi].fill(da);
@@ -59,7 +61,7 @@ pub fn all_hops(tree: &Tree) -> Result<Vec<i32>> {
             }
             let du = tree.depth[u];
             for (v, o) in row.iter_mut().enumerate() {
-                *o = (du + tree.depth[v] - 2 * lca_depth[tree.tin[v] as usize]) as i32;
+                *o = (du + tree.depth[v] - 2 * lca_depth[anc.tin[v] as usize]) as i32;
             }
         },
     );
