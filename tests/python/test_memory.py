@@ -70,6 +70,9 @@ VEL = BALL * 0.5 * C
 VEC = rng.normal(size=(N, D)) * 0.3
 LABELS = np.arange(N) % 3
 
+TREE = np.r_[-1, np.arange(N - 1) // 2]  # a binary tree on N nodes, as a parent array
+TREE_PAIRS = np.stack([np.arange(N), np.arange(N)[::-1]], axis=1)
+
 POINTS = {"poincare": BALL, "klein": BALL, "hyperboloid": HYP, "halfspace": HALF}
 
 
@@ -93,6 +96,8 @@ def valid_call(name: str, fn, module: str):
         "gyrokit.KMeans": ((), {"n_clusters": 3, "n_init": 1, "random_state": 0}),
         "gyrokit.NeighborIndex": ((BALL,), {}),
         "hyperboloid.inner": ((HYP, HYP[::-1].copy()), {}),
+        "embed.tree": ((TREE,), {}),
+        "metrics.tree_distances": ((TREE, TREE_PAIRS), {}),
     }
     if name in special:
         return special[name]
