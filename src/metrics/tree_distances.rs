@@ -36,7 +36,7 @@ pub fn pair_hops(tree: &Tree, pairs: &[[i64; 2]]) -> Result<Vec<i32>> {
 /// The `(n, n)` table of hop counts, row-major, in parallel over rows.
 pub fn all_hops(tree: &Tree) -> Result<Vec<i32>> {
     let n = tree.n;
-    if n.checked_mul(n).is_none_or(|m| m > isize::MAX as usize / 4) {
+    if n.checked_mul(n).map_or(true, |m| m > isize::MAX as usize / 4) {
         return value_err(format!("an ({n}, {n}) table of hop counts does not fit in memory; pass pairs="));
     }
     let anc = tree.ancestry();
