@@ -11,6 +11,7 @@ mod centroids;
 pub(crate) mod coerce;
 mod index;
 mod kmeans;
+mod metrics;
 mod models;
 mod neighbors;
 mod relativity;
@@ -31,6 +32,7 @@ fn _native(m: &Bound<'_, PyModule>) -> PyResult<()> {
     models::register(m)?;
     index::register(m)?;
     kmeans::register(m)?;
+    metrics::register(m)?;
     neighbors::register(m)?;
     relativity::register(m)?;
     m.add("__version__", env!("CARGO_PKG_VERSION"))?;
