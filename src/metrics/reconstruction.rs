@@ -16,9 +16,9 @@
 //!   both directions of every undirected edge.
 //!
 //! Exact over all `n (n - 1)` ordered pairs, without storing them: each
-//! row `u` keeps its sorted `t` and two histograms over the `k + 1` gaps
-//! between them (where `h(u, w)` falls with `<` and with `<=`); their prefix
-//! sums give both counts for every neighbour. A column with `h` above `t_k`
+//! row `u` keeps its sorted `t` and a histogram over the `k` gaps below
+//! them (where `h(u, w)` falls), plus the rare exact ties; prefix sums give
+//! both counts for every neighbour. A column with `h` above `t_k`
 //! (most of them in a good embedding) costs one comparison, as in `knn`.
 //! Rows run in the fixed strips of `matrix::sweep_self` and every reduction
 //! is in node order (integer rank sums), so results do not depend on the
@@ -139,11 +139,12 @@ struct Row {
     u: usize,
     /// The neighbours' `h`, ascending.
     t: Vec<f64>,
-    /// `below[p]`: columns `w != u` with exactly `p` of the `t` below `h(u, w)`.
+    /// `below[p]`: columns `w != u` with `h(u, w) <= t_k` and exactly `p` of
+    /// the `t` strictly below `h(u, w)`.
     below: Vec<u64>,
-    /// `at_or_below[q]`: columns `w != u` with exactly `q` of the `t` at or
-    /// below `h(u, w)`.
-    at_or_below: Vec<u64>,
+    /// Columns whose `h` equals some `t` (ties, rare): `(p, q)` with `q` the
+    /// count of `t` at or below it (`q = p` for every other column).
+    ties: Vec<(u32, u32)>,
 }
 
 impl Row {
@@ -151,21 +152,25 @@ impl Row {
         let nb = adj.neighbours(u);
         let mut t: Vec<f64> = nb.iter().map(|&v| x.half_delta(u, x, v)).collect();
         t.sort_unstable_by(|a, b| a.total_cmp(b));
-        let k = t.len();
-        let (below, at_or_below) = if k == 0 { (Vec::new(), Vec::new()) } else { (vec![0; k + 1], vec![0; k + 1]) };
-        Row { u, t, below, at_or_below }
+        let below = vec![0; t.len()];
+        Row { u, t, below, ties: Vec::new() }
     }
 
-    /// Records a column with value `h` that has `p` of the `t` strictly
-    /// below it; `q = p` unless `h` equals some `t` (a tie, rare).
+    /// Records a column with value `h <= t_k` that has `p < k` of the `t`
+    /// strictly below it.
     #[inline(always)]
     fn record(&mut self, p: usize, h: f64) {
-        let mut q = p;
-        while q < self.t.len() && self.t[q] == h {
-            q += 1;
-        }
         self.below[p] += 1;
-        self.at_or_below[q] += 1;
+        if self.t[p] == h {
+            self.tie(p, h);
+        }
+    }
+
+    #[cold]
+    #[inline(never)]
+    fn tie(&mut self, p: usize, h: f64) {
+        let q = p + self.t[p..].iter().take_while(|&&t| t == h).count();
+        self.ties.push((p as u32, q as u32));
     }
 
     /// Takes the columns `j0 + l` (`l < valid`) of one panel.
@@ -191,7 +196,8 @@ impl Row {
                 }
             }
             for l in 0..valid {
-                if j0 + l != self.u {
+                // p = k: above every neighbour, ranked behind all of them.
+                if (p[l] as usize) < k && j0 + l != self.u {
                     self.record(p[l] as usize, hs[l]);
                 }
             }
@@ -211,8 +217,15 @@ impl Row {
         let k = self.t.len();
         // A column w with p = #{t < h_w} and q = #{t <= h_w} has
         // h_w <= t_i exactly when p <= i, and h_w < t_i exactly when q <= i:
-        // prefix sums of the two histograms count them for every i.
-        let (mut le, mut lt) = (0u64, 0u64);
+        // prefix sums of the two histograms count them for every i. The
+        // histogram over q is the one over p with each tie moved from p to q.
+        let mut at_or_below: Vec<i64> = self.below.iter().map(|&c| c as i64).collect();
+        at_or_below.push(0);
+        for &(p, q) in &self.ties {
+            at_or_below[p as usize] -= 1;
+            at_or_below[q as usize] += 1;
+        }
+        let (mut le, mut lt) = (0u64, 0i64);
         let (mut ap, mut ranks) = (0.0f64, 0u64);
         let mut i = 0;
         while i < k {
@@ -224,13 +237,13 @@ impl Row {
             }
             for g in i..j {
                 le += self.below[g];
-                lt += self.at_or_below[g];
+                lt += at_or_below[g];
             }
             // No column has i < p < j or i < q < j (the t in the group are
             // equal), so le now counts p <= i and lt counts q <= i: the
             // columns at or below t_i and strictly below it.
             ap += (j as f64 / le as f64) * (j - i) as f64;
-            ranks += (1 + lt - i as u64) * (j - i) as u64;
+            ranks += (1 + lt as u64 - i as u64) * (j - i) as u64;
             i = j;
         }
         (ap / k as f64, ranks)
