@@ -33,3 +33,6 @@ class Embedding:
 
 
 __all__ = ["Embedding"]
+from ._hmds import from_distances  # noqa: E402  (h-MDS; needs Embedding above)
+
+__all__ += ["from_distances"]
