@@ -21,6 +21,7 @@ pub mod numeric;
 pub mod pairwise;
 pub mod relativity;
 pub mod stats;
+pub mod tree;
 
 pub use error::{Error, Result};
 pub use models::ball::Curvature;

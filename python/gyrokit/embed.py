@@ -8,7 +8,7 @@ any other gyrokit function (``model=e.model, curvature=e.curvature``).
 from __future__ import annotations
 
 from dataclasses import dataclass
-from typing import Optional
+from typing import Any, Optional
 
 import numpy as np
 
@@ -32,4 +32,73 @@ class Embedding:
     epochs: Optional[int] = None
 
 
-__all__ = ["Embedding"]
+def tree(
+    parent: Any,
+    dim: int = 2,
+    *,
+    scale: Optional[float] = None,
+    model: str = "poincare",
+    curvature: float = -1.0,
+    root: Any = None,
+) -> Embedding:
+    """Embed a tree so that every edge has hyperbolic length ``scale`` R.
+
+    The combinatorial construction of Sarkar (2011) in the plane, and in
+    ``dim > 2`` its higher-dimensional form (Sala, De Sa, Gu and Ré 2018):
+    each node is moved to the origin by an isometry; there its parent lies in
+    some direction, and its ``k`` children go to the other words of a
+    ``(k + 1)``-word spherical code whose first word points at the parent:
+    equally spaced angles in the plane, a regular simplex for
+    ``k + 1 <= dim + 1``, the cross-polytope ``±e_i`` up to ``2 dim``, and a
+    deterministic repulsion-spread set beyond. The larger ``scale``, the
+    closer the worst-case distortion of tree distances comes to 1 (Sarkar's
+    bound).
+
+    ``parent``: an int array ``(n,)``, ``parent[i]`` the parent of node ``i``
+    and -1 for the single root; or an ``(n - 1, 2)`` int array of
+    ``(parent, child)`` rows (the root is the node that is never a child); or
+    a networkx tree: a ``DiGraph`` with edges from parent to child, or a
+    ``Graph`` rooted at ``root`` (a node label; default node 0). Graph
+    labels that are not exactly ``0..n-1`` are numbered in ``G.nodes`` order:
+    row ``i`` of ``points`` is ``list(G.nodes)[i]``. Not a tree (a cycle, two
+    roots, a node with two parents, an index out of range, no nodes):
+    ``ValueError`` naming the node.
+
+    ``scale``: the edge length in units of R. ``None`` picks the largest
+    scale at which every point is representable in ``model`` in float64,
+    ``height x scale <= limit`` (the deepest node is at most that far out):
+    37.4 R in the Poincaré ball, 18.7 R in the Klein ball, about 173 R on the
+    hyperboloid and in the half-space (their coordinates reach 2^250). An
+    explicit scale that puts a node beyond the model's limit raises
+    ``ValueError`` naming the node and a model that holds it.
+
+    Accuracy: nodes are built exactly (the Poincaré point with its exact gap,
+    parent before child) and converted once; every edge is ``scale`` up to
+    the float64 rounding of its two end points, which at a distance ``r``
+    from the origin is about ``1e-16 sinh(r)`` R across the radius (in any
+    model: float64 resolves directions to 1e-16), and along it
+    ``1e-16 e^r/2`` R in the Poincaré ball, ``1e-16 e^(2r)/4`` R in the Klein
+    ball. Edges are within 1e-9 relative of ``scale`` up to about
+    ``16 + ln(scale)`` R from the origin (``8 + ln(scale)/2`` R in Klein);
+    beyond, float64 coordinates cannot place the nodes more exactly and
+    far-out siblings less than ~1e-16 rad apart round to one direction (the
+    hyperboloid's larger range does not separate them: it extends radii,
+    not angles).
+
+    Returns an :class:`Embedding` with ``points`` ``(n, dim)`` (``(n, dim +
+    1)`` on the hyperboloid), ``model``, ``curvature`` and ``scale``.
+    """
+    from . import _args, _native
+    from ._tree import tree_args
+
+    dim = _args.count("dim", dim, 2)
+    s = None if scale is None else _args.real("scale", scale)
+    kind, data, n, r = tree_args(parent, root)
+    points, used = _native.embed_tree(kind, data, n, r, dim, s, model, _args.real("curvature", curvature))
+    return Embedding(points=points, model=model, curvature=float(curvature), scale=used)
+
+
+__all__ = ["Embedding", "tree"]
+from ._hmds import from_distances  # noqa: E402  (h-MDS; needs Embedding above)
+
+__all__ += ["from_distances"]

@@ -9,8 +9,10 @@ use crate::error::Error;
 mod algebra;
 mod centroids;
 pub(crate) mod coerce;
+mod embed_tree;
 mod index;
 mod kmeans;
+mod metrics;
 mod models;
 mod neighbors;
 mod partial;
@@ -29,9 +31,11 @@ impl From<Error> for PyErr {
 fn _native(m: &Bound<'_, PyModule>) -> PyResult<()> {
     algebra::register(m)?;
     centroids::register(m)?;
+    embed_tree::register(m)?;
     models::register(m)?;
     index::register(m)?;
     kmeans::register(m)?;
+    metrics::register(m)?;
     neighbors::register(m)?;
     partial::register(m)?;
     relativity::register(m)?;

@@ -72,6 +72,9 @@ VEL = BALL * 0.5 * C
 VEC = rng.normal(size=(N, D)) * 0.3
 LABELS = np.arange(N) % 3
 
+TREE = np.r_[-1, np.arange(N - 1) // 2]  # a binary tree on N nodes, as a parent array
+TREE_PAIRS = np.stack([np.arange(N), np.arange(N)[::-1]], axis=1)
+
 POINTS = {"poincare": BALL, "klein": BALL, "hyperboloid": HYP, "halfspace": HALF}
 
 
@@ -96,6 +99,11 @@ def valid_call(name: str, fn, module: str):
         "gyrokit.NeighborIndex": ((BALL,), {}),
         "gyrokit.PrincipalGeodesicAnalysis": ((), {"n_components": 2}),
         "hyperboloid.inner": ((HYP, HYP[::-1].copy()), {}),
+        "embed.tree": ((TREE,), {}),
+        "metrics.tree_distances": ((TREE, TREE_PAIRS), {}),
+        "metrics.reconstruction": ((BALL, np.column_stack([np.arange(N - 1), np.arange(1, N)])), {}),
+        "metrics.distortion": ((BALL, 2.0 * gk.distance_matrix(BALL)), {}),
+        "embed.from_distances": ((gk.distance_matrix(HYP, model="hyperboloid"), 3), {}),
     }
     if name in special:
         return special[name]
