@@ -14,8 +14,8 @@ use crate::error::{Fault, Result, RowFault};
 use crate::models::ball::{finite_row, Curvature};
 use crate::models::klein::chord_ends;
 use crate::numeric::{
-    diff_of_squares, dot2, dot_dd, geodesic_weights, perp_scaled, sumsq, two_prod, wedge_dot, wedge_sq, with_scratch,
-    DD,
+    diff_of_squares, dot2, dot_dd, geodesic_weights, perp_scaled, pow2, sumsq, two_prod, unit_exponent, wedge_dot,
+    wedge_sq, with_scratch, DD,
 };
 
 /// Relative tolerance on x0 when reading a point (loose enough for float32
@@ -92,41 +92,70 @@ fn write_point(k: &Curvature, ys: &[f64], out: &mut [f64]) {
 #[inline(always)]
 fn exp_spatial(k: &Curvature, xs: &[f64], cx: f64, vs: &[f64], ys: &mut [f64]) {
     let kk = k.kappa;
-    // The part of v across x_s, in ys for now (times |x_s|^2).
-    let (xx, xv) = perp_scaled(xs, vs, ys);
-    let (xx, xv) = (xx.value(), xv.value());
-    let mut wedge = 0.0; // |x_s ∧ v_s|^2 = |x_s|^2 |v_perp|^2
-    if xx == 0.0 {
-        ys.copy_from_slice(vs);
-    } else {
-        // Klein direction u = v_perp + v_par/c_x^2 (the parts across and along x_s)
-        let par = xv / xx / (cx * cx);
-        let mut pp = 0.0;
-        for i in 0..xs.len() {
-            let vp = ys[i] / xx;
-            pp += vp * vp;
-            ys[i] = vp + par * xs[i];
-        }
-        wedge = xx * pp;
-    }
-    let n2 = (sumsq(vs) + kk * wedge) / (cx * cx);
-    let big_d = k.sqrt_kappa * n2.sqrt(); // |v|/R
-    if big_d == 0.0 {
+    let n = xs.len();
+    // x_s and v_s are read scaled by powers of two (exact): `2^-ex x_s` for
+    // everything that depends on the direction of x_s only, `2^-ev v_s`
+    // always (largest coordinate in [0.5, 1)), with `D = 2^ev D_s`, so that
+    // neither tiny points nor tiny tangents (squares below the float64
+    // range, also once multiplied by kappa) lose their digits.
+    let ex = unit_exponent(xs);
+    if vs.iter().all(|&v| v == 0.0) {
         ys.copy_from_slice(xs);
         return;
     }
-    let nu = sumsq(ys).sqrt();
-    // k.u/|u| = (x.u)/(c_x |u|) with x.u = (x.v)/c_x^2
-    let ku = xv / cx / cx / cx / nu;
-    let (a, b) = chord_ends(ku, 1.0 / (kk * cx * cx));
-    let m = 2.0 * b * cx / (a + b);
-    // m sinh(D), without overflowing sinh where the product is finite
-    let coef = if big_d < 700.0 { m * big_d.sinh() } else { (big_d + m.ln() - std::f64::consts::LN_2).exp() };
-    let em = (-big_d).exp();
-    let (ca, cu) = (coef / cx, coef * a / nu);
-    for i in 0..xs.len() {
-        ys[i] = em * xs[i] + (ca * xs[i] + cu * ys[i]);
-    }
+    let ev = unit_exponent(vs);
+    let (upx, upv) = (pow2(-ex), pow2(-ev));
+    with_scratch(
+        2 * n,
+        #[inline(always)]
+        |buf| {
+            let (xsc, vsc) = buf.split_at_mut(n);
+            for i in 0..n {
+                xsc[i] = xs[i] * upx;
+                vsc[i] = vs[i] * upv;
+            }
+            // The part of v across x_s, in ys for now (times |x_s|^2).
+            let (xx, xv) = perp_scaled(xsc, vsc, ys);
+            let (xx, xv) = (xx.value(), xv.value());
+            let mut wedge = 0.0; // |x_s ∧ v_s|^2 = |x_s|^2 |v_perp|^2 (scaled by 2^(-2ex - 2ev))
+            if xx == 0.0 {
+                ys.copy_from_slice(vsc);
+            } else {
+                // Klein direction u = v_perp + v_par/c_x^2 (the parts across and along x_s)
+                let par = xv / xx / (cx * cx);
+                let mut pp = 0.0;
+                for i in 0..n {
+                    let vp = ys[i] / xx;
+                    pp += vp * vp;
+                    ys[i] = vp + par * xsc[i];
+                }
+                wedge = xx * pp;
+            }
+            let sx = pow2(ex);
+            let n2 = (sumsq(vsc) + kk * ((wedge * sx) * sx)) / (cx * cx);
+            let ds = k.sqrt_kappa * n2.sqrt(); // |v|/R = 2^ev ds
+            let big_d = ds * pow2(ev);
+            let nu = sumsq(ys).sqrt(); // |u| 2^-ev
+                                       // k.u/|u| = (x.u)/(c_x |u|) with x.u = (x.v)/c_x^2
+            let ku = xv * sx / cx / cx / cx / nu;
+            let (a, b) = chord_ends(ku, 1.0 / (kk * cx * cx));
+            let m = 2.0 * b * cx / (a + b);
+            // m sinh(D), without overflowing sinh where the product is finite;
+            // the term along u as m (sinh(D)/D) D_s a u_s/|u_s| 2^ev, so that
+            // a D that underflows still moves the point
+            let em = (-big_d).exp();
+            let (ca, cu, down) = if big_d < 700.0 {
+                let shd = if big_d < 1e-8 { 1.0 } else { big_d.sinh() / big_d };
+                (m * big_d.sinh() / cx, m * shd * ds * a / nu, pow2(ev))
+            } else {
+                let coef = (big_d + m.ln() - std::f64::consts::LN_2).exp();
+                (coef / cx, coef * a / nu, 1.0)
+            };
+            for i in 0..n {
+                ys[i] = em * xs[i] + (ca * xs[i] + (cu * ys[i]) * down);
+            }
+        },
+    )
 }
 
 /// `log_x(y) = d (y - (1 + delta) x) / |y - (1 + delta) x|`, spatial part
@@ -167,34 +196,72 @@ fn log_full(k: &Curvature, xs: &[f64], cx: f64, ys: &[f64], cy: f64, out: &mut [
 /// `x0 y0` does not fit in float64. Writes the full (d + 1)-vector.
 #[inline(always)]
 fn transport_full(k: &Curvature, xs: &[f64], cx: f64, ys: &[f64], cy: f64, vs: &[f64], out: &mut [f64]) {
+    // Linear in v: v read scaled by a power of two (exact), so that no
+    // product of it with the points underflows.
+    let ev = unit_exponent(vs);
+    if ev == 0 {
+        return transport_unit(k, xs, cx, ys, cy, vs, out);
+    }
+    let up = pow2(-ev);
+    with_scratch(
+        vs.len(),
+        #[inline(always)]
+        |vsc| {
+            for (o, &a) in vsc.iter_mut().zip(vs) {
+                *o = a * up;
+            }
+            transport_unit(k, xs, cx, ys, cy, vsc, out);
+        },
+    );
+    let down = pow2(ev);
+    out.iter_mut().for_each(|o| *o *= down);
+}
+
+/// [`transport_full`] of a tangent scaled to a largest coordinate in [0.5, 1).
+#[inline(always)]
+fn transport_unit(k: &Curvature, xs: &[f64], cx: f64, ys: &[f64], cy: f64, vs: &[f64], out: &mut [f64]) {
     let kk = k.kappa;
     let n = xs.len();
     let h = half_delta(k, xs, cx, ys, cy);
     let s = 1.0 / (2.0 + 2.0 * h); // 1/(2 + delta)
     let hh = h / (1.0 + h); // delta/(2 + delta)
     let ps = &mut out[1..];
-    let (xx, xv) = perp_scaled(xs, vs, ps); // |x_s|^2 v_perp
-    let xx = xx.value();
-    let (alpha, cxx, cxy) = if xx > 0.0 {
-        ps.iter_mut().for_each(|o| *o /= xx);
-        // x_s.w' = x_s.(y_s - x_s)/(2 + delta) - delta/(2 + delta) |x_s|^2
-        let mut xw = 0.0;
-        for i in 0..n {
-            xw += xs[i] * (s * (ys[i] - xs[i]) - hh * xs[i]);
-        }
-        let nu = (cx + cy) / cx * s;
-        (xv.value() / xx, nu, kk * xw / (cx * cx))
-    } else {
-        ps.copy_from_slice(vs); // x at the origin: all of v is across
-        (0.0, 0.0, 0.0)
-    };
-    // y_s.v_perp = (x ∧ y).(x ∧ v)/|x_s|^2, from the inputs (a rounded v_perp
-    // or y_s - x_s would leak eps times the far coordinates into it)
-    let dv = if xx > 0.0 { wedge_dot(xs, ys, vs) / xx } else { dot2(ys, vs) };
-    let cp = kk * dv * s;
-    for i in 0..n {
-        ps[i] += cp * (xs[i] + ys[i]) + alpha * (cxx * xs[i] + cxy * ys[i]);
-    }
+    // x_s enters through its direction (and alpha x_s), read scaled by a
+    // power of two (exact), so that points whose squares underflow keep it
+    let ex = unit_exponent(xs);
+    let upx = pow2(-ex);
+    with_scratch(
+        n,
+        #[inline(always)]
+        |xsc| {
+            for i in 0..n {
+                xsc[i] = xs[i] * upx;
+            }
+            let (xx, xv) = perp_scaled(xsc, vs, ps); // |x_s|^2 v_perp (x_s scaled)
+            let xx = xx.value();
+            let (alpha, cxx, cxy) = if xx > 0.0 {
+                ps.iter_mut().for_each(|o| *o /= xx);
+                // x_s.w' = x_s.(y_s - x_s)/(2 + delta) - delta/(2 + delta) |x_s|^2
+                let mut xw = 0.0;
+                for i in 0..n {
+                    xw += xsc[i] * (s * (ys[i] - xs[i]) - hh * xs[i]);
+                }
+                let nu = (cx + cy) / cx * s;
+                (xv.value() / xx, nu, kk * xw / (cx * cx))
+            } else {
+                ps.copy_from_slice(vs); // x at the origin: all of v is across
+                (0.0, 0.0, 0.0)
+            };
+            // y_s.v_perp = (x ∧ y).(x ∧ v)/|x_s|^2, from the inputs (a rounded v_perp
+            // or y_s - x_s would leak eps times the far coordinates into it)
+            let dv = if xx > 0.0 { wedge_dot(xsc, ys, vs) / xx } else { dot2(ys, vs) };
+            let cp = kk * dv * s;
+            // alpha (nu x_s + kappa (x_s.w')/c_x^2 y_s), both terms with x_s scaled
+            for i in 0..n {
+                ps[i] += cp * (xs[i] + ys[i]) + alpha * (cxx * xsc[i] + cxy * ys[i]);
+            }
+        },
+    );
     out[0] = dot2(ys, &out[1..]) / (k.radius * cy);
 }
 

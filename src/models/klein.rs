@@ -12,8 +12,8 @@ use crate::models::ball::Curvature;
 use crate::models::gyro::GyroBall;
 use crate::models::poincare;
 use crate::numeric::{
-    artanh_from_gap, diff_of_squares, dist_sq, distance_from_half_delta, dot2, dot_with_sum, gap, geodesic_weights,
-    perp_scaled, sumsq, with_scratch,
+    artanh_ratio, diff_of_squares, dist_sq, distance_from_half_delta, dot2, dot_with_sum, gap, geodesic_weights,
+    norm_scaled, perp_scaled, pow2, sumsq, unit_exponent, with_scratch,
 };
 
 /// Einstein addition `u ⊕ (sv v)` (`sv = -1` gives `u ⊖ v`):
@@ -222,21 +222,37 @@ pub(crate) fn chord_ends(kv: f64, r2g: f64) -> (f64, f64) {
 #[inline(always)]
 pub fn exp_map_g(c: &Curvature, x: &[f64], gx: f64, v: &[f64], out: &mut [f64]) -> f64 {
     let k = c.kappa;
-    let vv = sumsq(v);
+    // v = 2^e v_s (exact): D = 2^e D_s and t/|v| = (t/D) (D_s/|v_s|), so
+    // tangents whose squares underflow (below ~1e-154) keep their digits.
+    // (always scaled to a largest coordinate in [0.5, 1): kappa |v|^2 must
+    // not underflow either)
+    let e = unit_exponent(v);
+    let (up, down) = (pow2(-e), pow2(e));
+    let (vv, xv) = with_scratch(
+        v.len(),
+        #[inline(always)]
+        |vs| {
+            for (o, &a) in vs.iter_mut().zip(v) {
+                *o = a * up;
+            }
+            (sumsq(vs), dot2(x, vs))
+        },
+    );
     if vv == 0.0 {
         out.copy_from_slice(x);
         return gx;
     }
     let nv = vv.sqrt();
-    let xv = dot2(x, v);
     // D^2 = kappa |v|^2 / g + kappa^2 (x.v)^2 / g^2 (the Klein metric)
     let q = k * xv / gx;
-    let big_d = (k * vv / gx + q * q).sqrt();
+    let ds = (k * vv / gx + q * q).sqrt();
+    let big_d = ds * down;
     let (a, b) = chord_ends(xv / nv, gx / k);
     let em = (-2.0 * big_d).exp();
     let den = a * em + b;
-    let t = a * b * -(-2.0 * big_d).exp_m1() / den;
-    let f = t / nv;
+    // t/|v| = (t/D) (D_s/|v_s|), with (1 - e^{-2D})/D -> 2 as D -> 0 (D may underflow)
+    let r = if big_d > 1e-300 { -(-2.0 * big_d).exp_m1() / big_d } else { 2.0 };
+    let f = a * b * r / den * (ds / nv);
     for i in 0..x.len() {
         out[i] = x[i] + f * v[i];
     }
@@ -252,11 +268,12 @@ pub fn log_map_g(c: &Curvature, x: &[f64], gx: f64, y: &[f64], gy: f64, out: &mu
     let n = x.len();
     let k = c.kappa;
     with_scratch(
-        3 * n,
+        4 * n,
         #[inline(always)]
         |buf| {
             let (p, rest) = buf.split_at_mut(n);
-            let (s, w) = rest.split_at_mut(n);
+            let (s, rest) = rest.split_at_mut(n);
+            let (w, xs) = rest.split_at_mut(n);
             let gp = to_poincare(x, gx, p);
             let a = gy.sqrt();
             let gq = poincare_gap(gy);
@@ -268,14 +285,14 @@ pub fn log_map_g(c: &Curvature, x: &[f64], gx: f64, y: &[f64], gy: f64, out: &mu
                 w[i] = (gp * s[i] + k * ss * p[i]) / den;
             }
             let gu = gp * gq / den;
-            let t = c.sqrt_kappa * sumsq(w).sqrt();
-            if t == 0.0 {
+            if w.iter().all(|&v| v == 0.0) {
                 out.iter_mut().for_each(|o| *o = 0.0);
                 return;
             }
-            let f = -gp * artanh_from_gap(t, gu) / t; // log_p(q) = f (p ⊖ q)
-            let pp = sumsq(p);
-            if pp == 0.0 {
+            // |w| without underflow (tiny pairs: log = -g_p w to full precision)
+            let t = c.sqrt_kappa * norm_scaled(w);
+            let f = -gp * artanh_ratio(t, gu); // log_p(q) = f (p ⊖ q)
+            if p.iter().all(|&v| v == 0.0) {
                 let g2 = 2.0 / (2.0 - gp);
                 for i in 0..n {
                     out[i] = g2 * f * w[i];
@@ -288,31 +305,64 @@ pub fn log_map_g(c: &Curvature, x: &[f64], gx: f64, y: &[f64], gy: f64, out: &mu
             // dominated by its radial part (the Klein -> Poincaré map stretches
             // it by 1/sqrt(g_x)), so s_perp is taken from the input difference:
             // s_perp = (x - y)_perp / (1 + sqrt(g_y)), p and x being parallel.
-            let radial = f * (gp * dot2(s, p) + k * ss * pp) / (den * pp);
+            // The radial part (s.p) p/|p|^2 + kappa |s|^2 p/D and the part
+            // across x depend on the direction of p (and of x) only: both are
+            // taken from x scaled by a power of two (exact), so that points
+            // whose squares underflow (below ~1e-154) keep their digits.
+            let ex = unit_exponent(x);
+            let up = pow2(-ex);
+            for i in 0..n {
+                xs[i] = x[i] * up;
+            }
+            let pp = sumsq(xs);
+            let sp = dot2(s, xs) / pp;
             let g2 = 2.0 / (2.0 - gp);
             let shrink = gp / (2.0 - gp);
-            for i in 0..n {
-                w[i] = x[i] - y[i];
-            }
-            let (xx, _) = perp_scaled(x, w, out); // |x|^2 (x - y)_perp
+            let fr = f * shrink / den;
+            // (x - y) scaled by a power of two too (the part across is linear in it)
+            let ew = {
+                for i in 0..n {
+                    w[i] = x[i] - y[i];
+                }
+                unit_exponent(w)
+            };
+            let upw = pow2(-ew);
+            w.iter_mut().for_each(|v| *v *= upw);
+            let (xx, _) = perp_scaled(xs, w, out); // |x_s|^2 (x - y)_perp 2^-ew
             let cp = f * gp / (den * xx.value() * (1.0 + a));
+            let downw = pow2(ew);
             for i in 0..n {
-                out[i] = g2 * (cp * out[i] + radial * shrink * p[i]);
+                out[i] = g2 * ((cp * out[i]) * downw + fr * (gp * sp * xs[i] + k * ss * p[i]));
             }
         },
     )
 }
 
 /// The split of a Klein transport at its start `x`: writes `v_perp` (the
-/// part of `v` across `x`) into `vp` and returns `alpha` (`v = alpha x +
-/// v_perp`), the coefficient `alpha mu + kappa (y - x).v_perp / E` of
-/// `x - y` in [`transport_g`], and `x.v`. `(y - x).v_perp` is formed from the
-/// difference (`x.v_perp` is zero only in exact arithmetic).
+/// part of `v` across `x`) into `vp` and returns `alpha_s`, `ex`, `c_dv` and
+/// `2^-ex x.v`, where `v = alpha x + v_perp` with `alpha = alpha_s 2^-ex` (`x` is
+/// read scaled by the power of two `2^-ex`, exact, so that points whose
+/// squares underflow keep their direction; `alpha` times anything parallel
+/// to `x` is formed from the scaled vector) and `c_dv = kappa (y - x).v_perp / E`
+/// (the coefficient of `x - y` in [`transport_g`] is `alpha mu + c_dv`).
+/// `(y - x).v_perp` is formed from the difference (`x.v_perp` is zero only
+/// in exact arithmetic).
 #[inline(always)]
-fn split_at_start(k: f64, x: &[f64], y: &[f64], v: &[f64], mu: f64, e: f64, vp: &mut [f64]) -> (f64, f64, f64) {
-    let (xx, xv) = perp_scaled(x, v, vp); // |x|^2 v_perp
+fn split_at_start(k: f64, x: &[f64], y: &[f64], v: &[f64], e: f64, vp: &mut [f64]) -> (f64, i32, f64, f64) {
+    let ex = unit_exponent(x);
+    let up = pow2(-ex);
+    let (xx, xv) = with_scratch(
+        x.len(),
+        #[inline(always)]
+        |xs| {
+            for (o, &a) in xs.iter_mut().zip(x) {
+                *o = a * up;
+            }
+            perp_scaled(xs, v, vp) // |x_s|^2 v_perp
+        },
+    );
     let (xx, xv) = (xx.value(), xv.value());
-    let alpha = if xx > 0.0 {
+    let alpha_s = if xx > 0.0 {
         vp.iter_mut().for_each(|o| *o /= xx);
         xv / xx
     } else {
@@ -323,7 +373,7 @@ fn split_at_start(k: f64, x: &[f64], y: &[f64], v: &[f64], mu: f64, e: f64, vp: 
     for i in 0..x.len() {
         dv += (y[i] - x[i]) * vp[i];
     }
-    (alpha, alpha * mu + k * dv / e, xv)
+    (alpha_s, ex, k * dv / e, xv)
 }
 
 /// Parallel transport from `x` to `y`. Through the hyperboloid
@@ -356,42 +406,86 @@ pub fn transport_g(c: &Curvature, x: &[f64], gx: f64, y: &[f64], gy: f64, v: &[f
         out.copy_from_slice(v); // exactly the identity
         return;
     }
+    // Transport is linear in v: v is read scaled by a power of two (exact)
+    // to a largest coordinate in [0.5, 1), so that no product of it with the
+    // points underflows (subnormal tangents lost half their value).
+    let ev = unit_exponent(v);
+    if ev == 0 {
+        return transport_unit(c, x, gx, y, gy, v, out);
+    }
+    let up = pow2(-ev);
+    with_scratch(
+        v.len(),
+        #[inline(always)]
+        |vs| {
+            for (o, &a) in vs.iter_mut().zip(v) {
+                *o = a * up;
+            }
+            transport_unit(c, x, gx, y, gy, vs, out);
+        },
+    );
+    let down = pow2(ev);
+    out.iter_mut().for_each(|o| *o *= down);
+}
+
+/// [`transport_g`] for `x != y`.
+#[inline(always)]
+fn transport_unit(c: &Curvature, x: &[f64], gx: f64, y: &[f64], gy: f64, v: &[f64], out: &mut [f64]) {
     let n = x.len();
     let k = c.kappa;
     let (ax, ay) = (gx.sqrt(), gy.sqrt());
     let e = one_minus_dot(c, x, gx, y, gy);
     let mu = (ax + ay) / (ax * e);
     let s = ay / ax;
-    if gy * sumsq(x) >= gx * sumsq(y) {
+    // (norms without underflow: tiny points take the right branch too)
+    if ay * norm_scaled(x) >= ax * norm_scaled(y) {
         // split at x (|x| > 0 here: x = 0 would need y = 0 = x)
-        let (alpha, lam, _) = split_at_start(k, x, y, v, mu, e, out);
+        let (alpha_s, ex, cdv, _) = split_at_start(k, x, y, v, e, out);
+        let up = pow2(-ex);
         for i in 0..n {
-            out[i] = s * (alpha * y[i] + out[i] + lam * (x[i] - y[i]));
+            let d = x[i] - y[i];
+            out[i] = s * (alpha_s * (y[i] * up) + out[i] + (alpha_s * mu * (d * up) + cdv * d));
         }
         return;
     }
     // split at y (|y| > 0 here): the part along y from the hyperboloid, the
-    // part across y from the split at x (whose along-y part would cancel)
+    // part across y from the split at x (whose along-y part would cancel);
+    // x and y are read scaled by powers of two where they are parallel to
+    // the result (exact), so that tiny points keep their digits
     with_scratch(
-        3 * n,
+        4 * n,
         #[inline(always)]
         |buf| {
             let (dl, rest) = buf.split_at_mut(n);
-            let (xp, vx) = rest.split_at_mut(n);
+            let (xp, rest) = rest.split_at_mut(n);
+            let (vx, ysc) = rest.split_at_mut(n);
+            let ey = unit_exponent(y);
+            let upy = pow2(-ey);
             for i in 0..n {
-                dl[i] = x[i] - y[i];
+                ysc[i] = y[i] * upy;
+                dl[i] = (x[i] - y[i]) * upy;
             }
-            let (_, lam, xv) = split_at_start(k, x, y, v, mu, e, vx);
+            let (alpha_s, ex, cdv, xv_s) = split_at_start(k, x, y, v, e, vx);
+            // (P v).y 2^-ey, every part of it scaled by 2^-ey (exact), so that
+            // it does not fall to the subnormal range with a tiny y
             let dv = dot2(dl, v);
             let xd = dot2(x, dl);
-            let gxdv = dv / gx + k * xd * xv / (gx * gx); // G_x(x - y, v)
-            let along = s * s * s * xv - ax * gy * (ax + ay) * gxdv / e; // (P v).y
-            let (yy, _) = perp_scaled(y, vx, out); // |y|^2 (v_perp(x))_perp(y)
+            let xv = xv_s * pow2(ex);
+            let xvu = (xv_s * upy) * pow2(ex);
+            let gxdv = dv / gx + k * xd * xv / (gx * gx); // G_x(x - y, v) 2^-ey
+            let along = s * s * s * xvu - ax * gy * (ax + ay) * gxdv / e;
+            let (yy, _) = perp_scaled(ysc, vx, out); // |y_s|^2 (v_perp(x))_perp(y)
             let yy = yy.value();
-            perp_scaled(y, x, xp); // |y|^2 x_perp(y)
-            let (fy, fp) = (along / yy, s / yy);
+            // |y_s|^2 (x_s)_perp(y), x_s = x 2^-ex (dl reused)
+            let upx = pow2(-ex);
             for i in 0..n {
-                out[i] = fy * y[i] + fp * (out[i] + lam * xp[i]);
+                dl[i] = x[i] * upx;
+            }
+            perp_scaled(ysc, dl, xp);
+            let (fy, fp) = (along / yy, s / yy);
+            let lam_s = alpha_s * mu + cdv * pow2(ex); // lambda x = lam_s x_s
+            for i in 0..n {
+                out[i] = fy * ysc[i] + fp * (out[i] + lam_s * xp[i]);
             }
         },
     )

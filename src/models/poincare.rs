@@ -13,8 +13,8 @@ use crate::error::Result;
 use crate::models::ball::{point_gap, Curvature, Rim};
 use crate::models::gyro::{self, GyroBall};
 use crate::numeric::{
-    artanh_from_gap, diff_of_squares, dist_sq, dot2, gap, geodesic_weights, pow2, radial_scale_factor, scale_exponent,
-    sech2, sumsq, with_scratch,
+    artanh_from_gap, artanh_ratio, diff_of_squares, dist_sq, dot2, gap, geodesic_weights, norm_scaled, pow2,
+    radial_scale_factor, scale_exponent, sech2, sumsq, with_scratch,
 };
 
 /// `x ⊕ (sy y)` (Möbius addition; `sy = -1` gives `x ⊖ y`). Returns the gap
@@ -215,34 +215,62 @@ pub fn midpoint(c: &Curvature, a: &[f64], b: &[f64], out: &mut [f64]) {
 #[inline(always)]
 pub fn exp_map_g(c: &Curvature, x: &[f64], gx: f64, v: &[f64], out: &mut [f64]) -> f64 {
     use crate::numeric::{sumsq_dd, DD};
-    let n2 = sumsq_dd(v);
+    // v scaled by a power of two (exact): the direction v/|v| and sigma do
+    // not depend on the scale, and |v| = 2^e |v_s| is kept as the pair
+    // (|v_s|, e), so tangents whose squares underflow (below ~1e-154) or
+    // overflow keep their digits.
+    // (always scaled to a largest coordinate in [0.5, 1): the product
+    // kappa |v|^2 must not underflow either; scaling by 2^-e is exact, so an
+    // ordinary v gives the same bits as unscaled)
+    let e = crate::numeric::unit_exponent(v);
+    let up = pow2(-e);
+    let n2 = with_scratch(v.len(), |vs| {
+        for (o, &a) in vs.iter_mut().zip(v) {
+            *o = a * up;
+        }
+        sumsq_dd(vs)
+    });
     if n2.hi == 0.0 {
         out.copy_from_slice(x);
         return gx;
     }
-    // |v| and sqrt(kappa) |v| in double-double (one Newton step on each sqrt).
+    // |v_s| and sqrt(kappa) |v_s| in double-double (one Newton step on each sqrt).
     let dd_sqrt = |q: DD| -> DD {
         let h = q.hi.sqrt();
         let (p, e) = crate::numeric::two_prod(h, h);
         DD::new(h, ((q.hi - p) - e + q.lo) / (2.0 * h))
     };
     let nv = dd_sqrt(n2);
-    let snv = dd_sqrt(n2.mul_f64(c.kappa)); // sqrt(kappa) |v|
-    let s = 2.0 * snv.hi / gx;
+    let snv = dd_sqrt(n2.mul_f64(c.kappa)); // sqrt(kappa) |v_s|
+    let down = pow2(e);
+    let s = 2.0 * snv.hi * down / gx;
     let mut ss = 0.0;
     for i in 0..x.len() {
         // σ_i = (sqrt(kappa)|v| x_i + v_i) / |v|, numerator in double-double
-        let num = snv.mul_f64(x[i]).add(DD::from(v[i]));
+        let num = snv.mul_f64(x[i]).add(DD::from(v[i] * up));
         let si = num.value() / nv.value();
         out[i] = si;
         ss += si * si;
+    }
+    let sk = c.sqrt_kappa;
+    if s < 1e-100 {
+        // A tangent so short that sinh(s) = s and e^{-s} = 1 in float64:
+        // the undivided form, with g sinh(s) σ / sqrt(kappa) = 2 |v| σ formed
+        // without the product sqrt(kappa) |v| (which can underflow), and no
+        // 1/sinh(s) (which overflows).
+        let den = gx + (2.0 - gx) + s * ss;
+        let cx = (2.0 + s * ss) / den;
+        let cv = 2.0 * nv.value() / den;
+        for i in 0..x.len() {
+            out[i] = cx * x[i] + (cv * out[i]) * down;
+        }
+        return 2.0 * gx / den;
     }
     // Divide numerator and denominator by sinh(s): 1/sinh(s) = 2e^{-s}/(1 - e^{-2s}).
     let em = (-s).exp();
     let inv_sh = 2.0 * em / -(-2.0 * s).exp_m1();
     let cp = 2.0 * em * inv_sh + ss; // (2 e^{-s})/sinh(s) + |σ|^2
     let den = (gx + em * (2.0 - gx)) * inv_sh + ss;
-    let sk = c.sqrt_kappa;
     for i in 0..x.len() {
         // unit-ball result, then back to radius R
         out[i] = (cp * (sk * x[i]) + gx * out[i]) / den / sk;
@@ -257,12 +285,14 @@ pub fn exp_map_g(c: &Curvature, x: &[f64], gx: f64, v: &[f64], out: &mut [f64]) 
 pub fn log_map_g(c: &Curvature, x: &[f64], gx: f64, y: &[f64], gy: f64, out: &mut [f64]) {
     // (-x) ⊕ y = -(x ⊖ y): Möbius addition is odd.
     let gu = add_g(c, x, gx, y, gy, -1.0, out);
-    let t = c.sqrt_kappa * sumsq(out).sqrt();
-    if t == 0.0 {
+    if out.iter().all(|&o| o == 0.0) {
         out.iter_mut().for_each(|o| *o = 0.0);
         return;
     }
-    let f = -gx * artanh_from_gap(t, gu) / t;
+    // |u| without underflow: tiny pairs (|u|^2 below the float64 range) keep
+    // log = -g_x u to full precision.
+    let t = c.sqrt_kappa * norm_scaled(out);
+    let f = -gx * artanh_ratio(t, gu);
     out.iter_mut().for_each(|o| *o *= f);
 }
 
@@ -319,15 +349,18 @@ pub fn matvec_g(c: &Curvature, m: &[f64], x: &[f64], gx: f64, out: &mut [f64]) -
     for (o, row) in out.iter_mut().zip(m.chunks_exact(din)) {
         *o = dot2(row, x);
     }
-    let nmx = sumsq(out).sqrt();
-    let nx = sumsq(x).sqrt();
-    let t = c.sqrt_kappa * nx;
-    if nmx == 0.0 || t == 0.0 {
+    if out.iter().all(|&o| o == 0.0) || x.iter().all(|&v| v == 0.0) {
         out.iter_mut().for_each(|o| *o = 0.0);
         return 1.0;
     }
-    let a = nmx / nx * artanh_from_gap(t, gx);
-    let f = c.radius * a.tanh() / nmx;
+    // norms without underflow, and artanh(t)/t, tanh(a)/a taken to their
+    // limit 1 for tiny arguments: tiny points give M x to full precision
+    let nmx = norm_scaled(out);
+    let nx = norm_scaled(x);
+    let t = c.sqrt_kappa * nx;
+    let ratio = artanh_ratio(t, gx);
+    let a = nmx * c.sqrt_kappa * ratio; // |Mx|/|x| artanh(t)
+    let f = if a < 1e-100 { ratio } else { c.radius * a.tanh() / nmx };
     out.iter_mut().for_each(|o| *o *= f);
     sech2(a)
 }

@@ -414,7 +414,14 @@ pub fn log1p_fast(u: f64) -> f64 {
 /// one division.
 #[inline(always)]
 pub fn acosh1p2_fast(h: f64) -> f64 {
-    log1p_fast(2.0 * h + 2.0 * (h * (1.0 + h)).sqrt())
+    // sqrt(h (1 + h)) rounds to h for h >= 2^500, where h (1 + h) itself
+    // would overflow (half-space pairs reach h ~ 2^1002; fuzz F2): the square
+    // root is taken of min(h, 2^500) and raised to h by `max`, which leaves
+    // every smaller h bit for bit as before (sqrt(h (1 + h)) >= h), without a
+    // branch.
+    const BIG: f64 = 3.273390607896142e150; // 2^500
+    let hc = h.min(BIG);
+    log1p_fast(2.0 * h + 2.0 * (hc * (1.0 + hc)).sqrt().max(h))
 }
 
 /// Runs `f` with a zeroed scratch buffer of length `n` (on the stack when
@@ -437,7 +444,7 @@ pub fn scale_exponent_of(m: f64) -> i32 {
     let raw = ((bits >> 52) & 0x7ff) as i32;
     if raw == 0 {
         // subnormal
-        -1021 - (bits.leading_zeros() as i32 - 12)
+        -1022 - (bits.leading_zeros() as i32 - 12)
     } else {
         raw - 1022
     }
@@ -451,7 +458,10 @@ pub fn scale_exponent(w: &[f64]) -> i32 {
     if (1e-150..=1e150).contains(&m) || m == 0.0 {
         0
     } else {
-        scale_exponent_of(m)
+        // within -1022..=1022, so that 2^e and 2^-e are both exact (pow2
+        // clamps): subnormal vectors are scaled by 2^1022 only, which already
+        // lifts their squares above 2^-105.
+        scale_exponent_of(m).clamp(-1022, 1022)
     }
 }
 
@@ -460,6 +470,53 @@ pub fn scale_exponent(w: &[f64]) -> i32 {
 pub fn pow2(e: i32) -> f64 {
     let e = e.clamp(-1022, 1023);
     f64::from_bits(((e + 1023) as u64) << 52)
+}
+
+/// The exponent `e` with `max |w_i| / 2^e` in [0.5, 1), within -1022..=1022
+/// so that `2^e` and `2^-e` are both exact ([`pow2`]); 0 for a zero or
+/// non-finite vector. Unlike [`scale_exponent`] it scales ordinary vectors
+/// too: for kernels that multiply three or more coordinates together (a
+/// squared norm times a coordinate, `perp_scaled`), where vectors of size
+/// 1e-100 already underflow. Scaling by a power of two is exact, so it
+/// changes no digit of an ordinary result.
+#[inline(always)]
+pub fn unit_exponent(w: &[f64]) -> i32 {
+    let m = w.iter().fold(0.0f64, |a, &b| a.max(b.abs()));
+    if m > 0.0 && m.is_finite() {
+        scale_exponent_of(m).clamp(-1022, 1022)
+    } else {
+        0
+    }
+}
+
+/// `|x|`, without the underflow of `|x|^2` for coordinates below ~1e-154
+/// (nor its overflow above ~1e154): the vector is scaled by a power of two
+/// (exact) first when it is that small or large.
+#[inline(always)]
+pub fn norm_scaled(x: &[f64]) -> f64 {
+    let e = scale_exponent(x);
+    if e == 0 {
+        return sumsq(x).sqrt();
+    }
+    let up = pow2(-e);
+    let mut acc = 0.0;
+    for &v in x {
+        let t = v * up;
+        acc += t * t;
+    }
+    acc.sqrt() * pow2(e)
+}
+
+/// `artanh(t)/t` for `t = sqrt(kappa)|x|` of gap `g` ([`artanh_from_gap`]),
+/// with its limit 1 for `t` below 1e-100, where `artanh(t) = t` in float64
+/// (`t` itself may have underflowed to 0 or lost digits as a subnormal).
+#[inline(always)]
+pub fn artanh_ratio(t: f64, g: f64) -> f64 {
+    if t < 1e-100 {
+        1.0
+    } else {
+        artanh_from_gap(t, g) / t
+    }
 }
 
 #[cfg(test)]
@@ -537,5 +594,25 @@ mod tests {
         let f = radial_scale_factor(2.0, t, 1.0 - t * t);
         assert!((f * t - 2.0 * t / (1.0 + t * t)).abs() < 1e-15);
         assert_eq!(radial_scale_factor(3.0, 0.0, 1.0), 3.0);
+    }
+
+    #[test]
+    fn scaling_helpers_survive_underflow() {
+        // closed forms (a 3-4-5 triangle; frexp of powers of two, common practice)
+        let n = norm_scaled(&[3e-200, 4e-200]);
+        assert!((n / 5e-200 - 1.0).abs() < 1e-15, "{n}");
+        let n = norm_scaled(&[3.0 * 5e-324, 4.0 * 5e-324]);
+        assert_eq!(n, 5.0 * 5e-324);
+        assert_eq!(scale_exponent_of(5e-324), -1073); // 2^-1074 = 0.5 * 2^-1073
+        assert_eq!(scale_exponent_of(1.0), 1);
+        assert_eq!(unit_exponent(&[0.0, -0.75]), 0);
+        assert_eq!(unit_exponent(&[0.0, 0.0]), 0);
+        // the scaled vector of a subnormal one: exact inverse powers of two
+        let w = [5e-324, -1e-320];
+        let e = scale_exponent(&w);
+        assert_eq!(e, -1022);
+        assert_eq!(w[1] * pow2(-e) * pow2(e), w[1]);
+        assert_eq!(artanh_ratio(1e-200, 1.0), 1.0);
+        assert!((artanh_ratio(0.5, 0.75) - 0.5f64.atanh() / 0.5).abs() < 1e-15);
     }
 }

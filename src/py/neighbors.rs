@@ -205,6 +205,12 @@ fn k_arg(k: &Bound<'_, PyAny>) -> PyResult<usize> {
     if v < 1 {
         return Err(PyValueError::new_err(format!("k must be at least 1, got {v}")));
     }
+    // A (0, k) result (empty x, y=None) with 8 k bytes per row beyond
+    // isize::MAX has strides that overflow, and NumPy crashes on it (fuzz
+    // run: segfault for k = 2^62); no set of points has that many candidates.
+    if v > 1 << 59 {
+        return Err(PyValueError::new_err(format!("k must be at most 2^59, got {v}")));
+    }
     Ok(v as usize)
 }
 

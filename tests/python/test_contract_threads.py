@@ -133,20 +133,55 @@ def test_gil_released_during_large_call(func):
     # than timing gaps) keeps this robust on a loaded machine.
     args = big_args(func, 200_000, 16)
     calls = 4
+    wakeups, elapsed = _wakeups_during(lambda: [call(func, args) for _ in range(calls)])
+    assert wakeups >= 4 * (calls + 2), (wakeups, elapsed)
+
+
+def _wakeups_during(job, timeout=600.0):
+    """Runs `job` in a daemon thread and counts the main thread's 1 ms
+    wake-ups until it ends; returns (wake-ups, seconds). Were the job never
+    to return (a call holding the GIL or stuck), or to raise, the test fails
+    after `timeout` seconds or with the error instead of hanging the suite
+    (a thread join with timeout, no plugin needed)."""
     done = threading.Event()
+    errors = []
 
     def work():
-        for _ in range(calls):
-            call(func, args)
-        done.set()
+        try:
+            job()
+        except BaseException as e:  # noqa: BLE001 - reported by the main thread
+            errors.append(e)
+        finally:
+            done.set()
 
-    th = threading.Thread(target=work)
+    th = threading.Thread(target=work, daemon=True)
     th.start()
     wakeups = 0
     t0 = time.perf_counter()
     while not done.is_set():
+        if time.perf_counter() - t0 > timeout:
+            pytest.fail(f"the calls did not finish within {timeout:g} s ({wakeups} wake-ups)")
         time.sleep(0.001)
         wakeups += 1
     elapsed = time.perf_counter() - t0
-    th.join()
-    assert wakeups >= 4 * (calls + 2), (wakeups, elapsed)
+    th.join(timeout=timeout)
+    assert not th.is_alive(), "worker thread did not end"
+    assert not errors, f"the worker raised {errors[0]!r}"
+    return wakeups, elapsed
+
+
+def test_wakeup_counter_fails_instead_of_hanging():
+    # common practice: a job that never ends makes the test fail at the
+    # deadline (here 0.3 s), and a job that raises fails with its error
+    blocker = threading.Event()
+    t0 = time.perf_counter()
+    with pytest.raises(pytest.fail.Exception, match="did not finish"):
+        _wakeups_during(blocker.wait, timeout=0.3)
+    assert time.perf_counter() - t0 < 60
+    blocker.set()
+
+    def boom():
+        raise RuntimeError("worker failed")
+
+    with pytest.raises(AssertionError, match="worker failed"):
+        _wakeups_during(boom, timeout=30)

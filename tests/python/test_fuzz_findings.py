@@ -88,3 +88,89 @@ def test_centroids_of_two_far_points_are_their_midpoint(x):
         # within a few ulps of the output's radius resolution
         assert gk.poincare.distance(m, mid) < 1e-12 * d
         assert abs(gk.poincare.distance(m, x[0]) - gk.poincare.distance(m, x[1])) < 1e-12 * d
+
+
+# F4: coordinates whose squares underflow (below ~1e-154 R, or below ~1e-154
+# once multiplied by kappa). Before the fix: NaN (Klein transport and
+# log_map), a false rim error (Poincaré exp_map at curvature -1e-6), or the
+# tangent dropped ([0, 0] for exp_map([1e-162, 1e-162]); the base point for
+# Klein and hyperboloid exp_map at curvature -1e-100). References: mpmath at
+# 50 digits (tests/python/mp_models.py, textbook formulas), which has no
+# underflow.
+import mp_models as mpm  # noqa: E402
+
+TINY_CASES = [
+    # (function, reference, args, curvature)
+    (gk.poincare.exp_map, mpm.poincare_exp_map, ([1e-162, 1e-162],), -1.0),
+    (gk.poincare.exp_map, mpm.poincare_exp_map, ([1e-162, 3e-162],), -1e-6),
+    (gk.poincare.exp_map, mpm.poincare_exp_map, ([1e-162, 3e-162], [0.3, -0.2]), -1.0),
+    (gk.poincare.exp_map, mpm.poincare_exp_map, ([1.065e-112, 0.0],), -1e-100),
+    (gk.poincare.exp_map, mpm.poincare_exp_map, ([5e-324, 0.0], [1e-300, 2e-310]), -1.0),
+    (gk.poincare.log_map, mpm.poincare_log_map, ([3e-170, -1e-171], [1e-169, 2e-170]), -1.0),
+    (gk.poincare.log_map, mpm.poincare_log_map, ([3e-130, -1e-131],), -1e-100),
+    (gk.klein.exp_map, mpm.klein_exp_map, ([1e-162, 3e-162],), -1.0),
+    (gk.klein.exp_map, mpm.klein_exp_map, ([2.1771483678986576e-113], [-2.5526595395087626e-113]), -1e-100),
+    (gk.klein.exp_map, mpm.klein_exp_map, ([-3.2e-113, 1.2e-112, 6.6e-113],), -1e-100),
+    (gk.klein.log_map, mpm.klein_log_map, ([0.0, 0.0], [-7.5503466601267487e-162, -6.6688439590107331e-161]), -1.0),
+    (gk.klein.log_map, mpm.klein_log_map, ([0.5, 0.1], [-7.55e-162, -6.67e-161]), -1.0),
+    (gk.klein.log_map, mpm.klein_log_map, ([6.9e-273, -2.6e-271], [6.4e-312, -1.6e-310]), -1e-100),
+    (gk.klein.transport, mpm.klein_transport, ([0.0176, 0.0062], [0.0, 0.0], [5.78e-162, -2.85e-162]), -1.0),
+    (gk.klein.transport, mpm.klein_transport, ([0.0176, 0.0062], [3e-160, 1e-161], [0.2, -0.4]), -1.0),
+    (gk.klein.transport, mpm.klein_transport, ([1.3e-155, -1.6e-155, -2.3e-156], [-3.9e-311, 6.4e-311, 1.5e-311],
+                                               [-1.9e-160, 0.0, 7.4e-161]), -1.0),
+    (gk.klein.transport, mpm.klein_transport, ([2.2e-05, 1.9e-05], [0.0, 3.2e-156], [8.1e-163, -8.4e-163]), -1e6),
+    (gk.hyperboloid.exp_map, mpm.hyperboloid_exp_map, ([0.0, 2.3e-251, 9.0e-251],), -1e-100),
+    (gk.hyperboloid.exp_map, mpm.hyperboloid_exp_map, ([0.0, 3e-170, -1e-170],), -1.0),
+]
+
+
+@pytest.mark.parametrize("case", TINY_CASES, ids=lambda c: f"{c[0].__module__.split('.')[-1]}.{c[0].__name__}")
+def test_tiny_coordinates_keep_their_digits(case):
+    fn, ref_fn, args, k = case
+    got = fn(*[np.array(a) for a in args], curvature=k)
+    assert np.all(np.isfinite(got)), got
+    ref = ref_fn(*args, curvature=k)
+    # normwise relative error against the 50-digit reference; results in the
+    # subnormal range are held to their absolute granularity (1e-322)
+    err = mpm.error(got, ref)
+    scale = float(mpm.value_norm(ref))
+    assert err <= 1e-13 or err * scale <= 1e-321, (got, [float(v) for v in ref], err)
+
+
+@pytest.mark.parametrize("mod", [gk.poincare, gk.klein])
+def test_tiny_tangents_and_points_are_euclidean_at_the_origin(mod):
+    # F4, closed form (common practice: every model is Euclidean to first
+    # order at the origin, exp_0(v) = R tanh(|v|/R) v/|v| in both balls' radial
+    # law): for |v| < 1e-150 R, exp_0(v) = v and log_0(y) = y to rounding.
+    v = np.array([[1e-162, 1e-162], [5e-324, -5e-324], [3e-200, 0.0], [-1e-155, 2e-160]])
+    for k in (-1.0, -1e-6, -1e6):
+        np.testing.assert_allclose(mod.exp_map(v, curvature=k), v, rtol=1e-15, atol=1e-322)
+        np.testing.assert_allclose(mod.log_map(v, curvature=k), v, rtol=1e-15, atol=1e-322)
+
+
+def test_knn_of_an_empty_set_with_a_huge_k_is_a_value_error():
+    # Long fuzz run: knn(np.zeros((0, 3)), 2**62) crashed the interpreter
+    # (NumPy segfault on a (0, k) array whose byte strides overflow).
+    # Expected (common practice, as for any impossible size): ValueError.
+    for k in (2 ** 60, 2 ** 62, 2 ** 63 - 1):
+        with pytest.raises(ValueError, match="k must be at most"):
+            gk.knn(np.zeros((0, 3), np.float32), k)
+    idx, dist = gk.knn(np.zeros((0, 3)), 5)
+    assert idx.shape == (0, 5) and dist.shape == (0, 5)
+
+
+@pytest.mark.parametrize("big", [2.0 ** 250, 1e75])
+def test_halfspace_distance_at_the_edge_of_the_range_is_finite(big):
+    # F2 (long fuzz run): points inside the half-space range whose h =
+    # |x - y|^2 / (4 x_d y_d) exceeds 1e154 gave NaN (h (1 + h) overflowed).
+    # Reference: the closed form cosh(d/R) = 1 + |x - y|^2 / (2 x_d y_d)
+    # (half-space metric, textbook), in mpmath at 50 digits.
+    import mpmath
+    x = np.array([0.0144, big, 40.2])
+    y = np.array([-0.0125, 0.0412, 2.4e-9])
+    got = gk.halfspace.distance(x, y)
+    with mpmath.workdps(50):
+        xm, ym = [mpmath.mpf(float(v)) for v in x], [mpmath.mpf(float(v)) for v in y]
+        sq = sum((a - b) ** 2 for a, b in zip(xm, ym))
+        want = mpmath.acosh(1 + sq / (2 * xm[-1] * ym[-1]))
+    assert abs(got - float(want)) <= 1e-14 * float(want), (got, want)
