@@ -22,16 +22,17 @@ class Reconstruction:
 
     ``mean_average_precision``: mean over the nodes with neighbours of their
     average precision. ``mean_rank``: mean over both directions of every
-    edge. ``average_precision``: ``(n,)`` per node, NaN for a node without
-    neighbours (undefined there; such nodes do not enter the mean).
-    ``ranked_nodes``: nodes with neighbours; ``ranked_edges``: directed edges
-    ranked (twice the distinct undirected edges).
+    edge. ``nodes``: the nodes with at least one neighbour (int64,
+    ascending; the average precision is undefined for the others), and
+    ``average_precision`` the average precision of each of them.
+    ``ranked_edges``: directed edges ranked (twice the distinct undirected
+    edges).
     """
 
     mean_average_precision: float
     mean_rank: float
+    nodes: np.ndarray
     average_precision: np.ndarray
-    ranked_nodes: int
     ranked_edges: int
 
 
@@ -118,8 +119,11 @@ def reconstruction(x: Any, edges: Any, *, model: str = "poincare", curvature: fl
     """
     c = real("curvature", curvature)
     e = _index_pairs("edges", edges, _npoints(x))
-    m, r, ap, nodes, ranked = _native.reconstruction(x, e, model, c)
-    return Reconstruction(float(m), float(r), ap, int(nodes), int(ranked))
+    m, r, ap, _, ranked = _native.reconstruction(x, e, model, c)
+    # The core marks the nodes without neighbours with NaN; they are left
+    # out here rather than handed on as NaN.
+    nodes = np.flatnonzero(~np.isnan(ap)).astype(np.int64)
+    return Reconstruction(float(m), float(r), nodes, ap[nodes], int(ranked))
 
 
 def distortion(
