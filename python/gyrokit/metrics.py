@@ -65,7 +65,10 @@ def _index_pairs(name: str, a: Any, n_hint: Optional[int] = None) -> np.ndarray:
                 raise ValueError(f"{name}: graph node {u} has a self-loop; a node is never ranked against itself")
         out = np.array([(u, v) for u, v in a.edges()], dtype=np.int64).reshape(-1, 2)
         return out
-    arr = np.asarray(a)
+    try:
+        arr = np.asarray(a)
+    except Exception as e:  # an array-like that cannot become an array
+        raise TypeError(f"{name} must be an integer array of shape (m, 2): {type(e).__name__}: {e}") from None
     if arr.dtype.kind not in "iu":
         if arr.size == 0 and arr.dtype.kind == "f":
             arr = arr.astype(np.int64)
