@@ -18,8 +18,8 @@ Data:
   nearer than the other nodes, so nearly every pair is located among the
   node's neighbours).
 
-Run: ``.venv/bin/python benches/bench_metrics.py [--n N]`` (``--n`` takes the
-first N synsets in depth order, for a quick run).
+Run: ``.venv/bin/python benches/bench_metrics.py [--n N] [--cases wordnet]``
+(``--n`` takes the first N synsets in depth order, for a quick run).
 """
 
 from __future__ import annotations
@@ -119,6 +119,7 @@ def main():
     ap = argparse.ArgumentParser()
     ap.add_argument("--n", type=int, default=None)
     ap.add_argument("--d", type=int, default=10)
+    ap.add_argument("--cases", default="wordnet,random", help="comma-separated: wordnet, random")
     args = ap.parse_args()
     parents = wordnet_nouns()
     edges = closure_edges(parents)
@@ -138,6 +139,8 @@ def main():
     v /= np.linalg.norm(v, axis=1, keepdims=True)
     xr = np.tanh(rng.uniform(0, 8, n) / 2)[:, None] * v
     for name, pts in (("wordnet", x), ("random", xr)):
+        if name not in args.cases.split(","):
+            continue
         tk, _ = timed(lambda: gk.knn(pts, 10))
         tr, r = timed(lambda: gk.metrics.reconstruction(pts, edges))
         rate_k = n * n / tk

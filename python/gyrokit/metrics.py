@@ -22,16 +22,17 @@ class Reconstruction:
 
     ``mean_average_precision``: mean over the nodes with neighbours of their
     average precision. ``mean_rank``: mean over both directions of every
-    edge. ``average_precision``: ``(n,)`` per node, NaN for a node without
-    neighbours (undefined there; such nodes do not enter the mean).
-    ``ranked_nodes``: nodes with neighbours; ``ranked_edges``: directed edges
-    ranked (twice the distinct undirected edges).
+    edge. ``nodes``: the nodes with at least one neighbour (int64,
+    ascending; the average precision is undefined for the others), and
+    ``average_precision`` the average precision of each of them.
+    ``ranked_edges``: directed edges ranked (twice the distinct undirected
+    edges).
     """
 
     mean_average_precision: float
     mean_rank: float
+    nodes: np.ndarray
     average_precision: np.ndarray
-    ranked_nodes: int
     ranked_edges: int
 
 
@@ -64,7 +65,10 @@ def _index_pairs(name: str, a: Any, n_hint: Optional[int] = None) -> np.ndarray:
                 raise ValueError(f"{name}: graph node {u} has a self-loop; a node is never ranked against itself")
         out = np.array([(u, v) for u, v in a.edges()], dtype=np.int64).reshape(-1, 2)
         return out
-    arr = np.asarray(a)
+    try:
+        arr = np.asarray(a)
+    except Exception as e:  # an array-like that cannot become an array
+        raise TypeError(f"{name} must be an integer array of shape (m, 2): {type(e).__name__}: {e}") from None
     if arr.dtype.kind not in "iu":
         if arr.size == 0 and arr.dtype.kind == "f":
             arr = arr.astype(np.int64)
@@ -118,8 +122,11 @@ def reconstruction(x: Any, edges: Any, *, model: str = "poincare", curvature: fl
     """
     c = real("curvature", curvature)
     e = _index_pairs("edges", edges, _npoints(x))
-    m, r, ap, nodes, ranked = _native.reconstruction(x, e, model, c)
-    return Reconstruction(float(m), float(r), ap, int(nodes), int(ranked))
+    m, r, ap, _, ranked = _native.reconstruction(x, e, model, c)
+    # The core marks the nodes without neighbours with NaN; they are left
+    # out here rather than handed on as NaN.
+    nodes = np.flatnonzero(~np.isnan(ap)).astype(np.int64)
+    return Reconstruction(float(m), float(r), nodes, ap[nodes], int(ranked))
 
 
 def distortion(

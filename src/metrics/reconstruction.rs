@@ -137,10 +137,14 @@ const LINEAR_MAX: usize = 16;
 struct Row {
     /// The node.
     u: usize,
-    /// The neighbours' `h`, ascending.
+    /// Its degree.
+    k: usize,
+    /// The neighbours' `h`, ascending, then `+inf` (a sentinel no column
+    /// equals).
     t: Vec<f64>,
-    /// `below[p]`: columns `w != u` with `h(u, w) <= t_k` and exactly `p` of
-    /// the `t` strictly below `h(u, w)`.
+    /// `below[p]`: columns (the node itself included, removed at the end)
+    /// with exactly `p` of the neighbours' `h` strictly below theirs;
+    /// `below[k]` collects the columns beyond every neighbour.
     below: Vec<u64>,
     /// Columns whose `h` equals some `t` (ties, rare): `(p, q)` with `q` the
     /// count of `t` at or below it (`q = p` for every other column).
@@ -152,12 +156,14 @@ impl Row {
         let nb = adj.neighbours(u);
         let mut t: Vec<f64> = nb.iter().map(|&v| x.half_delta(u, x, v)).collect();
         t.sort_unstable_by(|a, b| a.total_cmp(b));
-        let below = vec![0; t.len()];
-        Row { u, t, below, ties: Vec::new() }
+        let k = t.len();
+        t.push(f64::INFINITY);
+        Row { u, k, t, below: vec![0; k + 1], ties: Vec::new() }
     }
 
-    /// Records a column with value `h <= t_k` that has `p < k` of the `t`
-    /// strictly below it.
+    /// Records a column with value `h` that has `p <= k` of the neighbours'
+    /// `h` strictly below it. Branch-free but for the rare tie: whether a
+    /// column is beyond every neighbour is a coin toss in a poor embedding.
     #[inline(always)]
     fn record(&mut self, p: usize, h: f64) {
         self.below[p] += 1;
@@ -175,8 +181,8 @@ impl Row {
 
     /// Takes the columns `j0 + l` (`l < valid`) of one panel.
     #[inline(always)]
-    fn visit(&mut self, j0: usize, hs: &[f64; PANEL], valid: usize) {
-        let k = self.t.len();
+    fn visit(&mut self, hs: &[f64; PANEL], valid: usize) {
+        let k = self.k;
         if k == 0 {
             return;
         }
@@ -190,22 +196,18 @@ impl Row {
         }
         if k <= LINEAR_MAX {
             let mut p = [0u32; PANEL];
-            for &t in &self.t {
+            for &t in &self.t[..k] {
                 for l in 0..PANEL {
                     p[l] += u32::from(t < hs[l]);
                 }
             }
             for l in 0..valid {
-                // p = k: above every neighbour, ranked behind all of them.
-                if (p[l] as usize) < k && j0 + l != self.u {
-                    self.record(p[l] as usize, hs[l]);
-                }
+                self.record(p[l] as usize, hs[l]);
             }
         } else {
-            for l in 0..valid {
-                let h = hs[l];
-                if h <= top && j0 + l != self.u {
-                    let p = self.t.partition_point(|&t| t < h);
+            for &h in &hs[..valid] {
+                if h <= top {
+                    let p = self.t[..k].partition_point(|&t| t < h);
                     self.record(p, h);
                 }
             }
@@ -214,18 +216,22 @@ impl Row {
 
     /// (average precision, sum of ranks) of the row; `k > 0`.
     fn finish(&self) -> (f64, u64) {
-        let k = self.t.len();
+        let k = self.k;
         // A column w with p = #{t < h_w} and q = #{t <= h_w} has
         // h_w <= t_i exactly when p <= i, and h_w < t_i exactly when q <= i:
         // prefix sums of the two histograms count them for every i. The
         // histogram over q is the one over p with each tie moved from p to q.
-        let mut at_or_below: Vec<i64> = self.below.iter().map(|&c| c as i64).collect();
-        at_or_below.push(0);
+        let mut below: Vec<i64> = self.below.iter().map(|&c| c as i64).collect();
+        let mut at_or_below = below.clone();
         for &(p, q) in &self.ties {
             at_or_below[p as usize] -= 1;
             at_or_below[q as usize] += 1;
         }
-        let (mut le, mut lt) = (0u64, 0i64);
+        // The node itself was swept with h = 0 exactly (x - x = 0 in every
+        // pair space): p = 0, q = #{t <= 0}. Take it out.
+        below[0] -= 1;
+        at_or_below[self.t.iter().take_while(|&&t| t <= 0.0).count()] -= 1;
+        let (mut le, mut lt) = (0i64, 0i64);
         let (mut ap, mut ranks) = (0.0f64, 0u64);
         let mut i = 0;
         while i < k {
@@ -236,7 +242,7 @@ impl Row {
                 j += 1;
             }
             for g in i..j {
-                le += self.below[g];
+                le += below[g];
                 lt += at_or_below[g];
             }
             // No column has i < p < j or i < q < j (the t in the group are
@@ -260,11 +266,11 @@ pub fn reconstruction(x: &Prepared, adj: &Adjacency) -> Result<Reconstruction> {
         x,
         |rows| rows.map(|u| Row::new(x, adj, u)).collect::<Vec<Row>>(),
         #[inline(always)]
-        |st: &mut Vec<Row>, i, j0, hs, valid| {
+        |st: &mut Vec<Row>, i, _j0, hs, valid| {
             let r0 = st[0].u;
-            st[i - r0].visit(j0, hs, valid)
+            st[i - r0].visit(hs, valid)
         },
-        |st| st.iter().map(|r| if r.t.is_empty() { (f64::NAN, 0) } else { r.finish() }).collect::<Vec<_>>(),
+        |st| st.iter().map(|r| if r.k == 0 { (f64::NAN, 0) } else { r.finish() }).collect::<Vec<_>>(),
     );
     let mut average_precision = Vec::with_capacity(x.n);
     let (mut sum_ap, mut ranked_nodes, mut rank_sum) = (0.0f64, 0usize, 0u128);

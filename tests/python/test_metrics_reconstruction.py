@@ -66,8 +66,9 @@ def test_random_graph_matches_sklearn_and_brute_force(model):
     m, mr, per = _reference(d, a)
     assert r.mean_average_precision == pytest.approx(m, rel=1e-12)
     assert r.mean_rank == pytest.approx(mr, rel=1e-12)
-    np.testing.assert_allclose(r.average_precision, per, rtol=1e-12)
-    assert r.ranked_nodes == int(a.any(axis=1).sum())
+    has = a.any(axis=1)
+    np.testing.assert_array_equal(r.nodes, np.flatnonzero(has))
+    np.testing.assert_allclose(r.average_precision, per[has], rtol=1e-12)
     assert r.ranked_edges == int(a.sum())
 
 
@@ -84,8 +85,8 @@ def test_ties_with_neighbours_and_non_neighbours():
     # precision 1/2.
     # Node 3: neighbour 0 is farthest but node 4 (distance 0), 1, 2 are closer:
     # precision 1/4.
-    ap = [0.5, 0.5, np.nan, 0.25, np.nan]
-    np.testing.assert_allclose(r.average_precision, ap, rtol=1e-15)
+    np.testing.assert_array_equal(r.nodes, [0, 1, 3])
+    np.testing.assert_allclose(r.average_precision, [0.5, 0.5, 0.25], rtol=1e-15)
     assert r.mean_average_precision == pytest.approx((0.5 + 0.5 + 0.25) / 3, rel=1e-15)
     # Ranks: (0,1): nothing strictly closer than 1 among non-neighbours of 0
     # (2 is tied): 1. (0,3): non-neighbours 2 (0.2) strictly closer, 4 tied: 2.
