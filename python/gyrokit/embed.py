@@ -33,3 +33,4 @@ class Embedding:
 
 
 __all__ = ["Embedding"]
+from ._graph_embed import TrainingInterruptedWarning, graph  # noqa: E402  (learned graph embeddings)

@@ -1,2 +1,3 @@
 //! Getting data into hyperbolic space: combinatorial tree embedding,
 //! hyperbolic multidimensional scaling, learned graph embeddings.
+pub mod graph;

@@ -9,6 +9,7 @@ use crate::error::Error;
 mod algebra;
 mod centroids;
 pub(crate) mod coerce;
+mod embed_graph;
 mod index;
 mod kmeans;
 mod models;
@@ -28,6 +29,7 @@ impl From<Error> for PyErr {
 fn _native(m: &Bound<'_, PyModule>) -> PyResult<()> {
     algebra::register(m)?;
     centroids::register(m)?;
+    embed_graph::register(m)?;
     models::register(m)?;
     index::register(m)?;
     kmeans::register(m)?;
