@@ -387,9 +387,17 @@ impl Layout {
         let (d, e) = (self.dim, self.ew);
         let (hi, rest) = r.split_at_mut(d);
         let (extra, tail) = rest.split_at_mut(e);
-        let a = read_pair_point(self.model, k, point, hi, extra)?;
-        tail[0] = a;
-        tail[1] = if self.model == Model::Poincare { gap(k.kappa, point) } else { 1.0 / a };
+        if self.model == Model::Poincare {
+            // the pair space is the point itself, `a = 1/g` (as `read_pair_point`)
+            let g = checked_gap(k, point)?.value();
+            hi.copy_from_slice(point);
+            tail[0] = 1.0 / g;
+            tail[1] = g;
+        } else {
+            let a = read_pair_point(self.model, k, point, hi, extra)?;
+            tail[0] = a;
+            tail[1] = 1.0 / a;
+        }
         Ok(())
     }
     /// The point in model coordinates.
@@ -550,7 +558,7 @@ fn step(lay: &Layout, k: &Curvature, r: &[f64], gr: &[f64], lr: f64, out: &mut [
                 // The rim rule judges the exact gap of the result: held (moved
                 // to the last radius inside only if its last rounding fell
                 // on the sphere), or beyond float64 and the step is halved.
-                if settle(k, y, gy, false) && checked_gap(k, y).is_ok() && lay.store(k, y, out).is_ok() {
+                if settle(k, y, gy, false) && lay.store(k, y, out).is_ok() {
                     return halvings;
                 }
             }
@@ -563,6 +571,8 @@ fn step(lay: &Layout, k: &Curvature, r: &[f64], gr: &[f64], lr: f64, out: &mut [
 }
 
 // ----------------------------------------------------------------- trainer
+thread_local! { pub static PROF: std::cell::RefCell<[f64; 6]> = const { std::cell::RefCell::new([0.0; 6]) }; }
+pub fn prof() -> [f64; 6] { PROF.with(|p| *p.borrow()) }
 
 /// What one call of [`Trainer::run`] did.
 #[derive(Clone, Copy, Debug, PartialEq)]
@@ -580,7 +590,9 @@ pub struct Trainer {
     p: Params,
     graph: Graph,
     rec: Vec<f64>,
-    order: Vec<u32>,
+    /// The positives, shuffled in place at the start of every epoch (read in
+    /// sequence, not through an index).
+    order: Vec<[u32; 2]>,
     rng: Xoshiro,
     epoch: usize,
     pos: usize,
@@ -632,7 +644,7 @@ impl Trainer {
             }
             .map_err(|_| Error::Value("starting point outside the model".into()))?;
         }
-        let order: Vec<u32> = (0..graph.edges.len() as u32).collect();
+        let order = graph.edges.clone();
         Ok(Trainer {
             lay,
             k,
@@ -741,6 +753,7 @@ impl Trainer {
             self.slot_node.resize(ns, NONE);
             self.slot_grad.resize(ns * dim, 0.0);
         }
+        let t0 = std::time::Instant::now();
         let fast = has_fma();
         let ctx = Ctx { lay, k: self.k, s: pair_scale(lay.model, &self.k), rec: &self.rec };
         let graph = &self.graph;
@@ -752,32 +765,38 @@ impl Trainer {
             .zip(self.slot_grad[..ns * dim].par_chunks_mut(EDGE_CHUNK * kslots * dim))
             .enumerate()
             .map(|(ci, ((es, nodes), grads))| {
-                dispatch(fast, || {
-                    let mut work = vec![0.0; 2 * kslots];
-                    let mut loss = 0.0;
-                    for (j, &e) in es.iter().enumerate() {
-                        let pos = (start + ci * EDGE_CHUNK + j) as u64;
-                        let nd = &mut nodes[j * kslots..(j + 1) * kslots];
-                        let [u, v] = graph.edges[e as usize];
-                        nd[0] = u;
-                        nd[1] = v;
-                        let c = graph.non_neighbours(u as usize);
-                        let mut st = Stream::new(seed, epoch, pos);
-                        for t in 2..kslots {
-                            nd[t] = if c == 0 {
-                                NONE
-                            } else {
-                                graph.kth_non_neighbour(u as usize, st.below(c as u64) as usize)
-                            };
+                dispatch(
+                    fast,
+                    #[inline(always)]
+                    || {
+                        let mut work = vec![0.0; 2 * kslots];
+                        let mut loss = 0.0;
+                        for (j, &e) in es.iter().enumerate() {
+                            let pos = (start + ci * EDGE_CHUNK + j) as u64;
+                            let nd = &mut nodes[j * kslots..(j + 1) * kslots];
+                            let [u, v] = e;
+                            nd[0] = u;
+                            nd[1] = v;
+                            let c = graph.non_neighbours(u as usize);
+                            let mut st = Stream::new(seed, epoch, pos);
+                            for t in 2..kslots {
+                                nd[t] = if c == 0 {
+                                    NONE
+                                } else {
+                                    graph.kth_non_neighbour(u as usize, st.below(c as u64) as usize)
+                                };
+                            }
+                            let gs = &mut grads[j * kslots * dim..(j + 1) * kslots * dim];
+                            loss += positive_grads(&ctx, nd, gs, &mut work);
                         }
-                        let gs = &mut grads[j * kslots * dim..(j + 1) * kslots * dim];
-                        loss += positive_grads(&ctx, nd, gs, &mut work);
-                    }
-                    loss
-                })
+                        loss
+                    },
+                )
             })
             .collect();
         let loss: f64 = chunk_loss.iter().sum();
+        PROF.with(|p| p.borrow_mut()[5] += t0.elapsed().as_secs_f64());
+        let t_a = std::time::Instant::now();
         // (B) group the slots by node, in slot order (counting sort)
         self.serial = self.serial.wrapping_add(1);
         if self.serial == 0 {
@@ -819,6 +838,7 @@ impl Trainer {
                 cur[l] += 1;
             }
         }
+        let t_b = std::time::Instant::now();
         // (C) one step per touched node
         let w = lay.width();
         let nt = self.touched.len();
@@ -829,31 +849,38 @@ impl Trainer {
             .par_chunks_mut(NODE_CHUNK * w)
             .enumerate()
             .map(|(ci, outs)| {
-                dispatch(fast, || {
-                    let mut gsum = vec![0.0; dim];
-                    let mut tmp = vec![0.0; 3 * dim + 1];
-                    let mut hv = 0;
-                    for (j, out) in outs.chunks_exact_mut(w).enumerate() {
-                        let l = ci * NODE_CHUNK + j;
-                        let node = touched[l] as usize;
-                        gsum.iter_mut().for_each(|g| *g = 0.0);
-                        for &s in &list[offs[l] as usize..offs[l + 1] as usize] {
-                            let g = &slot_grad[s as usize * dim..(s as usize + 1) * dim];
-                            for i in 0..dim {
-                                gsum[i] += g[i];
+                dispatch(
+                    fast,
+                    #[inline(always)]
+                    || {
+                        let mut gsum = vec![0.0; dim];
+                        let mut tmp = vec![0.0; 3 * dim + 1];
+                        let mut hv = 0;
+                        for (j, out) in outs.chunks_exact_mut(w).enumerate() {
+                            let l = ci * NODE_CHUNK + j;
+                            let node = touched[l] as usize;
+                            gsum.iter_mut().for_each(|g| *g = 0.0);
+                            for &s in &list[offs[l] as usize..offs[l + 1] as usize] {
+                                let g = &slot_grad[s as usize * dim..(s as usize + 1) * dim];
+                                for i in 0..dim {
+                                    gsum[i] += g[i];
+                                }
                             }
+                            hv += step(&lay, &k, &rec[node * w..(node + 1) * w], &gsum, lr, out, &mut tmp);
                         }
-                        hv += step(&lay, &k, &rec[node * w..(node + 1) * w], &gsum, lr, out, &mut tmp);
-                    }
-                    hv
-                })
+                        hv
+                    },
+                )
             })
             .sum();
+        let t_c = std::time::Instant::now();
         self.shortened += halvings as u64;
         for (l, &node) in self.touched.iter().enumerate() {
             let i = node as usize;
             self.rec[i * w..(i + 1) * w].copy_from_slice(&self.new_rec[l * w..(l + 1) * w]);
         }
+        let t_d = std::time::Instant::now();
+        PROF.with(|p| { let mut p = p.borrow_mut(); p[0] += (t_b - t_a).as_secs_f64(); p[1] += (t_c - t_b).as_secs_f64(); p[2] += (t_d - t_c).as_secs_f64(); p[3] += nt as f64; p[4] += ns as f64; });
         loss
     }
 }
