@@ -33,4 +33,7 @@ class Embedding:
 
 
 __all__ = ["Embedding"]
+from ._hmds import from_distances  # noqa: E402  (h-MDS; needs Embedding above)
+
+__all__ += ["from_distances"]
 from ._graph_embed import TrainingInterruptedWarning, graph  # noqa: E402  (learned graph embeddings)

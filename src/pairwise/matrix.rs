@@ -499,3 +499,53 @@ pub fn radius_neighbors(
     }
     Ok((indptr, indices, dists))
 }
+
+/// All pairs of `x` with itself, row strips in parallel, for reductions that
+/// keep per-row state instead of storing distances (graph reconstruction
+/// ranks): `init(r0..r1)` makes a strip's state, `visit(state, i, j0, hs,
+/// valid)` sees `h(i, j0 + l)` for the `valid` real columns of one panel
+/// (the tiled kernel of [`distance_matrix_into`], so `h` is bit-identical to
+/// every other path; `j = i` is included), and `finish(state)` turns it into
+/// the strip's result. Results come back in strip order; strips have a fixed
+/// size, so they do not depend on the thread count. Memory: the packed copy
+/// of `x` plus one state per running strip.
+pub fn sweep_self<S, T, I, V, F>(x: &Prepared, init: I, visit: V, finish: F) -> Vec<T>
+where
+    T: Send,
+    I: Fn(std::ops::Range<usize>) -> S + Sync,
+    V: Fn(&mut S, usize, usize, &[f64; LANES], usize) + Sync,
+    F: Fn(S) -> T + Sync,
+{
+    let n = x.n;
+    if n == 0 {
+        return Vec::new();
+    }
+    let packed = Packed::new(x);
+    let fast = simd::has_fma();
+    (0..n.div_ceil(STRIP))
+        .into_par_iter()
+        .map(|s| {
+            let (r0, r1) = (s * STRIP, ((s + 1) * STRIP).min(n));
+            let mut st = init(r0..r1);
+            simd::dispatch(
+                fast,
+                #[inline(always)]
+                || {
+                    for_each_h(
+                        x,
+                        x,
+                        &packed,
+                        r0..r1,
+                        #[inline(always)]
+                        |i, j0, hs, valid| visit(&mut st, i, j0, hs, valid),
+                    )
+                },
+            );
+            finish(st)
+        })
+        .collect()
+}
+
+/// Lanes per panel of the tiled kernel (the length of the `hs` arrays that
+/// [`sweep_self`] hands out).
+pub const PANEL: usize = LANES;

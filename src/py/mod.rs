@@ -12,6 +12,7 @@ pub(crate) mod coerce;
 mod embed_graph;
 mod index;
 mod kmeans;
+mod metrics;
 mod models;
 mod neighbors;
 mod relativity;
@@ -33,6 +34,7 @@ fn _native(m: &Bound<'_, PyModule>) -> PyResult<()> {
     models::register(m)?;
     index::register(m)?;
     kmeans::register(m)?;
+    metrics::register(m)?;
     neighbors::register(m)?;
     relativity::register(m)?;
     m.add("__version__", env!("CARGO_PKG_VERSION"))?;

@@ -93,6 +93,9 @@ def valid_call(name: str, fn, module: str):
         "gyrokit.KMeans": ((), {"n_clusters": 3, "n_init": 1, "random_state": 0}),
         "gyrokit.NeighborIndex": ((BALL,), {}),
         "hyperboloid.inner": ((HYP, HYP[::-1].copy()), {}),
+        "metrics.reconstruction": ((BALL, np.column_stack([np.arange(N - 1), np.arange(1, N)])), {}),
+        "metrics.distortion": ((BALL, 2.0 * gk.distance_matrix(BALL)), {}),
+        "embed.from_distances": ((gk.distance_matrix(HYP, model="hyperboloid"), 3), {}),
     }
     if name in special:
         return special[name]
