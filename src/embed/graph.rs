@@ -571,8 +571,6 @@ fn step(lay: &Layout, k: &Curvature, r: &[f64], gr: &[f64], lr: f64, out: &mut [
 }
 
 // ----------------------------------------------------------------- trainer
-thread_local! { pub static PROF: std::cell::RefCell<[f64; 6]> = const { std::cell::RefCell::new([0.0; 6]) }; }
-pub fn prof() -> [f64; 6] { PROF.with(|p| *p.borrow()) }
 
 /// What one call of [`Trainer::run`] did.
 #[derive(Clone, Copy, Debug, PartialEq)]
@@ -753,7 +751,6 @@ impl Trainer {
             self.slot_node.resize(ns, NONE);
             self.slot_grad.resize(ns * dim, 0.0);
         }
-        let t0 = std::time::Instant::now();
         let fast = has_fma();
         let ctx = Ctx { lay, k: self.k, s: pair_scale(lay.model, &self.k), rec: &self.rec };
         let graph = &self.graph;
@@ -795,8 +792,6 @@ impl Trainer {
             })
             .collect();
         let loss: f64 = chunk_loss.iter().sum();
-        PROF.with(|p| p.borrow_mut()[5] += t0.elapsed().as_secs_f64());
-        let t_a = std::time::Instant::now();
         // (B) group the slots by node, in slot order (counting sort)
         self.serial = self.serial.wrapping_add(1);
         if self.serial == 0 {
@@ -838,7 +833,6 @@ impl Trainer {
                 cur[l] += 1;
             }
         }
-        let t_b = std::time::Instant::now();
         // (C) one step per touched node
         let w = lay.width();
         let nt = self.touched.len();
@@ -873,14 +867,11 @@ impl Trainer {
                 )
             })
             .sum();
-        let t_c = std::time::Instant::now();
         self.shortened += halvings as u64;
         for (l, &node) in self.touched.iter().enumerate() {
             let i = node as usize;
             self.rec[i * w..(i + 1) * w].copy_from_slice(&self.new_rec[l * w..(l + 1) * w]);
         }
-        let t_d = std::time::Instant::now();
-        PROF.with(|p| { let mut p = p.borrow_mut(); p[0] += (t_b - t_a).as_secs_f64(); p[1] += (t_c - t_b).as_secs_f64(); p[2] += (t_d - t_c).as_secs_f64(); p[3] += nt as f64; p[4] += ns as f64; });
         loss
     }
 }

@@ -83,8 +83,6 @@ impl GraphTrainer {
     }
 
     #[getter]
-    fn prof(&self) -> Vec<f64> { crate::embed::graph::prof().to_vec() }
-    #[getter]
     fn epoch(&self) -> usize {
         self.lock().epoch()
     }
