@@ -51,11 +51,14 @@
 //! how a caller splits the epoch into calls ([`Trainer::run`] only stops on
 //! batch boundaries). The cost against lock-free (Hogwild) updates: a node
 //! touched several times within a batch sees one summed step from the same
-//! old point instead of a sequence of steps (on WordNet nouns, the few hub
-//! nodes near the root), the sequential grouping (B) and a second pass over
-//! the gradient slots; `benches/bench_graph.py` measures the effect of the
-//! batch size on the loss and the mean average precision after the same
-//! epochs, with `batch_size = 1` as the sequential reference.
+//! old point instead of a sequence of steps (on WordNet nouns, the hub
+//! nodes near the root), the sequential grouping (B) and the copy back of
+//! the new points (together about 5-7% of the CPU time in a single-thread
+//! profile on WordNet at batch 256). Staleness limits the batch: on WordNet
+//! (d = 10, 10 negatives, rate 0.3) the mean loss after 4 epochs was 0.45
+//! at batch 256, but 3.2 and 4.9 at 4096 and 16 384, where the summed steps
+//! of hub nodes overshoot. `benches/bench_graph.py --batch-size 1` is the
+//! sequential reference.
 //!
 //! **Burn-in.** The first `burn_in` epochs run at `learning_rate *
 //! burn_in_factor` (Nickel & Kiela 2017, section 4: a reduced rate for the
