@@ -102,3 +102,4 @@ __all__ = ["Embedding", "tree"]
 from ._hmds import from_distances  # noqa: E402  (h-MDS; needs Embedding above)
 
 __all__ += ["from_distances"]
+from ._graph_embed import TrainingInterruptedWarning, graph  # noqa: E402  (learned graph embeddings)

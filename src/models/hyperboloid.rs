@@ -68,7 +68,7 @@ pub fn half_delta(k: &Curvature, xs: &[f64], cx: f64, ys: &[f64], cy: f64) -> f6
 
 /// Writes the point with spatial part `ys` (x0 recomputed).
 #[inline(always)]
-fn write_point(k: &Curvature, ys: &[f64], out: &mut [f64]) {
+pub(crate) fn write_point(k: &Curvature, ys: &[f64], out: &mut [f64]) {
     out[1..].copy_from_slice(ys);
     out[0] = k.radius * (1.0 + k.kappa * sumsq(ys)).sqrt();
 }
@@ -90,7 +90,7 @@ fn write_point(k: &Curvature, ys: &[f64], out: &mut [f64]) {
 /// tangents), with `v_perp` from `perp_scaled`. Writes the spatial part
 /// into `ys`.
 #[inline(always)]
-fn exp_spatial(k: &Curvature, xs: &[f64], cx: f64, vs: &[f64], ys: &mut [f64]) {
+pub(crate) fn exp_spatial(k: &Curvature, xs: &[f64], cx: f64, vs: &[f64], ys: &mut [f64]) {
     let kk = k.kappa;
     let n = xs.len();
     // x_s and v_s are read scaled by powers of two (exact): `2^-ex x_s` for

@@ -10,6 +10,7 @@ mod algebra;
 mod centroids;
 pub(crate) mod coerce;
 mod embed_tree;
+mod embed_graph;
 mod index;
 mod kmeans;
 mod metrics;
@@ -32,6 +33,7 @@ fn _native(m: &Bound<'_, PyModule>) -> PyResult<()> {
     algebra::register(m)?;
     centroids::register(m)?;
     embed_tree::register(m)?;
+    embed_graph::register(m)?;
     models::register(m)?;
     index::register(m)?;
     kmeans::register(m)?;

@@ -1,0 +1,184 @@
+"""Benchmark of ``gyrokit.embed.graph`` on the WordNet 3.0 noun hierarchy.
+
+Data: ``data.noun`` of the WordNet 3.0 database, installed by the Debian
+package ``wordnet-base`` (``sudo apt-get install wordnet-base``); the loader is
+``benches/wordnet.py``. The positives are the transitive closure of the noun
+hypernym and instance-hypernym relations (82 115 nouns, 743 241 pairs).
+
+Reported: graph reconstruction (Nickel & Kiela 2017, section 4.1), undirected:
+mean average precision over the nodes with neighbours and mean rank over the
+edges in both directions, exactly over all n (n - 1) pairs
+(``gk.metrics.reconstruction`` when the package has it, else
+:func:`reconstruction` below); wall time; positives per second per core; and
+the time per epoch with 1 and 2 threads (each in a fresh process, since rayon
+fixes its pool size at start-up).
+
+    python benches/bench_graph.py                   # the full run (Poincaré and hyperboloid)
+    python benches/bench_graph.py --subset mammal   # the mammal subtree, for tuning
+    python benches/bench_graph.py --scaling         # time per epoch, 1 vs 2 threads
+
+Published reference (Nickel & Kiela 2017, Table 1, WordNet nouns
+reconstruction, Poincaré, d = 10, from memory): MAP about 0.85, mean rank
+about 4.0.
+"""
+
+from __future__ import annotations
+
+import argparse
+import json
+import os
+import subprocess
+import sys
+import time
+from typing import Dict, List, Tuple
+
+import numpy as np
+
+sys.path.insert(0, os.path.dirname(os.path.abspath(__file__)))
+import wordnet  # noqa: E402
+
+import gyrokit as gk  # noqa: E402
+
+
+def neighbour_lists(n: int, edges: np.ndarray) -> Tuple[np.ndarray, np.ndarray]:
+    """CSR of the undirected neighbour sets (deduplicated)."""
+    a = np.concatenate([edges, edges[:, ::-1]])
+    a = np.unique(a, axis=0)
+    a = a[a[:, 0] != a[:, 1]]
+    off = np.zeros(n + 1, dtype=np.int64)
+    np.add.at(off, a[:, 0] + 1, 1)
+    return np.cumsum(off), a[:, 1].copy()
+
+
+def reconstruction(x: np.ndarray, edges: np.ndarray, model: str, curvature: float = -1.0,
+                   block: int = 256) -> Dict[str, float]:
+    """Exact graph reconstruction metrics over all pairs, in blocks of rows.
+
+    For a node u with neighbours N(u): the average precision of N(u) when all
+    v != u are ranked by distance (precision at the rank of each neighbour v,
+    counting every w != u with d(u, w) <= d(u, v)), and for each neighbour the
+    rank 1 + #{w not in N(u), w != u : d(u, w) < d(u, v)}. Only candidates no
+    farther than u's farthest neighbour matter, so each row keeps those
+    before sorting.
+    """
+    n = x.shape[0]
+    off, nb = neighbour_lists(n, edges)
+    ap_sum, ap_count, rank_sum, rank_count = 0.0, 0, 0.0, 0
+    for s in range(0, n, block):
+        e = min(n, s + block)
+        D = gk.distance_matrix(x[s:e], x, model=model, curvature=curvature)
+        D[np.arange(e - s), np.arange(s, e)] = np.inf  # u itself is not ranked
+        for i in range(e - s):
+            u = s + i
+            nbr = nb[off[u]:off[u + 1]]
+            if nbr.size == 0:
+                continue
+            row = D[i]
+            dn = np.sort(row[nbr])
+            cand = np.sort(row[row <= dn[-1]])
+            # all w != u with d <= d_v, and the neighbours among them
+            le_all = np.searchsorted(cand, dn, side="right")
+            le_nb = np.searchsorted(dn, dn, side="right")
+            ap_sum += float(np.mean(le_nb / le_all))
+            ap_count += 1
+            lt_all = np.searchsorted(cand, dn, side="left")
+            lt_nb = np.searchsorted(dn, dn, side="left")
+            rank_sum += float(np.sum(1 + lt_all - lt_nb))
+            rank_count += nbr.size
+    return {"mean_average_precision": ap_sum / ap_count, "mean_rank": rank_sum / rank_count}
+
+
+def evaluate(emb, edges: np.ndarray) -> Dict[str, float]:
+    metrics = getattr(gk, "metrics", None)
+    if metrics is not None and hasattr(metrics, "reconstruction"):
+        r = metrics.reconstruction(emb.points, edges, model=emb.model, curvature=emb.curvature)
+        return {"mean_average_precision": float(r.mean_average_precision), "mean_rank": float(r.mean_rank),
+                "evaluator": "gk.metrics.reconstruction"}
+    out = reconstruction(emb.points, edges, emb.model, emb.curvature)
+    out["evaluator"] = "bench_graph.reconstruction"
+    return out
+
+
+def load(subset: str) -> Tuple[List[str], np.ndarray]:
+    names, pairs = wordnet.noun_closure()
+    if subset == "all":
+        return names, pairs
+    # the closure below one synset (its hyponyms, and itself as their ancestor)
+    root = next(i for i, nm in enumerate(names) if nm.startswith(subset + "."))
+    keep = np.zeros(len(names), bool)
+    keep[root] = True
+    keep[pairs[pairs[:, 1] == root, 0]] = True
+    sub = pairs[keep[pairs[:, 0]] & keep[pairs[:, 1]]]
+    ids = np.flatnonzero(keep)
+    remap = -np.ones(len(names), np.int64)
+    remap[ids] = np.arange(ids.size)
+    return [names[i] for i in ids], remap[sub]
+
+
+def run(args, model: str, names, pairs) -> Dict[str, float]:
+    t = time.perf_counter()
+    emb = gk.embed.graph(
+        pairs, args.dim, model=model, negatives=args.negatives, epochs=args.epochs,
+        learning_rate=args.lr, burn_in=args.burn_in, batch_size=args.batch_size, seed=args.seed,
+        n_nodes=len(names), progress=args.progress,
+    )
+    train = time.perf_counter() - t
+    t = time.perf_counter()
+    m = evaluate(emb, pairs)
+    ev = time.perf_counter() - t
+    positives = 2 * len(pairs) * emb.epochs
+    threads = int(os.environ.get("RAYON_NUM_THREADS", os.cpu_count() or 1))
+    out = {
+        "model": model, "dim": args.dim, "epochs": emb.epochs, "train_s": train, "eval_s": ev,
+        "positives_per_s_per_core": positives / train / threads, "threads": threads,
+        "final_loss": float(emb.loss[-1]) if len(emb.loss) else float("nan"), **m,
+    }
+    print(json.dumps(out), flush=True)
+    return out
+
+
+def scaling(args) -> None:
+    """Time per epoch with 1 and 2 threads, each in its own process."""
+    code = (
+        "import sys, time, numpy as np; sys.path.insert(0, %r); import bench_graph as b, gyrokit as gk\n"
+        "names, pairs = b.load(%r)\n"
+        "t = time.perf_counter()\n"
+        "gk.embed.graph(pairs, %d, negatives=%d, epochs=%d, burn_in=0, batch_size=%d, n_nodes=len(names), progress=False)\n"
+        "print((time.perf_counter() - t) / %d)\n"
+    ) % (os.path.dirname(os.path.abspath(__file__)), args.subset, args.dim, args.negatives, args.scaling_epochs,
+         args.batch_size, args.scaling_epochs)
+    res = {}
+    for th in (1, 2):
+        env = dict(os.environ, RAYON_NUM_THREADS=str(th))
+        out = subprocess.run([sys.executable, "-c", code], env=env, capture_output=True, text=True, check=True)
+        res[th] = float(out.stdout.strip().splitlines()[-1])
+    print(json.dumps({"seconds_per_epoch_1_thread": res[1], "seconds_per_epoch_2_threads": res[2],
+                      "speedup": res[1] / res[2]}), flush=True)
+
+
+def main() -> None:
+    ap = argparse.ArgumentParser()
+    ap.add_argument("--subset", default="all", help="'all' or a synset's first word, e.g. mammal")
+    ap.add_argument("--models", default="poincare,hyperboloid")
+    ap.add_argument("--dim", type=int, default=10)
+    ap.add_argument("--negatives", type=int, default=10)
+    ap.add_argument("--epochs", type=int, default=100)
+    ap.add_argument("--lr", type=float, default=0.3)
+    ap.add_argument("--burn-in", type=int, default=10)
+    ap.add_argument("--batch-size", type=int, default=256)
+    ap.add_argument("--seed", type=int, default=0)
+    ap.add_argument("--progress", action="store_true", default=None)
+    ap.add_argument("--scaling", action="store_true")
+    ap.add_argument("--scaling-epochs", type=int, default=2)
+    args = ap.parse_args()
+    names, pairs = load(args.subset)
+    print(json.dumps({"subset": args.subset, "nodes": len(names), "closure_pairs": int(len(pairs))}), flush=True)
+    if args.scaling:
+        scaling(args)
+        return
+    for model in args.models.split(","):
+        run(args, model, names, pairs)
+
+
+if __name__ == "__main__":
+    main()

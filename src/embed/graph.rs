@@ -1,0 +1,1065 @@
+//! Learned embeddings of graphs: Riemannian SGD on the ranking loss of
+//! Nickel & Kiela, "Poincaré Embeddings for Learning Hierarchical
+//! Representations" (NeurIPS 2017), in the Poincaré ball, and of their
+//! hyperboloid variant ("Learning Continuous Hierarchies in the Lorentz Model
+//! of Hyperbolic Geometry", ICML 2018).
+//!
+//! **Loss.** For each positive pair `(u, v)` (each edge in both directions,
+//! or as given for a directed graph: [`Graph::new`]) and
+//! `negatives` nodes `v'_j` drawn uniformly, with replacement, among the
+//! nodes not adjacent to `u` (in either direction) and not `u` itself:
+//! `L = -log(exp(-d(u, v)) / sum_{w in {v, v'_1, ...}} exp(-d(u, w)))`,
+//! distances in the metric of the given curvature. The sampling is exact:
+//! the `k`-th non-neighbour is found by a binary search in the sorted list of
+//! `u`'s excluded nodes (no rejection, one random number per negative), so a
+//! node adjacent to almost everything costs the same as any other.
+//!
+//! **Riemannian SGD.** Every pair distance is evaluated as the pairwise
+//! module does (`pair_h` on the model's pair space: the Poincaré
+//! coordinates, or the hyperboloid's Poincaré images in double-double with
+//! the law-of-cosines form for close far pairs), so the loss sees the
+//! distances `gk.distance` reports, bit for bit. The Euclidean gradient is
+//! taken with respect to the Poincaré (hub) coordinates `p`, where
+//! `d = R acosh(1 + 2h)`, `h = kappa |p - q|^2 a_p a_q`, `a = 1/g`:
+//! `dd/dp = 2 sqrt(kappa)/sqrt(h (1 + h)) (a_p a_q (p - q) + h a_p p)`.
+//! The Riemannian gradient is the inverse metric times it, `(g^2/4) dd/dp`
+//! (the ball's metric is `(2/g)^2 |dp|^2`); on the hyperboloid that tangent
+//! is pushed forward through `x_s = 2p/g`:
+//! `v_s = (g/2) G + kappa (p.G) p`. The step is the model's exact
+//! exponential map (`poincare::exp_map_g`, which returns the exact gap of its
+//! result; the hyperboloid's ideal-endpoint form), never a retraction
+//! followed by a projection. A Poincaré step whose exact end lies beyond
+//! what float64 holds (gap below 2^-53, about 37 R from the origin) is
+//! halved until it does not (the rim rule of `models::ball` decides, from
+//! the exact gap); such steps are counted ([`Trainer::shortened`]). The
+//! hyperboloid holds points out to `|x_s|^2 <= 2^500`.
+//!
+//! Because both models take exact exponential maps of the same intrinsic
+//! gradient from the same start (the hyperboloid starts at the images of
+//! the Poincaré starting points), the two trajectories agree up to rounding.
+//!
+//! **Parallel scheme: batch-synchronous, deterministic.** An epoch visits the
+//! edges in an order shuffled by xoshiro256** (seeded once). Batches of
+//! `batch_size` positives are processed in three phases: (A) every positive
+//! of the batch, in fixed chunks run on all cores, draws its negatives from
+//! its own SplitMix64 stream keyed by `(seed, epoch, position)` and writes the
+//! Euclidean gradient of its loss into its own slots (`u`, `v`, each
+//! negative), reading the points of the previous batch; (B) the slots are
+//! grouped by node in slot order (a counting sort); (C) every touched node,
+//! in fixed chunks on all cores, sums its slots in that order and takes one
+//! exponential-map step. No result depends on the number of threads or on
+//! how a caller splits the epoch into calls ([`Trainer::run`] only stops on
+//! batch boundaries). The cost against lock-free (Hogwild) updates: a node
+//! touched several times within a batch sees one summed step from the same
+//! old point instead of a sequence of steps (on WordNet nouns, the hub
+//! nodes near the root), the sequential grouping (B) and the copy back of
+//! the new points (together about 5-7% of the CPU time in a single-thread
+//! profile on WordNet at batch 256). Staleness limits the batch: on WordNet
+//! (d = 10, 10 negatives, rate 0.3) the mean loss after 4 epochs was 0.45
+//! at batch 256, but 3.2 and 4.9 at 4096 and 16 384, where the summed steps
+//! of hub nodes overshoot. `benches/bench_graph.py --batch-size 1` is the
+//! sequential reference.
+//!
+//! **Burn-in.** The first `burn_in` epochs run at `learning_rate *
+//! burn_in_factor` (Nickel & Kiela 2017, section 4: a reduced rate for the
+//! first epochs while the points near the origin find their directions).
+//!
+//! The random generators are this module's own (xoshiro256** and SplitMix64,
+//! the authors' reference algorithms), so that the sequence for a seed is
+//! fixed here whatever happens to other modules' generators.
+
+use rayon::prelude::*;
+
+use crate::error::{value_err, Error, Result};
+use crate::models::ball::{checked_gap, settle, Curvature};
+use crate::models::hyperboloid::{self, MAX_SPATIAL_SQ};
+use crate::models::{poincare, Model};
+use crate::numeric::simd::{dispatch, has_fma};
+use crate::numeric::{acosh1p2_fast, gap, sumsq};
+use crate::pairwise::{pair_h, pair_scale, read_pair_point, seq_dist_sq, PairSpace};
+
+/// Positives per task in the gradient phase (fixed: results never depend on
+/// the thread count).
+const EDGE_CHUNK: usize = 16;
+/// Nodes per task in the update phase.
+const NODE_CHUNK: usize = 128;
+/// A slot without a node (no non-neighbour to draw).
+const NONE: u32 = u32::MAX;
+/// Largest number of halvings of one step at the rim.
+const MAX_HALVINGS: usize = 64;
+
+// ------------------------------------------------------------------ random
+
+/// One SplitMix64 step (Steele, Lea and Flood, "Fast splittable
+/// pseudorandom number generators", OOPSLA 2014).
+#[inline(always)]
+fn splitmix64(state: &mut u64) -> u64 {
+    *state = state.wrapping_add(0x9e37_79b9_7f4a_7c15);
+    let mut z = *state;
+    z = (z ^ (z >> 30)).wrapping_mul(0xbf58_476d_1ce4_e5b9);
+    z = (z ^ (z >> 27)).wrapping_mul(0x94d0_49bb_1331_11eb);
+    z ^ (z >> 31)
+}
+
+/// xoshiro256** (Blackman and Vigna, "Scrambled linear pseudorandom number
+/// generators", ACM TOMS 2021), its state filled by SplitMix64 from the
+/// seed, as the authors recommend. Used for the starting points and the
+/// per-epoch shuffles.
+#[derive(Clone, Debug)]
+pub struct Xoshiro {
+    s: [u64; 4],
+}
+
+impl Xoshiro {
+    pub fn new(seed: u64) -> Xoshiro {
+        let mut st = seed;
+        Xoshiro { s: [splitmix64(&mut st), splitmix64(&mut st), splitmix64(&mut st), splitmix64(&mut st)] }
+    }
+
+    pub fn next_u64(&mut self) -> u64 {
+        let s = &mut self.s;
+        let result = s[1].wrapping_mul(5).rotate_left(7).wrapping_mul(9);
+        let t = s[1] << 17;
+        s[2] ^= s[0];
+        s[3] ^= s[1];
+        s[1] ^= s[2];
+        s[0] ^= s[3];
+        s[2] ^= t;
+        s[3] = s[3].rotate_left(45);
+        result
+    }
+
+    /// Uniform in [0, 1): the top 53 bits times 2^-53.
+    pub fn uniform(&mut self) -> f64 {
+        (self.next_u64() >> 11) as f64 * (1.0 / 9007199254740992.0)
+    }
+
+    /// Uniform in `0..m` (`m >= 1`), unbiased (Lemire's multiply-shift with
+    /// rejection).
+    pub fn below(&mut self, m: u64) -> u64 {
+        let threshold = m.wrapping_neg() % m;
+        loop {
+            let p = u128::from(self.next_u64()) * u128::from(m);
+            if (p as u64) >= threshold {
+                return (p >> 64) as u64;
+            }
+        }
+    }
+}
+
+/// The stream of one positive: SplitMix64 started from a hash of
+/// `(seed, epoch, position in the epoch)`, so that its negatives do not
+/// depend on which thread, chunk or call handles it.
+struct Stream(u64);
+
+impl Stream {
+    #[inline(always)]
+    fn new(seed: u64, epoch: u64, pos: u64) -> Stream {
+        let mut st = seed ^ epoch.wrapping_mul(0xd1b5_4a32_d192_ed03);
+        let a = splitmix64(&mut st);
+        let mut st2 = a ^ pos.wrapping_mul(0xaef1_7502_108e_f2d9);
+        Stream(splitmix64(&mut st2))
+    }
+
+    /// Uniform in `0..m` by multiply-shift (bias below `m / 2^64`).
+    #[inline(always)]
+    fn below(&mut self, m: u64) -> u64 {
+        ((u128::from(splitmix64(&mut self.0)) * u128::from(m)) >> 64) as u64
+    }
+}
+
+// ------------------------------------------------------------------- graph
+
+/// The positive pairs and, per node, the sorted list of nodes excluded as
+/// its negatives (its neighbours in either direction, and itself).
+#[derive(Clone, Debug)]
+pub struct Graph {
+    pub n: usize,
+    pub edges: Vec<[u32; 2]>,
+    excl_off: Vec<usize>,
+    excl: Vec<u32>,
+}
+
+impl Graph {
+    /// Validates `edges` (rows `(u, v)`, node ids in `0..n`) and builds the
+    /// exclusion lists. Errors name the row. The positives are the rows as
+    /// given when `directed`, else each row in both directions, `(u, v)` and
+    /// `(v, u)` (all rows first, then all reversed).
+    pub fn new(n: usize, edges: &[[i64; 2]], directed: bool) -> Result<Graph> {
+        if edges.is_empty() {
+            return value_err("edges is empty: at least one edge (a row (u, v)) is needed");
+        }
+        if n == 0 || n >= NONE as usize {
+            return value_err(format!("n_nodes must be between 1 and {}, got {n}", NONE - 1));
+        }
+        let mut out = Vec::with_capacity(edges.len());
+        let mut deg = vec![1usize; n]; // the node itself
+        for (i, &[u, v]) in edges.iter().enumerate() {
+            for x in [u, v] {
+                if x < 0 || x as u64 >= n as u64 {
+                    return value_err(format!(
+                        "edges: row {i} ({u}, {v}) has node id {x} out of range (ids run from 0 to n_nodes - 1 = {})",
+                        n - 1
+                    ));
+                }
+            }
+            if u == v {
+                return value_err(format!("edges: row {i} ({u}, {v}) is a self-loop"));
+            }
+            let (u, v) = (u as usize, v as usize);
+            deg[u] += 1;
+            deg[v] += 1;
+            out.push([u as u32, v as u32]);
+        }
+        let mut off = vec![0usize; n + 1];
+        for i in 0..n {
+            off[i + 1] = off[i] + deg[i];
+        }
+        let mut excl = vec![0u32; off[n]];
+        let mut cur: Vec<usize> = off[..n].to_vec();
+        let mut put = |a: usize, b: u32| {
+            excl[cur[a]] = b;
+            cur[a] += 1;
+        };
+        for i in 0..n {
+            put(i, i as u32);
+        }
+        for &[u, v] in &out {
+            put(u as usize, v);
+            put(v as usize, u);
+        }
+        // Sort and deduplicate each list, compacting in place.
+        let mut w = 0usize;
+        let mut new_off = vec![0usize; n + 1];
+        for i in 0..n {
+            let (a, b) = (off[i], off[i + 1]);
+            excl[a..b].sort_unstable();
+            let start = w;
+            for j in a..b {
+                if j == a || excl[j] != excl[j - 1] {
+                    excl[w] = excl[j];
+                    w += 1;
+                }
+            }
+            new_off[i] = start;
+            new_off[i + 1] = w;
+        }
+        excl.truncate(w);
+        if !directed {
+            let m = out.len();
+            for i in 0..m {
+                let [u, v] = out[i];
+                out.push([v, u]);
+            }
+        }
+        Ok(Graph { n, edges: out, excl_off: new_off, excl })
+    }
+
+    /// Nodes excluded as negatives of `u` (sorted; `u` included).
+    pub fn excluded(&self, u: usize) -> &[u32] {
+        &self.excl[self.excl_off[u]..self.excl_off[u + 1]]
+    }
+
+    /// Number of admissible negatives of `u`.
+    #[inline(always)]
+    pub fn non_neighbours(&self, u: usize) -> usize {
+        self.n - (self.excl_off[u + 1] - self.excl_off[u])
+    }
+
+    /// The `k`-th (from 0, increasing ids) node not excluded for `u`
+    /// (`k < non_neighbours(u)`): with `S` the sorted excluded list, the
+    /// answer is `k + j` for `j = #{i : S[i] - i <= k}` (`S[i] - i` is
+    /// non-decreasing), found by binary search.
+    #[inline(always)]
+    pub fn kth_non_neighbour(&self, u: usize, k: usize) -> u32 {
+        let s = self.excluded(u);
+        let j = partition_point_idx(s, k);
+        (k + j) as u32
+    }
+}
+
+#[inline(always)]
+fn partition_point_idx(s: &[u32], k: usize) -> usize {
+    let (mut lo, mut hi) = (0usize, s.len());
+    while lo < hi {
+        let mid = (lo + hi) / 2;
+        if (s[mid] as usize) - mid <= k {
+            lo = mid + 1;
+        } else {
+            hi = mid;
+        }
+    }
+    lo
+}
+
+// ------------------------------------------------------------------ params
+
+/// Training parameters (validated by [`Params::check`]).
+#[derive(Clone, Debug)]
+pub struct Params {
+    /// Dimension of the ball (the hyperboloid has `dim + 1` coordinates).
+    pub dim: usize,
+    /// Negatives per positive.
+    pub negatives: usize,
+    /// Riemannian SGD step per positive (the loss is summed over a batch).
+    pub learning_rate: f64,
+    /// Epochs at the reduced rate.
+    pub burn_in: usize,
+    /// The rate during burn-in is `learning_rate * burn_in_factor`.
+    pub burn_in_factor: f64,
+    /// Positives per synchronous step.
+    pub batch_size: usize,
+    /// Starting points uniform in `[-init, init]^dim` (units of R) in the
+    /// Poincaré ball.
+    pub init: f64,
+    pub seed: u64,
+}
+
+impl Default for Params {
+    fn default() -> Self {
+        Params {
+            dim: 10,
+            negatives: 10,
+            learning_rate: 0.3,
+            burn_in: 10,
+            burn_in_factor: 0.1,
+            batch_size: 256,
+            init: 1e-3,
+            seed: 0,
+        }
+    }
+}
+
+impl Params {
+    pub fn check(&self) -> Result<()> {
+        if self.dim < 1 {
+            return value_err(format!("dim must be >= 1, got {}", self.dim));
+        }
+        if self.negatives < 1 || self.negatives > 1 << 20 {
+            return value_err(format!("negatives must be between 1 and 2^20, got {}", self.negatives));
+        }
+        if !self.learning_rate.is_finite() || self.learning_rate <= 0.0 {
+            return value_err(format!("learning_rate must be a finite positive number, got {}", self.learning_rate));
+        }
+        if !self.burn_in_factor.is_finite() || self.burn_in_factor <= 0.0 {
+            return value_err(format!("burn_in_factor must be a finite positive number, got {}", self.burn_in_factor));
+        }
+        if self.batch_size < 1 || self.batch_size > 1 << 24 {
+            return value_err(format!("batch_size must be between 1 and 2^24, got {}", self.batch_size));
+        }
+        if !(self.init.is_finite() && self.init > 0.0 && self.init <= 0.5) {
+            return value_err(format!("init must lie in (0, 0.5] (units of R), got {}", self.init));
+        }
+        Ok(())
+    }
+}
+
+// ----------------------------------------------------------------- records
+
+/// How a node is stored: `[p (dim) | refinement data | a | g]`, where `p`
+/// and the refinement data are the pair-space point written by
+/// `read_pair_point` (for the hyperboloid, the refinement data end with the
+/// spatial part and `x0/R`: the point itself), `a = 1/g`, and `g` the gap of
+/// `p` (the exact gap of the stored Poincaré coordinates).
+#[derive(Clone, Copy, Debug)]
+struct Layout {
+    model: Model,
+    space: PairSpace,
+    dim: usize,
+    ew: usize,
+}
+
+impl Layout {
+    fn new(model: Model, dim: usize) -> Layout {
+        let space = PairSpace::of(model);
+        Layout { model, space, dim, ew: space.extra_width(dim) }
+    }
+    #[inline(always)]
+    fn width(&self) -> usize {
+        self.dim + self.ew + 2
+    }
+    /// `(p, refinement data, a, g)` of a record.
+    #[inline(always)]
+    fn view<'a>(&self, r: &'a [f64]) -> (&'a [f64], &'a [f64], f64, f64) {
+        let (d, e) = (self.dim, self.ew);
+        (&r[..d], &r[d..d + e], r[d + e], r[d + e + 1])
+    }
+    /// Writes the record of a point given in model coordinates.
+    #[inline(always)]
+    fn store(&self, k: &Curvature, point: &[f64], r: &mut [f64]) -> std::result::Result<(), crate::error::Fault> {
+        let (d, e) = (self.dim, self.ew);
+        let (hi, rest) = r.split_at_mut(d);
+        let (extra, tail) = rest.split_at_mut(e);
+        if self.model == Model::Poincare {
+            // the pair space is the point itself, `a = 1/g` (as `read_pair_point`)
+            let g = checked_gap(k, point)?.value();
+            hi.copy_from_slice(point);
+            tail[0] = 1.0 / g;
+            tail[1] = g;
+        } else {
+            let a = read_pair_point(self.model, k, point, hi, extra)?;
+            tail[0] = a;
+            tail[1] = 1.0 / a;
+        }
+        Ok(())
+    }
+    /// The point in model coordinates.
+    fn point(&self, k: &Curvature, r: &[f64], out: &mut [f64]) {
+        let (p, extra, _, _) = self.view(r);
+        if self.model == Model::Hyperboloid {
+            let d = self.dim;
+            out[0] = k.radius * extra[2 * d];
+            out[1..].copy_from_slice(&extra[d..2 * d]);
+        } else {
+            out.copy_from_slice(p);
+        }
+    }
+}
+
+/// What the per-positive kernel needs.
+struct Ctx<'a> {
+    lay: Layout,
+    k: Curvature,
+    /// `pair_scale` of the model.
+    s: f64,
+    rec: &'a [f64],
+}
+
+impl<'a> Ctx<'a> {
+    #[inline(always)]
+    fn node(&self, i: u32) -> (&'a [f64], &'a [f64], f64, f64) {
+        let w = self.lay.width();
+        let i = i as usize;
+        self.lay.view(&self.rec[i * w..(i + 1) * w])
+    }
+}
+
+/// Loss of one positive `(nodes[0], nodes[1])` against the negatives
+/// `nodes[2..]` (`NONE` slots skipped), and the Euclidean gradients with
+/// respect to the pair-space (Poincaré hub) coordinates, one per slot in
+/// `grads` (`nodes.len() * dim`). `work` holds `2 nodes.len()` values.
+#[inline(always)]
+fn positive_grads(ctx: &Ctx, nodes: &[u32], grads: &mut [f64], work: &mut [f64]) -> f64 {
+    let k = &ctx.k;
+    let dim = ctx.lay.dim;
+    let ns = nodes.len();
+    let (hs, ds) = work.split_at_mut(ns);
+    let (pu, eu, au, _) = ctx.node(nodes[0]);
+    let mut dmin = f64::INFINITY;
+    for t in 1..ns {
+        if nodes[t] == NONE {
+            continue;
+        }
+        let (pt, et, at, _) = ctx.node(nodes[t]);
+        let h = pair_h(ctx.lay.space, k, ctx.s, seq_dist_sq(pu, pt), (pu, eu, au), (pt, et, at));
+        hs[t] = h;
+        ds[t] = k.radius * acosh1p2_fast(h);
+        dmin = dmin.min(ds[t]);
+    }
+    let mut z = 0.0;
+    for t in 1..ns {
+        if nodes[t] != NONE {
+            ds[t] = (-(ds[t] - dmin)).exp();
+            z += ds[t];
+        }
+    }
+    // -log(e^{-d_v} / sum e^{-d_w}) = (d_v - dmin) + ln(sum e^{-(d_w - dmin)})
+    let loss = -ds[1].ln() + z.ln();
+    let (gu, rest) = grads.split_at_mut(dim);
+    gu.iter_mut().for_each(|g| *g = 0.0);
+    let mut su = 0.0;
+    let two_sk = 2.0 * k.sqrt_kappa;
+    for t in 1..ns {
+        let gt = &mut rest[(t - 1) * dim..t * dim];
+        if nodes[t] == NONE {
+            continue;
+        }
+        let (pt, _, at, _) = ctx.node(nodes[t]);
+        let h = hs[t];
+        // dL/dd_t = [t is the positive] - softmax_t
+        let c = if t == 1 { 1.0 } else { 0.0 } - ds[t] / z;
+        if h > 0.0 && c != 0.0 {
+            let q = c * two_sk / (h * (1.0 + h)).sqrt();
+            let ca = q * (au * at);
+            let ct = q * h * at;
+            for i in 0..dim {
+                let diff = pu[i] - pt[i];
+                gu[i] += ca * diff;
+                gt[i] = ct * pt[i] - ca * diff;
+            }
+            su += q * h * au;
+        } else {
+            gt.iter_mut().for_each(|g| *g = 0.0);
+        }
+    }
+    for i in 0..dim {
+        gu[i] += su * pu[i];
+    }
+    loss
+}
+
+/// The Riemannian gradient in model coordinates from the Euclidean hub
+/// gradient `gr` of a node: `(g^2/4) G` in the ball; on the hyperboloid the
+/// tangent `(v0, v_s)` with `v_s = (g/2) G + kappa (p.G) p`,
+/// `v0 = x_s.v_s/x0` (tangency).
+fn riemannian(lay: &Layout, k: &Curvature, r: &[f64], gr: &[f64], out: &mut [f64]) {
+    let (p, extra, _, g) = lay.view(r);
+    if lay.model == Model::Hyperboloid {
+        let d = lay.dim;
+        let pg: f64 = p.iter().zip(gr).map(|(a, b)| a * b).sum();
+        for i in 0..d {
+            out[1 + i] = 0.5 * g * gr[i] + k.kappa * pg * p[i];
+        }
+        let xs = &extra[d..2 * d];
+        let x0 = k.radius * extra[2 * d];
+        out[0] = xs.iter().zip(&out[1..]).map(|(a, b)| a * b).sum::<f64>() / x0;
+    } else {
+        let f = 0.25 * g * g;
+        for i in 0..lay.dim {
+            out[i] = f * gr[i];
+        }
+    }
+}
+
+/// One Riemannian SGD step of a node with summed Euclidean hub gradient
+/// `gr`: writes the new record into `out` and returns the number of
+/// halvings the step needed at the rim (0 almost always). `tmp` holds
+/// `3 dim + 1` values.
+#[inline(always)]
+fn step(lay: &Layout, k: &Curvature, r: &[f64], gr: &[f64], lr: f64, out: &mut [f64], tmp: &mut [f64]) -> usize {
+    let d = lay.dim;
+    let (p, extra, _, g) = lay.view(r);
+    let (v, y) = tmp.split_at_mut(d);
+    let (ys, y) = y.split_at_mut(d);
+    if lay.model == Model::Hyperboloid {
+        let pg: f64 = p.iter().zip(gr).map(|(a, b)| a * b).sum();
+        for i in 0..d {
+            v[i] = -lr * (0.5 * g * gr[i] + k.kappa * pg * p[i]);
+        }
+        let (xs, cx) = (&extra[d..2 * d], extra[2 * d]);
+        for halvings in 0..MAX_HALVINGS {
+            if v.iter().all(|x| x.is_finite()) {
+                hyperboloid::exp_spatial(k, xs, cx, v, ys);
+                if ys.iter().all(|x| x.is_finite()) && sumsq(ys) <= MAX_SPATIAL_SQ {
+                    hyperboloid::write_point(k, ys, y);
+                    if lay.store(k, y, out).is_ok() {
+                        return halvings;
+                    }
+                }
+            }
+            v.iter_mut().for_each(|x| *x *= 0.5);
+        }
+    } else {
+        let f = -lr * 0.25 * g * g;
+        for i in 0..d {
+            v[i] = f * gr[i];
+        }
+        let y = ys;
+        for halvings in 0..MAX_HALVINGS {
+            if v.iter().all(|x| x.is_finite()) {
+                let gy = poincare::exp_map_g(k, p, g, v, y);
+                // The rim rule judges the exact gap of the result: held (moved
+                // to the last radius inside only if its last rounding fell
+                // on the sphere), or beyond float64 and the step is halved.
+                if settle(k, y, gy, false) && lay.store(k, y, out).is_ok() {
+                    return halvings;
+                }
+            }
+            v.iter_mut().for_each(|x| *x *= 0.5);
+        }
+    }
+    // No representable step (a non-finite gradient): the node stays.
+    out.copy_from_slice(r);
+    MAX_HALVINGS
+}
+
+// ----------------------------------------------------------------- trainer
+
+/// What one call of [`Trainer::run`] did.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct RunResult {
+    /// Positives processed.
+    pub edges: usize,
+    /// The mean loss of the epoch when this call finished one.
+    pub epoch_loss: Option<f64>,
+}
+
+/// The state of a training run; [`Trainer::run`] advances it batch by batch.
+pub struct Trainer {
+    lay: Layout,
+    k: Curvature,
+    p: Params,
+    graph: Graph,
+    rec: Vec<f64>,
+    /// The positives, shuffled in place at the start of every epoch (read in
+    /// sequence, not through an index).
+    order: Vec<[u32; 2]>,
+    rng: Xoshiro,
+    epoch: usize,
+    pos: usize,
+    loss_sum: f64,
+    losses: Vec<f64>,
+    shortened: u64,
+    // scratch of the batch phases
+    slot_node: Vec<u32>,
+    slot_grad: Vec<f64>,
+    mark: Vec<u32>,
+    local: Vec<u32>,
+    serial: u32,
+    touched: Vec<u32>,
+    offs: Vec<u32>,
+    list: Vec<u32>,
+    new_rec: Vec<f64>,
+}
+
+impl Trainer {
+    /// Starts a run: starting points uniform in `[-init R, init R]^dim` in
+    /// the Poincaré ball (their images on the hyperboloid).
+    pub fn new(model: Model, k: Curvature, graph: Graph, p: Params) -> Result<Trainer> {
+        p.check()?;
+        if !matches!(model, Model::Poincare | Model::Hyperboloid) {
+            return value_err(format!(
+                "model must be 'poincare' or 'hyperboloid' for learned embeddings, got {:?} (convert the result with gyrokit.convert)",
+                Model::NAMES[model as usize]
+            ));
+        }
+        let lay = Layout::new(model, p.dim);
+        let n = graph.n;
+        let w = lay.width();
+        let mut rec = vec![0.0; n * w];
+        let mut rng = Xoshiro::new(p.seed);
+        let mut x = vec![0.0; p.dim];
+        let mut pt = vec![0.0; p.dim + 1];
+        for i in 0..n {
+            for c in x.iter_mut() {
+                *c = (2.0 * rng.uniform() - 1.0) * p.init * k.radius;
+            }
+            if model == Model::Hyperboloid {
+                // x_s = 2p/g, x0 from it
+                let g = gap(k.kappa, &x);
+                let xs: Vec<f64> = x.iter().map(|v| 2.0 * v / g).collect();
+                hyperboloid::write_point(&k, &xs, &mut pt);
+                lay.store(&k, &pt, &mut rec[i * w..(i + 1) * w])
+            } else {
+                lay.store(&k, &x, &mut rec[i * w..(i + 1) * w])
+            }
+            .map_err(|_| Error::Value("starting point outside the model".into()))?;
+        }
+        let order = graph.edges.clone();
+        Ok(Trainer {
+            lay,
+            k,
+            graph,
+            rec,
+            order,
+            rng,
+            epoch: 0,
+            pos: 0,
+            loss_sum: 0.0,
+            losses: Vec::new(),
+            shortened: 0,
+            slot_node: Vec::new(),
+            slot_grad: Vec::new(),
+            mark: vec![0; n],
+            local: vec![0; n],
+            serial: 0,
+            touched: Vec::new(),
+            offs: Vec::new(),
+            list: Vec::new(),
+            new_rec: Vec::new(),
+            p,
+        })
+    }
+
+    /// Completed epochs.
+    pub fn epoch(&self) -> usize {
+        self.epoch
+    }
+    /// Positives processed in the current epoch.
+    pub fn position(&self) -> usize {
+        self.pos
+    }
+    /// Number of edges (positives per epoch).
+    pub fn n_edges(&self) -> usize {
+        self.graph.edges.len()
+    }
+    /// The mean loss of every completed epoch.
+    pub fn losses(&self) -> &[f64] {
+        &self.losses
+    }
+    /// Steps halved at the rim so far.
+    pub fn shortened(&self) -> u64 {
+        self.shortened
+    }
+    /// Coordinates per point in the model.
+    pub fn width(&self) -> usize {
+        self.lay.model.width(self.lay.dim)
+    }
+
+    /// The points, `(n, width)` row-major, in model coordinates.
+    pub fn points(&self) -> Vec<f64> {
+        let (w, ow) = (self.lay.width(), self.width());
+        let mut out = vec![0.0; self.graph.n * ow];
+        for (r, o) in self.rec.chunks_exact(w).zip(out.chunks_exact_mut(ow)) {
+            self.lay.point(&self.k, r, o);
+        }
+        out
+    }
+
+    /// Runs whole batches until at least `max_edges` positives are done or
+    /// the epoch ends (a batch is never split, so the result does not depend
+    /// on how the epoch is divided into calls).
+    pub fn run(&mut self, max_edges: usize) -> RunResult {
+        let m = self.graph.edges.len();
+        let mut done = 0;
+        if self.pos == 0 {
+            // Fisher-Yates shuffle of the epoch's order.
+            for i in (1..m).rev() {
+                let j = self.rng.below(i as u64 + 1) as usize;
+                self.order.swap(i, j);
+            }
+            self.loss_sum = 0.0;
+        }
+        while done < max_edges.max(1) && self.pos < m {
+            let end = (self.pos + self.p.batch_size).min(m);
+            self.loss_sum += self.batch(self.pos, end);
+            done += end - self.pos;
+            self.pos = end;
+        }
+        let mut epoch_loss = None;
+        if self.pos == m {
+            let l = self.loss_sum / m as f64;
+            self.losses.push(l);
+            epoch_loss = Some(l);
+            self.epoch += 1;
+            self.pos = 0;
+        }
+        RunResult { edges: done, epoch_loss }
+    }
+
+    /// One synchronous step over the positives `order[start..end]`; returns
+    /// the sum of their losses (fixed-order sum of fixed chunks).
+    fn batch(&mut self, start: usize, end: usize) -> f64 {
+        let lay = self.lay;
+        let dim = lay.dim;
+        let kslots = 2 + self.p.negatives;
+        let nb = end - start;
+        let ns = nb * kslots;
+        let lr = if self.epoch < self.p.burn_in {
+            self.p.learning_rate * self.p.burn_in_factor
+        } else {
+            self.p.learning_rate
+        };
+        if self.slot_node.len() < ns {
+            self.slot_node.resize(ns, NONE);
+            self.slot_grad.resize(ns * dim, 0.0);
+        }
+        let fast = has_fma();
+        let ctx = Ctx { lay, k: self.k, s: pair_scale(lay.model, &self.k), rec: &self.rec };
+        let graph = &self.graph;
+        let (seed, epoch) = (self.p.seed, self.epoch as u64);
+        // (A) gradients of every positive into its own slots
+        let chunk_loss: Vec<f64> = self.order[start..end]
+            .par_chunks(EDGE_CHUNK)
+            .zip(self.slot_node[..ns].par_chunks_mut(EDGE_CHUNK * kslots))
+            .zip(self.slot_grad[..ns * dim].par_chunks_mut(EDGE_CHUNK * kslots * dim))
+            .enumerate()
+            .map(|(ci, ((es, nodes), grads))| {
+                dispatch(
+                    fast,
+                    #[inline(always)]
+                    || {
+                        let mut work = vec![0.0; 2 * kslots];
+                        let mut loss = 0.0;
+                        for (j, &e) in es.iter().enumerate() {
+                            let pos = (start + ci * EDGE_CHUNK + j) as u64;
+                            let nd = &mut nodes[j * kslots..(j + 1) * kslots];
+                            let [u, v] = e;
+                            nd[0] = u;
+                            nd[1] = v;
+                            let c = graph.non_neighbours(u as usize);
+                            let mut st = Stream::new(seed, epoch, pos);
+                            for t in 2..kslots {
+                                nd[t] = if c == 0 {
+                                    NONE
+                                } else {
+                                    graph.kth_non_neighbour(u as usize, st.below(c as u64) as usize)
+                                };
+                            }
+                            let gs = &mut grads[j * kslots * dim..(j + 1) * kslots * dim];
+                            loss += positive_grads(&ctx, nd, gs, &mut work);
+                        }
+                        loss
+                    },
+                )
+            })
+            .collect();
+        let loss: f64 = chunk_loss.iter().sum();
+        // (B) group the slots by node, in slot order (counting sort)
+        self.serial = self.serial.wrapping_add(1);
+        if self.serial == 0 {
+            self.mark.iter_mut().for_each(|m| *m = 0);
+            self.serial = 1;
+        }
+        self.touched.clear();
+        self.offs.clear();
+        for &node in &self.slot_node[..ns] {
+            if node == NONE {
+                continue;
+            }
+            let i = node as usize;
+            if self.mark[i] != self.serial {
+                self.mark[i] = self.serial;
+                self.local[i] = self.touched.len() as u32;
+                self.touched.push(node);
+                self.offs.push(0);
+            }
+            self.offs[self.local[i] as usize] += 1;
+        }
+        // exclusive prefix sums, then place (offs[l] is the start of l's run)
+        let mut acc = 0u32;
+        for o in self.offs.iter_mut() {
+            let c = *o;
+            *o = acc;
+            acc += c;
+        }
+        self.offs.push(acc);
+        self.list.resize(acc as usize, 0);
+        {
+            let mut cur: Vec<u32> = self.offs.clone();
+            for (s, &node) in self.slot_node[..ns].iter().enumerate() {
+                if node == NONE {
+                    continue;
+                }
+                let l = self.local[node as usize] as usize;
+                self.list[cur[l] as usize] = s as u32;
+                cur[l] += 1;
+            }
+        }
+        // (C) one step per touched node
+        let w = lay.width();
+        let nt = self.touched.len();
+        self.new_rec.resize(nt * w, 0.0);
+        let k = self.k;
+        let (rec, touched, offs, list, slot_grad) = (&self.rec, &self.touched, &self.offs, &self.list, &self.slot_grad);
+        let halvings: usize = self.new_rec[..nt * w]
+            .par_chunks_mut(NODE_CHUNK * w)
+            .enumerate()
+            .map(|(ci, outs)| {
+                dispatch(
+                    fast,
+                    #[inline(always)]
+                    || {
+                        let mut gsum = vec![0.0; dim];
+                        let mut tmp = vec![0.0; 3 * dim + 1];
+                        let mut hv = 0;
+                        for (j, out) in outs.chunks_exact_mut(w).enumerate() {
+                            let l = ci * NODE_CHUNK + j;
+                            let node = touched[l] as usize;
+                            gsum.iter_mut().for_each(|g| *g = 0.0);
+                            for &s in &list[offs[l] as usize..offs[l + 1] as usize] {
+                                let g = &slot_grad[s as usize * dim..(s as usize + 1) * dim];
+                                for i in 0..dim {
+                                    gsum[i] += g[i];
+                                }
+                            }
+                            hv += step(&lay, &k, &rec[node * w..(node + 1) * w], &gsum, lr, out, &mut tmp);
+                        }
+                        hv
+                    },
+                )
+            })
+            .sum();
+        self.shortened += halvings as u64;
+        for (l, &node) in self.touched.iter().enumerate() {
+            let i = node as usize;
+            self.rec[i * w..(i + 1) * w].copy_from_slice(&self.new_rec[l * w..(l + 1) * w]);
+        }
+        loss
+    }
+}
+
+/// The loss of one positive `(u, targets[0])` with the given negatives
+/// `targets[1..]`, and the Riemannian gradient of that loss at every node
+/// of `[u, targets...]` (rows of `width` values: the ball gradient
+/// `(g^2/4) dL/dx`, or the hyperboloid tangent `(v0, v_s)`), computed by the
+/// training kernel itself. `points` is `(n, width)` in model coordinates;
+/// the nodes must be distinct.
+pub fn loss_and_gradient(
+    model: Model,
+    k: Curvature,
+    dim: usize,
+    points: &[f64],
+    u: usize,
+    targets: &[usize],
+) -> Result<(f64, Vec<f64>)> {
+    let lay = Layout::new(model, dim);
+    let ow = model.width(dim);
+    let w = lay.width();
+    let nodes: Vec<usize> = std::iter::once(u).chain(targets.iter().copied()).collect();
+    let n = points.len() / ow;
+    if targets.is_empty() {
+        return value_err("targets must hold the positive (and any negatives)");
+    }
+    for (j, &i) in nodes.iter().enumerate() {
+        if i >= n {
+            return value_err(format!("node {i} out of range"));
+        }
+        if nodes[..j].contains(&i) {
+            return value_err(format!("node {i} repeated"));
+        }
+    }
+    let mut rec = vec![0.0; nodes.len() * w];
+    for (j, &i) in nodes.iter().enumerate() {
+        lay.store(&k, &points[i * ow..(i + 1) * ow], &mut rec[j * w..(j + 1) * w])
+            .map_err(|f| Error::Value(format!("points: row {i} is not a valid point ({f:?})")))?;
+    }
+    let ctx = Ctx { lay, k, s: pair_scale(model, &k), rec: &rec };
+    let ids: Vec<u32> = (0..nodes.len() as u32).collect();
+    let mut grads = vec![0.0; nodes.len() * dim];
+    let mut work = vec![0.0; 2 * nodes.len()];
+    let loss = positive_grads(&ctx, &ids, &mut grads, &mut work);
+    let mut out = vec![0.0; nodes.len() * ow];
+    for j in 0..nodes.len() {
+        riemannian(&lay, &k, &rec[j * w..(j + 1) * w], &grads[j * dim..(j + 1) * dim], &mut out[j * ow..(j + 1) * ow]);
+    }
+    Ok((loss, out))
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn tree_closure(branch: usize, depth: usize) -> (usize, Vec<[i64; 2]>) {
+        // balanced tree, node 0 the root; closure pairs (descendant, ancestor)
+        let mut parent = vec![-1i64];
+        let mut level = vec![0usize];
+        for _ in 0..depth {
+            let mut next = Vec::new();
+            for &p in &level {
+                for _ in 0..branch {
+                    parent.push(p as i64);
+                    next.push(parent.len() - 1);
+                }
+            }
+            level = next;
+        }
+        let mut edges = Vec::new();
+        for i in 1..parent.len() {
+            let mut a = parent[i];
+            while a >= 0 {
+                edges.push([i as i64, a]);
+                a = parent[a as usize];
+            }
+        }
+        (parent.len(), edges)
+    }
+
+    #[test]
+    fn kth_non_neighbour_enumerates_the_complement() {
+        // reference: a direct scan of 0..n (common practice)
+        let edges = [[0i64, 3], [3, 5], [5, 0], [7, 3], [1, 3]];
+        let g = Graph::new(9, &edges, true).unwrap();
+        for u in 0..9 {
+            let ex = g.excluded(u);
+            let want: Vec<u32> = (0..9u32).filter(|w| !ex.contains(w)).collect();
+            assert_eq!(g.non_neighbours(u), want.len());
+            let got: Vec<u32> = (0..want.len()).map(|k| g.kth_non_neighbour(u, k)).collect();
+            assert_eq!(got, want, "node {u}");
+        }
+    }
+
+    #[test]
+    fn bad_edges_name_the_row() {
+        let e = Graph::new(4, &[[0, 1], [2, 2]], false).unwrap_err().to_string();
+        assert!(e.contains("row 1") && e.contains("self-loop"), "{e}");
+        let e = Graph::new(4, &[[0, 1], [1, 4]], false).unwrap_err().to_string();
+        assert!(e.contains("row 1") && e.contains("out of range"), "{e}");
+        let e = Graph::new(4, &[[-1, 1]], false).unwrap_err().to_string();
+        assert!(e.contains("row 0"), "{e}");
+        assert!(Graph::new(4, &[], false).is_err());
+    }
+
+    fn train(model: Model, threads: usize, epochs: usize) -> (Vec<f64>, Vec<f64>) {
+        let (n, edges) = tree_closure(3, 3);
+        let g = Graph::new(n, &edges, false).unwrap();
+        let p = Params {
+            dim: 3,
+            negatives: 8,
+            learning_rate: 0.5,
+            burn_in: 2,
+            batch_size: 7,
+            seed: 11,
+            ..Params::default()
+        };
+        let pool = rayon::ThreadPoolBuilder::new().num_threads(threads).build().unwrap();
+        pool.install(|| {
+            let mut t = Trainer::new(model, Curvature::new(-1.0).unwrap(), g, p).unwrap();
+            let mut losses = Vec::new();
+            while t.epoch() < epochs {
+                // uneven calls: batches are never split
+                if let Some(l) = t.run(5).epoch_loss {
+                    losses.push(l);
+                }
+            }
+            (t.points(), losses)
+        })
+    }
+
+    #[test]
+    fn one_and_two_threads_are_bit_identical() {
+        for model in [Model::Poincare, Model::Hyperboloid] {
+            let (p1, l1) = train(model, 1, 6);
+            let (p2, l2) = train(model, 2, 6);
+            assert_eq!(p1, p2);
+            assert_eq!(l1, l2);
+        }
+    }
+
+    #[test]
+    fn loss_decreases_and_models_agree() {
+        let (pp, lp) = train(Model::Poincare, 2, 30);
+        let (ph, lh) = train(Model::Hyperboloid, 2, 30);
+        assert!(lp[29] < 0.6 * lp[0], "{lp:?}");
+        // the same intrinsic steps from the same start: the hyperboloid's
+        // points map to the Poincaré ones (x_s/(1 + x0)) up to rounding
+        let n = pp.len() / 3;
+        let mut worst = 0.0f64;
+        for i in 0..n {
+            let x0 = ph[i * 4];
+            for j in 0..3 {
+                worst = worst.max((ph[i * 4 + 1 + j] / (1.0 + x0) - pp[i * 3 + j]).abs());
+            }
+        }
+        assert!(worst < 1e-6, "{worst}");
+        for (a, b) in lp.iter().zip(&lh) {
+            assert!((a - b).abs() < 1e-6 * a.abs().max(1.0));
+        }
+    }
+
+    #[test]
+    fn huge_steps_stay_inside() {
+        let (n, edges) = tree_closure(2, 4);
+        let g = Graph::new(n, &edges, false).unwrap();
+        for model in [Model::Poincare, Model::Hyperboloid] {
+            let p = Params { dim: 2, negatives: 5, learning_rate: 1e6, burn_in: 0, batch_size: 4, ..Params::default() };
+            let k = Curvature::new(-1.0).unwrap();
+            let mut t = Trainer::new(model, k, g.clone(), p).unwrap();
+            for _ in 0..3 {
+                t.run(usize::MAX);
+            }
+            let pts = t.points();
+            let w = t.width();
+            for r in pts.chunks_exact(w) {
+                if model == Model::Poincare {
+                    assert!(checked_gap(&k, r).is_ok(), "{r:?}");
+                } else {
+                    assert!(hyperboloid::read_point(&k, r).is_ok(), "{r:?}");
+                }
+            }
+            if model == Model::Poincare {
+                assert!(t.shortened() > 0);
+            }
+        }
+    }
+}
