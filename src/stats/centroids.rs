@@ -313,9 +313,20 @@ impl Stats {
     }
 
     /// Adds point `p` (gap `gp`, weight `wi > 0`) at the unit-ball point
-    /// `mu` (gap `gmu`); `y` is scratch of length d.
+    /// `mu` (gap `gmu`); `y` is scratch of length d. `dist`, if given, is
+    /// their unit-ball distance as the caller already has it (k-means'
+    /// assignment), saving the logarithm.
     #[inline(always)]
-    pub(crate) fn accumulate(&mut self, p: &[f64], gp: f64, wi: f64, mu: &[f64], gmu: f64, y: &mut [f64]) {
+    pub(crate) fn accumulate(
+        &mut self,
+        p: &[f64],
+        gp: f64,
+        wi: f64,
+        mu: &[f64],
+        gmu: f64,
+        dist: Option<f64>,
+        y: &mut [f64],
+    ) {
         let d = mu.len();
         let st = self;
         // y = (-mu) ⊕ p, its gap exact: g_mu g_p / D.
@@ -339,170 +350,25 @@ impl Stats {
             st.hscal += wi;
             return;
         }
-        let dist = dist_from_gap(t, gy);
-        let (c, fg, fh) = newton_terms(dist, t, t2);
+        // d = 2 artanh t, from the gap (fast compensated log1p).
+        let dist = match dist {
+            Some(v) => v,
+            None => log1p_fast(2.0 * t * (1.0 + t) / gy),
+        };
+        // d coth d with coth(2 artanh t) = (1 + t^2)/(2t): no exp.
+        let c = dist * (1.0 + t2) / (2.0 * t);
         st.f += wi * dist * dist;
         st.hscal += wi * c;
-        let fg = wi * fg;
+        let fg = wi * dist / t;
         for j in 0..d {
             st.grad[j] += fg * y[j];
         }
-        let fh = wi * fh;
+        let fh = wi * (1.0 - c) / t2;
         // Full outer product (vectorises better than a triangle).
         for (r, row) in st.hout.chunks_exact_mut(d).enumerate() {
             let yr = fh * y[r];
             for (o, &ys) in row.iter_mut().zip(y.iter()) {
                 *o = yr.mul_add(ys, *o);
-            }
-        }
-    }
-}
-
-/// The unit-ball distance `2 artanh t` of a point at Euclidean norm `t`
-/// from the origin, from its exact gap `gy = 1 - t^2`: `log1p(2t(1 + t)/gy)`
-/// (fast compensated log1p; no cancellation near the sphere).
-#[inline(always)]
-pub(crate) fn dist_from_gap(t: f64, gy: f64) -> f64 {
-    log1p_fast(2.0 * t * (1.0 + t) / gy)
-}
-
-/// A point's Newton terms at the origin from its log vector `y`'s norm `t`
-/// (`t2 = t^2`, `t > 0`) and its distance `dist = 2 artanh t`:
-/// `(c, fg, fh)` with `c = d coth d` (`coth(2 artanh t) = (1 + t^2)/(2t)`:
-/// no exp), `fg = d/t` (gradient `fg y`), `fh = (1 - c)/t^2` (Hessian
-/// `c I + fh y y^T`).
-#[inline(always)]
-pub(crate) fn newton_terms(dist: f64, t: f64, t2: f64) -> (f64, f64, f64) {
-    let c = dist * (1.0 + t2) / (2.0 * t);
-    (c, dist / t, (1.0 - c) / t2)
-}
-
-/// Scratch of [`Stats::gather_lanes`] for chunks of up to `len` points.
-pub(crate) struct LaneScratch {
-    ss: Vec<f64>,
-    a: Vec<f64>,
-    b: Vec<f64>,
-    gy: Vec<f64>,
-    t2: Vec<f64>,
-    ys: Vec<f64>,
-    ms: Vec<f64>,
-}
-
-impl LaneScratch {
-    pub(crate) fn new(len: usize, d: usize) -> LaneScratch {
-        let z = || vec![0f64; len];
-        LaneScratch { ss: z(), a: z(), b: z(), gy: z(), t2: z(), ys: vec![0f64; len * d], ms: vec![0f64; len * d] }
-    }
-}
-
-impl Stats {
-    /// Adds the points of one chunk, each to the statistics of its group
-    /// `lab[r]` at that group's unit-ball point (`mu` row-major `k x d`, gaps
-    /// `gmu`), unit weights; groups with `need[l]` false are skipped. The
-    /// chunk is transposed: `xs[t * len + r]` is coordinate `t` of point `r`,
-    /// so every loop but the last runs over points and vectorises (the
-    /// per-point form of [`Stats::accumulate`], whose formulas it shares).
-    /// `ss`, if given, holds each `|p - mu_l|^2` (summed in coordinate
-    /// order, as computed here) and `du` the unit-ball distances
-    /// (k-means' assignment has both).
-    #[allow(clippy::too_many_arguments)]
-    #[inline(always)]
-    pub(crate) fn gather_lanes(
-        sts: &mut [Stats],
-        xs: &[f64],
-        gp: &[f64],
-        lab: &[usize],
-        mu: &[f64],
-        gmu: &[f64],
-        ss: Option<&[f64]>,
-        du: Option<&[f64]>,
-        need: Option<&[bool]>,
-        sc: &mut LaneScratch,
-    ) {
-        let len = lab.len();
-        let d = xs.len() / len.max(1);
-        let gp = &gp[..len];
-        let LaneScratch { ss: ssb, a, b, gy, t2, ys, ms } = sc;
-        let (a, b, gy, t2) = (&mut a[..len], &mut b[..len], &mut gy[..len], &mut t2[..len]);
-        let (ys, ms) = (&mut ys[..len * d], &mut ms[..len * d]);
-        // Each point's centre, gathered once (labels are below k; the clamp
-        // only lets the loop run without bounds checks).
-        let (km, kg) = (mu.len() - 1, gmu.len() - 1);
-        for t in 0..d {
-            for (o, &l) in ms[t * len..(t + 1) * len].iter_mut().zip(lab) {
-                *o = mu[(l * d + t).min(km)];
-            }
-        }
-        for (o, &l) in gy.iter_mut().zip(lab) {
-            *o = gmu[l.min(kg)];
-        }
-        let ss = match ss {
-            Some(v) => &v[..len],
-            None => {
-                let s = &mut ssb[..len];
-                s.iter_mut().for_each(|v| *v = 0.0);
-                for t in 0..d {
-                    let (xt, mt) = (&xs[t * len..(t + 1) * len], &ms[t * len..(t + 1) * len]);
-                    for ((o, &x), &m) in s.iter_mut().zip(xt).zip(mt) {
-                        let u = x - m;
-                        *o = u.mul_add(u, *o);
-                    }
-                }
-                &ssb[..len]
-            }
-        };
-        // y = (-mu) ⊕ p = a (p - mu) - b mu with den = g_mu g_p + |p - mu|^2,
-        // a = g_mu/den, b = |p - mu|^2/den; its gap g_mu g_p/den (in `gy`,
-        // which held g_mu).
-        for r in 0..len {
-            let g = gy[r];
-            let den = g * gp[r] + ss[r];
-            a[r] = g / den;
-            b[r] = ss[r] / den;
-            gy[r] = g * gp[r] / den;
-            t2[r] = 0.0;
-        }
-        for t in 0..d {
-            let (xt, mt) = (&xs[t * len..(t + 1) * len], &ms[t * len..(t + 1) * len]);
-            let yt = &mut ys[t * len..(t + 1) * len];
-            for r in 0..len {
-                let y = a[r] * (xt[r] - mt[r]) - b[r] * mt[r];
-                yt[r] = y;
-                t2[r] += y * y;
-            }
-        }
-        // per-point terms: a <- c, b <- fg, gy <- fh, t2 <- d^2
-        let du = du.map(|v| &v[..len]);
-        for r in 0..len {
-            let t = t2[r].sqrt();
-            let dist = match du {
-                Some(v) => v[r],
-                None => dist_from_gap(t, gy[r]),
-            };
-            let (c, fg, fh) = newton_terms(dist, t, t2[r]);
-            let z = t == 0.0;
-            a[r] = if z { 1.0 } else { c };
-            b[r] = if z { 0.0 } else { fg };
-            gy[r] = if z { 0.0 } else { fh };
-            t2[r] = if z { 0.0 } else { dist * dist };
-        }
-        for r in 0..len {
-            let l = lab[r];
-            if need.is_some_and(|n| !n[l]) {
-                continue;
-            }
-            let st = &mut sts[l];
-            st.wsum += 1.0;
-            st.hscal += a[r];
-            st.f += t2[r];
-            for t in 0..d {
-                st.grad[t] += b[r] * ys[t * len + r];
-            }
-            for p in 0..d {
-                let yp = gy[r] * ys[p * len + r];
-                for q in 0..d {
-                    st.hout[p * d + q] = yp.mul_add(ys[q * len + r], st.hout[p * d + q]);
-                }
             }
         }
     }
@@ -524,7 +390,7 @@ pub(crate) fn stats(pts: &UnitPoints, idx: &[usize], w: Option<&[f64]>, mu: &[f6
                         if wi == 0.0 {
                             continue;
                         }
-                        st.accumulate(&pts.p[i * d..(i + 1) * d], pts.g[i], wi, mu, gmu, &mut y);
+                        st.accumulate(&pts.p[i * d..(i + 1) * d], pts.g[i], wi, mu, gmu, None, &mut y);
                     }
                     st
                 },

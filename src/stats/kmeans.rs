@@ -35,14 +35,14 @@ use std::collections::HashMap;
 
 use rayon::prelude::*;
 
-use super::centroids::{frechet_group, to_model, unit_points, LaneScratch, Newton, Stats, UnitPoints};
+use super::centroids::{frechet_group, to_model, unit_points, Newton, Stats, UnitPoints};
 use crate::batch::Data;
 use crate::error::{Error, Result};
 use crate::models::ball::{checked_gap, Curvature};
 use crate::models::Model;
 use crate::numeric::acosh1p2_fast;
 use crate::numeric::simd::{dispatch, has_fma};
-use crate::pairwise::{distance_from_h, scaled_h, seq_dist_sq};
+use crate::pairwise::{scaled_h, seq_dist_sq};
 
 /// Points per parallel chunk (fixed: results never depend on threads).
 const CHUNK: usize = 4096;
@@ -296,144 +296,96 @@ fn distinct(n: usize, k: usize, rng: &mut Rng) -> Vec<usize> {
 
 // ---------------------------------------------------------------- Lloyd
 
-/// The points of a fit in fixed chunks of [`CHUNK`], each chunk transposed
-/// (coordinate-major: `xs[t * len + r]` is coordinate `t` of the chunk's
-/// point `r`), so that the loops of a pass run over points and vectorise;
-/// with `1/g` per point. Built once per fit.
-struct Lanes {
-    xs: Vec<f64>,
-    ax: Vec<f64>,
-}
-
-impl Lanes {
-    fn new(pts: &UnitPoints) -> Lanes {
-        let (n, d) = (pts.n, pts.d);
-        let mut xs = vec![0f64; n * d];
-        xs.par_chunks_mut(CHUNK * d).enumerate().for_each(|(ci, out)| {
-            let len = out.len() / d;
-            let base = ci * CHUNK;
-            for t in 0..d {
-                for (r, o) in out[t * len..(t + 1) * len].iter_mut().enumerate() {
-                    *o = pts.p[(base + r) * d + t];
-                }
-            }
-        });
-        let ax = pts.g.par_iter().map(|g| 1.0 / g).collect();
-        Lanes { xs, ax }
-    }
-
-    /// Chunk `ci` (`len` points): transposed coordinates and `1/g`.
-    #[inline(always)]
-    fn chunk(&self, ci: usize, len: usize, d: usize) -> (&[f64], &[f64]) {
-        let b = ci * CHUNK;
-        (&self.xs[b * d..(b + len) * d], &self.ax[b..b + len])
-    }
-}
-
-/// Per-task scratch of a pass (reused across its chunks: every entry a
-/// chunk reads is written first).
-struct Scratch {
-    lanes: LaneScratch,
-    best: Vec<f64>,
-    bd2: Vec<f64>,
-    d2: Vec<f64>,
-}
-
-impl Scratch {
-    fn new(d: usize) -> Scratch {
-        let z = || vec![0f64; CHUNK];
-        Scratch { lanes: LaneScratch::new(CHUNK, d), best: z(), bd2: z(), d2: z() }
-    }
-}
-
-/// Per-cluster sums of the chunks, added in chunk order (deterministic).
-fn sum_stats(parts: impl Iterator<Item = Vec<Stats>>, k: usize, d: usize) -> Vec<Stats> {
-    let mut tot: Vec<Stats> = (0..k).map(|_| Stats::zero(d)).collect();
-    for p in parts {
-        tot.iter_mut().zip(&p).for_each(|(a, b)| a.add(b));
-    }
-    tot
-}
-
 /// Nearest centre (ties to the lower index) and its distance, per point;
 /// returns the inertia (fixed-chunk sums in order) and, with `gather`, each
 /// cluster's Newton statistics at its centre (the first pass of the next
-/// update, fused into this one: the assignment's `|x - c|^2` and distance
-/// serve both). Each pair's `|x - c|^2` is summed in coordinate order (as
-/// `seq_dist_sq`).
+/// update, done while the point is in cache). Each pair's `|x - c|^2` is
+/// summed in coordinate order (as `seq_dist_sq`).
 fn assign(
     pts: &UnitPoints,
-    lanes: &Lanes,
     cen: &Centres,
-    k: &Curvature,
+    radius: f64,
     labels: &mut [usize],
     dist: &mut [f64],
     gather: bool,
 ) -> (f64, Option<Vec<Stats>>) {
-    let nc = cen.a.len();
+    let k = cen.a.len();
     let d = pts.d;
     let parts: Vec<(f64, Vec<Stats>)> = labels
         .par_chunks_mut(CHUNK)
         .zip(dist.par_chunks_mut(CHUNK))
         .enumerate()
-        .map_init(
-            || Scratch::new(d),
-            |sc, (ci, (lc, dc))| {
-                dispatch(
-                    has_fma(),
-                    #[inline(always)]
-                    || {
-                        let len = lc.len();
-                        let (xs, ax) = lanes.chunk(ci, len, d);
-                        let ax = &ax[..len];
-                        let Scratch { lanes: lsc, best, bd2, d2 } = sc;
-                        let (best, bd2, d2) = (&mut best[..len], &mut bd2[..len], &mut d2[..len]);
-                        best.iter_mut().for_each(|v| *v = f64::INFINITY);
-                        // 1. nearest centre by h; ties to the lower index.
-                        lc.iter_mut().for_each(|v| *v = 0);
-                        for j in 0..nc {
-                            d2.iter_mut().for_each(|v| *v = 0.0);
-                            for t in 0..d {
-                                let c = cen.c[j * d + t];
-                                for (a, &xv) in d2.iter_mut().zip(&xs[t * len..(t + 1) * len]) {
-                                    let u = xv - c;
-                                    *a = u.mul_add(u, *a);
-                                }
+        .map(|(ci, (lc, dc))| {
+            dispatch(
+                has_fma(),
+                #[inline(always)]
+                || {
+                    let mut sts: Vec<Stats> =
+                        if gather { (0..k).map(|_| Stats::zero(d)).collect() } else { Vec::new() };
+                    let mut y = vec![0f64; d];
+                    let mut acc = vec![0f64; CHUNK];
+                    let mut xs: Vec<f64> = Vec::with_capacity(CHUNK * d);
+                    let mut ax: Vec<f64> = Vec::with_capacity(CHUNK);
+                    // 1. nearest centre by h (h kept in `dc` for now). The
+                    // chunk's points are transposed so that the loops run over
+                    // points (vectorised); each pair's sum is still in
+                    // coordinate order, the ties still to the lower index.
+                    let len = lc.len();
+                    let base = ci * CHUNK;
+                    xs.clear();
+                    for t in 0..d {
+                        xs.extend((0..len).map(|r| pts.p[(base + r) * d + t]));
+                    }
+                    ax.clear();
+                    ax.extend(pts.g[base..base + len].iter().map(|g| 1.0 / g));
+                    dc.iter_mut().for_each(|v| *v = f64::INFINITY);
+                    lc.iter_mut().for_each(|v| *v = 0);
+                    let d2 = &mut acc[..len];
+                    for j in 0..k {
+                        d2.iter_mut().for_each(|v| *v = 0.0);
+                        for t in 0..d {
+                            let c = cen.c[j * d + t];
+                            for (a, &xv) in d2.iter_mut().zip(&xs[t * len..(t + 1) * len]) {
+                                let u = xv - c;
+                                *a = u.mul_add(u, *a);
                             }
-                            let aj = cen.a[j];
-                            for (((b, e), l), (&a2, &axr)) in
-                                best.iter_mut().zip(bd2.iter_mut()).zip(lc.iter_mut()).zip(d2.iter().zip(ax))
-                            {
-                                let h = scaled_h(a2, axr, aj, 1.0);
-                                let m = h < *b;
-                                *b = if m { h } else { *b };
-                                *e = if m { a2 } else { *e };
-                                *l = if m { j } else { *l };
-                            }
                         }
-                        // 2. distances (the model's in `dc`, the unit ball's in `best`)
-                        let mut s = 0.0;
-                        for (b, dd) in best.iter_mut().zip(dc.iter_mut()) {
-                            *dd = distance_from_h(k, *b);
-                            *b = *dd * k.sqrt_kappa;
-                            s += *dd * *dd;
+                        let aj = cen.a[j];
+                        for (((b, l), &a2), &axr) in dc.iter_mut().zip(lc.iter_mut()).zip(d2.iter()).zip(ax.iter()) {
+                            let h = scaled_h(a2, axr, aj, 1.0);
+                            let m = h < *b;
+                            *b = if m { h } else { *b };
+                            *l = if m { j } else { *l };
                         }
-                        // 3. Newton statistics at the assigned centre
-                        let mut sts: Vec<Stats> = Vec::new();
-                        if gather {
-                            sts = (0..nc).map(|_| Stats::zero(d)).collect();
-                            let gp = &pts.g[ci * CHUNK..ci * CHUNK + len];
-                            Stats::gather_lanes(&mut sts, xs, gp, lc, &cen.c, &cen.g, Some(bd2), Some(best), None, lsc);
+                    }
+                    // 2. distances (a separate loop, so that it vectorises)
+                    for dd in dc.iter_mut() {
+                        *dd = radius * acosh1p2_fast(*dd);
+                    }
+                    let mut s = 0.0;
+                    for &dv in dc.iter() {
+                        s += dv * dv;
+                    }
+                    // 3. Newton statistics at the assigned centre
+                    if gather {
+                        for (r, (&l, &dv)) in lc.iter().zip(dc.iter()).enumerate() {
+                            let i = ci * CHUNK + r;
+                            let x = &pts.p[i * d..(i + 1) * d];
+                            sts[l].accumulate(x, pts.g[i], 1.0, cen.row(l), cen.g[l], Some(dv / radius), &mut y);
                         }
-                        (s, sts)
-                    },
-                )
-            },
-        )
+                    }
+                    (s, sts)
+                },
+            )
+        })
         .collect();
-    let inertia = parts.iter().map(|p| p.0).sum();
-    let sts = gather.then(|| sum_stats(parts.into_iter().map(|p| p.1), nc, d));
-    (inertia, sts)
+    let mut inertia = 0.0;
+    let mut tot: Vec<Stats> = if gather { (0..k).map(|_| Stats::zero(d)).collect() } else { Vec::new() };
+    for (s, sts) in &parts {
+        inertia += s;
+        tot.iter_mut().zip(sts).for_each(|(a, b)| a.add(b));
+    }
+    (inertia, if gather { Some(tot) } else { None })
 }
 
 /// The empty-cluster repair, in place (see the module docs).
@@ -478,53 +430,49 @@ fn members(labels: &[usize], k: usize) -> Vec<Vec<usize>> {
 
 /// Newton statistics of every cluster flagged in `need`, each at its own
 /// iterate, in one pass over the points (fixed chunks summed in order).
-fn multi_stats(pts: &UnitPoints, lanes: &Lanes, labels: &[usize], it: &[Newton], need: &[bool]) -> Vec<Stats> {
+fn multi_stats(pts: &UnitPoints, labels: &[usize], it: &[Newton], need: &[bool]) -> Vec<Stats> {
     let (k, d) = (it.len(), pts.d);
-    // (a finished iteration has given its point to `result`: its row is a
-    // placeholder, skipped through `need`)
-    let mut mu = vec![0f64; k * d];
-    let mut gmu = vec![1f64; k];
-    for (j, n) in it.iter().enumerate() {
-        if need[j] {
-            mu[j * d..(j + 1) * d].copy_from_slice(&n.mu);
-            gmu[j] = n.gmu;
-        }
-    }
     let parts: Vec<Vec<Stats>> = labels
         .par_chunks(CHUNK)
         .enumerate()
-        .map_init(
-            || LaneScratch::new(CHUNK, d),
-            |sc, (ci, lc)| {
-                dispatch(
-                    has_fma(),
-                    #[inline(always)]
-                    || {
-                        let len = lc.len();
-                        let mut sts: Vec<Stats> = (0..k).map(|_| Stats::zero(d)).collect();
-                        let (xs, _) = lanes.chunk(ci, len, d);
-                        let gp = &pts.g[ci * CHUNK..ci * CHUNK + len];
-                        Stats::gather_lanes(&mut sts, xs, gp, lc, &mu, &gmu, None, None, Some(need), sc);
-                        sts
-                    },
-                )
-            },
-        )
+        .map(|(ci, lc)| {
+            dispatch(
+                has_fma(),
+                #[inline(always)]
+                || {
+                    let mut sts: Vec<Stats> = (0..k).map(|_| Stats::zero(d)).collect();
+                    let mut y = vec![0f64; d];
+                    for (r, &l) in lc.iter().enumerate() {
+                        if need[l] {
+                            let i = ci * CHUNK + r;
+                            sts[l].accumulate(
+                                &pts.p[i * d..(i + 1) * d],
+                                pts.g[i],
+                                1.0,
+                                &it[l].mu,
+                                it[l].gmu,
+                                None,
+                                &mut y,
+                            );
+                        }
+                    }
+                    sts
+                },
+            )
+        })
         .collect();
-    sum_stats(parts.into_iter(), k, d)
+    let mut tot: Vec<Stats> = (0..k).map(|_| Stats::zero(d)).collect();
+    for p in &parts {
+        tot.iter_mut().zip(p).for_each(|(a, b)| a.add(b));
+    }
+    tot
 }
 
 /// The update step: every cluster's Fréchet mean by Newton's method started
 /// at its centre, all clusters advancing together so that each further
 /// round of statistics is one sequential pass over the points. `first`
 /// holds the statistics at the centres if the assignment pass gathered them.
-fn update(
-    pts: &UnitPoints,
-    lanes: &Lanes,
-    labels: &[usize],
-    cen: &Centres,
-    first: Option<Vec<Stats>>,
-) -> Vec<(Vec<f64>, f64)> {
+fn update(pts: &UnitPoints, labels: &[usize], cen: &Centres, first: Option<Vec<Stats>>) -> Vec<(Vec<f64>, f64)> {
     let k = cen.a.len();
     let mut it: Vec<Newton> = (0..k)
         .map(|j| Newton::new(cen.row(j).to_vec(), cen.g[j], CENTRE_TOL, CENTRE_MAX_ITER, INTERMEDIATE_LAST_STEP))
@@ -532,7 +480,7 @@ fn update(
     let mut need = vec![true; k];
     let mut st = match first {
         Some(s) => s,
-        None => multi_stats(pts, lanes, labels, &it, &need),
+        None => multi_stats(pts, labels, &it, &need),
     };
     loop {
         for j in 0..k {
@@ -545,7 +493,7 @@ fn update(
         if !need.iter().any(|&b| b) {
             break;
         }
-        st = multi_stats(pts, lanes, labels, &it, &need);
+        st = multi_stats(pts, labels, &it, &need);
     }
     it.into_iter()
         .enumerate()
@@ -564,29 +512,29 @@ struct Run {
     history: Vec<f64>,
 }
 
-fn lloyd(pts: &UnitPoints, lanes: &Lanes, mut cen: Centres, p: &Params, k: &Curvature) -> Run {
-    let nc = cen.a.len();
+fn lloyd(pts: &UnitPoints, mut cen: Centres, p: &Params, radius: f64) -> Run {
+    let k = cen.a.len();
     let mut labels = vec![0usize; pts.n];
     let mut dist = vec![0f64; pts.n];
     let mut new_labels = vec![0usize; pts.n];
     let mut labels_used = vec![0usize; pts.n];
-    let (inertia0, mut gathered) = assign(pts, lanes, &cen, k, &mut labels, &mut dist, true);
+    let (inertia0, mut gathered) = assign(pts, &cen, radius, &mut labels, &mut dist, true);
     let mut history = vec![inertia0];
     let mut n_iter = 0;
     for _ in 0..p.max_iter {
         if repair(pts, &mut labels, &mut dist, &mut cen) {
             gathered = None; // clusters and centres changed: statistics from scratch
         }
-        let means = update(pts, lanes, &labels, &cen, gathered.take());
+        let means = update(pts, &labels, &cen, gathered.take());
         let mut shift = 0.0;
         for (j, (mu, g)) in means.iter().enumerate() {
             let a = 1.0 / cen.g[j];
             let h = scaled_h(seq_dist_sq(cen.row(j), mu), a, 1.0 / g, 1.0);
-            shift += distance_from_h(k, h);
+            shift += radius * acosh1p2_fast(h);
             cen.set(j, mu, *g);
         }
         n_iter += 1;
-        let (inertia, g) = assign(pts, lanes, &cen, k, &mut new_labels, &mut dist, true);
+        let (inertia, g) = assign(pts, &cen, radius, &mut new_labels, &mut dist, true);
         gathered = g;
         history.push(inertia);
         let unchanged = new_labels == labels;
@@ -602,7 +550,7 @@ fn lloyd(pts: &UnitPoints, lanes: &Lanes, mut cen: Centres, p: &Params, k: &Curv
     // those labels computes them (the warm starts only save iterations).
     // So a centre depends on its members alone, and runs that end with the
     // same clusters (labels permuted) report the same inertia.
-    let groups = members(&labels_used, nc);
+    let groups = members(&labels_used, k);
     let means: Vec<Option<(Vec<f64>, f64)>> = groups
         .par_iter()
         .map(|idx| {
@@ -617,7 +565,7 @@ fn lloyd(pts: &UnitPoints, lanes: &Lanes, mut cen: Centres, p: &Params, k: &Curv
             cen.set(j, &mu, g);
         }
     }
-    let inertia = assign(pts, lanes, &cen, k, &mut labels, &mut dist, false).0;
+    let inertia = assign(pts, &cen, radius, &mut labels, &mut dist, false).0;
     *history.last_mut().expect("one assignment") = inertia;
     Run { cen, labels, inertia, n_iter, history }
 }
@@ -674,7 +622,6 @@ pub fn fit(model: Model, k: Curvature, x: &Data, init: Init, seeds: &[u64], p: &
         return Err(Error::Value("n_init must be >= 1 (no seeds given)".into()));
     }
     let runs = if given.is_some() { 1 } else { seeds.len() };
-    let lanes = Lanes::new(&pts);
     let mut best: Option<Run> = None;
     for r in 0..runs {
         let cen = match &given {
@@ -692,7 +639,7 @@ pub fn fit(model: Model, k: Curvature, x: &Data, init: Init, seeds: &[u64], p: &
                 cen
             }
         };
-        let run = lloyd(&pts, &lanes, cen, p, &k);
+        let run = lloyd(&pts, cen, p, k.radius);
         if best.as_ref().map_or(true, |b| run.inertia < b.inertia) {
             best = Some(run);
         }
