@@ -42,7 +42,7 @@ use crate::models::ball::{checked_gap, Curvature};
 use crate::models::Model;
 use crate::numeric::acosh1p2_fast;
 use crate::numeric::simd::{dispatch, has_fma};
-use crate::pairwise::{scaled_h, seq_dist_sq};
+use crate::pairwise::{distance_from_h, scaled_h, seq_dist_sq};
 
 /// Points per parallel chunk (fixed: results never depend on threads).
 const CHUNK: usize = 4096;
@@ -304,12 +304,12 @@ fn distinct(n: usize, k: usize, rng: &mut Rng) -> Vec<usize> {
 fn assign(
     pts: &UnitPoints,
     cen: &Centres,
-    radius: f64,
+    k: &Curvature,
     labels: &mut [usize],
     dist: &mut [f64],
     gather: bool,
 ) -> (f64, Option<Vec<Stats>>) {
-    let k = cen.a.len();
+    let nc = cen.a.len();
     let d = pts.d;
     let parts: Vec<(f64, Vec<Stats>)> = labels
         .par_chunks_mut(CHUNK)
@@ -321,7 +321,7 @@ fn assign(
                 #[inline(always)]
                 || {
                     let mut sts: Vec<Stats> =
-                        if gather { (0..k).map(|_| Stats::zero(d)).collect() } else { Vec::new() };
+                        if gather { (0..nc).map(|_| Stats::zero(d)).collect() } else { Vec::new() };
                     let mut y = vec![0f64; d];
                     let mut acc = vec![0f64; CHUNK];
                     let mut xs: Vec<f64> = Vec::with_capacity(CHUNK * d);
@@ -341,7 +341,7 @@ fn assign(
                     dc.iter_mut().for_each(|v| *v = f64::INFINITY);
                     lc.iter_mut().for_each(|v| *v = 0);
                     let d2 = &mut acc[..len];
-                    for j in 0..k {
+                    for j in 0..nc {
                         d2.iter_mut().for_each(|v| *v = 0.0);
                         for t in 0..d {
                             let c = cen.c[j * d + t];
@@ -360,7 +360,7 @@ fn assign(
                     }
                     // 2. distances (a separate loop, so that it vectorises)
                     for dd in dc.iter_mut() {
-                        *dd = radius * acosh1p2_fast(*dd);
+                        *dd = distance_from_h(k, *dd);
                     }
                     let mut s = 0.0;
                     for &dv in dc.iter() {
@@ -371,7 +371,7 @@ fn assign(
                         for (r, (&l, &dv)) in lc.iter().zip(dc.iter()).enumerate() {
                             let i = ci * CHUNK + r;
                             let x = &pts.p[i * d..(i + 1) * d];
-                            sts[l].accumulate(x, pts.g[i], 1.0, cen.row(l), cen.g[l], Some(dv / radius), &mut y);
+                            sts[l].accumulate(x, pts.g[i], 1.0, cen.row(l), cen.g[l], Some(dv / k.radius), &mut y);
                         }
                     }
                     (s, sts)
@@ -380,7 +380,7 @@ fn assign(
         })
         .collect();
     let mut inertia = 0.0;
-    let mut tot: Vec<Stats> = if gather { (0..k).map(|_| Stats::zero(d)).collect() } else { Vec::new() };
+    let mut tot: Vec<Stats> = if gather { (0..nc).map(|_| Stats::zero(d)).collect() } else { Vec::new() };
     for (s, sts) in &parts {
         inertia += s;
         tot.iter_mut().zip(sts).for_each(|(a, b)| a.add(b));
@@ -512,13 +512,13 @@ struct Run {
     history: Vec<f64>,
 }
 
-fn lloyd(pts: &UnitPoints, mut cen: Centres, p: &Params, radius: f64) -> Run {
-    let k = cen.a.len();
+fn lloyd(pts: &UnitPoints, mut cen: Centres, p: &Params, k: &Curvature) -> Run {
+    let nc = cen.a.len();
     let mut labels = vec![0usize; pts.n];
     let mut dist = vec![0f64; pts.n];
     let mut new_labels = vec![0usize; pts.n];
     let mut labels_used = vec![0usize; pts.n];
-    let (inertia0, mut gathered) = assign(pts, &cen, radius, &mut labels, &mut dist, true);
+    let (inertia0, mut gathered) = assign(pts, &cen, k, &mut labels, &mut dist, true);
     let mut history = vec![inertia0];
     let mut n_iter = 0;
     for _ in 0..p.max_iter {
@@ -530,11 +530,11 @@ fn lloyd(pts: &UnitPoints, mut cen: Centres, p: &Params, radius: f64) -> Run {
         for (j, (mu, g)) in means.iter().enumerate() {
             let a = 1.0 / cen.g[j];
             let h = scaled_h(seq_dist_sq(cen.row(j), mu), a, 1.0 / g, 1.0);
-            shift += radius * acosh1p2_fast(h);
+            shift += distance_from_h(k, h);
             cen.set(j, mu, *g);
         }
         n_iter += 1;
-        let (inertia, g) = assign(pts, &cen, radius, &mut new_labels, &mut dist, true);
+        let (inertia, g) = assign(pts, &cen, k, &mut new_labels, &mut dist, true);
         gathered = g;
         history.push(inertia);
         let unchanged = new_labels == labels;
@@ -550,7 +550,7 @@ fn lloyd(pts: &UnitPoints, mut cen: Centres, p: &Params, radius: f64) -> Run {
     // those labels computes them (the warm starts only save iterations).
     // So a centre depends on its members alone, and runs that end with the
     // same clusters (labels permuted) report the same inertia.
-    let groups = members(&labels_used, k);
+    let groups = members(&labels_used, nc);
     let means: Vec<Option<(Vec<f64>, f64)>> = groups
         .par_iter()
         .map(|idx| {
@@ -565,7 +565,7 @@ fn lloyd(pts: &UnitPoints, mut cen: Centres, p: &Params, radius: f64) -> Run {
             cen.set(j, &mu, g);
         }
     }
-    let inertia = assign(pts, &cen, radius, &mut labels, &mut dist, false).0;
+    let inertia = assign(pts, &cen, k, &mut labels, &mut dist, false).0;
     *history.last_mut().expect("one assignment") = inertia;
     Run { cen, labels, inertia, n_iter, history }
 }
@@ -639,7 +639,7 @@ pub fn fit(model: Model, k: Curvature, x: &Data, init: Init, seeds: &[u64], p: &
                 cen
             }
         };
-        let run = lloyd(&pts, cen, p, k.radius);
+        let run = lloyd(&pts, cen, p, &k);
         if best.as_ref().map_or(true, |b| run.inertia < b.inertia) {
             best = Some(run);
         }
