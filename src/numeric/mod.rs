@@ -8,6 +8,7 @@
 //! which goes to zero at the boundary.
 
 pub mod simd;
+pub mod rng;
 
 /// Error-free sum (Knuth's TwoSum): `a + b = s + e` exactly.
 #[inline(always)]
