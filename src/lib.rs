@@ -19,8 +19,10 @@ pub mod metrics;
 pub mod models;
 pub mod numeric;
 pub mod pairwise;
+pub mod random;
 pub mod relativity;
 pub mod stats;
+pub mod trig;
 
 pub use error::{Error, Result};
 pub use models::ball::Curvature;

@@ -13,7 +13,9 @@ mod index;
 mod kmeans;
 mod models;
 mod neighbors;
+mod random;
 mod relativity;
+mod trig;
 
 impl From<Error> for PyErr {
     fn from(e: Error) -> PyErr {
@@ -32,7 +34,9 @@ fn _native(m: &Bound<'_, PyModule>) -> PyResult<()> {
     index::register(m)?;
     kmeans::register(m)?;
     neighbors::register(m)?;
+    random::register(m)?;
     relativity::register(m)?;
+    trig::register(m)?;
     m.add("__version__", env!("CARGO_PKG_VERSION"))?;
     Ok(())
 }
