@@ -95,14 +95,11 @@ impl Rng {
         }
     }
 
-    /// A standard normal variate (Marsaglia's polar method: a uniform point
-    /// of the unit disk, accepted with probability pi/4, gives two
-    /// independent normals `u sqrt(-2 ln s / s)`, `v sqrt(-2 ln s / s)`).
+    /// A pair of independent standard normals (Marsaglia's polar method: a
+    /// uniform point `(u, v)` of the unit disk, accepted with probability
+    /// pi/4, gives `(u, v) sqrt(-2 ln s / s)`, `s = u^2 + v^2`).
     #[inline(always)]
-    pub fn normal(&mut self) -> f64 {
-        if let Some(z) = self.spare.take() {
-            return z;
-        }
+    pub fn normal_pair(&mut self) -> (f64, f64) {
         loop {
             // Uniform in [-1, 1) from the top 53 bits.
             let u = (self.next_u64() >> 11) as f64 * (2.0 / 9007199254740992.0) - 1.0;
@@ -110,17 +107,35 @@ impl Rng {
             let s = u * u + v * v;
             if s < 1.0 && s > 0.0 {
                 let f = (-2.0 * s.ln() / s).sqrt();
-                self.spare = Some(v * f);
-                return u * f;
+                return (u * f, v * f);
             }
         }
     }
 
-    /// Fills `out` with standard normals.
+    /// A standard normal variate (the second of each polar pair is kept for
+    /// the next call).
+    #[inline(always)]
+    pub fn normal(&mut self) -> f64 {
+        if let Some(z) = self.spare.take() {
+            return z;
+        }
+        let (a, b) = self.normal_pair();
+        self.spare = Some(b);
+        a
+    }
+
+    /// Fills `out` with standard normals, two per polar pair (an odd last
+    /// one through [`Rng::normal`]).
     #[inline(always)]
     pub fn fill_normal(&mut self, out: &mut [f64]) {
-        for o in out.iter_mut() {
-            *o = self.normal();
+        let mut it = out.chunks_exact_mut(2);
+        for p in &mut it {
+            let (a, b) = self.normal_pair();
+            p[0] = a;
+            p[1] = b;
+        }
+        if let [last] = it.into_remainder() {
+            *last = self.normal();
         }
     }
 }
