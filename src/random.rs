@@ -51,7 +51,7 @@ use crate::batch::{map_rows_with, scalar_core, Data, Operand, Output};
 use crate::error::{row_error, value_err, Error, Fault, Result, RowFault};
 use crate::models::ball::{settle, Curvature};
 use crate::models::convert::{from_hub, to_hub};
-use crate::models::{hyperboloid, poincare, Model};
+use crate::models::{halfspace, hyperboloid, poincare, Model};
 use crate::numeric::rng::{streams, Rng};
 use crate::numeric::{artanh_from_gap, sech2, sumsq, with_scratch};
 
@@ -165,6 +165,10 @@ fn emit(model: Model, k: &Curvature, p: &[f64], g: f64, out: &mut [f64]) -> std:
             if model == Model::Hyperboloid && sumsq(&out[1..]) > hyperboloid::MAX_SPATIAL_SQ {
                 return Err(Fault::ResultBeyondRange);
             }
+            if model == Model::HalfSpace {
+                // the range every half-space function reads
+                halfspace::read_point(out)?;
+            }
         }
     }
     Ok(())
@@ -195,9 +199,14 @@ fn sample_rows<F>(
 where
     F: Fn(&mut Rng, &mut [f64]) -> std::result::Result<(), (usize, Fault)> + Sync,
 {
+    let total = n.checked_mul(w).filter(|&t| t <= isize::MAX as usize / 8);
+    let mut out: Vec<f64> = Vec::new();
+    if total.is_none_or(|t| out.try_reserve_exact(t).is_err()) {
+        return value_err(format!("size is too large: {n} samples of {w} coordinates do not fit in memory"));
+    }
+    out.resize(n * w, 0.0);
     let nchunks = n.div_ceil(CHUNK);
     let rngs = streams(seed, nchunks);
-    let mut out = vec![0f64; n * w];
     let faults: Vec<Option<(usize, Fault)>> = if w == 0 || n == 0 {
         Vec::new()
     } else {

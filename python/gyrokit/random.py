@@ -43,8 +43,12 @@ def _seed64(seed: Any) -> int:
 
 def _size(size: Any) -> Tuple[int, ...]:
     if isinstance(size, tuple):
-        return tuple(_args.count("size", s, 0) for s in size)
-    return (_args.count("size", size, 0),)
+        shape = tuple(_args.count("size", s, 0) for s in size)
+    else:
+        shape = (_args.count("size", size, 0),)
+    if math.prod(shape) > _args.INT_MAX:
+        raise ValueError(f"size {shape} is too large")
+    return shape
 
 
 def _model(model: Any) -> str:
@@ -145,7 +149,8 @@ def uniform_ball(
     inversion), for any radius and dimension. Result: float64, shape
     ``size + (w,)`` with ``w = dim + 1`` on the hyperboloid, ``dim``
     otherwise. The Poincaré ball holds radii up to about 37 R (Klein 18 R,
-    hyperboloid about 173 R, half-space 170 R); beyond, a ``ValueError``.
+    hyperboloid spatial coordinates up to 2^250, half-space coordinates within
+    2^-250..2^250, both about 173 R when R = 1); beyond, a ``ValueError``.
     """
     m = _model(model)
     shape = _size(size)

@@ -93,6 +93,12 @@ def valid_call(name: str, fn, module: str):
         "gyrokit.KMeans": ((), {"n_clusters": 3, "n_init": 1, "random_state": 0}),
         "gyrokit.NeighborIndex": ((BALL,), {}),
         "hyperboloid.inner": ((HYP, HYP[::-1].copy()), {}),
+        "poincare.angle": ((BALL, BALL2 * 0.5, np.roll(BALL, 1, axis=0) * 0.7), {}),
+        "klein.angle": ((BALL, BALL2 * 0.5, np.roll(BALL, 1, axis=0) * 0.7), {}),
+        "gyrokit.triangle": ((BALL, BALL2 * 0.5, np.roll(BALL, 1, axis=0) * 0.7), {}),
+        "random.wrapped_normal": ((BALL[0], 0.3), {"size": 100, "seed": 0}),
+        "random.wrapped_normal_logpdf": ((BALL, BALL[0], 0.3), {}),
+        "random.uniform_ball": ((1.0,), {"size": 100, "dim": 3, "seed": 0}),
     }
     if name in special:
         return special[name]

@@ -239,6 +239,8 @@ def test_errors():
         gk.random.wrapped_normal_logpdf([[0.0, 0.0, 0.0]], [0.1, 0.2], 1.0)
     with pytest.raises(ValueError, match="hyperboloid"):
         gk.random.uniform_ball(60.0, 100, 2, seed=1)
+    with pytest.raises(ValueError, match="half-space range"):
+        gk.random.uniform_ball(200.0, 100, 2, model="halfspace", seed=1)
     with pytest.raises(ValueError, match="radius"):
         gk.random.uniform_ball(-1.0, 10, 2)
     with pytest.raises(ValueError, match="dim"):
