@@ -201,7 +201,7 @@ where
 {
     let total = n.checked_mul(w).filter(|&t| t <= isize::MAX as usize / 8);
     let mut out: Vec<f64> = Vec::new();
-    if total.is_none_or(|t| out.try_reserve_exact(t).is_err()) {
+    if total.map_or(true, |t| out.try_reserve_exact(t).is_err()) {
         return value_err(format!("size is too large: {n} samples of {w} coordinates do not fit in memory"));
     }
     out.resize(n * w, 0.0);
