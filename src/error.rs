@@ -61,6 +61,9 @@ pub enum Fault {
     /// than the output dtype resolves; carries the model name and whether
     /// the output is float32.
     BeyondBall(&'static str, bool),
+    /// A vertex that coincides with the vertex named (an angle there is
+    /// undefined).
+    Coincident(&'static str),
 }
 
 /// What a ball model cannot hold, written once for every message about it
@@ -126,6 +129,9 @@ impl Fault {
                 ball_range_text(m, f32),
                 if f32 { ", and float64 inputs give float64 results, which reach twice as far" } else { "" }
             ),
+            Fault::Coincident(other) => {
+                format!("coincides with {other}: the angle between them is undefined")
+            }
             Fault::NotInHalfSpace => "has last coordinate <= 0 (outside the upper half-space)".to_string(),
             Fault::BeyondHalfSpaceRange => "lies beyond the half-space range: coordinates must be at most 2^250 \
                  (about 1.8e75) in magnitude and the last one at least 2^-250 (about 5.5e-76), so that \

@@ -19,9 +19,11 @@ pub mod metrics;
 pub mod models;
 pub mod numeric;
 pub mod pairwise;
+pub mod random;
 pub mod relativity;
 pub mod stats;
 pub mod tree;
+pub mod trig;
 
 pub use error::{Error, Result};
 pub use models::ball::Curvature;

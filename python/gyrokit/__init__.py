@@ -16,6 +16,8 @@ Submodules:
     The hyperboloid (Lorentz) model, points ``(..., d + 1)``.
 ``gyrokit.halfspace``
     The upper half-space model.
+``gyrokit.random``
+    Sampling: the wrapped normal distribution, uniform points in a ball.
 ``gyrokit.relativity``
     Relativistic velocities in physical units (Einstein addition, Thomas
     rotation, boosts, precession).
@@ -28,8 +30,9 @@ from __future__ import annotations
 
 from typing import Any
 
-from . import embed, halfspace, hyperboloid, klein, metrics, plot, poincare, relativity
+from . import embed, halfspace, hyperboloid, klein, metrics, plot, poincare, random, relativity
 from .pga import PrincipalGeodesicAnalysis
+from ._trig import Triangle, triangle
 from .neighbors import condensed_distances, distance_matrix, knn, radius_neighbors
 from ._index import NeighborIndex
 from .kmeans import KMeans, UnfittedError
@@ -74,6 +77,6 @@ __all__ = [
     "poincare", "klein", "hyperboloid", "halfspace", "relativity", "embed", "metrics", "plot", "convert", "MODELS",
     "distance_matrix", "condensed_distances", "knn", "radius_neighbors",
     "NeighborIndex", "KMeans", "PrincipalGeodesicAnalysis", "UnfittedError", "frechet_mean", "einstein_midpoint", "frechet_variance", "FrechetMean",
-    "FrechetVariance", "ConvergenceWarning", "RimClipWarning",
+    "FrechetVariance", "ConvergenceWarning", "RimClipWarning", "random", "triangle", "Triangle",
     "__version__",
 ]

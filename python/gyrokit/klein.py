@@ -29,7 +29,7 @@ from ._native import RimClipWarning
 __all__ = [
     "add", "sub", "scale", "gyration", "midpoint",
     "distance", "exp_map", "log_map", "transport", "geodesic", "project",
-    "RimClipWarning",
+    "angle", "RimClipWarning",
 ]
 
 
@@ -178,3 +178,18 @@ def geodesic(x: Any, y: Any, t: Any, *, curvature: float = -1.0, on_rim: str = "
 def project(x: Any, margin: float = 1e-12, *, curvature: float = -1.0) -> Any:
     """Explicit repair into the ball of radius ``(1 - margin) R``; see :func:`gyrokit.poincare.project`."""
     return _native.klein_project(x, margin, curvature)
+
+
+def angle(a: Any, b: Any, c: Any, *, curvature: float = -1.0) -> Any:
+    """The gyroangle at ``b`` between ``⊖b⊕a`` and ``⊖b⊕c`` (Einstein), in ``[0, π]``.
+
+    Signature ``(..., d), (..., d), (..., d) -> (...)``. The Einstein gyrovectors are the Möbius ones of the Poincaré images
+    scaled along their own directions, so this is the hyperbolic angle of the
+    triangle at ``b`` too (the Klein model is not conformal: the Euclidean
+    angle at ``b`` itself differs).
+    Computed as ``atan2(|u ∧ w|, u.w)`` from the exact gyrovectors (wedge
+    from error-free 2x2 minors), so angles near 0 and π, nearly coincident
+    points and points near the sphere keep their digits. ``a`` or ``c``
+    equal to ``b`` raises ``ValueError`` (the angle is undefined).
+    """
+    return _native.klein_angle(a, b, c, curvature)

@@ -43,7 +43,7 @@ from ._native import RimClipWarning
 __all__ = [
     "add", "sub", "coadd", "scale", "gyration", "midpoint",
     "distance", "exp_map", "log_map", "transport", "geodesic", "project", "matvec",
-    "RimClipWarning",
+    "angle", "RimClipWarning",
 ]
 
 
@@ -229,3 +229,17 @@ def matvec(m: Any, x: Any, *, curvature: float = -1.0, on_rim: str = "raise") ->
     :class:`RimClipWarning`; see *the rim* in the module notes.
     """
     return _native.poincare_matvec(m, x, curvature, on_rim)
+
+
+def angle(a: Any, b: Any, c: Any, *, curvature: float = -1.0) -> Any:
+    """The gyroangle at ``b`` between ``⊖b⊕a`` and ``⊖b⊕c`` (Möbius), in ``[0, π]``.
+
+    Signature ``(..., d), (..., d), (..., d) -> (...)``. In the Poincaré ball this is the Euclidean angle between the two
+    gyrovectors, and the hyperbolic angle of the triangle at ``b`` (the model
+    is conformal).
+    Computed as ``atan2(|u ∧ w|, u.w)`` from the exact gyrovectors (wedge
+    from error-free 2x2 minors), so angles near 0 and π, nearly coincident
+    points and points near the sphere keep their digits. ``a`` or ``c``
+    equal to ``b`` raises ``ValueError`` (the angle is undefined).
+    """
+    return _native.poincare_angle(a, b, c, curvature)

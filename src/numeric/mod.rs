@@ -7,6 +7,7 @@
 //! `R = 1/sqrt(kappa)`; the *gap* of a ball point is `g = 1 - kappa |x|^2`,
 //! which goes to zero at the boundary.
 
+pub mod rng;
 pub mod simd;
 
 /// Error-free sum (Knuth's TwoSum): `a + b = s + e` exactly.

@@ -17,7 +17,9 @@ mod metrics;
 mod models;
 mod neighbors;
 mod partial;
+mod random;
 mod relativity;
+mod trig;
 
 impl From<Error> for PyErr {
     fn from(e: Error) -> PyErr {
@@ -40,7 +42,9 @@ fn _native(m: &Bound<'_, PyModule>) -> PyResult<()> {
     metrics::register(m)?;
     neighbors::register(m)?;
     partial::register(m)?;
+    random::register(m)?;
     relativity::register(m)?;
+    trig::register(m)?;
     m.add("__version__", env!("CARGO_PKG_VERSION"))?;
     Ok(())
 }

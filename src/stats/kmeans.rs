@@ -57,61 +57,9 @@ const CENTRE_MAX_ITER: usize = 50;
 /// final centres are recomputed in full.
 const INTERMEDIATE_LAST_STEP: f64 = 1e-5;
 
-/// The pseudo-random generator of the seeding: xoshiro256** (Blackman and
-/// Vigna, "Scrambled linear pseudorandom number generators", 2018), its
-/// state filled from the 64-bit seed by SplitMix64 (Steele, Lea and Flood
-/// 2014), as the authors recommend. Uniform floats are the top 53 bits times
-/// 2^-53, in [0, 1); uniform integers below `m` use Lemire's multiply-shift
-/// with rejection (unbiased).
-#[derive(Clone, Debug)]
-pub struct Rng {
-    s: [u64; 4],
-}
-
-/// One SplitMix64 step.
-pub fn splitmix64(state: &mut u64) -> u64 {
-    *state = state.wrapping_add(0x9e37_79b9_7f4a_7c15);
-    let mut z = *state;
-    z = (z ^ (z >> 30)).wrapping_mul(0xbf58_476d_1ce4_e5b9);
-    z = (z ^ (z >> 27)).wrapping_mul(0x94d0_49bb_1331_11eb);
-    z ^ (z >> 31)
-}
-
-impl Rng {
-    pub fn new(seed: u64) -> Rng {
-        let mut st = seed;
-        Rng { s: [splitmix64(&mut st), splitmix64(&mut st), splitmix64(&mut st), splitmix64(&mut st)] }
-    }
-
-    pub fn next_u64(&mut self) -> u64 {
-        let s = &mut self.s;
-        let result = s[1].wrapping_mul(5).rotate_left(7).wrapping_mul(9);
-        let t = s[1] << 17;
-        s[2] ^= s[0];
-        s[3] ^= s[1];
-        s[1] ^= s[2];
-        s[0] ^= s[3];
-        s[2] ^= t;
-        s[3] = s[3].rotate_left(45);
-        result
-    }
-
-    /// Uniform in [0, 1).
-    pub fn uniform(&mut self) -> f64 {
-        (self.next_u64() >> 11) as f64 * (1.0 / 9007199254740992.0)
-    }
-
-    /// Uniform in `0..m` (`m >= 1`).
-    pub fn below(&mut self, m: u64) -> u64 {
-        let threshold = m.wrapping_neg() % m;
-        loop {
-            let p = u128::from(self.next_u64()) * u128::from(m);
-            if (p as u64) >= threshold {
-                return (p >> 64) as u64;
-            }
-        }
-    }
-}
+/// The pseudo-random generator of the seeding: xoshiro256** seeded by
+/// SplitMix64 (`numeric::rng`).
+pub use crate::numeric::rng::{splitmix64, Rng};
 
 /// How a run's first centres are chosen.
 pub enum Init<'a> {

@@ -104,6 +104,12 @@ def valid_call(name: str, fn, module: str):
         "metrics.reconstruction": ((BALL, np.column_stack([np.arange(N - 1), np.arange(1, N)])), {}),
         "metrics.distortion": ((BALL, 2.0 * gk.distance_matrix(BALL)), {}),
         "embed.from_distances": ((gk.distance_matrix(HYP, model="hyperboloid"), 3), {}),
+        "poincare.angle": ((BALL, BALL2 * 0.5, np.roll(BALL, 1, axis=0) * 0.7), {}),
+        "klein.angle": ((BALL, BALL2 * 0.5, np.roll(BALL, 1, axis=0) * 0.7), {}),
+        "gyrokit.triangle": ((BALL, BALL2 * 0.5, np.roll(BALL, 1, axis=0) * 0.7), {}),
+        "random.wrapped_normal": ((BALL[0], 0.3), {"size": 100, "seed": 0}),
+        "random.wrapped_normal_logpdf": ((BALL, BALL[0], 0.3), {}),
+        "random.uniform_ball": ((1.0,), {"size": 100, "dim": 3, "seed": 0}),
     }
     if name in special:
         return special[name]
