@@ -1,4 +1,4 @@
 //! Getting data into hyperbolic space: combinatorial tree embedding,
 //! hyperbolic multidimensional scaling, learned graph embeddings.
-pub mod tree;
 pub mod graph;
+pub mod tree;
