@@ -65,11 +65,17 @@ def tree(
     ``ValueError`` naming the node.
 
     ``scale``: the edge length in units of R. ``None`` picks the largest
-    scale at which every point is representable in ``model`` in float64,
-    ``height x scale <= limit`` (the deepest node is at most that far out):
-    37.4 R in the Poincaré ball, 18.7 R in the Klein ball, about 173 R on the
-    hyperboloid and in the half-space (their coordinates reach 2^250). An
-    explicit scale that puts a node beyond the model's limit raises
+    scale at which every edge keeps ``scale`` to 1e-9 relative in
+    ``model``'s float64 coordinates: ``height x scale`` at most the accurate
+    radius below with a margin of 10 (``ln(2e6 scale)`` R, about 15.2 R for
+    ``scale = 2``; in the Klein ball ``ln(4e6 scale)/2``, about 8.0 R) and
+    within the model's
+    range. The ranges are wider: 37.4 R in the Poincaré ball, 18.7 R in the
+    Klein ball, about 173 R on the hyperboloid and in the half-space (their
+    coordinates reach 2^250). An explicit scale may use the whole range:
+    nodes beyond the accurate radius are placed as exactly as float64
+    allows, with an :class:`EdgeAccuracyWarning` saying how far the edges may
+    be off; a scale that puts a node beyond the model's range raises
     ``ValueError`` naming the node and a model that holds it.
 
     Accuracy: nodes are built exactly (the Poincaré point with its exact gap,
@@ -78,12 +84,10 @@ def tree(
     from the origin is about ``1e-16 sinh(r)`` R across the radius (in any
     model: float64 resolves directions to 1e-16), and along it
     ``1e-16 e^r/2`` R in the Poincaré ball, ``1e-16 e^(2r)/4`` R in the Klein
-    ball. Edges are within 1e-9 relative of ``scale`` up to about
-    ``16 + ln(scale)`` R from the origin (``8 + ln(scale)/2`` R in Klein);
-    beyond, float64 coordinates cannot place the nodes more exactly and
-    far-out siblings less than ~1e-16 rad apart round to one direction (the
-    hyperboloid's larger range does not separate them: it extends radii,
-    not angles).
+    ball. Hence the accurate radius above; beyond it, far-out siblings less
+    than ~1e-16 rad apart round to one direction (the hyperboloid's larger
+    range does not separate them: it extends radii, not angles), except
+    along a single ray (a path keeps its edges far beyond it).
 
     Returns an :class:`Embedding` with ``points`` ``(n, dim)`` (``(n, dim +
     1)`` on the hyperboloid), ``model``, ``curvature`` and ``scale``.
@@ -94,11 +98,34 @@ def tree(
     dim = _args.count("dim", dim, 2)
     s = None if scale is None else _args.real("scale", scale)
     kind, data, n, r = tree_args(parent, root)
-    points, used = _native.embed_tree(kind, data, n, r, dim, s, model, _args.real("curvature", curvature))
+    points, used, accurate = _native.embed_tree(kind, data, n, r, dim, s, model, _args.real("curvature", curvature))
+    if not accurate:
+        import warnings
+
+        warnings.warn(
+            f"scale = {used}: the deepest nodes lie beyond the radius ({_accurate_radius(model, used):.2f} R) up to "
+            f"which float64 coordinates keep every edge within 1e-9 of the scale; far out, edges may be off by up to "
+            f"about 1e-16 e^r / scale relative at distance r R from the root, and siblings may merge. "
+            f"scale=None picks the largest accurate scale",
+            EdgeAccuracyWarning,
+            stacklevel=2,
+        )
     return Embedding(points=points, model=model, curvature=float(curvature), scale=used)
 
 
-__all__ = ["Embedding", "tree"]
+class EdgeAccuracyWarning(UserWarning):
+    """``embed.tree`` placed nodes where float64 cannot keep every edge at the scale to 1e-9."""
+
+
+def _accurate_radius(model: str, scale: float) -> float:
+    """The radius of ``tree/accurate_radius`` in the core, for the message."""
+    import math
+
+    across = math.log(2e6 * scale)
+    return min(across, 0.5 * math.log(4e6 * scale)) if model == "klein" else across
+
+
+__all__ = ["Embedding", "EdgeAccuracyWarning", "tree"]
 from ._hmds import from_distances  # noqa: E402  (h-MDS; needs Embedding above)
 
 __all__ += ["from_distances"]

@@ -47,6 +47,28 @@ pub struct Embedded {
     pub points: Vec<f64>,
     pub width: usize,
     pub scale: f64,
+    /// Whether the deepest node lies within [`accurate_radius`], so that
+    /// every edge is `scale` to 1e-9 relative.
+    pub accurate: bool,
+}
+
+/// How far from the origin (units of R) float64 coordinates of `model` place
+/// nodes finely enough that an edge of length `scale` stays within 1e-9
+/// relative. Rounding a point at distance `r` moves it about
+/// `1e-16 sinh(r)` R across the radius in every model (float64 resolves
+/// directions to 1e-16) and along the radius `1e-16 e^r / 2` R in the
+/// Poincaré ball, `1e-16 e^(2r) / 4` R in the Klein ball; `1e-16 e^r / 2 <=
+/// 1e-9 scale` gives `r <= ln(2e7 scale)`, and Klein's radial term
+/// `r <= ln(4e7 scale) / 2`; both are taken with a margin of 10 (both end
+/// points round, and a coordinate's rounding is up to 1.1e-16 relative; an
+/// edge at exactly `ln(2e7 scale)` was measured 2.3e-9 off). Beyond, siblings
+/// closer than 1e-16 rad round to one direction: nodes merge.
+pub fn accurate_radius(model: Model, scale: f64) -> f64 {
+    let across = (2e6 * scale).ln();
+    match model {
+        Model::Klein => across.min(0.5 * (4e6 * scale).ln()),
+        _ => across,
+    }
 }
 
 /// The largest distance from the origin (in units of R) at which `model`
@@ -252,7 +274,8 @@ fn turn(c0: &[f64], a: &[f64], w: &[f64], out: &mut [f64]) {
 }
 
 /// Embeds `tree` in dimension `dim`. `scale` in units of R (None: the
-/// largest with `height * scale <= max_radius(model)`).
+/// largest with `height * scale <= min(max_radius(model),
+/// accurate_radius(model, scale))`).
 pub fn embed(tree: &Tree, dim: usize, scale: Option<f64>, model: Model, k: Curvature) -> Result<Embedded> {
     if dim < 2 {
         return value_err(format!("dim must be at least 2, got {dim}"));
@@ -261,7 +284,30 @@ pub fn embed(tree: &Tree, dim: usize, scale: Option<f64>, model: Model, k: Curva
     let d = dim;
     let height = tree.height();
     let rmax = max_radius(model, &k);
-    let best = if height == 0 { 1.0 } else { rmax / height as f64 };
+    let fits = |s: f64| height as f64 * s <= rmax.min(accurate_radius(model, s));
+    // scale=None: the largest scale at which every edge keeps 1e-9 relative
+    // (the deepest node within the accurate radius, hence representable);
+    // height * s - accurate_radius(s) increases with s there, so bisect.
+    let best = if height == 0 {
+        1.0
+    } else {
+        let (mut lo, mut hi) = (0.0f64, rmax / height as f64);
+        if fits(hi) {
+            lo = hi;
+        }
+        for _ in 0..200 {
+            if hi - lo <= 1e-15 * hi {
+                break;
+            }
+            let mid = 0.5 * (lo + hi);
+            if fits(mid) {
+                lo = mid;
+            } else {
+                hi = mid;
+            }
+        }
+        lo
+    };
     let s = match scale {
         None => best,
         Some(s) => {
@@ -275,9 +321,10 @@ pub fn embed(tree: &Tree, dim: usize, scale: Option<f64>, model: Model, k: Curva
                 return value_err(format!(
                     "scale = {s}: the deepest node (depth {height}) can lie {far:.4} R from the root, beyond \
                      what any model holds in float64 (the hyperboloid reaches {hyp:.1} R, scale <= {:.6}); \
-                     the {} model holds scale <= {best:.6} for this tree",
+                     the {} model holds scale <= {:.6} for this tree",
                     hyp / height as f64,
-                    model_name(model)
+                    model_name(model),
+                    rmax / height as f64
                 ));
             }
             s
@@ -376,11 +423,13 @@ pub fn embed(tree: &Tree, dim: usize, scale: Option<f64>, model: Model, k: Curva
         };
         return value_err(format!(
             "scale = {s} does not fit the {} model: node {v} (depth {}) lies {far:.4} R from the root, beyond the \
-             {rmax:.1} R that the {} model holds in float64{other}; scale <= {best:.6} fits this tree in it \
-             (depth {height} x scale <= {rmax:.1} R)",
+             {rmax:.1} R that the {} model holds in float64{other}; scale <= {:.6} fits this tree in it \
+             (depth {height} x scale <= {rmax:.1} R; scale=None picks {best:.6}, the largest that keeps every \
+             edge to 1e-9)",
             model_name(model),
             tree.depth[v as usize],
-            model_name(model)
+            model_name(model),
+            rmax / height.max(1) as f64
         ));
     }
     // ---- once, to the requested model, in node order
@@ -420,7 +469,8 @@ pub fn embed(tree: &Tree, dim: usize, scale: Option<f64>, model: Model, k: Curva
             model_name(model)
         ));
     }
-    Ok(Embedded { points, width, scale: s })
+    let accurate = height as f64 * s <= accurate_radius(model, s);
+    Ok(Embedded { points, width, scale: s, accurate })
 }
 
 /// The hub gaps in node order (for tests of the exact radii).
@@ -501,7 +551,9 @@ mod tests {
         let path: Vec<i64> = (0..11).map(|i| i - 1).collect();
         let tree = Tree::from_parents(&path).unwrap();
         let e = embed(&tree, 2, None, Model::Poincare, k).unwrap();
-        assert!((e.scale - 3.74).abs() < 1e-12);
+        // the deepest node at the accurate radius: 10 s = ln(2e6 s)
+        assert!((10.0 * e.scale - accurate_radius(Model::Poincare, e.scale)).abs() < 1e-12, "{}", e.scale);
+        assert!(e.accurate && e.scale > 1.45 && e.scale < 1.55, "{}", e.scale);
         let e = embed(&tree, 2, Some(4.0), Model::Poincare, k).unwrap_err().to_string();
         assert!(e.contains("node 10") && e.contains("hyperboloid"), "{e}");
         assert!(embed(&tree, 2, Some(4.0), Model::Hyperboloid, k).is_ok());

@@ -43,7 +43,7 @@ fn embed_tree(
     scale: Option<f64>,
     model: &str,
     curvature: f64,
-) -> PyResult<(Py<PyAny>, f64)> {
+) -> PyResult<(Py<PyAny>, f64, bool)> {
     let k = Curvature::new(curvature)?;
     let md = Model::parse(model, "model")?;
     let data = contiguous(&tree, "tree")?;
@@ -53,7 +53,7 @@ fn embed_tree(
     })?;
     let (n, e) = e;
     let pts = Array2::from_shape_vec((n, e.width), e.points).expect("shape").into_pyarray(py);
-    Ok((pts.into_any().unbind(), e.scale))
+    Ok((pts.into_any().unbind(), e.scale, e.accurate))
 }
 
 /// `tree_distances(kind, tree, n, root, pairs)`: hop counts, `(p,)` for the

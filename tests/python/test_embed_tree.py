@@ -54,27 +54,51 @@ def test_edges_against_mpmath(model):
 
 
 def test_far_out_edges_are_exact_to_the_float64_resolution():
-    # scale=None takes the path to the rim: 37.4 R in the Poincaré ball.
-    # Along a ray the Poincaré radius resolves 2^-53 e^r/2 R (common practice:
-    # d r = 2 d|x| / (1 - |x|^2)); the edges are exact up to that rounding.
+    # An explicit scale may take a path to the rim, 37.4 R in the Poincaré
+    # ball, with a warning. Along a ray the Poincaré radius resolves
+    # 2^-53 e^r/2 R (common practice: d r = 2 d|x| / (1 - |x|^2)); the edges
+    # are exact up to that rounding.
     parent = path(11)
-    e = gk.embed.tree(parent, 2, model="poincare")
-    assert e.scale == pytest.approx(3.74, rel=1e-12)
+    with pytest.warns(gk.embed.EdgeAccuracyWarning, match="1e-9"):
+        e = gk.embed.tree(parent, 2, model="poincare", scale=3.739)
     child, d = edge_lengths(e, parent)
     r = child * e.scale
     assert np.all(np.abs(d - e.scale) <= 4 * EPS * np.exp(r) + 1e-12 * e.scale)
-    # mpmath, from the origin: the deepest node is 37.4 R out to its resolution
+    # mpmath, from the origin: the deepest node is 37.39 R out to its resolution
     ref = mp_distance("poincare", np.zeros(2), e.points[10], -1.0)
-    assert abs(float(ref) - 37.4) < 4 * EPS * np.exp(37.4)
-    # the hyperboloid resolves radii to 2^-53 relative: a path out to 173 R keeps
+    assert abs(float(ref) - 37.39) < 4 * EPS * np.exp(37.39)
+    # the hyperboloid resolves radii to 2^-53 relative: a path out to 170 R keeps
     # every edge to 1e-9 (mpmath on the deepest edge)
-    e = gk.embed.tree(parent, 2, model="hyperboloid")
-    assert e.scale * 10 > 170
+    with pytest.warns(gk.embed.EdgeAccuracyWarning):
+        e = gk.embed.tree(parent, 2, model="hyperboloid", scale=17.0)
     _, d = edge_lengths(e, parent)
     np.testing.assert_allclose(d, e.scale, rtol=1e-9)
-    # (400 digits: the law of cosines cancels 150 of them at 173 R)
+    # (400 digits: the law of cosines cancels 150 of them at 170 R)
     ref = mp_distance("hyperboloid", e.points[9], e.points[10], -1.0, dps=400)
     assert abs(float(ref) / e.scale - 1) < 1e-9
+
+
+@pytest.mark.parametrize("model", ["poincare", "klein", "hyperboloid", "halfspace"])
+@pytest.mark.parametrize("dim", [2, 5])
+def test_scale_none_keeps_every_edge_to_1e9(model, dim):
+    # The contract: every edge is `scale` to 1e-9 relative, also with
+    # the automatic scale (random recursive tree, deepest node at the
+    # accurate radius; mpmath at 50 digits on the deepest edges).
+    import warnings
+
+    parent = random_recursive(400, seed=3)
+    with warnings.catch_warnings():
+        warnings.simplefilter("error", gk.embed.EdgeAccuracyWarning)
+        e = gk.embed.tree(parent, dim, model=model)
+    child, d = edge_lengths(e, parent)
+    np.testing.assert_allclose(d, e.scale, rtol=1e-9)
+    depth = np.zeros(len(parent), dtype=int)
+    for i in range(1, len(parent)):  # random_recursive: parents precede children
+        depth[i] = depth[parent[i]] + 1
+    deep = child[np.argsort(depth[child])[-5:]]
+    for c in deep:
+        ref = mp_distance(model, e.points[c], e.points[parent[c]], -1.0, dps=60)
+        assert abs(float(ref) / e.scale - 1) < 1e-9, (c, float(ref))
 
 
 @pytest.mark.parametrize("dim", [2, 10])
@@ -154,5 +178,6 @@ def test_single_node_and_star_scale_none():
     e = gk.embed.tree([-1], 2)
     np.testing.assert_array_equal(e.points, [[0.0, 0.0]])
     e = gk.embed.tree(star(10), 2, model="klein")
-    assert e.scale == pytest.approx(18.7)
+    # one level: the Klein accurate radius, ln(4e6 s)/2 = s (see embed.tree)
+    assert e.scale == pytest.approx(0.5 * np.log(4e6 * e.scale), rel=1e-12)
     assert np.all(np.linalg.norm(e.points, axis=1) < 1)
