@@ -26,34 +26,23 @@ import numpy as np  # noqa: E402
 import gyrokit as gk  # noqa: E402
 
 
-def catalogue_tree(branching=3, depth=5, step=1.0):
-    """A balanced tree: node at depth k sits at hyperbolic distance k*step from
-    the root (the origin), in the middle of its share of the angle; children
-    of one node split their parent's angular wedge. Returns points, parent
-    index per node, and each node's top-level family."""
-    points = [np.zeros(2)]
+def catalogue_tree(branching=3, depth=5, step=2.0):
+    """A balanced catalogue tree embedded by gk.embed.tree (every edge
+    ``step`` R long). Returns points, parent index per node, and each
+    node's top-level family."""
     parent = [-1]
     family = ["root"]
-    wedge = [(0.0, 2 * np.pi)]
     frontier = [0]
     for k in range(1, depth + 1):
         nxt = []
         for node in frontier:
-            lo, hi = wedge[node]
-            width = (hi - lo) / branching
             for j in range(branching):
-                a0, a1 = lo + j * width, lo + (j + 1) * width
-                mid = 0.5 * (a0 + a1)
-                # a tangent vector at the origin of Riemannian length k*step
-                # (the ambient length is half of it there), mapped by exp
-                v = 0.5 * k * step * np.array([np.cos(mid), np.sin(mid)])
-                points.append(gk.poincare.exp_map(v))
                 parent.append(node)
                 family.append(f"family {j + 1}" if k == 1 else family[node])
-                wedge.append((a0, a1))
-                nxt.append(len(points) - 1)
+                nxt.append(len(parent) - 1)
         frontier = nxt
-    return np.array(points), np.array(parent), np.array(family)
+    parent = np.array(parent)
+    return gk.embed.tree(parent, 2, scale=step).points, parent, np.array(family)
 
 
 def customer_profiles(rng, n_per=150, d=10):
@@ -80,7 +69,7 @@ def main(out_path: str) -> None:
 
     fig, (left, right) = plt.subplots(1, 2, figsize=(13, 6))
     focus = 2  # the head of family 2, moved to the middle by a Möbius translation
-    gk.plot.disk(pts, edges=edges, labels=family, center=pts[focus], ax=left, point_size=9)
+    gk.plot.disk(pts, edges=edges, labels=family, center=pts[focus], ax=left, point_size=9, radial_compression=2.0)
     left.set_title(f"catalogue tree ({len(pts)} nodes), node {focus} at the centre")
 
     x, region = customer_profiles(rng)
