@@ -49,13 +49,24 @@ def _width(model: str) -> None:
         _native.distance_matrix(np.zeros((0, 1)), None, model, -1.0, None)
 
 
-def _as_points(name: str, a: Any) -> "da.Array":
+def _lazy(name: str, a: Any, kinds: str, what: str) -> "da.Array":
+    """``a`` as a dask array, its dtype checked first (object or complex
+    data cannot be chunked by size, and are not real numbers)."""
     if not isinstance(a, da.Array):
-        a = da.asarray(a)
+        if not (hasattr(a, "dtype") and hasattr(a, "shape") and hasattr(a, "__getitem__")):
+            a = np.asarray(a)  # lists and scalars; array-likes (zarr, memmap) stay lazy
+        if np.dtype(a.dtype).kind not in kinds:
+            raise TypeError(f"{name}: expected {what}, got dtype {np.dtype(a.dtype)}")
+        a = da.from_array(a, chunks=a.shape if len(a.shape) and 0 in a.shape else "auto")
+    elif a.dtype.kind not in kinds:
+        raise TypeError(f"{name}: expected {what}, got dtype {a.dtype}")
+    return a
+
+
+def _as_points(name: str, a: Any) -> "da.Array":
+    a = _lazy(name, a, "fiub", "an array of real numbers")
     if a.ndim != 2:
         raise ValueError(f"{name}: expected a 2-d array of points (n, d), got {a.ndim} dimension(s)")
-    if a.dtype.kind not in "fiub":
-        raise TypeError(f"{name}: expected a real array, got dtype {a.dtype}")
     if a.dtype.kind != "f":
         a = a.astype(np.float64)
     if a.numblocks[1] != 1:
@@ -253,8 +264,7 @@ def knn(
 
 def _rows_like(name: str, a: Any, x: "da.Array") -> "da.Array":
     """A per-point 1-d array chunked like the rows of ``x``."""
-    if not isinstance(a, da.Array):
-        a = da.asarray(a)
+    a = _lazy(name, a, "fiubUS" if name == "labels" else "fiub", "numbers or strings" if name == "labels" else "real numbers")
     if a.ndim != 1:
         raise ValueError(f"{name} must be 1-D (one value per point), got {a.ndim} dimensions")
     if a.shape[0] != x.shape[0]:

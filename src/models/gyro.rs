@@ -262,8 +262,32 @@ pub fn geodesic_arrays<'a, M: GyroBall>(
             let gx = point_gap(&c, r[0], 0)?;
             let gy = point_gap(&c, r[1], 1)?;
             let t = finite_scalar(2, r[2][0])?;
-            let g = M::geodesic_g(&c, r[0], gx, r[1], gy, t, out);
+            let g = if t.abs() <= GYROLINE_BEYOND {
+                M::geodesic_g(&c, r[0], gx, r[1], gy, t, out)
+            } else {
+                gyroline_g::<M>(&c, r[0], gx, r[1], gy, t, out)
+            };
             rim.apply(&c, out, g, f32_out, M::NAME, arg)
         },
     )
+}
+
+/// Beyond this `|t|` the geodesic is taken as the gyroline: the closed-form
+/// weights of `geodesic_g` are about `1 - t` and `t` for nearly coincident
+/// points and cancel in their sum (fuzz F11: NaN for `t = 2^250`).
+const GYROLINE_BEYOND: f64 = 2.0;
+
+/// The gyroline `x ⊕ (t ⊗ ((-x) ⊕ y))` (Ungar: the geodesic through `x` and
+/// `y` in both gyrovector ball models), with exact gaps carried through each
+/// step: no cancellation for any `t`, whatever the distance of `x` and `y`.
+fn gyroline_g<M: GyroBall>(c: &Curvature, x: &[f64], gx: f64, y: &[f64], gy: f64, t: f64, out: &mut [f64]) -> f64 {
+    let d = x.len();
+    with_scratch(2 * d, |buf| {
+        let (u, w) = buf.split_at_mut(d);
+        // (-x) ⊕ y = -(x ⊖ y): the gyrogroup automorphism -(a ⊕ b) = (-a) ⊕ (-b)
+        let gu = M::add_g(c, x, gx, y, gy, -1.0, u);
+        u.iter_mut().for_each(|v| *v = -*v);
+        let gw = M::scale_g(c, t, u, gu, w);
+        M::add_g(c, x, gx, w, gw, 1.0, out)
+    })
 }

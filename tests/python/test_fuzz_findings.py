@@ -174,3 +174,24 @@ def test_halfspace_distance_at_the_edge_of_the_range_is_finite(big):
         sq = sum((a - b) ** 2 for a, b in zip(xm, ym))
         want = mpmath.acosh(1 + sq / (2 * xm[-1] * ym[-1]))
     assert abs(got - float(want)) <= 1e-14 * float(want), (got, want)
+
+
+@pytest.mark.parametrize("mod", [gk.poincare, gk.klein])
+@pytest.mark.parametrize("scale", [1e-300, 1e-100, 1e-20])
+def test_geodesic_far_beyond_nearly_coincident_points(mod, scale):
+    # Fuzz F11: NaN for t = 2^250 between the origin and a point whose
+    # distance from it underflows (the closed-form weights 1 - t and t
+    # cancelled). From the origin the geodesic is t ⊗ y = tanh(t artanh|y|)
+    # y/|y| in both models (Ungar's gyroline; the distance from the origin is
+    # 2 artanh|p| in the Poincaré ball, artanh|p| in the Klein ball).
+    import mpmath
+
+    y = np.array([1.86, 0.139, -0.456]) * scale
+    t = 2.0**250 if scale < 1e-200 else 1e10
+    got = mod.geodesic(np.zeros(3), y, t)
+    mpmath.mp.dps = 50
+    ny = mpmath.sqrt(sum(mpmath.mpf(v) ** 2 for v in y))
+    f = mpmath.tanh(t * mpmath.atanh(ny)) / ny
+    want = np.array([float(f * mpmath.mpf(v)) for v in y])
+    assert np.all(np.isfinite(got))
+    np.testing.assert_allclose(got, want, rtol=1e-15)
