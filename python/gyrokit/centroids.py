@@ -157,19 +157,23 @@ def frechet_mean(
     codes, values = _factorize(labels)
     max_iter = count("max_iter", max_iter, 0)
     mean, keys, it, conv, gn = _call(_native.frechet_mean, values, x, weights, codes, model, curvature, tol, max_iter)
-    labs = _named(keys, values)
+    if _all_f32(x, weights):
+        mean = mean.astype(np.float32)
+    return _mean_result(mean, it, conv, gn, _named(keys, values) if labels is not None else None, tol, max_iter)
+
+
+def _mean_result(mean: Any, it: Any, conv: Any, gn: Any, labs: Optional[np.ndarray], tol: float, max_iter: int) -> FrechetMean:
+    """The :class:`FrechetMean` of the core's per-group arrays (``labs`` the
+    label values, None without labels), warning when a group did not converge."""
     if not bool(np.all(conv)):
-        bad = labs[~conv] if labels is not None else []
-        where = f" (labels {list(bad)[:10]})" if labels is not None else ""
+        where = f" (labels {list(labs[~conv])[:10]})" if labs is not None else ""
         warnings.warn(
             f"frechet_mean did not reach tol={tol} in max_iter={max_iter} iterations{where}; "
             f"gradient norm {float(np.max(gn)):.3e}",
             ConvergenceWarning,
-            stacklevel=2,
+            stacklevel=3,
         )
-    if _all_f32(x, weights):
-        mean = mean.astype(np.float32)
-    if labels is None:
+    if labs is None:
         return FrechetMean(mean[0], int(it[0]), bool(conv[0]), float(gn[0]), None)
     return FrechetMean(mean, it, conv, gn, labs)
 

@@ -388,21 +388,10 @@ def frechet_mean(
     point; labels of any sortable dtype (rows of the result in
     ``np.unique`` order, values in ``.labels``).
     """
-    import warnings
-
-    from .centroids import ConvergenceWarning, FrechetMean
+    from .centroids import _mean_result
 
     mean, it, conv, gn, values, labelled = _centroids(x, weights, labels, model, curvature, True, tol, max_iter)
-    if not bool(np.all(conv)):
-        warnings.warn(
-            f"frechet_mean did not reach tol={tol} in max_iter={max_iter} iterations; "
-            f"gradient norm {float(np.max(gn)):.3e}",
-            ConvergenceWarning,
-            stacklevel=2,
-        )
-    if not labelled:
-        return FrechetMean(mean[0], int(it[0]), bool(conv[0]), float(gn[0]), None)
-    return FrechetMean(mean, it, conv, gn, values)
+    return _mean_result(mean, it, conv, gn, values if labelled else None, tol, max_iter)
 
 
 def einstein_midpoint(

@@ -98,12 +98,12 @@ def tree(
     dim = _args.count("dim", dim, 2)
     s = None if scale is None else _args.real("scale", scale)
     kind, data, n, r = tree_args(parent, root)
-    points, used, accurate = _native.embed_tree(kind, data, n, r, dim, s, model, _args.real("curvature", curvature))
-    if not accurate:
+    points, used, beyond = _native.embed_tree(kind, data, n, r, dim, s, model, _args.real("curvature", curvature))
+    if beyond is not None:
         import warnings
 
         warnings.warn(
-            f"scale = {used}: the deepest nodes lie beyond the radius ({_accurate_radius(model, used):.2f} R) up to "
+            f"scale = {used}: the deepest nodes lie beyond the radius ({beyond:.2f} R) up to "
             f"which float64 coordinates keep every edge within 1e-9 of the scale; far out, edges may be off by up to "
             f"about 1e-16 e^r / scale relative at distance r R from the root, and siblings may merge. "
             f"scale=None picks the largest accurate scale",
@@ -116,13 +116,6 @@ def tree(
 class EdgeAccuracyWarning(UserWarning):
     """``embed.tree`` placed nodes where float64 cannot keep every edge at the scale to 1e-9."""
 
-
-def _accurate_radius(model: str, scale: float) -> float:
-    """The radius of ``tree/accurate_radius`` in the core, for the message."""
-    import math
-
-    across = math.log(2e6 * scale)
-    return min(across, 0.5 * math.log(4e6 * scale)) if model == "klein" else across
 
 
 __all__ = ["Embedding", "EdgeAccuracyWarning", "tree"]

@@ -43,7 +43,7 @@ fn embed_tree(
     scale: Option<f64>,
     model: &str,
     curvature: f64,
-) -> PyResult<(Py<PyAny>, f64, bool)> {
+) -> PyResult<(Py<PyAny>, f64, Option<f64>)> {
     let k = Curvature::new(curvature)?;
     let md = Model::parse(model, "model")?;
     let data = contiguous(&tree, "tree")?;
@@ -53,7 +53,9 @@ fn embed_tree(
     })?;
     let (n, e) = e;
     let pts = Array2::from_shape_vec((n, e.width), e.points).expect("shape").into_pyarray(py);
-    Ok((pts.into_any().unbind(), e.scale, e.accurate))
+    // the accurate radius, only when the deepest nodes lie beyond it
+    let beyond = (!e.accurate).then(|| embed_tree_core::accurate_radius(md, e.scale));
+    Ok((pts.into_any().unbind(), e.scale, beyond))
 }
 
 /// `tree_distances(kind, tree, n, root, pairs)`: hop counts, `(p,)` for the
