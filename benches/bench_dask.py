@@ -11,8 +11,13 @@ Prints ratios against baselines timed in the same run:
    every 0.2 s) and the largest difference between the two means' iterates
    is not comparable (different data); instead the dask mean of the first
    N/10 points is compared with the in-memory one.
-2. ``gk.dask.knn`` (k = 10) on M = 2 000 000 points at d = 2 against
+2. ``gk.dask.KMeans`` (10 clusters, the first 10 points as ``init``) on
+   the first N/10 points on disk against in-memory ``gk.KMeans`` with the
+   same parameters on the same points (same clusters; time ratio).
+3. ``gk.dask.knn`` (k = 10) on M = 2 000 000 points at d = 2 against
    ``gk.NeighborIndex(x).query(k=10)`` on the same points in memory.
+4. What these per-point costs predict for 1 000 000 000 points on 100
+   workers (the README's scale-out section quotes the figures).
 
 Data: hyperbolic radii uniform in [0, 3] about the origin of the Poincaré
 ball, random directions, K = -1 (invented, seeded).
@@ -51,8 +56,9 @@ def write_points(path: str, n: int, d: int, seed: int, block: int = 1_000_000) -
 
 
 def load_rows(path: str, start: int, stop: int) -> np.ndarray:
-    """Rows start..stop of the file (runs on a worker: only this block is read)."""
-    return np.array(np.load(path, mmap_mode="r")[start:stop])
+    """Rows start..stop of the file (runs on a worker: only this block is
+    read, through the page cache, without a copy)."""
+    return np.asarray(np.load(path, mmap_mode="r")[start:stop])
 
 
 def on_disk(path: str, n: int, d: int, chunk: int):
@@ -119,7 +125,7 @@ def main() -> None:
         print(f"wrote {a.n} x {a.d} points ({os.path.getsize(path) / 1e9:.2f} GB) in {time.perf_counter() - t:.1f} s")
 
         n_mem = a.n // 10
-        x_mem = load_rows(path, 0, n_mem)
+        x_mem = np.array(load_rows(path, 0, n_mem))
         t = time.perf_counter()
         ref = gk.frechet_mean(x_mem)
         t_mem = time.perf_counter() - t
@@ -146,6 +152,19 @@ def main() -> None:
             for w, v in sorted(pm.peak.items()):
                 print(f"  peak RSS of worker {w}: {v / 2**20:.0f} MiB")
 
+            # KMeans, the first N/10 points, same parameters and init
+            init = x_mem[:10]
+            t = time.perf_counter()
+            km = gk.KMeans(10, init=init, max_iter=20).fit(x_mem)
+            t_km = time.perf_counter() - t
+            t = time.perf_counter()
+            dkm = gk.dask.KMeans(10, init=init, max_iter=20).fit(on_disk(path, n_mem, a.d, a.chunk))
+            t_dkm = time.perf_counter() - t
+            same = bool(np.array_equal(dkm.labels_.compute(), km.labels_))
+            print(f"KMeans 10 clusters, {n_mem} x {a.d}, {km.n_iter_} Lloyd updates: gk.KMeans {t_km:.2f} s, "
+                  f"gk.dask.KMeans from disk {t_dkm:.2f} s ({dkm.n_iter_} updates), ratio {t_dkm / t_km:.2f}; "
+                  f"same labels: {same}")
+
             # knn, d = 2
             rng = np.random.default_rng(2)
             v = rng.standard_normal((a.m, 2))
@@ -163,6 +182,19 @@ def main() -> None:
             same = bool(np.array_equal(gi, ii) and np.array_equal(gd, dd))
             print(f"knn k=10, {a.m} x 2: NeighborIndex {t_idx:.2f} s, gk.dask.knn (8 blocks, 2 workers) "
                   f"{t_knn:.2f} s, ratio {t_knn / t_idx:.2f}; identical: {same}")
+
+            # What the measured costs predict for 1e9 points on 100 workers
+            # (worker-seconds per point from the 2-worker runs; tasks,
+            # transfers and stragglers not included).
+            big, workers = 1_000_000_000, 100
+            mean_s = t_dask * 2 / a.n * big / workers
+            km_s = t_dkm * 2 / n_mem / max(1, dkm.n_iter_) * big / workers
+            blocks = -(-big * 2 * 8 // (256 * 2**20))  # index blocks of 256 MiB at d = 2
+            knn_s = t_knn * 2 / a.m * blocks * big / workers
+            print(f"prediction for {big:.0e} points, {workers} workers: frechet_mean ({a.d} coordinates) "
+                  f"{mean_s:.0f} s; KMeans ({a.d} coordinates, 10 clusters) {km_s:.0f} s per Lloyd update; "
+                  f"knn k=10 at d = 2 ({blocks} index blocks, every query block against each) "
+                  f"{knn_s / 3600:.1f} h (an upper estimate: tree queries grow with log n)")
         finally:
             client.close()
             cluster.close()

@@ -28,6 +28,7 @@ import numpy as np
 
 from . import _native
 from ._args import count as _count
+from .kmeans import KMeans as _InMemoryKMeans
 
 try:
     import dask
@@ -38,7 +39,7 @@ except ImportError as e:  # pragma: no cover - exercised without the extra
         "(dask[array] and distributed)"
     ) from e
 
-__all__ = ["distance_matrix", "knn", "frechet_mean", "einstein_midpoint"]
+__all__ = ["distance_matrix", "knn", "frechet_mean", "einstein_midpoint", "KMeans"]
 
 _ROW = re.compile(r"^(\w+): row (\d+)")
 
@@ -407,3 +408,427 @@ def einstein_midpoint(
     ``np.unique(labels)`` order), from per-chunk sums (one to three passes)."""
     mean, _, _, _, _, labelled = _centroids(x, weights, labels, model, curvature, False, 0.0, 0)
     return mean if labelled else mean[0]
+
+
+# --------------------------------------------------------------------- k-means
+
+_GOLDEN = 0x9E3779B97F4A7C15
+_MASK = (1 << 64) - 1
+
+
+def _mix64(z: Any) -> Any:
+    """The SplitMix64 finaliser (Steele, Lea & Flood 2014), on Python ints or
+    uint64 arrays (wrapping arithmetic)."""
+    if isinstance(z, int):
+        z = ((z ^ (z >> 30)) * 0xBF58476D1CE4E5B9) & _MASK
+        z = ((z ^ (z >> 27)) * 0x94D049BB133111EB) & _MASK
+        return z ^ (z >> 31)
+    with np.errstate(over="ignore"):
+        z = (z ^ (z >> np.uint64(30))) * np.uint64(0xBF58476D1CE4E5B9)
+        z = (z ^ (z >> np.uint64(27))) * np.uint64(0x94D049BB133111EB)
+        return z ^ (z >> np.uint64(31))
+
+
+def _exp_keys(seed: int, draw: int, start: int, n: int) -> np.ndarray:
+    """Standard exponential variates of the points ``start .. start + n`` for
+    one draw of one run: a counter-based stream (SplitMix64 of the point's
+    global index), so a point's variate depends on its index, never on the
+    chunking or on the worker that computes it."""
+    base = _mix64((seed + (draw + 1) * 0xD1B54A32D192ED03) & _MASK)
+    with np.errstate(over="ignore"):
+        z = np.uint64(base) + (np.arange(start, start + n, dtype=np.uint64) + np.uint64(1)) * np.uint64(_GOLDEN)
+    u = (_mix64(z) >> np.uint64(11)).astype(np.float64) * 2.0**-53
+    return -np.log1p(-u)
+
+
+def _rows64(xb: np.ndarray) -> np.ndarray:
+    # k-means computes in float64 whatever the input dtype (as gk.KMeans).
+    return np.ascontiguousarray(xb, dtype=np.float64)
+
+
+def _smallest(key: np.ndarray, xb: np.ndarray, x0: int, m: int) -> list:
+    """The ``m`` smallest finite keys of a chunk as ``(key, global index, row)``
+    (ties to the lower index)."""
+    ok = np.flatnonzero(np.isfinite(key))
+    order = ok[np.lexsort((ok, key[ok]))][:m]
+    return [(float(key[i]), x0 + int(i), xb[i]) for i in order]
+
+
+def _seed_block(
+    xb: np.ndarray,
+    d2b: Optional[np.ndarray],
+    c: Optional[np.ndarray],
+    chosen: list,
+    seed: int,
+    draw: int,
+    m: int,
+    model: str,
+    curvature: float,
+    x0: int,
+) -> Tuple[Optional[np.ndarray], list, list]:
+    """One seeding draw on one chunk (runs on a worker): the squared distance
+    of every point to its nearest chosen centre, updated with the newest
+    centre ``c``, and the chunk's best candidates of the exponential race
+    (key ``E_i / w_i`` with ``w_i`` the squared distance, or 1 for a uniform
+    draw), plus the uniform race over the points not chosen yet (used when
+    every point coincides with a chosen centre)."""
+    xb = _rows64(xb)
+    n = xb.shape[0]
+    if n == 0:
+        return d2b, [], []
+    if c is not None:
+        try:
+            dist = _native.distance_matrix(xb, c[None, :], model, curvature, None)[:, 0]
+        except ValueError as e:
+            raise _relabel(e, {"x": ("X", x0)}) from None
+        d2 = dist * dist
+        d2b = d2 if d2b is None else np.minimum(d2b, d2)
+    e = _exp_keys(seed, draw, x0, n)
+    free = np.ones(n, bool)
+    local = [i - x0 for i in chosen if x0 <= i < x0 + n]
+    free[local] = False
+    if d2b is None:
+        return d2b, _smallest(np.where(free, e, np.inf), xb, x0, m), []
+    with np.errstate(divide="ignore"):
+        key = np.where(d2b > 0, e / np.where(d2b > 0, d2b, 1.0), np.inf)
+    return d2b, _smallest(key, xb, x0, m), _smallest(np.where(free, e, np.inf), xb, x0, 1)
+
+
+def _best(parts: list, m: int) -> list:
+    """The ``m`` smallest candidates of all chunks, by (key, index)."""
+    return sorted((c for p in parts for c in p), key=lambda t: (t[0], t[1]))[:m]
+
+
+def _assign_block(
+    xb: np.ndarray,
+    centres: np.ndarray,
+    queries: Optional[list],
+    prev: Optional[np.ndarray],
+    model: str,
+    curvature: float,
+    x0: int,
+) -> Tuple[np.ndarray, Tuple[int, float, np.ndarray, Any]]:
+    """Assignment of one chunk (runs on a worker): each point's nearest
+    centre (ties to the lower index, as ``gk.knn``), and the chunk's summary:
+    labels changed since ``prev``, its part of the inertia, the cluster
+    sizes, and the Newton sums of every cluster at its centre (the first
+    update step, from the same read of the chunk)."""
+    from .neighbors import knn as _knn
+
+    xb = _rows64(xb)
+    k = centres.shape[0]
+    if xb.shape[0] == 0:
+        return np.empty(0, np.int64), (0, 0.0, np.zeros(k, np.int64), None if queries is None else [None] * k)
+    try:
+        idx, dist = _knn(xb, 1, centres, model=model, curvature=curvature)
+    except ValueError as e:
+        raise _relabel(e, {"x": ("X", x0)}) from None
+    lab = idx[:, 0]
+    dv = dist[:, 0]
+    changed = int(lab.shape[0] if prev is None else np.count_nonzero(lab != prev))
+    sums = None
+    if queries is not None:
+        sums = _native.centroid_chunk_sums(xb, None, 1.0, lab, queries, model, curvature)
+    return lab, (changed, float(np.dot(dv, dv)), np.bincount(lab, minlength=k), sums)
+
+
+def _far_block(
+    xb: np.ndarray, lab: np.ndarray, centres: np.ndarray, m: int, model: str, curvature: float, x0: int
+) -> list:
+    """Per cluster, the chunk's ``m`` points farthest from their centre as
+    ``(label, distance, global index, row)`` (ties to the lower index): the
+    candidates of the empty-cluster repair."""
+    xb = _rows64(xb)
+    n = xb.shape[0]
+    if n == 0:
+        return []
+    dist = _native.distance_matrix(xb, centres, model, curvature, None)[np.arange(n), lab]
+    order = np.lexsort((np.arange(n), -dist, lab))
+    out: list = []
+    taken: dict = {}
+    for i in order:
+        j = int(lab[i])
+        if taken.get(j, 0) < m:
+            taken[j] = taken.get(j, 0) + 1
+            out.append((j, float(dist[i]), x0 + int(i), xb[i]))
+    return out
+
+
+def _move_labels(lab: np.ndarray, moves: dict, x0: int) -> np.ndarray:
+    lab = lab.copy()
+    for i, j in moves.items():
+        if x0 <= i < x0 + lab.shape[0]:
+            lab[i - x0] = j
+    return lab
+
+
+def _stats_block(xb: np.ndarray, lab: np.ndarray, queries: list, model: str, curvature: float) -> list:
+    if xb.shape[0] == 0:
+        return [None] * len(queries)
+    return _native.centroid_chunk_sums(_rows64(xb), None, 1.0, lab, queries, model, curvature)
+
+
+def _pair_distances(a: np.ndarray, b: np.ndarray, model: str, curvature: float) -> np.ndarray:
+    """``d(a_j, b_j)`` for every row ``j``."""
+    return np.diagonal(_native.distance_matrix(a, b, model, curvature, None)).copy()
+
+
+class KMeans(_InMemoryKMeans):
+    """k-means of chunked points (dask arrays, ``np.memmap``, zarr), with
+    hyperbolic distances and Fréchet-mean centres: the algorithm of
+    :class:`gyrokit.KMeans` (see its module documentation), each pass over
+    the data a round of ordinary dask tasks, one per chunk.
+
+    * Assignment: every chunk finds each point's nearest centre (ties to the
+      lower index) and, from the same read of the chunk, the Newton sums of
+      every cluster at its current centre (``_native.centroid_chunk_sums``).
+      The labels stay on the workers (persisted, 8 bytes a point).
+    * Update: the Newton iteration of each centre, warm-started at the
+      previous centre, runs on the client (``_native.CentroidDriver``),
+      asking the chunks for one round of sums per further step; the sums are
+      added in chunk order, so the result never depends on the number of
+      workers or on which worker ran what (a chunk recomputed after a
+      worker died gives the same sums).
+    * Empty clusters: repaired as in :class:`gyrokit.KMeans` (the farthest
+      point of a cluster with at least two points), from each chunk's
+      farthest candidates (an extra pass, only when a cluster empties).
+    * The final centres are the Fréchet means of the last clusters, from
+      their Einstein midpoints (as ``gk.dask.frechet_mean(x, labels=...)``);
+      a final assignment gives ``labels_`` and ``inertia_``.
+
+    Seeding (``init="k-means++"``, one pass per centre; ``"random"``, one
+    pass) draws by an exponential race: point ``i`` gets the key
+    ``E_i / w_i`` with ``E_i`` a standard exponential variate from a
+    counter-based stream of the run's seed and the point's global index
+    (SplitMix64) and ``w_i`` its squared distance to the nearest chosen
+    centre (1 for a uniform draw), and the smallest key wins, which draws
+    ``i`` with probability ``w_i / sum w`` (D^2 sampling, Arthur &
+    Vassilvitskii 2007). The draws depend only on the seed and on the
+    points' order, never on the chunking; they are not the draws of the
+    in-memory :class:`gyrokit.KMeans`, so seeded runs of the two differ. With
+    an array ``init`` (or identical seeds) the two give the same clusters;
+    centres agree to about 1e-13 (sums grouped by chunk).
+
+    Differences from :class:`gyrokit.KMeans`: ``n_init`` defaults to 1 (each
+    run costs passes over the data); ``labels_`` is a dask array (chunked
+    like the rows of ``X``); ``predict`` and ``transform`` return lazy dask
+    arrays. Passes per Lloyd iteration: one assignment plus one per further
+    Newton step (usually one or two).
+    """
+
+    def __init__(
+        self,
+        n_clusters: int = 8,
+        *,
+        model: str = "poincare",
+        curvature: float = -1.0,
+        init: Any = "k-means++",
+        n_init: int = 1,
+        max_iter: int = 100,
+        tol: float = 1e-10,
+        random_state: Any = None,
+    ) -> None:
+        super().__init__(
+            n_clusters,
+            model=model,
+            curvature=curvature,
+            init=init,
+            n_init=n_init,
+            max_iter=max_iter,
+            tol=tol,
+            random_state=random_state,
+        )
+
+    def __repr__(self) -> str:
+        return "gyrokit.dask." + super().__repr__()
+
+    # ------------------------------------------------------------------ passes
+    def _blocks(self, x: "da.Array") -> Tuple[list, List[int]]:
+        return list(x.to_delayed().ravel()), _starts(x.chunks[0])
+
+    def _seed(self, blocks: list, starts: List[int], n: int, seed: Optional[int], init: Any) -> np.ndarray:
+        k, model, curv = int(self.n_clusters), self.model, float(self.curvature)
+        if not isinstance(init, str):
+            return init
+        task = dask.delayed(_seed_block, pure=True, nout=3)
+        if init == "random":
+            outs = dask.compute(*[task(xb, None, None, [], seed, 0, k, model, curv, x0)[1] for xb, x0 in zip(blocks, starts)])
+            return np.array([c[2] for c in _best(list(outs), k)], dtype=np.float64)
+        chosen: List[int] = []
+        rows: list = []
+        d2: list = [None] * len(blocks)
+        c = None
+        for draw in range(k):
+            outs = [task(xb, d2[b], c, list(chosen), seed, draw, 1, model, curv, x0) for b, (xb, x0) in enumerate(zip(blocks, starts))]
+            outs = dask.persist(*outs)
+            d2 = [o[0] for o in outs]
+            cands = dask.compute(*[o[1] for o in outs], *[o[2] for o in outs])
+            race, spare = list(cands[: len(outs)]), list(cands[len(outs):])
+            best = _best(race, 1) or _best(spare, 1)
+            _, i, row = best[0]
+            chosen.append(i)
+            rows.append(np.array(row, dtype=np.float64))
+            c = rows[-1]
+        return np.array(rows)
+
+    def _assign(self, blocks: list, starts: List[int], centres: np.ndarray, queries: Optional[list], prev: Optional[list]) -> Tuple[list, list]:
+        task = dask.delayed(_assign_block, pure=True, nout=2)
+        outs = dask.persist(
+            *[
+                task(xb, centres, queries, None if prev is None else prev[b], self.model, float(self.curvature), x0)
+                for b, (xb, x0) in enumerate(zip(blocks, starts))
+            ]
+        )
+        labels = [o[0] for o in outs]
+        summary = list(dask.compute(*[o[1] for o in outs]))
+        return labels, summary
+
+    def _rounds(self, drv: Any, blocks: list, labels: list) -> None:
+        """Runs a centroid driver to the end on chunk sums over ``labels``."""
+        task = dask.delayed(_stats_block, pure=True)
+        while True:
+            queries = drv.queries()
+            if all(q is None for q in queries):
+                return
+            drv.feed(list(dask.compute(*[task(xb, lb, queries, self.model, float(self.curvature)) for xb, lb in zip(blocks, labels)])))
+
+    def _repair(self, blocks: list, starts: List[int], labels: list, centres: np.ndarray, counts: np.ndarray) -> Tuple[list, np.ndarray]:
+        """The empty-cluster repair of gk.KMeans (module docs, step 3)."""
+        empty = [j for j in range(len(counts)) if counts[j] == 0]
+        task = dask.delayed(_far_block, pure=True)
+        parts = dask.compute(
+            *[task(xb, lb, centres, len(empty), self.model, float(self.curvature), x0) for xb, lb, x0 in zip(blocks, labels, starts)]
+        )
+        queue: dict = {}
+        for j, dv, i, row in sorted((c for p in parts for c in p), key=lambda t: (-t[1], t[2])):
+            queue.setdefault(j, []).append((dv, i, row))
+        counts = counts.copy()
+        centres = centres.copy()
+        moves: dict = {}
+        for j in empty:
+            heads = [(q[0][0], q[0][1], c) for c, q in queue.items() if q and counts[c] >= 2]
+            if not heads:
+                continue
+            _, i, c = min(heads, key=lambda t: (-t[0], t[1]))
+            _, _, row = queue[c].pop(0)
+            counts[c] -= 1
+            counts[j] += 1
+            moves[i] = j
+            centres[j] = row
+        move = dask.delayed(_move_labels, pure=True)
+        labels = list(dask.persist(*[move(lb, moves, x0) for lb, x0 in zip(labels, starts)]))
+        return labels, centres
+
+    def _lloyd(self, blocks: list, starts: List[int], centres: np.ndarray, d: int) -> Tuple[np.ndarray, list, float, int, list]:
+        model, curv, k = self.model, float(self.curvature), int(self.n_clusters)
+        drv = _native.CentroidDriver.lloyd(centres, model, curv)
+        labels, summary = self._assign(blocks, starts, centres, drv.queries(), None)
+        history = [float(sum(s[1] for s in summary))]
+        used = labels
+        n_iter = 0
+        for _ in range(int(self.max_iter)):
+            counts = np.sum([s[2] for s in summary], axis=0)
+            if (counts == 0).any():
+                labels, centres = self._repair(blocks, starts, labels, centres, counts)
+                drv = _native.CentroidDriver.lloyd(centres, model, curv)
+            else:
+                drv.feed([s[3] for s in summary])
+            self._rounds(drv, blocks, labels)
+            new = drv.result(d, model, curv, centres)[0]
+            shift = float(np.sum(_pair_distances(centres, new, model, curv)))
+            centres = new
+            n_iter += 1
+            drv = _native.CentroidDriver.lloyd(centres, model, curv)
+            used = labels
+            labels, summary = self._assign(blocks, starts, centres, drv.queries(), used)
+            history.append(float(sum(s[1] for s in summary)))
+            if sum(s[0] for s in summary) == 0 or shift <= float(self.tol):
+                break
+        # The final centres: the Fréchet means of the last update's clusters
+        # from their Einstein midpoints, as frechet_mean(X, labels=...) does.
+        final = _native.CentroidDriver(k, True, 1e-12, 50)
+        self._rounds(final, blocks, used)
+        centres = final.result(d, model, curv, centres)[0]
+        labels, summary = self._assign(blocks, starts, centres, None, None)
+        history[-1] = float(sum(s[1] for s in summary))
+        return centres, labels, history[-1], n_iter, history
+
+    # ------------------------------------------------------------------ API
+    def fit(self, X: Any, y: Any = None) -> "KMeans":
+        """Clusters ``X`` ((n, width) chunked points of ``model``); returns ``self``."""
+        self._check_params()
+        _width(self.model)
+        x = _as_points("X", X)
+        n, width = x.shape
+        k = int(self.n_clusters)
+        if n == 0:
+            raise ValueError("X is empty: k-means needs at least one point")
+        if k > n:
+            raise ValueError(f"n_clusters={k} is larger than the number of points ({n})")
+        d = width - (1 if self.model == "hyperboloid" else 0)
+        if isinstance(self.init, str):
+            rng = np.random.default_rng(self.random_state)
+            seeds: List[Optional[int]] = [int(rng.integers(0, 2**64, dtype=np.uint64)) for _ in range(int(self.n_init))]
+            init: Any = self.init
+        else:
+            init = self._array(self.init, "init").astype(np.float64)
+            if init.shape != (k, width):
+                raise ValueError(f"init must have shape (n_clusters, width) = {(k, width)}; got {init.shape}")
+            try:
+                _native.einstein_midpoint(np.ascontiguousarray(init), None, None, self.model, float(self.curvature))
+            except ValueError as e:
+                raise ValueError(f"init is not a valid array of {self.model} points: {e}") from None
+            seeds = [None]
+        blocks, starts = self._blocks(x)
+        best = None
+        for seed in seeds:
+            centres = self._seed(blocks, starts, n, seed, init)
+            run = self._lloyd(blocks, starts, centres, d)
+            if best is None or run[2] < best[2]:
+                best = run
+        assert best is not None
+        centres, labels, inertia, n_iter, history = best
+        self.cluster_centers_ = centres
+        self.labels_ = da.concatenate(
+            [da.from_delayed(lb, (rows,), dtype=np.int64) for lb, rows in zip(labels, x.chunks[0])]
+        )
+        self.inertia_ = float(inertia)
+        self.n_iter_ = int(n_iter)
+        self.inertia_history_ = history
+        self.n_features_in_ = width
+        return self
+
+    def _fitted_points(self, X: Any, what: str) -> "da.Array":
+        from .kmeans import UnfittedError
+
+        if not hasattr(self, "cluster_centers_"):
+            raise UnfittedError(f"KMeans.{what} needs cluster centres, and this KMeans has none yet: run fit(X) first")
+        x = _as_points("X", X)
+        if x.shape[1] != self.n_features_in_:
+            raise ValueError(f"X has {x.shape[1]} coordinates per point but KMeans was fitted with {self.n_features_in_}")
+        return x
+
+    def predict(self, X: Any) -> "da.Array":
+        """Index of the nearest centre of each point (ties to the lower index), lazy."""
+        x = self._fitted_points(X, "predict")
+        idx, _ = knn(x, 1, self.cluster_centers_, model=self.model, curvature=float(self.curvature))
+        return idx[:, 0]
+
+    def fit_predict(self, X: Any, y: Any = None) -> "da.Array":
+        """``fit(X)`` and return ``labels_``."""
+        return self.fit(X).labels_
+
+    def transform(self, X: Any) -> "da.Array":
+        """Distances from each point to each centre, ``(n, n_clusters)``, lazy."""
+        x = self._fitted_points(X, "transform")
+        return distance_matrix(x, self.cluster_centers_, model=self.model, curvature=float(self.curvature))
+
+    def fit_transform(self, X: Any, y: Any = None) -> "da.Array":
+        """``fit(X)`` and return ``transform(X)``."""
+        return self.fit(X).transform(X)
+
+    def score(self, X: Any, y: Any = None) -> float:
+        """Minus the inertia of ``X`` about the fitted centres (higher is better)."""
+        x = self._fitted_points(X, "score")
+        _, dist = knn(x, 1, self.cluster_centers_, model=self.model, curvature=float(self.curvature))
+        return -float((dist[:, 0].astype(np.float64) ** 2).sum().compute())

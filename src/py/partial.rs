@@ -2,7 +2,7 @@
 //! where a chunk lives, and the driver that combines them in a fixed order
 //! and runs the iteration (`stats::partial`).
 
-use numpy::{IntoPyArray, PyReadonlyArray1};
+use numpy::{IntoPyArray, PyReadonlyArray1, PyReadonlyArray2, PyUntypedArrayMethods};
 use pyo3::exceptions::PyValueError;
 use pyo3::prelude::*;
 use pyo3::types::{PyList, PyTuple};
@@ -11,7 +11,8 @@ use super::centroids::{labels_arg, weights_arg};
 use super::coerce::coerce;
 use crate::models::ball::Curvature;
 use crate::models::Model;
-use crate::stats::centroids::{to_model, Stats};
+use crate::stats::centroids::{to_model, unit_points, Stats};
+use crate::stats::kmeans::centre_newton;
 use crate::stats::partial::{chunk_sums, Driver, Query, Sums};
 
 fn vec_of(ob: &Bound<'_, PyAny>) -> PyResult<Vec<f64>> {
@@ -142,6 +143,24 @@ impl CentroidDriver {
         Ok(CentroidDriver { groups: (0..groups).map(|_| Driver::new(nt)).collect() })
     }
 
+    /// One driver per centre (rows of `centres`, points of `model`), already
+    /// in Newton's iteration there, with the stopping rule of k-means'
+    /// intermediate centres (gyrokit.dask.KMeans's update step).
+    #[staticmethod]
+    #[pyo3(signature = (centres, model = "poincare", curvature = -1.0))]
+    fn lloyd(py: Python<'_>, centres: &Bound<'_, PyAny>, model: &str, curvature: f64) -> PyResult<Self> {
+        let k = Curvature::new(curvature)?;
+        let md = Model::parse(model, "model")?;
+        let ca = coerce(py, "centres", centres)?;
+        let cd = ca.data();
+        let pts = unit_points(md, &k, "centres", &cd)?;
+        let d = pts.d;
+        let groups = (0..pts.n)
+            .map(|j| Driver::from_newton(centre_newton(pts.p[j * d..(j + 1) * d].to_vec(), pts.g[j])))
+            .collect();
+        Ok(CentroidDriver { groups })
+    }
+
     /// Every group's query (None when done); all None when finished.
     fn queries(&self, py: Python<'_>) -> PyResult<Py<PyAny>> {
         let out = PyList::empty(py);
@@ -186,8 +205,18 @@ impl CentroidDriver {
     }
 
     /// `(means (groups, width), iterations, converged, grad_norm)`; a group
-    /// without positive weight is named by its number in the ValueError.
-    fn result(&self, py: Python<'_>, d: usize, model: &str, curvature: f64) -> PyResult<Py<PyAny>> {
+    /// without positive weight is named by its number in the ValueError, or,
+    /// with `keep` (`(groups, width)` points of the model), gets its row of
+    /// `keep` unchanged.
+    #[pyo3(signature = (d, model, curvature, keep = None))]
+    fn result(
+        &self,
+        py: Python<'_>,
+        d: usize,
+        model: &str,
+        curvature: f64,
+        keep: Option<PyReadonlyArray2<'_, f64>>,
+    ) -> PyResult<Py<PyAny>> {
         let k = Curvature::new(curvature)?;
         let md = Model::parse(model, "model")?;
         let width = md.width(d);
@@ -198,8 +227,21 @@ impl CentroidDriver {
             if !g.is_done() {
                 return Err(PyValueError::new_err("the iteration has not finished"));
             }
-            let r = g.result().ok_or_else(|| PyValueError::new_err(format!("empty group {gi}")))?;
-            to_model(md, &k, &r.mu, r.gap, &mut mean[gi * width..(gi + 1) * width]);
+            let row = &mut mean[gi * width..(gi + 1) * width];
+            let Some(r) = g.result() else {
+                match &keep {
+                    Some(kp) if kp.shape() == [n, width] => {
+                        row.iter_mut().zip(kp.as_array().row(gi)).for_each(|(a, b)| *a = *b);
+                        it.push(0);
+                        conv.push(true);
+                        gn.push(f64::NAN);
+                        continue;
+                    }
+                    Some(_) => return Err(PyValueError::new_err(format!("keep must have shape ({n}, {width})"))),
+                    None => return Err(PyValueError::new_err(format!("empty group {gi}"))),
+                }
+            };
+            to_model(md, &k, &r.mu, r.gap, row);
             it.push(r.iterations as i64);
             conv.push(r.converged);
             gn.push(r.grad_norm);

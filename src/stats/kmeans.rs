@@ -57,6 +57,13 @@ const CENTRE_MAX_ITER: usize = 50;
 /// final centres are recomputed in full.
 const INTERMEDIATE_LAST_STEP: f64 = 1e-5;
 
+/// The Newton iteration of an intermediate centre, started at the previous
+/// centre `mu` (gap `gmu`); also used by gyrokit.dask's k-means
+/// (`partial::Driver::from_newton`).
+pub(crate) fn centre_newton(mu: Vec<f64>, gmu: f64) -> Newton {
+    Newton::new(mu, gmu, CENTRE_TOL, CENTRE_MAX_ITER, INTERMEDIATE_LAST_STEP)
+}
+
 /// The pseudo-random generator of the seeding: xoshiro256** seeded by
 /// SplitMix64 (`numeric::rng`).
 pub use crate::numeric::rng::{splitmix64, Rng};
@@ -422,9 +429,7 @@ fn multi_stats(pts: &UnitPoints, labels: &[usize], it: &[Newton], need: &[bool])
 /// holds the statistics at the centres if the assignment pass gathered them.
 fn update(pts: &UnitPoints, labels: &[usize], cen: &Centres, first: Option<Vec<Stats>>) -> Vec<(Vec<f64>, f64)> {
     let k = cen.a.len();
-    let mut it: Vec<Newton> = (0..k)
-        .map(|j| Newton::new(cen.row(j).to_vec(), cen.g[j], CENTRE_TOL, CENTRE_MAX_ITER, INTERMEDIATE_LAST_STEP))
-        .collect();
+    let mut it: Vec<Newton> = (0..k).map(|j| centre_newton(cen.row(j).to_vec(), cen.g[j])).collect();
     let mut need = vec![true; k];
     let mut st = match first {
         Some(s) => s,

@@ -92,6 +92,13 @@ impl Driver {
         Driver { phase: Phase::Direct, first: None, newton }
     }
 
+    /// A driver already in Newton's iteration at `nt`'s starting point (the
+    /// warm start of k-means' intermediate centres). A group whose
+    /// statistics have no weight ends without a result.
+    pub(crate) fn from_newton(nt: Newton) -> Driver {
+        Driver { phase: Phase::Newton(Box::new(nt)), first: None, newton: None }
+    }
+
     /// What the driver needs next; `None` when done.
     pub fn query(&self) -> Option<Query> {
         match &self.phase {
@@ -172,6 +179,11 @@ impl Driver {
                 }
             }
             (Phase::Newton(mut nt), Sums::Stats(st)) => {
+                if !(st.wsum > 0.0) {
+                    // No members (a warm-started k-means centre whose cluster
+                    // emptied): no result, the caller keeps the centre.
+                    return;
+                }
                 if nt.advance(&st) {
                     self.phase = Phase::Newton(nt);
                 } else {
