@@ -58,11 +58,17 @@ _MODELS = ("poincare", "klein", "hyperboloid", "halfspace")
 def _as_array(name: str, value: Any, dtype: Any = None) -> np.ndarray:
     """``np.asarray(value, dtype)``; an exception from the conversion (an
     object whose ``__array__`` raises, ragged lists, strings for a float
-    dtype) becomes a ``TypeError`` naming the argument."""
+    dtype) becomes a ``TypeError`` naming the argument, as does a conversion
+    to a real ``dtype`` that NumPy would make with a loss or a guess
+    (complex numbers, strings, dates)."""
     try:
-        return np.asarray(value, dtype=dtype)
+        raw = np.asarray(value)
+        out = raw if dtype is None else np.asarray(raw, dtype=dtype)
     except Exception as e:  # noqa: BLE001 - whatever the caller's object raises
         raise TypeError(f"{name} must be an array of real numbers: {type(e).__name__}: {e}") from None
+    if dtype is not None and raw.dtype.kind not in "biufO":
+        raise TypeError(f"{name} must be an array of real numbers, got dtype {raw.dtype}")
+    return out
 
 
 def _hub_of(model: str) -> str:

@@ -195,3 +195,16 @@ def test_geodesic_far_beyond_nearly_coincident_points(mod, scale):
     want = np.array([float(f * mpmath.mpf(v)) for v in y])
     assert np.all(np.isfinite(got))
     np.testing.assert_allclose(got, want, rtol=1e-15)
+
+
+def test_plot_center_of_complex_numbers_is_a_type_error():
+    # fuzz finding F12 (long run, seeds 101-120): a complex `center` was cast
+    # to real with only NumPy's ComplexWarning (common practice: no silent
+    # loss of the imaginary part)
+    pytest.importorskip("matplotlib")
+    import matplotlib
+
+    matplotlib.use("Agg")
+    x = np.array([[0.1, 0.2], [-0.3, 0.1]])
+    with pytest.raises(TypeError, match="^center must be an array of real numbers, got dtype complex128"):
+        gk.plot.disk(x, center=np.array([0.2 + 0.001j, 0.1 + 0j]))
