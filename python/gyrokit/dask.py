@@ -447,9 +447,9 @@ def _rows64(xb: np.ndarray) -> np.ndarray:
 
 
 def _smallest(key: np.ndarray, xb: np.ndarray, x0: int, m: int) -> list:
-    """The ``m`` smallest finite keys of a chunk as ``(key, global index, row)``
-    (ties to the lower index)."""
-    ok = np.flatnonzero(np.isfinite(key))
+    """The ``m`` smallest keys below infinity of a chunk as ``(key, global
+    index, row)`` (ties to the lower index)."""
+    ok = np.flatnonzero(key < np.inf)
     order = ok[np.lexsort((ok, key[ok]))][:m]
     return [(float(key[i]), x0 + int(i), xb[i]) for i in order]
 
@@ -469,7 +469,7 @@ def _seed_block(
     """One seeding draw on one chunk (runs on a worker): the squared distance
     of every point to its nearest chosen centre, updated with the newest
     centre ``c``, and the chunk's best candidates of the exponential race
-    (key ``E_i / w_i`` with ``w_i`` the squared distance, or 1 for a uniform
+    (key ``E_i / w_i``, compared through its logarithm, with ``w_i`` the squared distance, or 1 for a uniform
     draw), plus the uniform race over the points not chosen yet (used when
     every point coincides with a chosen centre)."""
     xb = _rows64(xb)
@@ -489,8 +489,11 @@ def _seed_block(
     free[local] = False
     if d2b is None:
         return d2b, _smallest(np.where(free, e, np.inf), xb, x0, m), []
+    # log(E_i / w_i), so that tiny weights neither overflow nor lose the race
+    # by rounding (the order of the keys is the order of their logarithms)
+    pos = d2b > 0
     with np.errstate(divide="ignore"):
-        key = np.where(d2b > 0, e / np.where(d2b > 0, d2b, 1.0), np.inf)
+        key = np.where(pos, np.log(e) - np.log(np.where(pos, d2b, 1.0)), np.inf)
     return d2b, _smallest(key, xb, x0, m), _smallest(np.where(free, e, np.inf), xb, x0, 1)
 
 
