@@ -34,10 +34,19 @@ Algorithm (per run; the best of ``n_init`` runs by inertia is kept):
    ``frechet_mean(X, labels=...)`` computes them (from the Einstein
    midpoint, to its default tolerance), so ``cluster_centers_`` depends only
    on the final clusters.
-5. Repeat 2-4 until the labels stop changing, or the total hyperbolic
-   movement of the centres ``sum_j d(c_j, c_j')`` is at most ``tol``, or
-   ``max_iter`` updates were made. A final assignment makes ``labels_`` and
-   ``inertia_`` consistent with ``cluster_centers_``.
+5. Repeat 2-4 until the labels stop changing, or the squared hyperbolic
+   movement of the centres ``sum_j d(c_j, c_j')^2`` is at most ``tol``
+   times the data's spread, or ``max_iter`` updates were made. The spread
+   is the mean squared hyperbolic distance of the points to their Einstein
+   midpoint divided by the dimension ``d`` (computed once per fit): the
+   hyperbolic counterpart of the mean per-feature variance by which
+   scikit-learn's Euclidean ``KMeans`` scales its ``tol``, so the same
+   ``tol`` (default ``1e-4`` in both) stops at a comparable stage; where
+   the Euclidean rule measures centre movement in the coordinates, this one
+   measures it along the hyperbolic metric, so it means the same in every
+   model and at any radius. ``tol=0`` runs until the labels stop changing
+   (or ``max_iter``). A final assignment makes ``labels_`` and ``inertia_``
+   consistent with ``cluster_centers_``.
 
 The whole fit runs in the native core in one call: the points are read and
 validated once, every step uses all cores, and the result is bit-identical
@@ -99,14 +108,19 @@ class KMeans:
         Sectional curvature K < 0.
     init : "k-means++", "random" or array (n_clusters, width)
         Seeding; see the module docstring.
-    n_init : int, default 4
+    n_init : int or "auto", default 4
         Number of seeded runs; the one with the lowest inertia is kept
-        (ignored, i.e. 1, when ``init`` is an array).
+        (ignored, i.e. 1, when ``init`` is an array). ``"auto"``: 1 run with
+        ``init="k-means++"``, 10 with ``init="random"`` (scikit-learn's rule
+        for its default ``n_init="auto"``; one k-means++ run can end in a
+        local optimum that merges two separated clusters, which the default
+        of 4 runs rarely keeps).
     max_iter : int, default 100
         Maximum number of Lloyd updates per run.
-    tol : float, default 1e-10
-        Stop when the total hyperbolic centre movement of an update is at
-        most ``tol`` (or when the labels stop changing).
+    tol : float, default 1e-4
+        Stop when the summed squared hyperbolic centre movement of an update,
+        ``sum_j d(c_j, c_j')^2``, is at most ``tol`` times the data's spread
+        (see the module docstring; 0: only when the labels stop changing).
     random_state : None, int or numpy.random.Generator
         Source of randomness (``numpy.random.default_rng(random_state)``);
         an int gives reproducible results.
@@ -128,9 +142,9 @@ class KMeans:
         model: str = "poincare",
         curvature: float = -1.0,
         init: Any = "k-means++",
-        n_init: int = 4,
+        n_init: Any = 4,
         max_iter: int = 100,
-        tol: float = 1e-10,
+        tol: float = 1e-4,
         random_state: Any = None,
     ) -> None:
         self.n_clusters = n_clusters
@@ -163,7 +177,11 @@ class KMeans:
 
     def _check_params(self) -> None:
         _int_param("n_clusters", self.n_clusters, 1)
-        _int_param("n_init", self.n_init, 1)
+        if isinstance(self.n_init, str):
+            if self.n_init != "auto":
+                raise ValueError(f"n_init must be an integer >= 1 or 'auto', got {self.n_init!r}")
+        else:
+            _int_param("n_init", self.n_init, 1)
         _int_param("max_iter", self.max_iter, 1)
         if not isinstance(self.model, str) or self.model not in _MODELS:
             raise ValueError(f"model must be one of {list(_MODELS)}, got {self.model!r}")
@@ -235,7 +253,8 @@ class KMeans:
             init, given = self.init, None
             rng = np.random.default_rng(self.random_state)
             # One seed per run, drawn in turn (see the module docstring).
-            seeds = [int(rng.integers(0, 2**64, dtype=np.uint64)) for _ in range(int(self.n_init))]
+            runs = (1 if init == "k-means++" else 10) if isinstance(self.n_init, str) else int(self.n_init)
+            seeds = [int(rng.integers(0, 2**64, dtype=np.uint64)) for _ in range(runs)]
         else:
             given = self._array(self.init, "init")
             if given.shape != (k, X.shape[1]):

@@ -22,9 +22,13 @@
 //! 4. Update: each centre becomes the Fréchet mean of its points, by the
 //!    Riemannian Newton iteration of [`centroids`](super::centroids) started
 //!    at the previous centre (a warm start: late in the run one or two steps).
-//! 5. Stop when the labels no longer change, the total centre movement
-//!    `sum_j d(c_j, c_j')` is at most `tol`, or after `max_iter` updates;
-//!    the last assignment gives `labels` and `inertia`.
+//! 5. Stop when the labels no longer change, the squared centre movement
+//!    `sum_j d(c_j, c_j')^2` is at most `tol` times the data's spread (the
+//!    mean squared distance of the points to their Einstein midpoint,
+//!    divided by the dimension: the analogue of the mean per-feature variance
+//!    that Euclidean k-means scales its `tol` by; computed once per fit, only
+//!    for `tol > 0`), or after `max_iter` updates; the last assignment gives
+//!    `labels` and `inertia`.
 //!
 //! Randomness comes from [`Rng`] (xoshiro256**), one generator per run
 //! seeded with a 64-bit seed given by the caller, so runs are independent and
@@ -80,6 +84,8 @@ pub enum Init<'a> {
 pub struct Params {
     pub n_clusters: usize,
     pub max_iter: usize,
+    /// Relative to the data's spread (see the module docs); 0: stop on
+    /// unchanged labels (or `max_iter`) only.
     pub tol: f64,
 }
 
@@ -465,7 +471,18 @@ struct Run {
     history: Vec<f64>,
 }
 
-fn lloyd(pts: &UnitPoints, mut cen: Centres, p: &Params, k: &Curvature) -> Run {
+/// The data's spread in the unit ball: the mean squared distance of the
+/// points to their Einstein midpoint, divided by the dimension.
+fn spread(pts: &UnitPoints) -> f64 {
+    let idx: Vec<usize> = (0..pts.n).collect();
+    match super::partial::run(pts, &idx, None, None) {
+        Some(m) => super::centroids::stats(pts, &idx, None, &m.mu, m.gap).f / pts.n as f64 / pts.d as f64,
+        None => 0.0,
+    }
+}
+
+/// `threshold`: the stop rule's bound on `sum_j d(c_j, c_j')^2` (unit ball).
+fn lloyd(pts: &UnitPoints, mut cen: Centres, p: &Params, threshold: f64, k: &Curvature) -> Run {
     let nc = cen.a.len();
     let mut labels = vec![0usize; pts.n];
     let mut dist = vec![0f64; pts.n];
@@ -483,7 +500,8 @@ fn lloyd(pts: &UnitPoints, mut cen: Centres, p: &Params, k: &Curvature) -> Run {
         for (j, (mu, g)) in means.iter().enumerate() {
             let a = 1.0 / cen.g[j];
             let h = scaled_h(seq_dist_sq(cen.row(j), mu), a, 1.0 / g, 1.0);
-            shift += distance_from_h(k, h);
+            let dj = acosh1p2_fast(h);
+            shift += dj * dj;
             cen.set(j, mu, *g);
         }
         n_iter += 1;
@@ -494,7 +512,7 @@ fn lloyd(pts: &UnitPoints, mut cen: Centres, p: &Params, k: &Curvature) -> Run {
         std::mem::swap(&mut labels, &mut new_labels);
         // `new_labels` now holds the clusters this update was computed from.
         std::mem::swap(&mut labels_used, &mut new_labels);
-        if unchanged || shift <= p.tol {
+        if unchanged || shift <= threshold {
             break;
         }
     }
@@ -575,6 +593,7 @@ pub fn fit(model: Model, k: Curvature, x: &Data, init: Init, seeds: &[u64], p: &
         return Err(Error::Value("n_init must be >= 1 (no seeds given)".into()));
     }
     let runs = if given.is_some() { 1 } else { seeds.len() };
+    let threshold = if p.tol > 0.0 { p.tol * spread(&pts) } else { 0.0 };
     let mut best: Option<Run> = None;
     for r in 0..runs {
         let cen = match &given {
@@ -592,7 +611,7 @@ pub fn fit(model: Model, k: Curvature, x: &Data, init: Init, seeds: &[u64], p: &
                 cen
             }
         };
-        let run = lloyd(&pts, cen, p, &k);
+        let run = lloyd(&pts, cen, p, threshold, &k);
         if best.as_ref().map_or(true, |b| run.inertia < b.inertia) {
             best = Some(run);
         }

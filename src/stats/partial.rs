@@ -68,7 +68,7 @@ impl Sums {
 enum Phase {
     /// The direct Einstein sums.
     Direct,
-    /// Translated Einstein sums about `centre` (round 0 or 1).
+    /// Translated Einstein sums about `centre` (rounds from 0).
     Translated {
         round: usize,
         centre: Hub,
@@ -138,7 +138,7 @@ impl Driver {
 
     /// The centre of the next translated round: the estimate as an exact
     /// point with the gap of its rounded coordinates, or, where it rounded
-    /// onto the sphere, the first member (see `centroids::einstein_unit`).
+    /// onto the sphere, the first member.
     fn centre(&self, est: Vec<f64>) -> Option<Hub> {
         let gm = crate::numeric::gap_dd(1.0, &est).value();
         if gm > 0.0 && est.iter().all(|v| v.is_finite()) {
@@ -149,8 +149,31 @@ impl Driver {
     }
 
     /// Feeds the sums over all members answering [`Driver::query`].
+    ///
+    /// The Einstein midpoint of the sums of one round, `m` in the frame of
+    /// the round's centre `c` (the origin for the direct sums), is accurate
+    /// where its Klein gap `1 - |m_K|^2` is well above the rounding of the
+    /// sums: that gap is a difference of nearly equal numbers, so it keeps
+    /// `eps / gap` relative accuracy. Per round:
+    ///
+    /// * Poincaré gap of `m` above 1/2 (Klein gap above 1/9): `c ⊕ m` is
+    ///   the midpoint (Möbius addition with exact gaps; `c ⊕ 0 = c`
+    ///   exactly, so a group of one point returns that point).
+    /// * Klein gap above [`TRUSTED_KLEIN_GAP`]: `m` is within a relative
+    ///   `eps / gap` of the midpoint, and the next round is translated by
+    ///   `c ⊕ m`, where the midpoint is near the origin.
+    /// * Below: only the direction of `m` is known. From the direct sums the
+    ///   next round is translated by the first member (members packed near
+    ///   the rim are then near the origin); in a translated frame, by the
+    ///   point along that direction whose Klein gap is `TRUSTED_KLEIN_GAP`
+    ///   (hyperbolic distance about 9.9 from the frame's origin), which lies
+    ///   between `c` and the midpoint, so every such round moves the centre
+    ///   about 9.9 closer to it (points of float64 coordinates lie within
+    ///   about 38 of the origin, their exact gaps carried through the
+    ///   translations: a few rounds at most).
     pub fn feed(&mut self, s: Sums) {
         let phase = std::mem::replace(&mut self.phase, Phase::Done(None));
+        let unit = Curvature::default();
         match (phase, s) {
             (Phase::Direct, Sums::Einstein { num, den, first }) => {
                 self.first = first;
@@ -158,24 +181,40 @@ impl Driver {
                     return;
                 }
                 let (m, g) = einstein_point(num, den);
-                // The Klein gap 1 - |m_K|^2 loses ~eps/g_K relative; accept
-                // the direct result only where that is negligible.
                 if g > 0.5 {
                     return self.start(m, g);
                 }
-                if let Some(centre) = self.centre(m) {
+                let next = if g >= TRUSTED_GAP { self.centre(m) } else { self.first.clone() };
+                if let Some(centre) = next {
                     self.phase = Phase::Translated { round: 0, centre };
                 }
             }
             (Phase::Translated { round, centre }, Sums::Einstein { num, den, .. }) => {
                 let (m2, g2) = einstein_point(num, den);
                 let mut out = vec![0f64; m2.len()];
-                let g = poincare::add_g(&Curvature::default(), &centre.0, centre.1, &m2, g2, 1.0, &mut out);
-                if round == 1 {
+                if g2 > 0.5 || round + 1 >= MAX_ROUNDS {
+                    let g = if m2.iter().all(|&v| v == 0.0) {
+                        out.copy_from_slice(&centre.0);
+                        centre.1
+                    } else {
+                        poincare::add_g(&unit, &centre.0, centre.1, &m2, g2, 1.0, &mut out)
+                    };
                     return self.start(out, g);
                 }
+                // (the next centre's gap is taken from its rounded coordinates)
+                if g2 >= TRUSTED_GAP {
+                    poincare::add_g(&unit, &centre.0, centre.1, &m2, g2, 1.0, &mut out);
+                } else {
+                    // The point of Klein gap TRUSTED_KLEIN_GAP along m2.
+                    let n = crate::numeric::sumsq(&m2).sqrt();
+                    let a = TRUSTED_KLEIN_GAP.sqrt();
+                    let r = (1.0 - TRUSTED_KLEIN_GAP).sqrt() / (1.0 + a);
+                    let s: Vec<f64> = m2.iter().map(|v| v / n * r).collect();
+                    let gs = crate::numeric::gap_dd(1.0, &s).value();
+                    poincare::add_g(&unit, &centre.0, centre.1, &s, gs, 1.0, &mut out);
+                }
                 if let Some(c) = self.centre(out) {
-                    self.phase = Phase::Translated { round: 1, centre: c };
+                    self.phase = Phase::Translated { round: round + 1, centre: c };
                 }
             }
             (Phase::Newton(mut nt), Sums::Stats(st)) => {
@@ -194,6 +233,15 @@ impl Driver {
         }
     }
 }
+
+/// The Klein gap `1 - |m_K|^2` above which a round's estimate is taken as
+/// the next centre (relative accuracy about `eps / 1e-8`).
+const TRUSTED_KLEIN_GAP: f64 = 1e-8;
+/// The Poincaré gap `2a / (1 + a)`, `a = sqrt(TRUSTED_KLEIN_GAP)`, of the same points.
+const TRUSTED_GAP: f64 = 2e-4 / (1.0 + 1e-4);
+/// Translated rounds at most (each moves the centre about 9.9 closer to the
+/// midpoint, or ends; points lie within about 38 of the origin).
+const MAX_ROUNDS: usize = 12;
 
 /// Runs a driver to the end on in-memory members.
 pub(crate) fn run(

@@ -896,20 +896,12 @@ KNOWN = [
     # F2 (huge inputs of exp_map/transport/log_map/geodesic) and F4 (tiny
     # coordinates) are fixed and their entries removed (predicates _huge and
     # _tiny kept above for re-skipping a regression while it is fixed).
-    # F6, still open for one point: the Einstein midpoint of a single point
-    # near the rim can be off (3e-10 at 1 - |x| = 8e-10, d = 40), and the
-    # Fréchet mean started there NaN (FINDINGS.md, F6 residual)
-    ("gyrokit.frechet_mean", "F6 NaN near the rim", _near_rim),
-    ("gyrokit.einstein_midpoint", "F6 wrong near the rim", _near_rim),
-    ("gyrokit.frechet_variance", "F6 NaN near the rim", _near_rim),
-    ("gyrokit.KMeans.*", "F6 NaN centres near the rim", _near_rim),
+    # F6 (centroids near the rim) is fixed and its entries removed (the
+    # predicate _near_rim is kept above for re-skipping a regression).
     # F8, by design: an exception raised by the caller's own __array__ passes
     # through unchanged, as in NumPy (FINDINGS.md)
     # (any function: the argument is converted by NumPy, or by dask)
     ("gyrokit.*", "F8 RuntimeError from __array__ passes through", _raises_in_array),
-    # gk.dask's centroids run the in-memory iteration (F6 as above)
-    ("gyrokit.dask.frechet_mean", "F6 NaN near the rim", _near_rim),
-    ("gyrokit.dask.einstein_midpoint", "F6 wrong near the rim", _near_rim),
 ]
 # GYROKIT_FUZZ_NO_SKIP=1 runs every known finding; a comma-separated list of
 # finding ids (GYROKIT_FUZZ_NO_SKIP=F2,F6) runs only those.

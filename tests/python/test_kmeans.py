@@ -316,6 +316,7 @@ def test_get_set_params():
         "n_clusters": 3, "model": "klein", "curvature": -1.0, "init": "k-means++", "n_init": 4,
         "max_iter": 100, "tol": 1e-8, "random_state": None,
     }
+    assert KMeans(3).tol == 1e-4  # the default of scikit-learn's KMeans too (its docs)
     assert km.set_params(n_clusters=5, random_state=1) is km
     assert km.n_clusters == 5 and km.random_state == 1
     assert KMeans(**km.get_params()).get_params() == km.get_params()
@@ -358,6 +359,7 @@ def _bad_cases():
         (dict(n_clusters=2, curvature=1.0), X, ValueError, "curvature must be finite and < 0"),
         (dict(n_clusters=2, init="kmeans"), X, ValueError, "init must be one of"),
         (dict(n_clusters=2, n_init=0), X, ValueError, "n_init must be >= 1"),
+        (dict(n_clusters=2, n_init="many"), X, ValueError, "n_init must be an integer >= 1 or 'auto'"),
         (dict(n_clusters=2, max_iter=0), X, ValueError, "max_iter must be >= 1"),
         (dict(n_clusters=2, tol=-1.0), X, ValueError, "tol must be >= 0"),
         (dict(n_clusters=2), nan, ValueError, "X is not a valid array of poincare points: x: row 3 contains NaN"),
@@ -385,3 +387,18 @@ def test_bad_input_at_predict():
     for f in (km.predict, km.transform, km.score):
         with pytest.raises(ValueError, match="row 5 contains NaN or infinity"):
             f(bad)
+
+
+def test_n_init_auto_is_one_kmeanspp_run_or_ten_random_runs():
+    # the rule of scikit-learn's n_init="auto" (its documentation)
+    rng = np.random.default_rng(12)
+    X = overlapping(rng, 400, 2)
+    for init, runs in (("k-means++", 1), ("random", 10)):
+        a = KMeans(5, init=init, n_init="auto", random_state=3).fit(X)
+        b = KMeans(5, init=init, n_init=runs, random_state=3).fit(X)
+        np.testing.assert_array_equal(a.cluster_centers_, b.cluster_centers_)
+        np.testing.assert_array_equal(a.labels_, b.labels_)
+    # n_init=2 with k-means++ is a different fit (one more seed drawn)
+    c = KMeans(5, n_init=2, random_state=3).fit(X)
+    assert c.inertia_ <= KMeans(5, n_init="auto", random_state=3).fit(X).inertia_
+

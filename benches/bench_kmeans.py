@@ -1,0 +1,110 @@
+"""KMeans benchmark: ``gk.KMeans`` against scikit-learn's Euclidean
+``sklearn.cluster.KMeans`` on the same array, timed in the same run.
+
+Data (invented, our own):
+
+* 36 607 x 10 points: a taxonomy (node depth ~ hyperbolic radius,
+  Gamma(3, 0.9) capped at 12; twelve branches, nodes scattered around their
+  branch's direction);
+* 1 000 000 x 2 points: hyperbolic radii uniform in [0, 3], uniform directions.
+
+Configurations, ``n_clusters=10``, k-means++ seeding, ``random_state=0``
+(each library draws its own seeding from it), scikit-learn with
+``algorithm="lloyd"``:
+
+* ``same``: ``n_init=1, max_iter=100, tol=0`` on both: each runs until its
+  labels stop changing (or 100 updates); the time per iteration compares
+  the work of one Lloyd step.
+* ``default tol, n_init=1``: each library's default stop rule (gyrokit:
+  ``tol=1e-4`` relative to the data's spread; scikit-learn: ``tol=1e-4``
+  relative to the mean per-feature variance), one run each.
+* ``defaults``: each library's defaults (gyrokit: ``n_init=4``;
+  scikit-learn: ``n_init="auto"`` = 1 run for k-means++).
+
+Each fit is timed twice, alternating the libraries, and the faster time of
+each is kept; the ratio gk/sklearn is printed beside the times, with the
+iteration counts. Threads: gyrokit uses rayon (``RAYON_NUM_THREADS``,
+default all cores), scikit-learn OpenMP (``OMP_NUM_THREADS``, default all
+cores).
+
+Run: ``.venv/bin/python benches/bench_kmeans.py [--repeat N] [--only small|large]``.
+"""
+
+from __future__ import annotations
+
+import os
+import sys
+import time
+
+import numpy as np
+
+import gyrokit as gk
+
+
+def ball_points(rng, n, d, max_radius=3.0):
+    """Poincaré points with hyperbolic radius uniform in [0, max_radius] (K = -1)."""
+    v = rng.standard_normal((n, d))
+    v /= np.linalg.norm(v, axis=1, keepdims=True)
+    return v * np.tanh(rng.uniform(0, max_radius, n) / 2)[:, None]
+
+
+def taxonomy(rng, n=36_607, d=10):
+    """Invented taxonomy: twelve branches; a node's direction scatters around
+    its branch's, its depth (hyperbolic radius) is Gamma(3, 0.9), capped at 12."""
+    branches = rng.standard_normal((12, d))
+    u = branches[rng.integers(0, 12, n)] + 0.6 * rng.standard_normal((n, d))
+    u /= np.linalg.norm(u, axis=1, keepdims=True)
+    return np.tanh(np.minimum(rng.gamma(3.0, 0.9, n), 12.0) / 2)[:, None] * u
+
+
+def main(argv):
+    try:
+        from sklearn.cluster import KMeans as SkKMeans
+    except ImportError:
+        print("scikit-learn is not installed (pip install scikit-learn); nothing to compare with")
+        return
+    repeat = int(argv[argv.index("--repeat") + 1]) if "--repeat" in argv else 2
+    only = argv[argv.index("--only") + 1] if "--only" in argv else None
+    rng = np.random.default_rng(7)
+    cases = []
+    if only in (None, "small"):
+        cases.append(("36 607 x 10, taxonomy", taxonomy(rng)))
+    if only in (None, "large"):
+        cases.append(("1 000 000 x 2, radii in [0, 3]", ball_points(np.random.default_rng(8), 1_000_000, 2)))
+    configs = [
+        ("same (n_init=1, max_iter=100, tol=0)",
+         dict(n_init=1, max_iter=100, tol=0.0), dict(n_init=1, max_iter=100, tol=0.0)),
+        ("default tol, n_init=1 on both", dict(n_init=1), dict(n_init=1)),
+        ("defaults", {}, {}),
+    ]
+    warm = taxonomy(np.random.default_rng(1), 500)
+    gk.KMeans(2, n_init=1).fit(warm)  # warm-up (thread pools)
+    SkKMeans(2, n_init=1).fit(warm)
+    load = os.getloadavg()[0] if hasattr(os, "getloadavg") else float("nan")
+    print(f"KMeans(n_clusters=10, random_state=0), k-means++; best of {repeat}, alternating; threads: gyrokit "
+          f"RAYON_NUM_THREADS={os.environ.get('RAYON_NUM_THREADS', 'all')}, scikit-learn OMP_NUM_THREADS="
+          f"{os.environ.get('OMP_NUM_THREADS', 'all')}, {os.cpu_count()} cpus; load average {load:.2f}")
+    ratios = []
+    for name, X in cases:
+        print(f"{name}")
+        for cname, gk_kw, sk_kw in configs:
+            t_gk = t_sk = float("inf")
+            for _ in range(repeat):
+                t0 = time.perf_counter()
+                km = gk.KMeans(10, random_state=0, **gk_kw).fit(X)
+                t_gk = min(t_gk, time.perf_counter() - t0)
+                t0 = time.perf_counter()
+                sk = SkKMeans(10, random_state=0, algorithm="lloyd", **sk_kw).fit(X)
+                t_sk = min(t_sk, time.perf_counter() - t0)
+            r = t_gk / t_sk
+            ratios.append((name, cname, r))
+            print(f"  {cname:38s} gk {t_gk:7.3f} s ({km.n_iter_:3d} it, {t_gk / max(km.n_iter_, 1) * 1e3:6.1f} ms/it)"
+                  f"   sklearn {t_sk:7.3f} s ({sk.n_iter_:3d} it, {t_sk / max(sk.n_iter_, 1) * 1e3:6.1f} ms/it)"
+                  f"   ratio gk/sklearn {r:5.2f}x")
+    load = os.getloadavg()[0] if hasattr(os, "getloadavg") else float("nan")
+    print(f"load average {load:.2f} after the run")
+    return ratios
+
+
+if __name__ == "__main__":
+    main(sys.argv[1:])
