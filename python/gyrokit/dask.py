@@ -565,7 +565,7 @@ def _move_labels(lab: np.ndarray, moves: dict, x0: int) -> np.ndarray:
     return lab
 
 
-def _stats_block(xb: np.ndarray, lab: np.ndarray, queries: list, model: str, curvature: float) -> list:
+def _stats_block(xb: np.ndarray, lab: Optional[np.ndarray], queries: list, model: str, curvature: float) -> list:
     if xb.shape[0] == 0:
         return [None] * len(queries)
     return _native.centroid_chunk_sums(_rows64(xb), None, 1.0, lab, queries, model, curvature)
@@ -616,7 +616,8 @@ class KMeans(_InMemoryKMeans):
     run costs passes over the data); ``labels_`` is a dask array (chunked
     like the rows of ``X``); ``predict`` and ``transform`` return lazy dask
     arrays. Passes per Lloyd iteration: one assignment plus one per further
-    Newton step (usually one or two).
+    Newton step (usually one or two); the stop rule's spread (``tol > 0``,
+    as in :class:`gyrokit.KMeans`) costs 2 to 4 passes once per fit.
     """
 
     def __init__(
@@ -626,9 +627,9 @@ class KMeans(_InMemoryKMeans):
         model: str = "poincare",
         curvature: float = -1.0,
         init: Any = "k-means++",
-        n_init: int = 1,
+        n_init: Any = 1,
         max_iter: int = 100,
-        tol: float = 1e-10,
+        tol: float = 1e-4,
         random_state: Any = None,
     ) -> None:
         super().__init__(
@@ -686,14 +687,36 @@ class KMeans(_InMemoryKMeans):
         summary = list(dask.compute(*[o[1] for o in outs]))
         return labels, summary
 
-    def _rounds(self, drv: Any, blocks: list, labels: list) -> None:
-        """Runs a centroid driver to the end on chunk sums over ``labels``."""
+    def _rounds(self, drv: Any, blocks: list, labels: Optional[list], once: bool = False) -> list:
+        """Runs a centroid driver to the end on chunk sums over ``labels``
+        (``None``: one group of all points); with ``once``, one round whose
+        chunk sums are returned instead of fed."""
         task = dask.delayed(_stats_block, pure=True)
+        labs = [None] * len(blocks) if labels is None else labels
         while True:
             queries = drv.queries()
             if all(q is None for q in queries):
-                return
-            drv.feed(list(dask.compute(*[task(xb, lb, queries, self.model, float(self.curvature)) for xb, lb in zip(blocks, labels)])))
+                return []
+            parts = list(dask.compute(*[task(xb, lb, queries, self.model, float(self.curvature)) for xb, lb in zip(blocks, labs)]))
+            if once:
+                return parts
+            drv.feed(parts)
+
+    def _threshold(self, blocks: list, n: int, d: int) -> float:
+        """The stop rule's bound on ``sum_j d(c_j, c_j')^2`` (unit ball):
+        ``tol`` times the data's spread, the mean squared distance of the
+        points to their Einstein midpoint over ``d`` (gk.KMeans's rule; 2 to
+        4 passes, only for ``tol > 0``)."""
+        tol = float(self.tol)
+        if tol == 0.0:
+            return 0.0
+        model, curv = self.model, float(self.curvature)
+        mid = _native.CentroidDriver(1, False, 1e-12, 0)
+        self._rounds(mid, blocks, None)
+        centre = mid.result(d, model, curv)[0]
+        parts = self._rounds(_native.CentroidDriver.lloyd(centre, model, curv), blocks, None, once=True)
+        f = sum(p[0][4] for p in parts if p[0] is not None)  # chunk order
+        return tol * f / n / d
 
     def _repair(self, blocks: list, starts: List[int], labels: list, centres: np.ndarray, counts: np.ndarray) -> Tuple[list, np.ndarray]:
         """The empty-cluster repair of gk.KMeans (module docs, step 3)."""
@@ -722,8 +745,11 @@ class KMeans(_InMemoryKMeans):
         labels = list(dask.persist(*[move(lb, moves, x0) for lb, x0 in zip(labels, starts)]))
         return labels, centres
 
-    def _lloyd(self, blocks: list, starts: List[int], centres: np.ndarray, d: int) -> Tuple[np.ndarray, list, float, int, list]:
+    def _lloyd(
+        self, blocks: list, starts: List[int], centres: np.ndarray, d: int, threshold: float
+    ) -> Tuple[np.ndarray, list, float, int, list]:
         model, curv, k = self.model, float(self.curvature), int(self.n_clusters)
+        radius = 1.0 / np.sqrt(-curv)
         drv = _native.CentroidDriver.lloyd(centres, model, curv)
         labels, summary = self._assign(blocks, starts, centres, drv.queries(), None)
         history = [float(sum(s[1] for s in summary))]
@@ -738,14 +764,14 @@ class KMeans(_InMemoryKMeans):
                 drv.feed([s[3] for s in summary])
             self._rounds(drv, blocks, labels)
             new = drv.result(d, model, curv, centres)[0]
-            shift = float(np.sum(_pair_distances(centres, new, model, curv)))
+            shift = float(np.sum((_pair_distances(centres, new, model, curv) / radius) ** 2))
             centres = new
             n_iter += 1
             drv = _native.CentroidDriver.lloyd(centres, model, curv)
             used = labels
             labels, summary = self._assign(blocks, starts, centres, drv.queries(), used)
             history.append(float(sum(s[1] for s in summary)))
-            if sum(s[0] for s in summary) == 0 or shift <= float(self.tol):
+            if sum(s[0] for s in summary) == 0 or shift <= threshold:
                 break
         # The final centres: the Fréchet means of the last update's clusters
         # from their Einstein midpoints, as frechet_mean(X, labels=...) does.
@@ -771,7 +797,7 @@ class KMeans(_InMemoryKMeans):
         d = width - (1 if self.model == "hyperboloid" else 0)
         if isinstance(self.init, str):
             rng = np.random.default_rng(self.random_state)
-            seeds: List[Optional[int]] = [int(rng.integers(0, 2**64, dtype=np.uint64)) for _ in range(int(self.n_init))]
+            seeds: List[Optional[int]] = [int(rng.integers(0, 2**64, dtype=np.uint64)) for _ in range(self._runs())]
             init: Any = self.init
         else:
             init = self._array(self.init, "init").astype(np.float64)
@@ -783,10 +809,11 @@ class KMeans(_InMemoryKMeans):
                 raise ValueError(f"init is not a valid array of {self.model} points: {e}") from None
             seeds = [None]
         blocks, starts = self._blocks(x)
+        threshold = self._threshold(blocks, n, d)
         best = None
         for seed in seeds:
             centres = self._seed(blocks, starts, n, seed, init)
-            run = self._lloyd(blocks, starts, centres, d)
+            run = self._lloyd(blocks, starts, centres, d, threshold)
             if best is None or run[2] < best[2]:
                 best = run
         assert best is not None

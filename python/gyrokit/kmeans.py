@@ -201,6 +201,12 @@ class KMeans:
             if self.init not in _INITS:
                 raise ValueError(f"init must be one of {list(_INITS)} or an array of centres, got {self.init!r}")
 
+    def _runs(self) -> int:
+        """The number of seeded runs (``n_init``, with "auto" resolved)."""
+        if isinstance(self.n_init, str):
+            return 1 if self.init == "k-means++" else 10
+        return int(self.n_init)
+
     # ------------------------------------------------------------------ data
     def _array(self, X: Any, name: str = "X") -> np.ndarray:
         """``X`` as a float64/float32 (n, width) array, shape and dtype checked
@@ -253,8 +259,7 @@ class KMeans:
             init, given = self.init, None
             rng = np.random.default_rng(self.random_state)
             # One seed per run, drawn in turn (see the module docstring).
-            runs = (1 if init == "k-means++" else 10) if isinstance(self.n_init, str) else int(self.n_init)
-            seeds = [int(rng.integers(0, 2**64, dtype=np.uint64)) for _ in range(runs)]
+            seeds = [int(rng.integers(0, 2**64, dtype=np.uint64)) for _ in range(self._runs())]
         else:
             given = self._array(self.init, "init")
             if given.shape != (k, X.shape[1]):
