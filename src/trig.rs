@@ -32,8 +32,9 @@
 //!   Poincaré images of far points (gap ~e^{-r/R}) would not separate
 //!   vertices far out on nearly the same ray.
 //!   These vectors carry about 32 digits, so the part of one across the
-//!   other (`w_⊥ = |u|^2 w - (u.w) u`, in double-double) keeps its digits
-//!   for angles down to ~1e-16 (thin and collinear triangles).
+//!   other (`w_⊥ = |u|^2 w - (u.w) u`, in double-double, or for nearly
+//!   parallel vectors the 2x2 minors `u_i w_j - u_j w_i` in double-double)
+//!   keeps its digits for thin and collinear triangles.
 //! * **Angles** `atan2(|u ∧ w|, u.w)` with `|u ∧ w| = |w_⊥|/|u|` and the
 //!   sine `|w_⊥| / (|u|^2 |w|)` taken directly (not `sin` of a rounded
 //!   angle near π).
@@ -159,19 +160,22 @@ fn cosh_m1_dd(k: &Curvature, a: &[f64], b: &[f64]) -> DD {
 /// `U_s = Δ - (cosh(d/R) - 1) b_s` (`Δ = a_s - b_s`); its Minkowski norm
 /// splits into the parts across and along `n = b_s/|b_s|` as
 /// `|U_⊥|^2 + (U_∥ / c_b)^2` (`c_b = x0/R`), so `U_⊥ + (U_∥/c_b) n` has the
-/// Euclidean angles of the tangents. Written times `|b̂|^2` as
-/// `|b̂|^2 a_⊥ + ((b̂.Δ - (cosh - 1) |b̂|^2 2^eb) / c_b) b̂`, with
+/// Euclidean angles of the tangents. Written times `|b̂|^2`, and with the
+/// part along `n` kept apart as an extra coordinate (length d + 1; added to
+/// the coordinates it would be rounded away next to a radial part up to
+/// ~e^{2r/R} larger): `(|b̂|^2 a_⊥, (b̂.Δ - (cosh - 1) |b̂|^2 2^eb) |b̂| / c_b)`, with
 /// `|b̂|^2 a_⊥ = sum_j b̂_j (b̂_j a_i - b̂_i a_j)` from exact minors (it
 /// vanishes for `a` on the ray of `b`) and `cosh - 1` from
 /// [`cosh_m1_dd`]: no difference of far coordinates is rounded.
 #[inline(always)]
 #[allow(clippy::too_many_arguments)]
 fn hyperboloid_direction(k: &Curvature, b: &[f64], bs: &[f64], eb: i32, a: &[f64], oh: &mut [f64], ol: &mut [f64]) {
-    let n = oh.len();
+    let n = a.len();
+    ol.iter_mut().for_each(|v| *v = 0.0);
     if bs.iter().all(|&v| v == 0.0) {
         // b at the origin: the tangent towards a is a_s
-        oh.copy_from_slice(a);
-        ol.iter_mut().for_each(|v| *v = 0.0);
+        oh[..n].copy_from_slice(a);
+        oh[n] = 0.0;
         return;
     }
     let bb = sumsq_dd(bs);
@@ -183,7 +187,7 @@ fn hyperboloid_direction(k: &Curvature, b: &[f64], bs: &[f64], eb: i32, a: &[f64
     let cb = sqrt_dd(DD::from(1.0).add(sumsq_dd(b).mul_f64(k.kappa)));
     let along = div(bd.sub(cosh_m1_dd(k, a, b).mul(bb).mul_f64(pow2(eb))), cb);
     for i in 0..n {
-        let mut acc = along.mul_f64(bs[i]);
+        let mut acc = DD::default();
         for j in 0..n {
             if j != i {
                 acc = acc.add(minor_dd(bs[j], a[i], bs[i], a[j]).mul_f64(bs[j]));
@@ -192,6 +196,9 @@ fn hyperboloid_direction(k: &Curvature, b: &[f64], bs: &[f64], eb: i32, a: &[f64
         oh[i] = acc.hi;
         ol[i] = acc.lo;
     }
+    let rho = along.mul(sqrt_dd(bb));
+    oh[n] = rho.hi;
+    ol[n] = rho.lo;
 }
 
 /// Reads a vertex of `model` into its frame (the Poincaré image for the
@@ -316,28 +323,62 @@ fn normalise(hi: &mut [f64], lo: &mut [f64]) -> bool {
 
 /// The angle between two double-double vectors and its sine, from
 /// `w_⊥ = |u|^2 w - (u.w) u` formed in double-double (see the module
-/// notes). Both vectors are non-zero and normalised; `q` is scratch.
+/// notes); for nearly parallel vectors (sine below 1e-8), where the
+/// absolute error ~1e-32 of that difference matters, from the 2x2 minors
+/// `u_i w_j - u_j w_i` in double-double instead (O(d^2)), which keep the
+/// digits of the wedge when the vectors' components are of very different
+/// sizes. Both vectors are non-zero and normalised; `q` is scratch.
 #[inline(always)]
 fn angle_sine(uh: &[f64], ul: &[f64], wh: &[f64], wl: &[f64], q: &mut [f64]) -> (f64, f64) {
+    let m = uh.len();
     let uu = sumsq_v(uh, ul);
     let mut uw = DD::default();
-    for i in 0..uh.len() {
+    for i in 0..m {
         uw = uw.add(DD { hi: uh[i], lo: ul[i] }.mul(DD { hi: wh[i], lo: wl[i] }));
     }
-    for i in 0..uh.len() {
+    for i in 0..m {
         let a = uu.mul(DD { hi: wh[i], lo: wl[i] });
         let b = uw.mul(DD { hi: uh[i], lo: ul[i] });
         q[i] = a.sub(b).value();
     }
-    let nq = norm_scaled(q);
     let (nu2, nw) = (uu.value(), sumsq_v(wh, wl).value().sqrt());
     let nu = nu2.sqrt();
-    ((nq / nu).atan2(uw.value()), (nq / (nu2 * nw)).min(1.0))
+    // |u ∧ w| = |w_⊥| / |u|
+    let mut wedge = norm_scaled(q) / nu;
+    if wedge < 1e-8 * nu * nw {
+        let minor = |i: usize, j: usize| {
+            let (ui, uj) = (DD { hi: uh[i], lo: ul[i] }, DD { hi: uh[j], lo: ul[j] });
+            let (wi, wj) = (DD { hi: wh[i], lo: wl[i] }, DD { hi: wh[j], lo: wl[j] });
+            ui.mul(wj).sub(uj.mul(wi)).value()
+        };
+        // two passes (largest minor, then the scaled sum of squares): minors
+        // of 1e-200 would underflow when squared
+        let mut big = 0.0f64;
+        for i in 0..m {
+            for j in (i + 1)..m {
+                big = big.max(minor(i, j).abs());
+            }
+        }
+        wedge = 0.0;
+        if big > 0.0 {
+            let up = pow2(-unit_exponent(&[big]));
+            let mut acc = 0.0;
+            for i in 0..m {
+                for j in (i + 1)..m {
+                    let t = minor(i, j) * up;
+                    acc += t * t;
+                }
+            }
+            wedge = acc.sqrt() / up;
+        }
+    }
+    (wedge.atan2(uw.value()), (wedge / (nu * nw)).min(1.0))
 }
 
 /// The angle at vertex `b` (index `ib`) towards `a` (index `ia`) and `c`
 /// (index `ic`), and its sine; faults name a vertex equal to `b`. `ws` has
-/// length `6 d`.
+/// length `6 d + 5` (directions of length d + 1, the last coordinate used
+/// on the hyperboloid only).
 #[inline(always)]
 #[allow(clippy::too_many_arguments)]
 fn angle_at(
@@ -350,11 +391,12 @@ fn angle_at(
     ws: &mut [f64],
 ) -> std::result::Result<(f64, f64), RowFault> {
     let d = v[0].0.len();
-    let (uh, rest) = ws.split_at_mut(d);
-    let (ul, rest) = rest.split_at_mut(d);
-    let (wh, rest) = rest.split_at_mut(d);
-    let (wl, rest) = rest.split_at_mut(d);
-    let (q, bs) = rest.split_at_mut(d);
+    let m = d + 1;
+    let (uh, rest) = ws.split_at_mut(m);
+    let (ul, rest) = rest.split_at_mut(m);
+    let (wh, rest) = rest.split_at_mut(m);
+    let (wl, rest) = rest.split_at_mut(m);
+    let (q, bs) = rest.split_at_mut(m);
     if frame == Frame::Sheet {
         let b = v[ib].0;
         let eb = unit_exponent(b);
@@ -366,8 +408,12 @@ fn angle_at(
         hyperboloid_direction(k, b, &bs[..d], eb, v[ic].0, wh, wl);
     } else {
         let half = frame == Frame::Half;
-        direction(half, k, v[ib], v[ia], uh, ul);
-        direction(half, k, v[ib], v[ic], wh, wl);
+        direction(half, k, v[ib], v[ia], &mut uh[..d], &mut ul[..d]);
+        direction(half, k, v[ib], v[ic], &mut wh[..d], &mut wl[..d]);
+        uh[d] = 0.0;
+        ul[d] = 0.0;
+        wh[d] = 0.0;
+        wl[d] = 0.0;
     }
     if !normalise(uh, ul) {
         return Err(RowFault::new(ia, Fault::Coincident(NAMES[ib])));
@@ -375,7 +421,7 @@ fn angle_at(
     if !normalise(wh, wl) {
         return Err(RowFault::new(ic, Fault::Coincident(NAMES[ib])));
     }
-    Ok(angle_sine(uh, ul, wh, wl, &mut q[..d]))
+    Ok(angle_sine(uh, ul, wh, wl, q))
 }
 
 const NAMES: [&str; 3] = ["a", "b", "c"];
@@ -415,7 +461,7 @@ pub fn angle_arrays<'a>(space: Space, k: Curvature, a: Data<'a>, b: Data<'a>, c:
         #[inline(always)]
         |r, out| {
             let d = r[0].len();
-            with_scratch(12 * d, |buf| {
+            with_scratch(12 * d + 8, |buf| {
                 with_vertices(model, &k, r, d, buf, |v, ws| {
                     out[0] = angle_at(Frame::Ball, &k, v, 0, 1, 2, ws)?.0;
                     Ok(())
@@ -481,7 +527,7 @@ pub fn triangle_arrays<'a>(model: Model, k: Curvature, a: Data<'a>, b: Data<'a>,
                 out[i] = distance_from_h(&k, h[i]);
             }
             let frame = Frame::of(model);
-            let sines = with_scratch(12 * d, |buf| {
+            let sines = with_scratch(12 * d + 8, |buf| {
                 with_vertices(model, &k, r, d, buf, |v, ws| {
                     let (a0, s0) = angle_at(frame, &k, v, 1, 0, 2, ws)?;
                     let (a1, s1) = angle_at(frame, &k, v, 0, 1, 2, ws)?;

@@ -49,10 +49,11 @@ def triangle(a: Any, b: Any, c: Any, *, model: str = "poincare", curvature: floa
     sides, angles and defect to a few ulps for vertices within 1e-12 R of the
     sphere (Poincaré and Klein), nearly collinear and nearly coincident
     vertices, tiny triangles, half-space vertices near the boundary plane
-    and far from the origin, and hyperboloid vertices out to 100 R. The one
-    regime left: hyperboloid vertices far out (beyond ~25 R) on rays within
-    ~1e-16 of each other, where the double-double Poincaré images the angles
-    are computed from no longer separate the vertices. A vertex equal to
+    and far from the origin, and hyperboloid vertices out to 100 R, also on
+    nearly the same ray (worst relative errors 7e-16, see
+    ``tests/python/test_trig_hard.py``). Angles below ~1e-16 of the other
+    directions at their vertex (vertices collinear to the last bits of their
+    coordinates) keep an absolute accuracy of ~1e-32 rad. A vertex equal to
     another raises ``ValueError`` (its angle is undefined).
     """
     if not isinstance(model, str):
