@@ -6,43 +6,67 @@
 //! two gyrovectors. In the Poincaré ball it equals the hyperbolic angle of
 //! the triangle at `b` (the left gyrotranslation `⊖b⊕·` is an isometry taking
 //! `b` to the origin, where the model is conformal); in the Klein ball the
-//! Einstein gyrovectors are the Möbius ones scaled radially (Ungar's
-//! isomorphism `p -> 2 ⊗ p`), so the angle is the same.
+//! Einstein gyrovectors are the Möbius ones of the Poincaré images scaled
+//! radially (Ungar's isomorphism `p -> 2 ⊗ p`), so the angle is the same.
 //!
-//! How the digits are kept:
+//! How the digits are kept. The inputs are taken as exact; every quantity
+//! below is a function of them computed to a few ulps, with no clamp:
 //!
-//! * The gyrovectors come from the models' exact subtraction kernels (written
-//!   around `s = x + y` with carried gaps). In gyrocommutative gyrogroups
-//!   `⊖b⊕a = ⊖(b⊖a)`, and negating both vectors leaves every angle, wedge
-//!   and dot product unchanged, so `b⊖a` and `b⊖c` are used directly.
-//! * An angle is `atan2(|u ∧ w|, u.w)` with the wedge from exact 2x2 minors
-//!   when `u` and `w` are nearly parallel (`numeric::wedge_sq`): exact for
-//!   angles near 0 and π, where `acos` of a rounded cosine has no digits.
-//! * The defect is not `π - (α + β + γ)` (for a triangle of side 1e-6 R
-//!   that difference of rounded angles keeps 4 digits). With `b` moved to
-//!   the origin the triangle is `(0, u, w)` in the Poincaré ball, and its
-//!   defect (area / R^2) is
-//!   `δ = 2 atan2(kappa |u ∧ w|, 1 - kappa u.w)`, the ball form of the
-//!   complex-plane formula `tan(δ/2) = Im(z̄ w)/(1 - Re(z̄ w))` for the
-//!   triangle `(0, z, w)` of the unit disk (the triangle lies in the plane
-//!   through the origin spanned by `u` and `w`, a totally geodesic disk).
-//!   `1 - kappa u.w = (g_u + g_w)/2 + kappa |u - w|^2/2` is a sum of
-//!   non-negative terms with the exact gaps of the kernels, so `δ` keeps its
-//!   digits for tiny triangles and near the rim. Checked against Gauss–Bonnet
-//!   with 50-digit angles in the tests.
-//! * Sides are the element-wise distances of each model
-//!   (`pairwise::point_distance`), bit-identical to `distance`.
+//! * **Directions in double-double.** An angle at `b` only needs the
+//!   directions of the two gyrovectors, up to positive factors. In the
+//!   Poincaré ball, with `s = b - a` and `t = kappa |s|^2 / g_b`,
+//!   `b ⊖ a ∝ s + t b` (the numerator `g_b s + kappa |s|^2 b` of the Möbius
+//!   sum written around `s`, see `models::poincare::add_g`, divided by
+//!   `g_b > 0`); it is `-(⊖b⊕a)` up to a positive factor, and negating both
+//!   directions leaves the angle unchanged. It is formed in double-double
+//!   from the exact inputs (Klein vertices first mapped to their Poincaré
+//!   images in double-double, `p = k/(1 + sqrt g_k)`, with the exact image
+//!   gap `2 sqrt(g_k)/(1 + sqrt g_k)`). In the half-space the
+//!   geodesic from `b` towards `a` is the circle through `b`, `a` and the
+//!   mirror image of `a` in the boundary plane; inverting in a sphere about
+//!   `b` turns it into a line, which gives its tangent at `b`:
+//!   `v ∝ 2 b_d (a - b) + |a - b|^2 e_d`, again formed in double-double.
+//!   On the hyperboloid the tangent `A - cosh(d/R) B` is read in an
+//!   orthonormal frame at `b` ([`hyperboloid_direction`]) from exact 2x2
+//!   minors of the spatial parts and `cosh(d/R) - 1` in double-double:
+//!   Poincaré images of far points (gap ~e^{-r/R}) would not separate
+//!   vertices far out on nearly the same ray.
+//!   These vectors carry about 32 digits, so the part of one across the
+//!   other (`w_⊥ = |u|^2 w - (u.w) u`, in double-double, or for nearly
+//!   parallel vectors the 2x2 minors `u_i w_j - u_j w_i` in double-double)
+//!   keeps its digits for thin and collinear triangles.
+//! * **Angles** `atan2(|u ∧ w|, u.w)` with `|u ∧ w| = |w_⊥|/|u|` and the
+//!   sine `|w_⊥| / (|u|^2 |w|)` taken directly (not `sin` of a rounded
+//!   angle near π).
+//! * **Sides** are the element-wise distances of each model (`pairwise`),
+//!   bit-identical to `distance`, with their exact `h = sinh^2(d/2R)`.
+//! * **Defect.** Not `π - (α + β + γ)` (a difference of rounded angles),
+//!   but the hyperbolic form of the spherical-excess formula
+//!   `tan(E/2) = sin a sin c sin B / (1 + cos a + cos b + cos c)` (Todhunter
+//!   & Leathem, "Spherical Trigonometry", the Cagnoli-type formulas; the
+//!   hyperbolic form by `a -> i a`; from memory, checked against
+//!   `π - (α + β + γ)` in mpmath in the tests):
+//!   `tan(δ/2) = sinh a sinh c sin β / (1 + cosh a + cosh b + cosh c)`
+//!   (sides in units of R), written with `h_x = sinh^2(x/2)` and
+//!   `ρ_x = h_x/(1 + h_x)` as
+//!   `2 sqrt(ρ_a ρ_c) sin β / (1/(1 + h_a) + 1/(1 + h_c) + h_b/((1 + h_a)(1 + h_c)))`:
+//!   products and a sum of positive terms, no overflow for any side the
+//!   models reach, relative accuracy that of `sin β` and the `h`. The vertex
+//!   used is the one with the largest sine.
 //!
-//! Half-space and hyperboloid vertices are read into the Poincaré hub
-//! (`convert::to_hub`) first; sides come from their own model.
+//! Limits: the directions carry ~32 digits, so an angle below ~1e-16 of
+//! the largest one at its vertex (vertices collinear to the last bits of
+//! their coordinates) keeps only an absolute accuracy of ~1e-32 rad. On the
+//! hyperboloid the curvature enters through `sqrt(kappa)` (rounded unless
+//! `kappa` is a power of 4, e.g. K = -1), which limits the directions there
+//! to a relative 1e-16.
 
 use crate::batch::{map_rows, scalar_core, Data, Operand, Output};
 use crate::error::{Fault, Result, RowFault};
-use crate::models::ball::{point_gap, Curvature};
-use crate::models::convert::to_hub;
-use crate::models::{hyperboloid, klein, poincare, Model};
-use crate::numeric::{dist_sq, dot2, sumsq, wedge_sq, with_scratch};
-use crate::pairwise::point_distance;
+use crate::models::ball::{checked_gap, Curvature};
+use crate::models::{halfspace, hyperboloid, Model};
+use crate::numeric::{dot_dd, norm_scaled, pow2, sumsq_dd, two_prod, two_sum, unit_exponent, with_scratch, DD};
+use crate::pairwise::{distance_from_h, div_dd, pair_h, pair_scale, read_pair_point, seq_dist_sq, sqrt_dd, PairSpace};
 
 /// The gyrovector space of a ball model.
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
@@ -53,126 +77,428 @@ pub enum Space {
     Einstein,
 }
 
-/// `b ⊖ x` in `space`; returns the exact gap of the result.
+/// `a / b` in double-double (one correction of the quotient).
 #[inline(always)]
-fn sub_g(space: Space, c: &Curvature, b: &[f64], gb: f64, x: &[f64], gx: f64, out: &mut [f64]) -> f64 {
-    match space {
-        Space::Mobius => poincare::add_g(c, b, gb, x, gx, -1.0, out),
-        Space::Einstein => klein::add_g(c, b, gb, x, gx, -1.0, out),
+fn div(a: DD, b: DD) -> DD {
+    let q1 = a.hi / b.hi;
+    let r = a.sub(b.mul_f64(q1));
+    let q2 = r.hi / b.hi;
+    let (h, l) = two_sum(q1, q2);
+    DD { hi: h, lo: l }
+}
+
+/// `sum x_i^2` of a double-double vector.
+#[inline(always)]
+fn sumsq_v(hi: &[f64], lo: &[f64]) -> DD {
+    let mut acc = DD::default();
+    for (&h, &l) in hi.iter().zip(lo) {
+        let x = DD { hi: h, lo: l };
+        acc = acc.add(x.mul(x));
+    }
+    acc
+}
+
+/// `|a ∧ b|^2` of two float64 vectors in double-double, from the 2x2 minors
+/// `a_i b_j - a_j b_i`, each exact to double-double rounding.
+#[inline(always)]
+fn wedge_sq_dd(a: &[f64], b: &[f64]) -> DD {
+    let mut acc = DD::default();
+    for i in 0..a.len() {
+        for j in (i + 1)..a.len() {
+            let m = minor_dd(a[i], b[j], a[j], b[i]);
+            acc = acc.add(m.mul(m));
+        }
+    }
+    acc
+}
+
+/// `x y - z w` in double-double, both products formed error-free.
+#[inline(always)]
+fn minor_dd(x: f64, y: f64, z: f64, w: f64) -> DD {
+    let (p, pe) = two_prod(x, y);
+    let (q, qe) = two_prod(z, w);
+    DD::new(p, pe).sub(DD::new(q, qe))
+}
+
+/// `cosh(d/R) - 1` of two hyperboloid points from their spatial parts, in
+/// double-double: the two non-negative terms of `hyperboloid::half_delta`
+/// (`cosh(r_a - r_b) - 1` and `kappa (|a||b| - a.b)`, the latter as
+/// `kappa |a ∧ b|^2 / (|a||b| + a.b)` when `a.b > 0`), carried to twice
+/// the precision.
+#[inline(always)]
+fn cosh_m1_dd(k: &Curvature, a: &[f64], b: &[f64]) -> DD {
+    let (aa, bb) = (sumsq_dd(a), sumsq_dd(b));
+    let (na, nb) = (sqrt_dd(aa), sqrt_dd(bb));
+    let one = DD::from(1.0);
+    let ca = sqrt_dd(one.add(aa.mul_f64(k.kappa)));
+    let cb = sqrt_dd(one.add(bb.mul_f64(k.kappa)));
+    // sinh(r_a - r_b) = sqrt(kappa) (|a|^2 - |b|^2) / (|a| c_b + |b| c_a)
+    let mut diff = DD::default();
+    for (&x, &y) in a.iter().zip(b) {
+        let (sh, sl) = two_sum(x, y);
+        let (dh, dl) = two_sum(x, -y);
+        diff = diff.add(DD { hi: sh, lo: sl }.mul(DD { hi: dh, lo: dl }));
+    }
+    let den = na.mul(cb).add(nb.mul(ca));
+    let t1 = if den.hi > 0.0 {
+        let sh = div(diff.mul_f64(k.sqrt_kappa), den);
+        let s2 = sh.mul(sh);
+        div(s2, one.add(sqrt_dd(one.add(s2))))
+    } else {
+        DD::default()
+    };
+    let p = dot_dd(a, b);
+    let nn = na.mul(nb);
+    let t2 = if p.hi <= 0.0 { nn.sub(p) } else { div(wedge_sq_dd(a, b), nn.add(p)) };
+    t1.add(t2.mul_f64(k.kappa))
+}
+
+/// The direction at the hyperboloid point `b` of the geodesic to `a`, in
+/// an orthonormal frame of the tangent space at `b`, from the spatial parts
+/// (`bs` is `b_s` scaled by a power of two, `eb` its exponent), into `oh`,
+/// `ol`. The tangent is `U = A - cosh(d/R) B`, with spatial part
+/// `U_s = Δ - (cosh(d/R) - 1) b_s` (`Δ = a_s - b_s`); its Minkowski norm
+/// splits into the parts across and along `n = b_s/|b_s|` as
+/// `|U_⊥|^2 + (U_∥ / c_b)^2` (`c_b = x0/R`), so `U_⊥ + (U_∥/c_b) n` has the
+/// Euclidean angles of the tangents. Written times `|b̂|^2`, and with the
+/// part along `n` kept apart as an extra coordinate (length d + 1; added to
+/// the coordinates it would be rounded away next to a radial part up to
+/// ~e^{2r/R} larger): `(|b̂|^2 a_⊥, (b̂.Δ - (cosh - 1) |b̂|^2 2^eb) |b̂| / c_b)`, with
+/// `|b̂|^2 a_⊥ = sum_j b̂_j (b̂_j a_i - b̂_i a_j)` from exact minors (it
+/// vanishes for `a` on the ray of `b`) and `cosh - 1` from
+/// [`cosh_m1_dd`]: no difference of far coordinates is rounded.
+#[inline(always)]
+#[allow(clippy::too_many_arguments)]
+fn hyperboloid_direction(k: &Curvature, b: &[f64], bs: &[f64], eb: i32, a: &[f64], oh: &mut [f64], ol: &mut [f64]) {
+    let n = a.len();
+    ol.iter_mut().for_each(|v| *v = 0.0);
+    if bs.iter().all(|&v| v == 0.0) {
+        // b at the origin: the tangent towards a is a_s
+        oh[..n].copy_from_slice(a);
+        oh[n] = 0.0;
+        return;
+    }
+    let bb = sumsq_dd(bs);
+    let mut bd = DD::default(); // b̂.Δ
+    for i in 0..n {
+        let (dh, dl) = two_sum(a[i], -b[i]);
+        bd = bd.add(DD { hi: dh, lo: dl }.mul_f64(bs[i]));
+    }
+    let cb = sqrt_dd(DD::from(1.0).add(sumsq_dd(b).mul_f64(k.kappa)));
+    let along = div(bd.sub(cosh_m1_dd(k, a, b).mul(bb).mul_f64(pow2(eb))), cb);
+    for i in 0..n {
+        let mut acc = DD::default();
+        for j in 0..n {
+            if j != i {
+                acc = acc.add(minor_dd(bs[j], a[i], bs[i], a[j]).mul_f64(bs[j]));
+            }
+        }
+        oh[i] = acc.hi;
+        ol[i] = acc.lo;
+    }
+    let rho = along.mul(sqrt_dd(bb));
+    oh[n] = rho.hi;
+    ol[n] = rho.lo;
+}
+
+/// Reads a vertex of `model` into its frame (the Poincaré image for the
+/// ball models, the point itself in the half-space, the spatial part on the
+/// hyperboloid) in double-double: `hi`, `lo` of length d. Returns the gap of
+/// the Poincaré image in double-double (1 for the other frames).
+#[inline(always)]
+fn read_vertex(
+    model: Model,
+    k: &Curvature,
+    x: &[f64],
+    hi: &mut [f64],
+    lo: &mut [f64],
+) -> std::result::Result<DD, Fault> {
+    match model {
+        Model::Poincare => {
+            let g = checked_gap(k, x)?;
+            hi.copy_from_slice(x);
+            lo.iter_mut().for_each(|v| *v = 0.0);
+            Ok(g)
+        }
+        Model::HalfSpace => {
+            halfspace::read_point(x)?;
+            hi.copy_from_slice(x);
+            lo.iter_mut().for_each(|v| *v = 0.0);
+            Ok(DD::from(1.0))
+        }
+        Model::Klein => {
+            let s = sqrt_dd(checked_gap(k, x)?);
+            let w = DD::from(1.0).add(s);
+            for ((h, l), &v) in hi.iter_mut().zip(lo.iter_mut()).zip(x) {
+                let q = div_dd(v, w);
+                *h = q.hi;
+                *l = q.lo;
+            }
+            Ok(div(s.mul_f64(2.0), w))
+        }
+        Model::Hyperboloid => {
+            hyperboloid::read_point(k, x)?;
+            hi.copy_from_slice(&x[1..]);
+            lo.iter_mut().for_each(|v| *v = 0.0);
+            Ok(DD::from(1.0))
+        }
     }
 }
 
-/// The Euclidean angle between `u` and `w`, in `[0, π]`:
-/// `atan2(|u ∧ w|, u.w)`, accurate near 0 and π.
-#[inline(always)]
-pub fn vector_angle(u: &[f64], w: &[f64]) -> f64 {
-    wedge_sq(u, w).sqrt().atan2(dot2(u, w))
+/// A vertex in its frame: coordinates (hi, lo) and the image gap.
+type Vertex<'a> = (&'a [f64], &'a [f64], DD);
+
+/// Where the directions at a vertex are formed.
+#[derive(Clone, Copy, PartialEq, Eq)]
+enum Frame {
+    /// The Poincaré ball (images of the ball models).
+    Ball,
+    /// The half-space, in its own coordinates.
+    Half,
+    /// The hyperboloid, from spatial parts.
+    Sheet,
 }
 
-/// The defect `δ` of the triangle `(0, u, w)` of the Poincaré ball, from the
-/// exact gaps `gu`, `gw` of `u` and `w` (see the module notes).
-#[inline(always)]
-pub fn defect_at_origin(c: &Curvature, u: &[f64], gu: f64, w: &[f64], gw: f64) -> f64 {
-    let k = c.kappa;
-    let den = 0.5 * (gu + gw) + 0.5 * k * dist_sq(u, w);
-    2.0 * (k * wedge_sq(u, w).sqrt()).atan2(den)
+impl Frame {
+    fn of(model: Model) -> Frame {
+        match model {
+            Model::Poincare | Model::Klein => Frame::Ball,
+            Model::HalfSpace => Frame::Half,
+            Model::Hyperboloid => Frame::Sheet,
+        }
+    }
 }
 
-/// The gyroangle at `b` of the triangle `a, b, c` given with gaps; `ws` is
-/// scratch of length `2 d`. Faults name `a` (0) or `c` (2) when it coincides
-/// with `b`.
+/// The direction at `b` of the geodesic to `a` (up to a positive factor and
+/// a sign shared by every direction at `b`; see the module notes), in
+/// double-double, into `oh`, `ol` (ball and half-space frames).
+#[inline(always)]
+fn direction(half: bool, k: &Curvature, b: Vertex, a: Vertex, oh: &mut [f64], ol: &mut [f64]) {
+    let n = oh.len();
+    for i in 0..n {
+        // Ball frames: s = b - a; half-space: a - b.
+        let (x, y) = if half { ((a.0[i], a.1[i]), (b.0[i], b.1[i])) } else { ((b.0[i], b.1[i]), (a.0[i], a.1[i])) };
+        let (sh, se) = two_sum(x.0, -y.0);
+        let s = DD::new(sh, se + (x.1 - y.1));
+        oh[i] = s.hi;
+        ol[i] = s.lo;
+    }
+    let ss = sumsq_v(oh, ol);
+    if half {
+        // 2 b_d (a - b) + |a - b|^2 e_d
+        let bd = 2.0 * b.0[n - 1];
+        for i in 0..n {
+            let v = DD { hi: oh[i], lo: ol[i] }.mul_f64(bd);
+            oh[i] = v.hi;
+            ol[i] = v.lo;
+        }
+        let v = DD { hi: oh[n - 1], lo: ol[n - 1] }.add(ss);
+        oh[n - 1] = v.hi;
+        ol[n - 1] = v.lo;
+    } else {
+        // s + (kappa |s|^2 / g_b) b
+        let t = div(ss.mul_f64(k.kappa), b.2);
+        for i in 0..n {
+            let v = DD { hi: oh[i], lo: ol[i] }.add(t.mul(DD { hi: b.0[i], lo: b.1[i] }));
+            oh[i] = v.hi;
+            ol[i] = v.lo;
+        }
+    }
+}
+
+/// Scales a double-double vector by a power of two (exact) so that its
+/// largest high part lies in [0.5, 1); false for the zero vector.
+#[inline(always)]
+fn normalise(hi: &mut [f64], lo: &mut [f64]) -> bool {
+    if hi.iter().all(|&v| v == 0.0) {
+        return false;
+    }
+    let up = pow2(-unit_exponent(hi));
+    hi.iter_mut().zip(lo.iter_mut()).for_each(|(h, l)| {
+        *h *= up;
+        *l *= up;
+    });
+    true
+}
+
+/// The angle between two double-double vectors and its sine, from
+/// `w_⊥ = |u|^2 w - (u.w) u` formed in double-double (see the module
+/// notes); for nearly parallel vectors (sine below 1e-8), where the
+/// absolute error ~1e-32 of that difference matters, from the 2x2 minors
+/// `u_i w_j - u_j w_i` in double-double instead (O(d^2)), which keep the
+/// digits of the wedge when the vectors' components are of very different
+/// sizes. Both vectors are non-zero and normalised; `q` is scratch.
+#[inline(always)]
+fn angle_sine(uh: &[f64], ul: &[f64], wh: &[f64], wl: &[f64], q: &mut [f64]) -> (f64, f64) {
+    let m = uh.len();
+    let uu = sumsq_v(uh, ul);
+    let mut uw = DD::default();
+    for i in 0..m {
+        uw = uw.add(DD { hi: uh[i], lo: ul[i] }.mul(DD { hi: wh[i], lo: wl[i] }));
+    }
+    for i in 0..m {
+        let a = uu.mul(DD { hi: wh[i], lo: wl[i] });
+        let b = uw.mul(DD { hi: uh[i], lo: ul[i] });
+        q[i] = a.sub(b).value();
+    }
+    let (nu2, nw) = (uu.value(), sumsq_v(wh, wl).value().sqrt());
+    let nu = nu2.sqrt();
+    // |u ∧ w| = |w_⊥| / |u|
+    let mut wedge = norm_scaled(q) / nu;
+    if wedge < 1e-8 * nu * nw {
+        let minor = |i: usize, j: usize| {
+            let (ui, uj) = (DD { hi: uh[i], lo: ul[i] }, DD { hi: uh[j], lo: ul[j] });
+            let (wi, wj) = (DD { hi: wh[i], lo: wl[i] }, DD { hi: wh[j], lo: wl[j] });
+            ui.mul(wj).sub(uj.mul(wi)).value()
+        };
+        // two passes (largest minor, then the scaled sum of squares): minors
+        // of 1e-200 would underflow when squared
+        let mut big = 0.0f64;
+        for i in 0..m {
+            for j in (i + 1)..m {
+                big = big.max(minor(i, j).abs());
+            }
+        }
+        wedge = 0.0;
+        if big > 0.0 {
+            let up = pow2(-unit_exponent(&[big]));
+            let mut acc = 0.0;
+            for i in 0..m {
+                for j in (i + 1)..m {
+                    let t = minor(i, j) * up;
+                    acc += t * t;
+                }
+            }
+            wedge = acc.sqrt() / up;
+        }
+    }
+    (wedge.atan2(uw.value()), (wedge / (nu * nw)).min(1.0))
+}
+
+/// The angle at vertex `b` (index `ib`) towards `a` (index `ia`) and `c`
+/// (index `ic`), and its sine; faults name a vertex equal to `b`. `ws` has
+/// length `6 d + 5` (directions of length d + 1, the last coordinate used
+/// on the hyperboloid only).
 #[inline(always)]
 #[allow(clippy::too_many_arguments)]
 fn angle_at(
-    space: Space,
+    frame: Frame,
     k: &Curvature,
-    a: &[f64],
-    ga: f64,
-    b: &[f64],
-    gb: f64,
-    c: &[f64],
-    gc: f64,
+    v: [Vertex; 3],
+    ia: usize,
+    ib: usize,
+    ic: usize,
     ws: &mut [f64],
-) -> std::result::Result<f64, (usize, usize)> {
-    let (u, w) = ws.split_at_mut(a.len());
-    sub_g(space, k, b, gb, a, ga, u);
-    sub_g(space, k, b, gb, c, gc, w);
-    if sumsq(u) == 0.0 {
-        return Err((0, 1));
+) -> std::result::Result<(f64, f64), RowFault> {
+    let d = v[0].0.len();
+    let m = d + 1;
+    let (uh, rest) = ws.split_at_mut(m);
+    let (ul, rest) = rest.split_at_mut(m);
+    let (wh, rest) = rest.split_at_mut(m);
+    let (wl, rest) = rest.split_at_mut(m);
+    let (q, bs) = rest.split_at_mut(m);
+    if frame == Frame::Sheet {
+        let b = v[ib].0;
+        let eb = unit_exponent(b);
+        let up = pow2(-eb);
+        for (o, &x) in bs.iter_mut().zip(b) {
+            *o = x * up;
+        }
+        hyperboloid_direction(k, b, &bs[..d], eb, v[ia].0, uh, ul);
+        hyperboloid_direction(k, b, &bs[..d], eb, v[ic].0, wh, wl);
+    } else {
+        let half = frame == Frame::Half;
+        direction(half, k, v[ib], v[ia], &mut uh[..d], &mut ul[..d]);
+        direction(half, k, v[ib], v[ic], &mut wh[..d], &mut wl[..d]);
+        uh[d] = 0.0;
+        ul[d] = 0.0;
+        wh[d] = 0.0;
+        wl[d] = 0.0;
     }
-    if sumsq(w) == 0.0 {
-        return Err((2, 1));
+    if !normalise(uh, ul) {
+        return Err(RowFault::new(ia, Fault::Coincident(NAMES[ib])));
     }
-    Ok(vector_angle(u, w))
+    if !normalise(wh, wl) {
+        return Err(RowFault::new(ic, Fault::Coincident(NAMES[ib])));
+    }
+    Ok(angle_sine(uh, ul, wh, wl, q))
 }
 
 const NAMES: [&str; 3] = ["a", "b", "c"];
 
-fn coincident(pair: (usize, usize)) -> RowFault {
-    RowFault::new(pair.0, Fault::Coincident(NAMES[pair.1]))
+/// Reads the three vertices of a row into `buf` (length `6 d`) and runs `f`
+/// on them.
+#[inline(always)]
+fn with_vertices<R>(
+    model: Model,
+    k: &Curvature,
+    r: &[&[f64]],
+    d: usize,
+    buf: &mut [f64],
+    f: impl FnOnce([Vertex; 3], &mut [f64]) -> std::result::Result<R, RowFault>,
+) -> std::result::Result<R, RowFault> {
+    let (vs, ws) = buf.split_at_mut(6 * d);
+    let (p0, rest) = vs.split_at_mut(2 * d);
+    let (p1, p2) = rest.split_at_mut(2 * d);
+    let (h0, l0) = p0.split_at_mut(d);
+    let (h1, l1) = p1.split_at_mut(d);
+    let (h2, l2) = p2.split_at_mut(d);
+    let g0 = read_vertex(model, k, r[0], h0, l0).map_err(|f| RowFault::new(0, f))?;
+    let g1 = read_vertex(model, k, r[1], h1, l1).map_err(|f| RowFault::new(1, f))?;
+    let g2 = read_vertex(model, k, r[2], h2, l2).map_err(|f| RowFault::new(2, f))?;
+    f([(&*h0, &*l0, g0), (&*h1, &*l1, g1), (&*h2, &*l2, g2)], ws)
 }
 
 /// Batched gyroangle at `b` between `⊖b⊕a` and `⊖b⊕c`:
 /// `(..., d) x 3 -> (...)`.
 pub fn angle_arrays<'a>(space: Space, k: Curvature, a: Data<'a>, b: Data<'a>, c: Data<'a>) -> Result<Output> {
     let ops = [Operand::point("a", a), Operand::point("b", b), Operand::point("c", c)];
+    let model = if space == Space::Mobius { Model::Poincare } else { Model::Klein };
     map_rows(
         &ops,
         &scalar_core,
-        40,
+        80,
         #[inline(always)]
         |r, out| {
-            let ga = point_gap(&k, r[0], 0)?;
-            let gb = point_gap(&k, r[1], 1)?;
-            let gc = point_gap(&k, r[2], 2)?;
-            with_scratch(
-                2 * r[0].len(),
-                #[inline(always)]
-                |ws| {
-                    out[0] = angle_at(space, &k, r[0], ga, r[1], gb, r[2], gc, ws).map_err(coincident)?;
+            let d = r[0].len();
+            with_scratch(12 * d + 8, |buf| {
+                with_vertices(model, &k, r, d, buf, |v, ws| {
+                    out[0] = angle_at(Frame::Ball, &k, v, 0, 1, 2, ws)?.0;
                     Ok(())
-                },
-            )
+                })
+            })
         },
     )
 }
 
-/// Sides, angles and defect of the triangle with vertices `p[0..3]` (ball
-/// points of `space` with gaps `g`), into `out[3..7]`; `ws` has length `2 d`.
+/// `h = sinh^2(d/2R)` of two points of `model`, exactly as
+/// `pairwise::point_distance` forms it (the side is `distance_from_h(h)`,
+/// bit for bit the element-wise distance). Faults carry operand `i` or `j`.
 #[inline(always)]
-fn triangle_ball(
-    space: Space,
-    k: &Curvature,
-    p: [&[f64]; 3],
-    g: [f64; 3],
-    ws: &mut [f64],
-    out: &mut [f64],
-) -> std::result::Result<(), RowFault> {
-    let d = p[0].len();
-    // angles at a and c (rotations of the vertex order)
-    out[3] = angle_at(space, k, p[1], g[1], p[0], g[0], p[2], g[2], ws)
-        .map_err(|(x, y)| coincident(([1, 0, 2][x], [1, 0, 2][y])))?;
-    out[5] = angle_at(space, k, p[0], g[0], p[2], g[2], p[1], g[1], ws)
-        .map_err(|(x, y)| coincident(([0, 2, 1][x], [0, 2, 1][y])))?;
-    // the angle at b, and the defect of the triangle moved to put b at the origin
-    let (u, w) = ws.split_at_mut(d);
-    let gu = sub_g(space, k, p[1], g[1], p[0], g[0], u);
-    let gw = sub_g(space, k, p[1], g[1], p[2], g[2], w);
-    out[4] = vector_angle(u, w);
-    out[6] = match space {
-        Space::Mobius => defect_at_origin(k, u, gu, w, gw),
-        Space::Einstein => {
-            // the Poincaré images: radial scalings, no digits lost at the origin
-            let a = gu.sqrt();
-            u.iter_mut().for_each(|v| *v /= 1.0 + a);
-            let pu = klein::poincare_gap(gu);
-            let a = gw.sqrt();
-            w.iter_mut().for_each(|v| *v /= 1.0 + a);
-            let pw = klein::poincare_gap(gw);
-            defect_at_origin(k, u, pu, w, pw)
-        }
-    };
-    Ok(())
+fn side_h(model: Model, k: &Curvature, x: &[f64], y: &[f64], i: usize, j: usize) -> std::result::Result<f64, RowFault> {
+    let w = x.len() - usize::from(model == Model::Hyperboloid);
+    let space = PairSpace::of(model);
+    let ew = space.extra_width(w);
+    with_scratch(2 * (w + ew), |buf| {
+        let (bx, by) = buf.split_at_mut(w + ew);
+        let (xh, xe) = bx.split_at_mut(w);
+        let (yh, ye) = by.split_at_mut(w);
+        let ax = read_pair_point(model, k, x, xh, xe).map_err(|f| RowFault::new(i, f))?;
+        let ay = read_pair_point(model, k, y, yh, ye).map_err(|f| RowFault::new(j, f))?;
+        let s = pair_scale(model, k);
+        Ok(pair_h(space, k, s, seq_dist_sq(xh, yh), (xh, xe, ax), (yh, ye, ay)))
+    })
+}
+
+/// The defect from the `h` of the two sides at the vertex (`hx`, `hy`), of
+/// the side opposite (`ho`) and the sine of the angle at the vertex (see
+/// the module notes).
+#[inline(always)]
+pub fn defect_from_sides(hx: f64, hy: f64, ho: f64, sine: f64) -> f64 {
+    let (ex, ey) = (1.0 + hx, 1.0 + hy);
+    let num = 2.0 * (hx / ex).sqrt() * (hy / ey).sqrt() * sine;
+    let den = 1.0 / ex + 1.0 / ey + ho / ex / ey;
+    2.0 * num.atan2(den)
 }
 
 /// Batched triangles of any model: `(..., w) x 3 -> (..., 8)` holding, per
@@ -186,45 +512,41 @@ pub fn triangle_arrays<'a>(model: Model, k: Curvature, a: Data<'a>, b: Data<'a>,
     map_rows(
         &ops,
         &|_| vec![8],
-        120,
+        200,
         #[inline(always)]
         |r, out| {
             let w = r[0].len();
             let d = if model == Model::Hyperboloid { w - 1 } else { w };
             // sides first: they validate every vertex in its own model
-            let side = |i: usize, j: usize| {
-                point_distance(model, &k, r[i], r[j])
-                    .map_err(|f| RowFault::new(if f.arg == 0 { i } else { j }, f.fault))
-            };
-            out[1] = side(0, 2)?;
-            out[0] = side(1, 2)?;
-            out[2] = side(0, 1)?;
-            match model {
-                Model::Poincare | Model::Klein => {
-                    let space = if model == Model::Poincare { Space::Mobius } else { Space::Einstein };
-                    let g = [point_gap(&k, r[0], 0)?, point_gap(&k, r[1], 1)?, point_gap(&k, r[2], 2)?];
-                    with_scratch(
-                        2 * d,
-                        #[inline(always)]
-                        |ws| triangle_ball(space, &k, [r[0], r[1], r[2]], g, ws, out),
-                    )?;
-                }
-                Model::Hyperboloid | Model::HalfSpace => {
-                    with_scratch(
-                        5 * d,
-                        #[inline(always)]
-                        |buf| {
-                            let (hub, ws) = buf.split_at_mut(3 * d);
-                            let (h0, rest) = hub.split_at_mut(d);
-                            let (h1, h2) = rest.split_at_mut(d);
-                            let g0 = to_hub(model, &k, r[0], h0).map_err(|f| RowFault::new(0, f))?;
-                            let g1 = to_hub(model, &k, r[1], h1).map_err(|f| RowFault::new(1, f))?;
-                            let g2 = to_hub(model, &k, r[2], h2).map_err(|f| RowFault::new(2, f))?;
-                            triangle_ball(Space::Mobius, &k, [h0, h1, h2], [g0, g1, g2], ws, out)
-                        },
-                    )?;
-                }
+            let h = [
+                side_h(model, &k, r[1], r[2], 1, 2)?,
+                side_h(model, &k, r[0], r[2], 0, 2)?,
+                side_h(model, &k, r[0], r[1], 0, 1)?,
+            ];
+            for i in 0..3 {
+                out[i] = distance_from_h(&k, h[i]);
             }
+            let frame = Frame::of(model);
+            let sines = with_scratch(12 * d + 8, |buf| {
+                with_vertices(model, &k, r, d, buf, |v, ws| {
+                    let (a0, s0) = angle_at(frame, &k, v, 1, 0, 2, ws)?;
+                    let (a1, s1) = angle_at(frame, &k, v, 0, 1, 2, ws)?;
+                    let (a2, s2) = angle_at(frame, &k, v, 0, 2, 1, ws)?;
+                    out[3] = a0;
+                    out[4] = a1;
+                    out[5] = a2;
+                    Ok([s0, s1, s2])
+                })
+            })?;
+            // the vertex with the largest sine; its sides are the other two
+            let j = if sines[0] >= sines[1] && sines[0] >= sines[2] {
+                0
+            } else if sines[1] >= sines[2] {
+                1
+            } else {
+                2
+            };
+            out[6] = defect_from_sides(h[(j + 1) % 3], h[(j + 2) % 3], h[j], sines[j]);
             out[7] = out[6] * k.radius * k.radius;
             Ok(())
         },
@@ -234,6 +556,7 @@ pub fn triangle_arrays<'a>(model: Model, k: Curvature, a: Data<'a>, b: Data<'a>,
 #[cfg(test)]
 mod tests {
     use super::*;
+    use crate::models::klein;
     use std::f64::consts::PI;
 
     fn tri(model: Model, k: &Curvature, a: &[f64], b: &[f64], c: &[f64]) -> Vec<f64> {
@@ -274,6 +597,28 @@ mod tests {
                 for i in 0..7 {
                     assert!((q[i] - p[i]).abs() < 1e-14 * p[i].abs().max(1.0), "{i} {q:?} {p:?}");
                 }
+            }
+        }
+    }
+
+    #[test]
+    fn every_model_gives_the_same_triangle() {
+        // isometric images (the model maps of `convert`) have the same sides,
+        // angles and defect; the defect also equals π - (α + β + γ) here
+        // (Gauss–Bonnet, handbook), where that difference keeps its digits
+        let k = Curvature::new(-0.5).unwrap();
+        let pts = [[0.3, -0.1, 0.2], [-0.2, 0.4, 0.05], [0.1, 0.1, -0.5]];
+        let p = tri(Model::Poincare, &k, &pts[0], &pts[1], &pts[2]);
+        assert!((PI - p[3] - p[4] - p[5] - p[6]).abs() < 1e-14, "{p:?}");
+        for model in [Model::Klein, Model::Hyperboloid, Model::HalfSpace] {
+            let w = if model == Model::Hyperboloid { 4 } else { 3 };
+            let mut conv = vec![vec![0.0; w]; 3];
+            for (x, o) in pts.iter().zip(conv.iter_mut()) {
+                crate::models::convert::from_hub(model, &k, x, crate::numeric::gap(k.kappa, x), o);
+            }
+            let q = tri(model, &k, &conv[0], &conv[1], &conv[2]);
+            for i in 0..8 {
+                assert!((q[i] - p[i]).abs() < 1e-14 * p[i].abs().max(1.0), "{model:?} {i} {q:?} {p:?}");
             }
         }
     }

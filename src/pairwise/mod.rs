@@ -116,7 +116,7 @@ pub fn pair_scale(model: Model, k: &Curvature) -> f64 {
 /// `a / w` for a float64 `a` and a double-double `w`, to double-double
 /// accuracy (one Newton correction of the quotient).
 #[inline(always)]
-fn div_dd(a: f64, w: DD) -> DD {
+pub(crate) fn div_dd(a: f64, w: DD) -> DD {
     let q1 = a / w.hi;
     let (p, pe) = two_prod(q1, w.hi);
     // a - q1 w, exact to the rounding of the small terms: a - p is exact
@@ -129,7 +129,7 @@ fn div_dd(a: f64, w: DD) -> DD {
 
 /// `sqrt(g)` for a double-double `g > 0`, to double-double accuracy.
 #[inline(always)]
-fn sqrt_dd(g: DD) -> DD {
+pub(crate) fn sqrt_dd(g: DD) -> DD {
     let s = g.hi.sqrt();
     let (p, pe) = two_prod(s, s);
     let r = ((g.hi - p) - pe) + g.lo;

@@ -552,6 +552,9 @@ def value_for(dr: Draw, ctx: Ctx, fname: str, module: str, p: inspect.Parameter)
         return str_arg(dr, [ctx.model] if name != "dst" else list(MODELS))
     if name == "curvature":
         return float_arg(dr, [-1.0, -1.0, -1.0, -0.25, -4.0, -1e-6])
+    if name == "c" and fname.rsplit(".", 1)[-1] in ("angle", "triangle"):
+        # the third vertex of a gyroangle / triangle: a point like a and b
+        return array_arg(dr, ctx, "point")
     if name == "c":
         return float_arg(dr, [299792458.0, 1.0, 3.0, 1e-3])
     if name in ("k", "n_clusters"):

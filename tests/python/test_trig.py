@@ -107,9 +107,8 @@ def test_tiny_triangles(model, where, size):
         pts = _cluster(rng, where, size, 0.0)
     t = gk.triangle(*pts, model=model)
     ref = _mp_triangle(*pts, model=model)
-    # the tolerance of the defect: its own rounding plus that of the angles'
-    # inputs (the gyrovectors, a few ulps each)
-    _check(t, ref, tol_side=1e-14, tol_angle=1e-12, tol_defect=1e-11)
+    # a few ulps: directions and defect are formed from the exact inputs
+    _check(t, ref, tol_side=1e-14, tol_angle=1e-14, tol_defect=1e-14)
     assert 0 < float(ref[2]) < 1e-6
 
 
@@ -124,9 +123,9 @@ def test_triangles_at_the_rim(model, gap, angular):
     assert all(1 - np.linalg.norm(p) <= 1.6 * gap for p in pts)
     t = gk.triangle(*pts, model=model)
     ref = _mp_triangle(*pts, model=model)
-    # thin and at the rim: the defect's relative error is about the angular
-    # rounding of the gyrovectors (~1e-16 rad) over the smallest angle
-    _check(t, ref, tol_side=1e-13, tol_angle=1e-11, tol_defect=1e-9)
+    # thin and at the rim: still a few ulps (directions in double-double,
+    # the defect from the sides and one sine)
+    _check(t, ref, tol_side=1e-14, tol_angle=1e-14, tol_defect=1e-14)
 
 
 @pytest.mark.parametrize("model", ["poincare", "klein"])
@@ -141,7 +140,7 @@ def test_thin_triangles(model):
         pts = [gk.convert(p, "poincare", "klein") for p in pts]
     t = gk.triangle(*pts, model=model)
     ref = _mp_triangle(*pts, model=model)
-    _check(t, ref, tol_side=1e-14, tol_angle=1e-7, tol_defect=1e-7)
+    _check(t, ref, tol_side=1e-14, tol_angle=1e-14, tol_defect=1e-14)
     assert abs(t.angles[1] - math.pi) < 1e-8
 
 
