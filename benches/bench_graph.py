@@ -16,6 +16,13 @@ fixes its pool size at start-up).
     python benches/bench_graph.py                   # the full run (Poincaré and hyperboloid)
     python benches/bench_graph.py --subset mammal   # the mammal subtree, for tuning
     python benches/bench_graph.py --scaling         # time per epoch, 1 vs 2 threads
+    python benches/bench_graph.py --models poincare --epochs 60 --burn-in 2 --lr 0.6 \
+        --batch-size 1024 --node-steps mean          # the best setting found on subsets
+
+Each run prints one JSON line: the settings, wall and CPU seconds of the
+training, positives per second per core (wall) and per CPU second, the final
+loss, mean average precision and mean rank. Measured figures are in the
+README (section Benchmarks).
 
 Published reference (Nickel & Kiela 2017, Table 1, WordNet nouns
 reconstruction, Poincaré, d = 10, from memory): MAP about 0.85, mean rank
