@@ -16,6 +16,13 @@ fixes its pool size at start-up).
     python benches/bench_graph.py                   # the full run (Poincaré and hyperboloid)
     python benches/bench_graph.py --subset mammal   # the mammal subtree, for tuning
     python benches/bench_graph.py --scaling         # time per epoch, 1 vs 2 threads
+    python benches/bench_graph.py --models poincare --epochs 60 --burn-in 2 --lr 0.6 \
+        --batch-size 1024 --node-steps mean          # the best setting found on subsets
+
+Each run prints one JSON line: the settings, wall and CPU seconds of the
+training, positives per second per core (wall) and per CPU second, the final
+loss, mean average precision and mean rank. Measured figures are in the
+README (section Benchmarks).
 
 Published reference (Nickel & Kiela 2017, Table 1, WordNet nouns
 reconstruction, Poincaré, d = 10, from memory): MAP about 0.85, mean rank
@@ -117,42 +124,50 @@ def load(subset: str) -> Tuple[List[str], np.ndarray]:
 
 def run(args, model: str, names, pairs) -> Dict[str, float]:
     t = time.perf_counter()
+    c = time.process_time()
     emb = gk.embed.graph(
         pairs, args.dim, model=model, negatives=args.negatives, epochs=args.epochs,
         learning_rate=args.lr, burn_in=args.burn_in, batch_size=args.batch_size, seed=args.seed,
-        n_nodes=len(names), progress=args.progress,
+        n_nodes=len(names), progress=args.progress, node_steps=args.node_steps, schedule=args.schedule,
+        burn_in_factor=args.burn_in_factor,
     )
     train = time.perf_counter() - t
+    cpu = time.process_time() - c
     t = time.perf_counter()
     m = evaluate(emb, pairs)
     ev = time.perf_counter() - t
     positives = 2 * len(pairs) * emb.epochs
     threads = int(os.environ.get("RAYON_NUM_THREADS", os.cpu_count() or 1))
     out = {
-        "model": model, "dim": args.dim, "epochs": emb.epochs, "train_s": train, "eval_s": ev,
-        "positives_per_s_per_core": positives / train / threads, "threads": threads,
+        "model": model, "dim": args.dim, "epochs": emb.epochs, "negatives": args.negatives, "lr": args.lr,
+        "burn_in": args.burn_in, "batch_size": args.batch_size, "node_steps": args.node_steps,
+        "schedule": args.schedule, "train_s": train, "train_cpu_s": cpu, "eval_s": ev,
+        "positives_per_s_per_core": positives / train / threads, "positives_per_cpu_s": positives / cpu,
+        "threads": threads,
         "final_loss": float(emb.loss[-1]) if len(emb.loss) else float("nan"), **m,
     }
     print(json.dumps(out), flush=True)
     return out
 
 
-def scaling(args) -> None:
+def scaling(args, model: str) -> None:
     """Time per epoch with 1 and 2 threads, each in its own process."""
     code = (
         "import sys, time, numpy as np; sys.path.insert(0, %r); import bench_graph as b, gyrokit as gk\n"
         "names, pairs = b.load(%r)\n"
         "t = time.perf_counter()\n"
-        "gk.embed.graph(pairs, %d, negatives=%d, epochs=%d, burn_in=0, batch_size=%d, n_nodes=len(names), progress=False)\n"
+        "gk.embed.graph(pairs, %d, model=%r, negatives=%d, epochs=%d, burn_in=0, batch_size=%d, node_steps=%r,\n"
+        "               n_nodes=len(names), progress=False)\n"
         "print((time.perf_counter() - t) / %d)\n"
-    ) % (os.path.dirname(os.path.abspath(__file__)), args.subset, args.dim, args.negatives, args.scaling_epochs,
-         args.batch_size, args.scaling_epochs)
+    ) % (os.path.dirname(os.path.abspath(__file__)), args.subset, args.dim, model, args.negatives,
+         args.scaling_epochs, args.batch_size, args.node_steps, args.scaling_epochs)
     res = {}
     for th in (1, 2):
         env = dict(os.environ, RAYON_NUM_THREADS=str(th))
         out = subprocess.run([sys.executable, "-c", code], env=env, capture_output=True, text=True, check=True)
         res[th] = float(out.stdout.strip().splitlines()[-1])
-    print(json.dumps({"seconds_per_epoch_1_thread": res[1], "seconds_per_epoch_2_threads": res[2],
+    print(json.dumps({"model": model, "batch_size": args.batch_size, "node_steps": args.node_steps,
+                      "seconds_per_epoch_1_thread": res[1], "seconds_per_epoch_2_threads": res[2],
                       "speedup": res[1] / res[2]}), flush=True)
 
 
@@ -166,6 +181,9 @@ def main() -> None:
     ap.add_argument("--lr", type=float, default=0.3)
     ap.add_argument("--burn-in", type=int, default=10)
     ap.add_argument("--batch-size", type=int, default=256)
+    ap.add_argument("--burn-in-factor", type=float, default=0.1)
+    ap.add_argument("--node-steps", default="sum", choices=("sum", "mean"))
+    ap.add_argument("--schedule", default="constant", choices=("constant", "linear"))
     ap.add_argument("--seed", type=int, default=0)
     ap.add_argument("--progress", action="store_true", default=None)
     ap.add_argument("--scaling", action="store_true")
@@ -174,7 +192,8 @@ def main() -> None:
     names, pairs = load(args.subset)
     print(json.dumps({"subset": args.subset, "nodes": len(names), "closure_pairs": int(len(pairs))}), flush=True)
     if args.scaling:
-        scaling(args)
+        for model in args.models.split(","):
+            scaling(args, model)
         return
     for model in args.models.split(","):
         run(args, model, names, pairs)

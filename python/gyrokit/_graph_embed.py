@@ -94,6 +94,8 @@ def graph(
     burn_in_factor: float = 0.1,
     n_nodes: Optional[int] = None,
     directed: bool = False,
+    node_steps: str = "sum",
+    schedule: str = "constant",
 ) -> Embedding:
     """Learn an embedding of a graph by Riemannian SGD on the ranking loss of
     Nickel & Kiela (2017; hyperboloid: 2018).
@@ -121,6 +123,19 @@ def graph(
     ``learning_rate * burn_in_factor``. Starting points are uniform in
     ``[-1e-3 R, 1e-3 R]^dim`` (their images on the hyperboloid).
 
+    ``node_steps``: how a node touched by several positives of one batch
+    moves. ``"sum"`` takes the summed step (what sequential SGD would do,
+    evaluated at one point); ``"mean"`` the mean of the contributions, so that
+    no node moves more than one positive's step per batch. On a hierarchy's
+    closure the nodes near the root take part in a large share of all
+    positives, and their summed steps overshoot at large batches and rates;
+    ``"mean"`` allows both to grow (see the benchmark figures in the README).
+
+    ``schedule``: ``"constant"`` keeps ``learning_rate`` after burn-in;
+    ``"linear"`` lowers it linearly with the positives done, to
+    ``learning_rate / 100`` at the end of the last epoch (common practice
+    for SGD with a fixed budget of epochs; it needs ``epochs > burn_in``).
+
     ``model``: ``"poincare"`` (points ``(n, dim)``) or ``"hyperboloid"``
     (``(n, dim + 1)``, holding points far beyond the ball's float64 reach of
     about 37 R). Both take exact exponential maps of the same intrinsic
@@ -135,7 +150,11 @@ def graph(
     several times takes one summed step, which limits the batch size: on
     WordNet nouns batches of 4096 diverged where 256 converged) and a
     grouping pass (about 5-7% of the CPU time); ``batch_size=1`` is plain
-    sequential SGD.
+    sequential SGD. ``node_steps="mean"`` bounds every node's step per batch
+    (see below), which lets the batch grow. Short Poincaré steps use the
+    exponential map's closed form in float64 when the exact gap of the result
+    (recomputed from its coordinates) is at least 2^-26, else the
+    double-double form.
 
     ``progress``: a tqdm bar (epoch, loss, edges per second; tqdm is the
     optional extra ``pip install gyrokit[progress]``): ``None`` shows it when
@@ -181,12 +200,21 @@ def graph(
     curvature = _args.real("curvature", curvature)
     if not isinstance(directed, (bool, np.bool_)):
         raise TypeError(f"directed must be True or False, got {directed!r}")
+    if node_steps not in ("sum", "mean"):
+        raise ValueError(f"node_steps must be 'sum' or 'mean', got {node_steps!r}")
+    if schedule not in ("constant", "linear"):
+        raise ValueError(f"schedule must be 'constant' or 'linear', got {schedule!r}")
+    if schedule == "linear" and epochs <= burn_in:
+        raise ValueError(
+            f"schedule='linear' needs epochs > burn_in (the rate decays after burn-in), got epochs={epochs}, "
+            f"burn_in={burn_in}"
+        )
     if progress not in (None, True, False):
         raise TypeError(f"progress must be None, True or False, got {progress!r}")
 
     trainer = _native.GraphTrainer(
         e, n, dim, model, curvature, negatives, learning_rate, burn_in, burn_in_factor, batch_size, 1e-3, seed,
-        bool(directed),
+        bool(directed), node_steps == "mean", epochs if schedule == "linear" else 0,
     )
     m = trainer.n_edges
     bar = _progress_bar(progress, epochs * m) if epochs > 0 else None

@@ -34,6 +34,17 @@
 //! the exact gap); such steps are counted ([`Trainer::shortened`]). The
 //! hyperboloid holds points out to `|x_s|^2 <= 2^500`.
 //!
+//! **Short Poincaré steps** (the common case) take the exponential map's
+//! closed form in float64 (`fast_poincare_step`: the Möbius addition of the
+//! base point and the tangent's image) instead of the double-double form:
+//! the result's exact gap is then computed from its rounded coordinates, as
+//! for every stored point, and the result is kept only when that gap is at
+//! least 2^-26 (nothing then depends on more than float64 resolves: the
+//! gap's relative error is below 2^-27); otherwise the double-double map is
+//! taken. On the WordNet nouns subset below `animal` (4017 nodes) this cut
+//! the CPU time per epoch from 0.23 s to 0.175 s (single thread; the second
+//! figure from a build without link-time optimisation).
+//!
 //! Because both models take exact exponential maps of the same intrinsic
 //! gradient from the same start (the hyperboloid starts at the images of
 //! the Poincaré starting points), the two trajectories agree up to rounding.
@@ -63,6 +74,19 @@
 //! **Burn-in.** The first `burn_in` epochs run at `learning_rate *
 //! burn_in_factor` (Nickel & Kiela 2017, section 4: a reduced rate for the
 //! first epochs while the points near the origin find their directions).
+//! After it the rate stays constant, or decays linearly
+//! ([`Params::decay_epochs`]).
+//!
+//! **Per-node mean** ([`Params::node_mean`]): a node touched by `c` slots of
+//! a batch steps by the mean of their gradients instead of the sum, so no
+//! node moves more than one positive's step per batch. On a hierarchy's
+//! closure this bounds the steps of the nodes near the root (which take part
+//! in a large share of the positives) and lets batch and rate grow; on the
+//! `animal` subset (60 epochs, d = 10, rate 0.3, one thread) it traded mean
+//! average precision for mean rank and speed: batch 1024 with the mean, MAP
+//! 0.780, mean rank 13.7, 6.7 CPU s; batch 256 summed, MAP 0.828, mean rank
+//! 20.9, about 9 CPU s. Summed steps at batch 2048 stalled (loss 0.26 against
+//! 0.18).
 //!
 //! The random generators are this module's own (xoshiro256** and SplitMix64,
 //! the authors' reference algorithms), so that the sequence for a seed is
@@ -313,7 +337,22 @@ pub struct Params {
     /// Poincaré ball.
     pub init: f64,
     pub seed: u64,
+    /// How a node touched by several slots of a batch moves: `false` by the
+    /// sum of their gradients (the step sequential SGD would take from one
+    /// point), `true` by their mean (at most one positive's step per batch,
+    /// whatever the node's degree).
+    pub node_mean: bool,
+    /// `0`: a constant rate after burn-in. Otherwise the rate after burn-in
+    /// falls linearly with the positives done, from `learning_rate` at the
+    /// end of burn-in to `learning_rate * MIN_RATE_FRACTION` at the end of
+    /// epoch `decay_epochs`, and stays there.
+    pub decay_epochs: usize,
 }
+
+/// The floor of the linearly decaying rate, as a fraction of
+/// `learning_rate` (common practice in linearly decayed SGD: a small
+/// positive floor rather than zero).
+pub const MIN_RATE_FRACTION: f64 = 1e-2;
 
 impl Default for Params {
     fn default() -> Self {
@@ -326,6 +365,8 @@ impl Default for Params {
             batch_size: 256,
             init: 1e-3,
             seed: 0,
+            node_mean: false,
+            decay_epochs: 0,
         }
     }
 }
@@ -346,6 +387,12 @@ impl Params {
         }
         if self.batch_size < 1 || self.batch_size > 1 << 24 {
             return value_err(format!("batch_size must be between 1 and 2^24, got {}", self.batch_size));
+        }
+        if self.decay_epochs != 0 && self.decay_epochs <= self.burn_in {
+            return value_err(format!(
+                "decay_epochs must be 0 (a constant rate) or more than burn_in = {}, got {}",
+                self.burn_in, self.decay_epochs
+            ));
         }
         if !(self.init.is_finite() && self.init > 0.0 && self.init <= 0.5) {
             return value_err(format!("init must lie in (0, 0.5] (units of R), got {}", self.init));
@@ -555,6 +602,9 @@ fn step(lay: &Layout, k: &Curvature, r: &[f64], gr: &[f64], lr: f64, out: &mut [
             v[i] = f * gr[i];
         }
         let y = ys;
+        if fast_poincare_step(k, p, g, v, y) && lay.store(k, y, out).is_ok() && out[d + lay.ew + 1] >= FAST_MIN_GAP {
+            return 0;
+        }
         for halvings in 0..MAX_HALVINGS {
             if v.iter().all(|x| x.is_finite()) {
                 let gy = poincare::exp_map_g(k, p, g, v, y);
@@ -571,6 +621,58 @@ fn step(lay: &Layout, k: &Curvature, r: &[f64], gr: &[f64], lr: f64, out: &mut [
     // No representable step (a non-finite gradient): the node stays.
     out.copy_from_slice(r);
     MAX_HALVINGS
+}
+
+/// Largest `sqrt(kappa) |v| / g` (half the step's length in units of R)
+/// taken by [`fast_poincare_step`].
+const FAST_MAX_HALF_STEP: f64 = 0.5;
+/// Smallest exact gap of a result kept from [`fast_poincare_step`]: the
+/// float64 form's relative error in the gap is about `2^-53 / g`, so below
+/// this the exact (double-double) exponential map is taken instead.
+const FAST_MIN_GAP: f64 = 1.0 / 67_108_864.0; // 2^-26
+
+/// The Poincaré exponential map by its closed form in float64, for short
+/// steps: `exp_x(v) = x (+) u`, `u = tanh(sqrt(kappa)|v|/g) v / (sqrt(kappa)
+/// |v|)` (the Möbius addition of curvature `-kappa`; Ungar, "A Gyrovector
+/// Space Approach to Hyperbolic Geometry", 2009, eq. (2.105) with `λ_x =
+/// 2/g`), `x (+) u = ((1 + 2 kappa x.u + kappa |u|^2) x + g u) / (1 + 2 kappa
+/// x.u + (1 - g) kappa |u|^2)` with `g = 1 - kappa |x|^2` the stored exact
+/// gap. With `|u| sqrt(kappa) <= tanh(1/2)` the denominator is at least
+/// `(1 - tanh(1/2))^2`, so nothing cancels; the caller recomputes the exact
+/// gap of the rounded result (`Layout::store`, which rejects a point on or
+/// beyond the sphere) and keeps it only when that gap is at least
+/// [`FAST_MIN_GAP`]; otherwise, and for longer or tiny steps (returns
+/// `false`), it takes the double-double exponential map. The same
+/// operations in the same order on every thread: results stay independent
+/// of the thread count.
+#[inline(always)]
+fn fast_poincare_step(k: &Curvature, x: &[f64], g: f64, v: &[f64], out: &mut [f64]) -> bool {
+    let nv2 = sumsq(v);
+    // (tiny tangents, whose squares lose digits, go to the exact map)
+    if !(nv2 > 1e-200 && nv2.is_finite()) {
+        return false;
+    }
+    let snv = k.sqrt_kappa * nv2.sqrt();
+    let a = snv / g;
+    if !(a <= FAST_MAX_HALF_STEP) {
+        return false;
+    }
+    let t = a.tanh() / snv;
+    let mut xu = 0.0;
+    let mut uu = 0.0;
+    for i in 0..x.len() {
+        let u = t * v[i];
+        out[i] = u;
+        xu += x[i] * u;
+        uu += u * u;
+    }
+    let (kxu, kuu) = (k.kappa * xu, k.kappa * uu);
+    let cx = 1.0 + 2.0 * kxu + kuu;
+    let den = 1.0 + 2.0 * kxu + (1.0 - g) * kuu;
+    for i in 0..x.len() {
+        out[i] = (cx * x[i] + g * out[i]) / den;
+    }
+    true
 }
 
 // ----------------------------------------------------------------- trainer
@@ -737,6 +839,22 @@ impl Trainer {
         RunResult { edges: done, epoch_loss }
     }
 
+    /// The rate of the batch starting at position `start` of the current
+    /// epoch (see [`Params::decay_epochs`]).
+    pub fn rate(&self, start: usize) -> f64 {
+        let p = &self.p;
+        if self.epoch < p.burn_in {
+            return p.learning_rate * p.burn_in_factor;
+        }
+        if p.decay_epochs == 0 {
+            return p.learning_rate;
+        }
+        let m = self.graph.edges.len() as f64;
+        let done = (self.epoch - p.burn_in) as f64 * m + start as f64;
+        let total = (p.decay_epochs - p.burn_in) as f64 * m;
+        p.learning_rate * (1.0 - done / total).max(MIN_RATE_FRACTION)
+    }
+
     /// One synchronous step over the positives `order[start..end]`; returns
     /// the sum of their losses (fixed-order sum of fixed chunks).
     fn batch(&mut self, start: usize, end: usize) -> f64 {
@@ -745,11 +863,7 @@ impl Trainer {
         let kslots = 2 + self.p.negatives;
         let nb = end - start;
         let ns = nb * kslots;
-        let lr = if self.epoch < self.p.burn_in {
-            self.p.learning_rate * self.p.burn_in_factor
-        } else {
-            self.p.learning_rate
-        };
+        let lr = self.rate(start);
         if self.slot_node.len() < ns {
             self.slot_node.resize(ns, NONE);
             self.slot_grad.resize(ns * dim, 0.0);
@@ -842,6 +956,7 @@ impl Trainer {
         self.new_rec.resize(nt * w, 0.0);
         let k = self.k;
         let (rec, touched, offs, list, slot_grad) = (&self.rec, &self.touched, &self.offs, &self.list, &self.slot_grad);
+        let node_mean = self.p.node_mean;
         let halvings: usize = self.new_rec[..nt * w]
             .par_chunks_mut(NODE_CHUNK * w)
             .enumerate()
@@ -857,13 +972,15 @@ impl Trainer {
                             let l = ci * NODE_CHUNK + j;
                             let node = touched[l] as usize;
                             gsum.iter_mut().for_each(|g| *g = 0.0);
-                            for &s in &list[offs[l] as usize..offs[l + 1] as usize] {
+                            let slots = &list[offs[l] as usize..offs[l + 1] as usize];
+                            for &s in slots {
                                 let g = &slot_grad[s as usize * dim..(s as usize + 1) * dim];
                                 for i in 0..dim {
                                     gsum[i] += g[i];
                                 }
                             }
-                            hv += step(&lay, &k, &rec[node * w..(node + 1) * w], &gsum, lr, out, &mut tmp);
+                            let rate = if node_mean { lr / slots.len() as f64 } else { lr };
+                            hv += step(&lay, &k, &rec[node * w..(node + 1) * w], &gsum, rate, out, &mut tmp);
                         }
                         hv
                     },
@@ -1035,6 +1152,98 @@ mod tests {
         for (a, b) in lp.iter().zip(&lh) {
             assert!((a - b).abs() < 1e-6 * a.abs().max(1.0));
         }
+    }
+
+    #[test]
+    fn fast_step_matches_the_exact_exponential_map() {
+        // reference: poincare::exp_map_g (the double-double exponential map,
+        // itself checked against mpmath in tests/python); random points and
+        // steps up to the fast path's limit (common practice)
+        let mut rng = Xoshiro::new(7);
+        for kv in [-1.0, -0.25, -9.0] {
+            let k = Curvature::new(kv).unwrap();
+            let mut worst = 0.0f64;
+            let mut taken = 0;
+            for _ in 0..2000 {
+                let d = 1 + rng.below(12) as usize;
+                let r = rng.uniform().powf(0.2) * 0.999 * k.radius;
+                let mut x: Vec<f64> = (0..d).map(|_| 2.0 * rng.uniform() - 1.0).collect();
+                let nx = sumsq(&x).sqrt();
+                x.iter_mut().for_each(|c| *c *= r / nx);
+                let g = checked_gap(&k, &x).unwrap().value();
+                let len = rng.uniform() * 0.6 * g * k.radius;
+                let mut v: Vec<f64> = (0..d).map(|_| 2.0 * rng.uniform() - 1.0).collect();
+                let nv = sumsq(&v).sqrt();
+                v.iter_mut().for_each(|c| *c *= len / nv);
+                let (mut a, mut b) = (vec![0.0; d], vec![0.0; d]);
+                if !fast_poincare_step(&k, &x, g, &v, &mut a) {
+                    continue;
+                }
+                taken += 1;
+                let gb = poincare::exp_map_g(&k, &x, g, &v, &mut b);
+                // the gap of the fast result, exactly, against the exact map's
+                let ga = checked_gap(&k, &a).unwrap().value();
+                assert!((ga - gb).abs() <= 1e-12 * gb, "{ga} {gb}");
+                for i in 0..d {
+                    worst = worst.max((a[i] - b[i]).abs() / k.radius);
+                }
+            }
+            assert!(taken > 1000, "{taken}");
+            assert!(worst < 1e-14, "{worst}");
+        }
+    }
+
+    #[test]
+    fn linear_schedule_and_node_mean() {
+        // the rate follows its definition (Params::decay_epochs): burn-in
+        // factor, then linear from the full rate to the floor
+        let (n, edges) = tree_closure(2, 3);
+        let g = Graph::new(n, &edges, false).unwrap();
+        let p = Params {
+            dim: 2,
+            learning_rate: 0.8,
+            burn_in: 2,
+            burn_in_factor: 0.25,
+            decay_epochs: 12,
+            batch_size: 1 << 20,
+            ..Params::default()
+        };
+        let mut t = Trainer::new(Model::Poincare, Curvature::new(-1.0).unwrap(), g.clone(), p.clone()).unwrap();
+        let mut want = vec![0.2, 0.2, 0.8];
+        for e in 3..14 {
+            want.push((0.8 * (1.0 - (e - 2) as f64 / 10.0)).max(0.008));
+        }
+        for (e, w) in want.iter().enumerate() {
+            assert_eq!(t.epoch(), e);
+            assert!((t.rate(0) - w).abs() < 1e-15, "epoch {e}: {} vs {w}", t.rate(0));
+            t.run(usize::MAX);
+        }
+        assert!(Params { decay_epochs: 2, ..p.clone() }.check().unwrap_err().to_string().contains("decay_epochs"));
+        // one batch per epoch, huge rate: with node_mean no node moves more
+        // than one positive's step (a gradient of norm at most 1 + negatives
+        // scaled by the rate), while summed hub steps go much further
+        let far = |mean: bool| {
+            let p = Params {
+                dim: 2,
+                learning_rate: 0.05,
+                burn_in: 0,
+                batch_size: 1 << 20,
+                node_mean: mean,
+                ..Params::default()
+            };
+            let k = Curvature::new(-1.0).unwrap();
+            let mut t = Trainer::new(Model::Poincare, k, g.clone(), p).unwrap();
+            let before = t.points();
+            t.run(usize::MAX);
+            let after = t.points();
+            // handbook: d = acosh(1 + 2|x - y|^2 / ((1 - |x|^2)(1 - |y|^2)))
+            let (x, y) = (&before[..2], &after[..2]);
+            let q = 2.0 * seq_dist_sq(x, y) / ((1.0 - sumsq(x)) * (1.0 - sumsq(y)));
+            (1.0 + q).acosh()
+        };
+        let (m, s) = (far(true), far(false));
+        assert!(m <= 2.0 * 0.05 + 1e-12, "{m}");
+        assert!(s > 3.0 * m, "{s} {m}");
     }
 
     #[test]

@@ -33,7 +33,7 @@ impl GraphTrainer {
 impl GraphTrainer {
     /// `edges` is a C-contiguous `(m, 2)` int64 array.
     #[new]
-    #[pyo3(signature = (edges, n_nodes, dim, model, curvature, negatives, learning_rate, burn_in, burn_in_factor, batch_size, init, seed, directed = false))]
+    #[pyo3(signature = (edges, n_nodes, dim, model, curvature, negatives, learning_rate, burn_in, burn_in_factor, batch_size, init, seed, directed = false, node_mean = false, decay_epochs = 0))]
     fn new(
         py: Python<'_>,
         edges: PyReadonlyArray2<'_, i64>,
@@ -49,6 +49,8 @@ impl GraphTrainer {
         init: f64,
         seed: u64,
         directed: bool,
+        node_mean: bool,
+        decay_epochs: usize,
     ) -> PyResult<Self> {
         let k = Curvature::new(curvature)?;
         let md = Model::parse(model, "model")?;
@@ -57,7 +59,18 @@ impl GraphTrainer {
             return Err(PyValueError::new_err(format!("edges must have shape (m, 2), got {:?}", e.shape())));
         }
         let rows: Vec<[i64; 2]> = e.rows().into_iter().map(|r| [r[0], r[1]]).collect();
-        let p = Params { dim, negatives, learning_rate, burn_in, burn_in_factor, batch_size, init, seed };
+        let p = Params {
+            dim,
+            negatives,
+            learning_rate,
+            burn_in,
+            burn_in_factor,
+            batch_size,
+            init,
+            seed,
+            node_mean,
+            decay_epochs,
+        };
         let t = py.detach(move || {
             let g = Graph::new(n_nodes, &rows, directed)?;
             Trainer::new(md, k, g, p)

@@ -180,6 +180,20 @@ def test_balanced_tree_reaches_high_map():
     assert abs(r.mean_average_precision - m) < 1e-12
 
 
+def test_node_mean_and_linear_schedule_tame_a_large_rate():
+    # the balanced tree of test_balanced_tree_reaches_high_map at a rate ten
+    # times larger, in batches of 256 positives (a third of an epoch): the
+    # summed steps of the nodes near the root overshoot and the run stalls;
+    # the per-node mean reaches MAP >= 0.95, and a linearly decaying rate
+    # recovers much of the summed run (scikit-learn reference, see sklearn_map)
+    n, e = tree_closure(3, 4)
+    kw = dict(epochs=60, learning_rate=3.0, batch_size=256, seed=1, progress=False)
+    summed = sklearn_map(gk.embed.graph(e, 5, **kw).points, "poincare", n, e)
+    mean = sklearn_map(gk.embed.graph(e, 5, node_steps="mean", **kw).points, "poincare", n, e)
+    linear = sklearn_map(gk.embed.graph(e, 5, schedule="linear", **kw).points, "poincare", n, e)
+    assert summed < 0.6 and mean >= 0.95 and linear > summed + 0.2, (summed, mean, linear)
+
+
 def test_models_agree_and_curvature_scales():
     # exact exponential maps of the same intrinsic gradient from the same
     # start: the hyperboloid run maps onto the Poincaré run (gk.convert)
@@ -214,6 +228,9 @@ e = np.array(rows)
 for model in ("poincare", "hyperboloid"):
     emb = gk.embed.graph(e, 4, model=model, epochs=4, batch_size=32, seed=9, progress=False)
     sys.stdout.write(emb.points.tobytes().hex() + emb.loss.tobytes().hex() + "\\n")
+    emb = gk.embed.graph(e, 4, model=model, epochs=4, batch_size=32, seed=9, progress=False,
+                         node_steps="mean", schedule="linear", burn_in=1)
+    sys.stdout.write(emb.points.tobytes().hex() + emb.loss.tobytes().hex() + "\\n")
 """
 
 
@@ -242,6 +259,9 @@ def test_one_and_two_threads_are_bit_identical():
         (np.array([[0, 1]]), {"learning_rate": float("inf")}, "learning_rate"),
         (np.array([[0, 1]]), {"model": "klein"}, "model"),
         (np.array([[0, 1]]), {"curvature": 1.0}, "curvature"),
+        (np.array([[0, 1]]), {"node_steps": "max"}, "node_steps"),
+        (np.array([[0, 1]]), {"schedule": "cosine"}, "schedule"),
+        (np.array([[0, 1]]), {"schedule": "linear", "epochs": 5, "burn_in": 5}, "schedule.*epochs > burn_in"),
     ],
 )
 def test_bad_input_is_a_value_error(edges, kw, match):
