@@ -32,11 +32,11 @@ pub mod matrix;
 pub mod vptree;
 
 use ndarray::Array2;
-use rayon::prelude::*;
 
 use crate::batch::{map_rows, scalar_core, Data, Operand, Output};
 use crate::error::{Error, Fault, Result};
 use crate::models::ball::{checked_gap, Curvature};
+use crate::models::points::PointArray;
 use crate::models::{halfspace, hyperboloid, Model};
 use crate::numeric::{acosh1p2_fast, sumsq_dd, two_prod, two_sum, DD};
 
@@ -331,73 +331,24 @@ impl Prepared {
     /// Validates and prepares `(n, d)` points (`(n, d + 1)` for the
     /// hyperboloid). `name` is the argument name used in messages.
     pub fn new(model: Model, curvature: Curvature, name: &str, x: &Data) -> Result<Prepared> {
-        let shape = x.shape().to_vec();
-        if shape.len() != 2 {
-            return Err(Error::Value(format!(
-                "{name} must be a 2-D array of points, shape (n, d); got shape {shape:?}"
-            )));
-        }
-        let (n, width) = (shape[0], shape[1]);
-        let min_w = if model == Model::Hyperboloid { 2 } else { 1 };
-        if width < min_w {
-            return Err(Error::Value(format!(
-                "{name} has {width} coordinates per point; {model:?} points need at least {min_w}"
-            )));
-        }
-        let w = if model == Model::Hyperboloid { width - 1 } else { width };
-        let space = PairSpace::of(model);
-        let ew = space.extra_width(w);
+        let pa = PointArray::new(model, name, x)?;
+        let (n, w) = (pa.n, pa.d);
+        let ew = PairSpace::of(model).extra_width(w);
         let mut coords = vec![0f64; n * w];
         let mut aux = vec![0f64; n];
         let mut extra = vec![0f64; n * ew];
-        let k = curvature;
-        let read = |i0: usize, c: &mut [f64], a: &mut [f64], e: &mut [f64]| -> Option<(usize, Fault)> {
-            let mut row = vec![0f64; width];
-            for (r, ai) in a.iter_mut().enumerate() {
-                let i = i0 + r;
-                match x {
-                    Data::F64(v) | Data::Weak(v) => {
-                        for (j, o) in row.iter_mut().enumerate() {
-                            *o = v[[i, j]];
-                        }
-                    }
-                    Data::F32(v) => {
-                        for (j, o) in row.iter_mut().enumerate() {
-                            *o = f64::from(v[[i, j]]);
-                        }
-                    }
-                }
-                match read_pair_point(model, &k, &row, &mut c[r * w..(r + 1) * w], &mut e[r * ew..(r + 1) * ew]) {
-                    Ok(v) => *ai = v,
-                    Err(f) => return Some((i, f)),
-                }
-            }
-            None
-        };
-        let fault = if n <= PREP_CHUNK {
-            read(0, &mut coords, &mut aux, &mut extra)
-        } else {
-            // Chunks zipped by hand: `extra` is empty for the models stored
-            // in their own coordinates, and a zip of parallel chunk
-            // iterators would stop at the shortest.
-            let mut ec = extra.chunks_mut((PREP_CHUNK * ew).max(1));
-            let parts: Vec<(&mut [f64], &mut [f64], &mut [f64])> = coords
-                .chunks_mut(PREP_CHUNK * w)
-                .zip(aux.chunks_mut(PREP_CHUNK))
-                .map(|(c, a)| (c, a, if ew == 0 { &mut [][..] } else { ec.next().expect("one extra chunk per chunk") }))
-                .collect();
-            parts.into_par_iter().enumerate().map(|(ci, (c, a, e))| read(ci * PREP_CHUNK, c, a, e)).reduce(
-                || None,
-                |p, q| match (p, q) {
-                    (Some(p), Some(q)) => Some(if p.0 <= q.0 { p } else { q }),
-                    (p, None) => p,
-                    (None, q) => q,
-                },
-            )
-        };
-        if let Some((i, f)) = fault {
-            return Err(crate::error::row_error(name, &shape, &[i], f, x.is_f32()));
-        }
+        // Chunks zipped by hand: `extra` is empty for the models stored in
+        // their own coordinates, and a zip would stop at the shortest.
+        let mut ec = extra.chunks_mut((PREP_CHUNK * ew).max(1));
+        let parts: Vec<(&mut [f64], &mut [f64], &mut [f64])> = coords
+            .chunks_mut(PREP_CHUNK * w)
+            .zip(aux.chunks_mut(PREP_CHUNK))
+            .map(|(c, a)| (c, a, if ew == 0 { &mut [][..] } else { ec.next().expect("one extra chunk per chunk") }))
+            .collect();
+        pa.read_rows(PREP_CHUNK, parts, |(c, a, e), r, row| {
+            a[r] = read_pair_point(model, &curvature, row, &mut c[r * w..(r + 1) * w], &mut e[r * ew..(r + 1) * ew])?;
+            Ok(())
+        })?;
         Ok(Prepared { model, curvature, n, w, coords, aux, extra })
     }
 
