@@ -43,6 +43,53 @@ pub trait GyroBall: Copy + Send + Sync + 'static {
     fn geodesic_g(c: &Curvature, x: &[f64], gx: f64, y: &[f64], gy: f64, t: f64, out: &mut [f64]) -> f64;
 }
 
+/// Implements [`GyroBall`] for the zero-sized type `$ty` by the free
+/// per-point kernels (`add_g`, `scale_g`, ...) of the module it is invoked
+/// in: each model writes its kernels once, as functions of its module (the
+/// other models and the statistics call them directly), and names its type
+/// here (`gyro_ball!(Mobius, "Poincaré")`).
+macro_rules! gyro_ball {
+    ($ty:ident, $name:literal) => {
+        impl $crate::models::gyro::GyroBall for $ty {
+            const NAME: &'static str = $name;
+
+            #[inline(always)]
+            fn add_g(c: &Curvature, x: &[f64], gx: f64, y: &[f64], gy: f64, sy: f64, out: &mut [f64]) -> f64 {
+                add_g(c, x, gx, y, gy, sy, out)
+            }
+            #[inline(always)]
+            fn scale_g(c: &Curvature, r: f64, x: &[f64], gx: f64, out: &mut [f64]) -> f64 {
+                scale_g(c, r, x, gx, out)
+            }
+            #[inline(always)]
+            fn gyration_g(c: &Curvature, u: &[f64], gu: f64, v: &[f64], gv: f64, w: &[f64], out: &mut [f64]) {
+                gyration_g(c, u, gu, v, gv, w, out)
+            }
+            #[inline(always)]
+            fn midpoint_g(c: &Curvature, a: &[f64], ga: f64, b: &[f64], gb: f64, out: &mut [f64]) -> f64 {
+                midpoint_g(c, a, ga, b, gb, out)
+            }
+            #[inline(always)]
+            fn exp_map_g(c: &Curvature, x: &[f64], gx: f64, v: &[f64], out: &mut [f64]) -> f64 {
+                exp_map_g(c, x, gx, v, out)
+            }
+            #[inline(always)]
+            fn log_map_g(c: &Curvature, x: &[f64], gx: f64, y: &[f64], gy: f64, out: &mut [f64]) {
+                log_map_g(c, x, gx, y, gy, out)
+            }
+            #[inline(always)]
+            fn transport_g(c: &Curvature, x: &[f64], gx: f64, y: &[f64], gy: f64, v: &[f64], out: &mut [f64]) {
+                transport_g(c, x, gx, y, gy, v, out)
+            }
+            #[inline(always)]
+            fn geodesic_g(c: &Curvature, x: &[f64], gx: f64, y: &[f64], gy: f64, t: f64, out: &mut [f64]) -> f64 {
+                geodesic_g(c, x, gx, y, gy, t, out)
+            }
+        }
+    };
+}
+pub(crate) use gyro_ball;
+
 /// The operand a result beyond the rim is blamed on: the point (or scalar)
 /// operand with the most rows of its own (the first among equals), so that
 /// the message names the row of the result whenever one operand spans the

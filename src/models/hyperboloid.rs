@@ -14,8 +14,8 @@ use crate::error::{Fault, Result, RowFault};
 use crate::models::ball::{finite_row, Curvature};
 use crate::models::klein::chord_ends;
 use crate::numeric::{
-    diff_of_squares, dot2, dot_dd, geodesic_weights, perp_scaled, pow2, sumsq, two_prod, unit_exponent, wedge_dot,
-    wedge_sq, with_scratch, DD,
+    diff_of_squares, div_dd, dot2, dot_dd, geodesic_weights, perp_scaled, pow2, sqrt_dd, sumsq, sumsq_dd, two_prod,
+    unit_exponent, wedge_dot, wedge_sq, with_scratch, DD,
 };
 
 /// Relative tolerance on x0 when reading a point (loose enough for float32
@@ -49,6 +49,46 @@ pub fn read_point(k: &Curvature, x: &[f64]) -> std::result::Result<f64, Fault> {
         return Err(Fault::OffHyperboloid(defect));
     }
     Ok(cx)
+}
+
+// ------------------------------------------------- maps to and from the hub
+
+/// The Poincaré point of a hyperboloid point (spatial part `xs`, `c = x0/R`
+/// as [`read_point`] returns it), `p = x_s/(1 + c)`, and its exact gap
+/// `2/(1 + c)`.
+#[inline(always)]
+pub fn to_poincare(xs: &[f64], c: f64, p: &mut [f64]) -> f64 {
+    for (o, &v) in p.iter_mut().zip(xs) {
+        *o = v / (1.0 + c);
+    }
+    2.0 / (1.0 + c)
+}
+
+/// [`to_poincare`] carried to double-double, with `c` recomputed in
+/// double-double from the exact spatial part: writes the image's high parts
+/// to `hi` and low parts to `lo`, and returns the factor `1/g = (1 + c)/2`
+/// of the image (the pair space of `pairwise`).
+#[inline(always)]
+pub fn to_poincare_dd(k: &Curvature, xs: &[f64], hi: &mut [f64], lo: &mut [f64]) -> f64 {
+    let c = sqrt_dd(DD::from(1.0).add(sumsq_dd(xs).mul_f64(k.kappa)));
+    let den = DD::from(1.0).add(c);
+    for ((h, l), &v) in hi.iter_mut().zip(lo.iter_mut()).zip(xs) {
+        let q = div_dd(v, den);
+        *h = q.hi;
+        *l = q.lo;
+    }
+    0.5 * den.value()
+}
+
+/// The hyperboloid point of a Poincaré point `p` of gap `g`:
+/// `x0 = R (2 - g)/g` (R times the Lorentz factor of the Klein image),
+/// `x_s = 2p/g`.
+#[inline(always)]
+pub fn from_poincare(k: &Curvature, p: &[f64], g: f64, out: &mut [f64]) {
+    out[0] = k.radius * (2.0 - g) / g;
+    for (o, &v) in out[1..].iter_mut().zip(p) {
+        *o = 2.0 * v / g;
+    }
 }
 
 /// `cosh(d/R) - 1` halved, from spatial parts and their `c = x0/R`.

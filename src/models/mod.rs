@@ -11,8 +11,8 @@ pub mod gyro;
 pub mod halfspace;
 pub mod hyperboloid;
 pub mod klein;
-pub mod points;
 pub mod poincare;
+pub mod points;
 
 use crate::error::{Error, Result};
 

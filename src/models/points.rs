@@ -154,7 +154,8 @@ mod tests {
         let m = msg(PointArray::new(Model::Klein, "y", &Data::F64(v.view())).err().unwrap());
         assert!(m.starts_with("y must be a 2-D array of points"), "{m}");
         let e = Array2::<f64>::zeros((0, 2)).into_dyn();
-        let m = msg(PointArray::new(Model::Poincare, "x", &Data::F64(e.view())).unwrap().non_empty("why").err().unwrap());
+        let m =
+            msg(PointArray::new(Model::Poincare, "x", &Data::F64(e.view())).unwrap().non_empty("why").err().unwrap());
         assert_eq!(m, "x is empty: why");
     }
 

@@ -37,8 +37,8 @@ use crate::batch::{map_rows, scalar_core, Data, Operand, Output};
 use crate::error::{Error, Fault, Result};
 use crate::models::ball::{checked_gap, Curvature};
 use crate::models::points::PointArray;
-use crate::models::{halfspace, hyperboloid, Model};
-use crate::numeric::{acosh1p2_fast, sumsq_dd, two_prod, two_sum, DD};
+use crate::models::{halfspace, hyperboloid, klein, Model};
+use crate::numeric::{acosh1p2_fast, with_scratch_of};
 
 /// Below this `kappa |p - q|^2` a pair of hub images is refined from the
 /// double-double images (see the module notes): the rounded images are
@@ -113,30 +113,6 @@ pub fn pair_scale(model: Model, k: &Curvature) -> f64 {
     }
 }
 
-/// `a / w` for a float64 `a` and a double-double `w`, to double-double
-/// accuracy (one Newton correction of the quotient).
-#[inline(always)]
-fn div_dd(a: f64, w: DD) -> DD {
-    let q1 = a / w.hi;
-    let (p, pe) = two_prod(q1, w.hi);
-    // a - q1 w, exact to the rounding of the small terms: a - p is exact
-    // (Sterbenz), pe and q1 w.lo are the error terms.
-    let r = ((a - p) - pe) - q1 * w.lo;
-    let q2 = r / w.hi;
-    let (h, l) = two_sum(q1, q2);
-    DD { hi: h, lo: l }
-}
-
-/// `sqrt(g)` for a double-double `g > 0`, to double-double accuracy.
-#[inline(always)]
-fn sqrt_dd(g: DD) -> DD {
-    let s = g.hi.sqrt();
-    let (p, pe) = two_prod(s, s);
-    let r = ((g.hi - p) - pe) + g.lo;
-    let (h, l) = two_sum(s, r / (2.0 * s));
-    DD { hi: h, lo: l }
-}
-
 /// Reads one point of `model` into its pair space: writes the pair-space
 /// coordinates to `hi` (length `w`) and the refinement data to `extra`
 /// (length `PairSpace::of(model).extra_width(w)`), and returns the factor `a`.
@@ -144,8 +120,9 @@ fn sqrt_dd(g: DD) -> DD {
 ///
 /// Hub images: `p = k/(1 + sqrt g_k)` (Klein), `p = x_s/(1 + c)` with
 /// `c = sqrt(1 + kappa |x_s|^2) = x0/R` (hyperboloid), each quotient in
-/// double-double from the exact inputs (the same maps as
-/// `models::convert::to_hub`, carried to twice the precision).
+/// double-double from the exact inputs: the maps of
+/// `models::convert::to_hub` carried to twice the precision, written beside
+/// them (`klein::to_poincare_dd`, `hyperboloid::to_poincare_dd`).
 #[inline(always)]
 pub fn read_pair_point(
     model: Model,
@@ -165,32 +142,14 @@ pub fn read_pair_point(
             hi.copy_from_slice(x);
             Ok(1.0 / x[x.len() - 1])
         }
-        Model::Klein => {
-            let s = sqrt_dd(checked_gap(k, x)?);
-            let w = DD::from(1.0).add(s);
-            for ((h, l), &v) in hi.iter_mut().zip(extra.iter_mut()).zip(x) {
-                let q = div_dd(v, w);
-                *h = q.hi;
-                *l = q.lo;
-            }
-            // 1/g of the image: g = 2 s/(1 + s).
-            Ok(w.value() / (2.0 * s.value()))
-        }
+        Model::Klein => Ok(klein::to_poincare_dd(x, checked_gap(k, x)?, hi, extra)),
         Model::Hyperboloid => {
             let cx = hyperboloid::read_point(k, x)?;
             let xs = &x[1..];
-            let w_ = xs.len();
-            let c = sqrt_dd(DD::from(1.0).add(sumsq_dd(xs).mul_f64(k.kappa)));
-            let w = DD::from(1.0).add(c);
-            let (lo, rest) = extra.split_at_mut(w_);
-            for ((h, l), &v) in hi.iter_mut().zip(lo.iter_mut()).zip(xs) {
-                let q = div_dd(v, w);
-                *h = q.hi;
-                *l = q.lo;
-            }
-            rest[..w_].copy_from_slice(xs);
-            rest[w_] = cx;
-            Ok(0.5 * w.value())
+            let (lo, far) = extra.split_at_mut(xs.len());
+            far[..xs.len()].copy_from_slice(xs);
+            far[xs.len()] = cx;
+            Ok(hyperboloid::to_poincare_dd(k, xs, hi, lo))
         }
     }
 }
@@ -260,7 +219,7 @@ pub fn point_distance(
     let w = x.len() - usize::from(model == Model::Hyperboloid);
     let space = PairSpace::of(model);
     let ew = space.extra_width(w);
-    with_pair_scratch(2 * (w + ew), |buf| {
+    with_scratch_of::<136, _>(2 * (w + ew), |buf| {
         let (bx, by) = buf.split_at_mut(w + ew);
         let (xh, xe) = bx.split_at_mut(w);
         let (yh, ye) = by.split_at_mut(w);
@@ -290,19 +249,6 @@ pub fn distance_arrays<'a>(model: Model, k: Curvature, x: Data<'a>, y: Data<'a>)
             Ok(())
         },
     )
-}
-
-/// Runs `f` with a zeroed scratch buffer of length `n` (on the stack when
-/// small).
-#[inline(always)]
-fn with_pair_scratch<R>(n: usize, f: impl FnOnce(&mut [f64]) -> R) -> R {
-    if n <= 136 {
-        let mut buf = [0f64; 136];
-        f(&mut buf[..n])
-    } else {
-        let mut buf = vec![0f64; n];
-        f(&mut buf)
-    }
 }
 
 /// Points of one model ready for pairwise work.

@@ -23,8 +23,8 @@ use crate::batch::Data;
 use crate::error::{Error, Result};
 use crate::models::ball::Curvature;
 use crate::models::convert::{from_hub, to_hub};
-use crate::models::points::PointArray;
 use crate::models::poincare;
+use crate::models::points::PointArray;
 use crate::models::Model;
 use crate::numeric::{log1p_fast, sech2, sumsq};
 
@@ -181,9 +181,8 @@ pub(crate) fn einstein_sums(
 pub(crate) fn einstein_point(mut num: Vec<f64>, den: f64) -> (Vec<f64>, f64) {
     num.iter_mut().for_each(|v| *v /= den);
     let gk = (1.0 - crate::numeric::sumsq_dd(&num).value()).max(0.0);
-    let a = gk.sqrt();
-    num.iter_mut().for_each(|v| *v /= 1.0 + a);
-    (num, 2.0 * a / (1.0 + a))
+    let g = crate::models::klein::to_poincare_in_place(&mut num, gk);
+    (num, g)
 }
 
 /// Unit-ball Einstein midpoint of the members (with their weights), as a
