@@ -8,10 +8,10 @@
 //! operations and by the Klein model), a per-point convenience form, and a
 //! batched form over arrays.
 
-use crate::batch::{map_rows, map_rows_with, point_core, wants_f32, Data, Operand, Output};
+use crate::batch::{map_rows_with, wants_f32, Data, Operand, Output};
 use crate::error::Result;
 use crate::models::ball::{point_gap, Curvature, Rim};
-use crate::models::gyro::{self, gyro_ball, GyroBall};
+use crate::models::gyro::{self, gyro_ball, GyroBall, Take};
 use crate::numeric::{
     artanh_from_gap, artanh_ratio, diff_of_squares, dist_sq, dot2, gap, geodesic_weights, norm_scaled, pow2,
     radial_scale_factor, scale_exponent, sech2, sumsq, with_scratch,
@@ -376,19 +376,14 @@ gyro_ball!(Mobius, "Poincaré");
 
 /// Batched `x ⊞ y`.
 pub fn coadd_arrays<'a>(c: Curvature, x: Data<'a>, y: Data<'a>, rim: &Rim) -> Result<Output> {
-    let ops = [Operand::point("x", x), Operand::point("y", y)];
-    let (f32_out, arg) = (wants_f32(&ops), gyro::blame(&ops));
-    map_rows(
-        &ops,
-        &point_core,
+    let args = [("x", x, Take::Point), ("y", y, Take::Point)];
+    gyro::ball_rows::<Mobius, 2>(
+        c,
+        args,
         30,
+        Some(rim),
         #[inline(always)]
-        |r, out| {
-            let gx = point_gap(&c, r[0], 0)?;
-            let gy = point_gap(&c, r[1], 1)?;
-            let g = coadd_g(&c, r[0], gx, r[1], gy, out);
-            rim.apply(&c, out, g, f32_out, Mobius::NAME, arg)
-        },
+        |r, g, out| coadd_g(&c, r[0], g[0], r[1], g[1], out),
     )
 }
 

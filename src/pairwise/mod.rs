@@ -31,8 +31,6 @@
 pub mod matrix;
 pub mod vptree;
 
-use ndarray::Array2;
-
 use crate::batch::{map_rows, scalar_core, Data, Operand, Output};
 use crate::error::{Error, Fault, Result};
 use crate::models::ball::{checked_gap, Curvature};
@@ -419,15 +417,5 @@ impl Prepared {
             )));
         }
         Ok(())
-    }
-
-    /// The pair-space coordinates as an array, for tests.
-    pub fn coords_array(&self) -> Array2<f64> {
-        Array2::from_shape_vec((self.n, self.w), self.coords.clone()).expect("shape")
-    }
-
-    /// Sum of squares of one pair-space row (used by tree heuristics).
-    pub fn norm_sq(&self, i: usize) -> f64 {
-        crate::numeric::sumsq(self.row(i))
     }
 }
