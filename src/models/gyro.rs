@@ -13,9 +13,9 @@
 //! float64 cannot hold from one that only its last rounding put on the
 //! sphere. The work figures passed to `map_rows` only size parallel chunks.
 
-use crate::batch::{finite_scalar, map_rows, point_core, wants_f32, Core, Data, Operand, Output};
+use crate::batch::{map_rows, model_operands, point_core, take_row, wants_f32, Core, Data, Operand, Output, Take};
 use crate::error::Result;
-use crate::models::ball::{finite_row, point_gap, Curvature, Rim};
+use crate::models::ball::{checked_gap, Curvature, Rim};
 use crate::numeric::with_scratch;
 use Take::{Point, Scalar, Vector};
 
@@ -112,23 +112,13 @@ pub(crate) fn blame(ops: &[Operand]) -> usize {
     best
 }
 
-/// How a batched ball-model function takes one operand.
-#[derive(Clone, Copy, Debug, PartialEq, Eq)]
-pub(crate) enum Take {
-    /// A point of the ball, validated; its gap goes to the kernel.
-    Point,
-    /// Any finite vector (a tangent, the vector a gyration acts on).
-    Vector,
-    /// A finite scalar.
-    Scalar,
-}
-
 /// The batched form of a ball-model kernel, written once: the operands are
 /// named as in Python and taken as `args` says, checked in order on every
-/// row (the first bad one is the row's fault); `kernel(rows, gaps, out)`
-/// gets the gaps of the point operands (1 for the others) and, for a point
-/// result, returns its exact gap, which goes through the rim rule (`rim`;
-/// `None` for results that are not points, whose return value is unused).
+/// row ([`take_row`]: the first bad one is the row's fault); `kernel(rows,
+/// gaps, out)` gets the gaps of the point operands (1 for the others) and,
+/// for a point result, returns its exact gap, which goes through the rim
+/// rule (`rim`; `None` for results that are not points, whose return value
+/// is unused).
 #[inline(always)]
 pub(crate) fn ball_rows<'a, M: GyroBall, const N: usize>(
     c: Curvature,
@@ -137,11 +127,7 @@ pub(crate) fn ball_rows<'a, M: GyroBall, const N: usize>(
     rim: Option<&Rim>,
     kernel: impl Fn(&[&[f64]], &[f64; N], &mut [f64]) -> f64 + Sync,
 ) -> Result<Output> {
-    let takes = args.each_ref().map(|a| a.2);
-    let ops = args.map(|(name, data, take)| match take {
-        Take::Scalar => Operand::scalar(name, data),
-        Take::Point | Take::Vector => Operand::point(name, data),
-    });
+    let (ops, takes) = model_operands(args);
     let (f32_out, arg) = (wants_f32(&ops), blame(&ops));
     map_rows(
         &ops,
@@ -149,16 +135,12 @@ pub(crate) fn ball_rows<'a, M: GyroBall, const N: usize>(
         work,
         #[inline(always)]
         |r, out| {
-            let mut g = [1.0; N];
-            for i in 0..N {
-                match takes[i] {
-                    Take::Point => g[i] = point_gap(&c, r[i], i)?,
-                    Take::Vector => finite_row(r[i], i)?,
-                    Take::Scalar => {
-                        finite_scalar(i, r[i][0])?;
-                    }
-                }
-            }
+            let g = take_row(
+                r,
+                &takes,
+                #[inline(always)]
+                |x| checked_gap(&c, x).map(|g| g.value()),
+            )?;
             let gout = kernel(r, &g, out);
             match rim {
                 Some(rim) => rim.apply(&c, out, gout, f32_out, M::NAME, arg),

@@ -8,10 +8,10 @@
 //! operations and by the Klein model), a per-point convenience form, and a
 //! batched form over arrays.
 
-use crate::batch::{map_rows_with, wants_f32, Data, Operand, Output};
+use crate::batch::{map_rows_with, wants_f32, Data, Operand, Output, Take};
 use crate::error::Result;
 use crate::models::ball::{point_gap, Curvature, Rim};
-use crate::models::gyro::{self, gyro_ball, GyroBall, Take};
+use crate::models::gyro::{self, gyro_ball, GyroBall};
 use crate::numeric::{
     artanh_from_gap, artanh_ratio, diff_of_squares, dist_sq, dot2, gap, geodesic_weights, norm_scaled, pow2,
     radial_scale_factor, scale_exponent, sech2, sumsq, with_scratch,
