@@ -173,7 +173,7 @@ mod tests {
         for x in &inputs {
             for chunk in [1, 2, 4, 16] {
                 let pa = PointArray::new(Model::Poincare, "x", x).unwrap();
-                let mut g = vec![0f64; 9];
+                let mut g = [0f64; 9];
                 let parts: Vec<&mut [f64]> = g.chunks_mut(chunk).collect();
                 let m = msg(pa
                     .read_rows(chunk, parts, |gc, r, row| {
