@@ -435,6 +435,57 @@ pub fn scalar_core(_: usize) -> Vec<usize> {
     Vec::new()
 }
 
+/// How a batched model function takes one operand (see [`take_row`]).
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub enum Take {
+    /// A point of the model, checked by the model's point reader; what the
+    /// reader returns (the gap of a ball point, `x0/R` on the hyperboloid)
+    /// goes to the kernel.
+    Point,
+    /// Any finite vector (a tangent, the vector a gyration acts on).
+    Vector,
+    /// A finite scalar.
+    Scalar,
+}
+
+/// The operands of a batched model function, named as in Python: a
+/// `Take::Scalar` becomes a scalar operand, the others point operands.
+pub fn model_operands<'a, const N: usize>(args: [(&'static str, Data<'a>, Take); N]) -> ([Operand<'a>; N], [Take; N]) {
+    let takes = args.each_ref().map(|a| a.2);
+    let ops = args.map(|(name, data, take)| match take {
+        Take::Scalar => Operand::scalar(name, data),
+        Take::Point | Take::Vector => Operand::point(name, data),
+    });
+    (ops, takes)
+}
+
+/// Checks the operands of one row in order, as `takes` says: points by the
+/// model's reader `read` (its value in the result; 1 for the other
+/// operands), vectors and scalars finite. The first bad operand is the
+/// row's fault.
+#[inline(always)]
+pub fn take_row<const N: usize>(
+    r: &[&[f64]],
+    takes: &[Take; N],
+    read: impl Fn(&[f64]) -> std::result::Result<f64, Fault>,
+) -> std::result::Result<[f64; N], RowFault> {
+    let mut v = [1.0; N];
+    for i in 0..N {
+        match takes[i] {
+            Take::Point => v[i] = read(r[i]).map_err(|f| RowFault::new(i, f))?,
+            Take::Vector => {
+                if !r[i].iter().all(|x| x.is_finite()) {
+                    return Err(RowFault::new(i, Fault::NonFinite));
+                }
+            }
+            Take::Scalar => {
+                finite_scalar(i, r[i][0])?;
+            }
+        }
+    }
+    Ok(v)
+}
+
 /// A kernel error for a scalar operand that must be finite.
 #[inline]
 pub fn finite_scalar(arg: usize, v: f64) -> std::result::Result<f64, RowFault> {

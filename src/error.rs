@@ -90,11 +90,6 @@ pub fn ball_range_text(model: &str, f32: bool) -> String {
 }
 
 impl Fault {
-    /// The fault in words, with `|x|` in the formulas (see [`Fault::describe_as`]).
-    pub fn describe(&self) -> String {
-        self.describe_as("x")
-    }
-
     /// The fault in words; `name` is the argument the formulas speak of
     /// (`|y|/R - 1` for a bad `y`).
     pub fn describe_as(&self, name: &str) -> String {

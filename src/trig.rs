@@ -65,8 +65,9 @@ use crate::batch::{map_rows, scalar_core, Data, Operand, Output};
 use crate::error::{Fault, Result, RowFault};
 use crate::models::ball::{checked_gap, Curvature};
 use crate::models::{halfspace, hyperboloid, Model};
+use crate::numeric::sqrt_dd;
 use crate::numeric::{dot_dd, norm_scaled, pow2, sumsq_dd, two_prod, two_sum, unit_exponent, with_scratch, DD};
-use crate::pairwise::{distance_from_h, div_dd, pair_h, pair_scale, read_pair_point, seq_dist_sq, sqrt_dd, PairSpace};
+use crate::pairwise::{distance_from_h, pair_h, pair_scale, read_pair_point, seq_dist_sq, PairSpace};
 
 /// The gyrovector space of a ball model.
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
@@ -227,13 +228,7 @@ fn read_vertex(
             Ok(DD::from(1.0))
         }
         Model::Klein => {
-            let s = sqrt_dd(checked_gap(k, x)?);
-            let w = DD::from(1.0).add(s);
-            for ((h, l), &v) in hi.iter_mut().zip(lo.iter_mut()).zip(x) {
-                let q = div_dd(v, w);
-                *h = q.hi;
-                *l = q.lo;
-            }
+            let (s, w) = crate::models::klein::poincare_image_dd(x, checked_gap(k, x)?, hi, lo);
             Ok(div(s.mul_f64(2.0), w))
         }
         Model::Hyperboloid => {

@@ -32,13 +32,7 @@ pub fn to_hub(src: Model, k: &Curvature, x: &[f64], p: &mut [f64]) -> std::resul
             Ok(g)
         }
         Model::Klein => Ok(klein::to_poincare(x, checked_gap(k, x)?.value(), p)),
-        Model::Hyperboloid => {
-            let c = hyperboloid::read_point(k, x)?;
-            for (o, &v) in p.iter_mut().zip(&x[1..]) {
-                *o = v / (1.0 + c);
-            }
-            Ok(2.0 / (1.0 + c))
-        }
+        Model::Hyperboloid => Ok(hyperboloid::to_poincare(&x[1..], hyperboloid::read_point(k, x)?, p)),
         Model::HalfSpace => {
             halfspace::read_point(x)?;
             let n = x.len() - 1;
@@ -64,12 +58,7 @@ pub fn from_hub(dst: Model, k: &Curvature, p: &[f64], g: f64, out: &mut [f64]) -
             return g;
         }
         Model::Klein => return klein::from_poincare(p, g, out),
-        Model::Hyperboloid => {
-            out[0] = k.radius * (2.0 - g) / g;
-            for (o, &v) in out[1..].iter_mut().zip(p) {
-                *o = 2.0 * v / g;
-            }
-        }
+        Model::Hyperboloid => hyperboloid::from_poincare(k, p, g, out),
         Model::HalfSpace => {
             let n = p.len() - 1;
             let pd = k.sqrt_kappa * p[n];

@@ -13,10 +13,11 @@
 //! float64 cannot hold from one that only its last rounding put on the
 //! sphere. The work figures passed to `map_rows` only size parallel chunks.
 
-use crate::batch::{finite_scalar, map_rows, point_core, wants_f32, Core, Data, Operand, Output};
+use crate::batch::{map_rows, model_operands, point_core, take_row, wants_f32, Core, Data, Operand, Output, Take};
 use crate::error::Result;
-use crate::models::ball::{finite_row, point_gap, Curvature, Rim};
+use crate::models::ball::{checked_gap, Curvature, Rim};
 use crate::numeric::with_scratch;
+use Take::{Point, Scalar, Vector};
 
 /// The per-point kernels of a gyrovector ball model. Every `g` argument is
 /// the gap `1 - kappa |x|^2` of the point before it.
@@ -43,6 +44,53 @@ pub trait GyroBall: Copy + Send + Sync + 'static {
     fn geodesic_g(c: &Curvature, x: &[f64], gx: f64, y: &[f64], gy: f64, t: f64, out: &mut [f64]) -> f64;
 }
 
+/// Implements [`GyroBall`] for the zero-sized type `$ty` by the free
+/// per-point kernels (`add_g`, `scale_g`, ...) of the module it is invoked
+/// in: each model writes its kernels once, as functions of its module (the
+/// other models and the statistics call them directly), and names its type
+/// here (`gyro_ball!(Mobius, "Poincaré")`).
+macro_rules! gyro_ball {
+    ($ty:ident, $name:literal) => {
+        impl $crate::models::gyro::GyroBall for $ty {
+            const NAME: &'static str = $name;
+
+            #[inline(always)]
+            fn add_g(c: &Curvature, x: &[f64], gx: f64, y: &[f64], gy: f64, sy: f64, out: &mut [f64]) -> f64 {
+                add_g(c, x, gx, y, gy, sy, out)
+            }
+            #[inline(always)]
+            fn scale_g(c: &Curvature, r: f64, x: &[f64], gx: f64, out: &mut [f64]) -> f64 {
+                scale_g(c, r, x, gx, out)
+            }
+            #[inline(always)]
+            fn gyration_g(c: &Curvature, u: &[f64], gu: f64, v: &[f64], gv: f64, w: &[f64], out: &mut [f64]) {
+                gyration_g(c, u, gu, v, gv, w, out)
+            }
+            #[inline(always)]
+            fn midpoint_g(c: &Curvature, a: &[f64], ga: f64, b: &[f64], gb: f64, out: &mut [f64]) -> f64 {
+                midpoint_g(c, a, ga, b, gb, out)
+            }
+            #[inline(always)]
+            fn exp_map_g(c: &Curvature, x: &[f64], gx: f64, v: &[f64], out: &mut [f64]) -> f64 {
+                exp_map_g(c, x, gx, v, out)
+            }
+            #[inline(always)]
+            fn log_map_g(c: &Curvature, x: &[f64], gx: f64, y: &[f64], gy: f64, out: &mut [f64]) {
+                log_map_g(c, x, gx, y, gy, out)
+            }
+            #[inline(always)]
+            fn transport_g(c: &Curvature, x: &[f64], gx: f64, y: &[f64], gy: f64, v: &[f64], out: &mut [f64]) {
+                transport_g(c, x, gx, y, gy, v, out)
+            }
+            #[inline(always)]
+            fn geodesic_g(c: &Curvature, x: &[f64], gx: f64, y: &[f64], gy: f64, t: f64, out: &mut [f64]) -> f64 {
+                geodesic_g(c, x, gx, y, gy, t, out)
+            }
+        }
+    };
+}
+pub(crate) use gyro_ball;
+
 /// The operand a result beyond the rim is blamed on: the point (or scalar)
 /// operand with the most rows of its own (the first among equals), so that
 /// the message names the row of the result whenever one operand spans the
@@ -64,181 +112,179 @@ pub(crate) fn blame(ops: &[Operand]) -> usize {
     best
 }
 
-fn add_like<'a, M: GyroBall>(c: Curvature, x: Data<'a>, y: Data<'a>, sy: f64, rim: &Rim) -> Result<Output> {
-    let ops = [Operand::point("x", x), Operand::point("y", y)];
+/// The batched form of a ball-model kernel, written once: the operands are
+/// named as in Python and taken as `args` says, checked in order on every
+/// row ([`take_row`]: the first bad one is the row's fault); `kernel(rows,
+/// gaps, out)` gets the gaps of the point operands (1 for the others) and,
+/// for a point result, returns its exact gap, which goes through the rim
+/// rule (`rim`; `None` for results that are not points, whose return value
+/// is unused).
+#[inline(always)]
+pub(crate) fn ball_rows<'a, M: GyroBall, const N: usize>(
+    c: Curvature,
+    args: [(&'static str, Data<'a>, Take); N],
+    work: usize,
+    rim: Option<&Rim>,
+    kernel: impl Fn(&[&[f64]], &[f64; N], &mut [f64]) -> f64 + Sync,
+) -> Result<Output> {
+    let (ops, takes) = model_operands(args);
     let (f32_out, arg) = (wants_f32(&ops), blame(&ops));
     map_rows(
         &ops,
         &point_core,
-        16,
+        work,
         #[inline(always)]
         |r, out| {
-            let gx = point_gap(&c, r[0], 0)?;
-            let gy = point_gap(&c, r[1], 1)?;
-            let g = M::add_g(&c, r[0], gx, r[1], gy, sy, out);
-            rim.apply(&c, out, g, f32_out, M::NAME, arg)
+            let g = take_row(
+                r,
+                &takes,
+                #[inline(always)]
+                |x| checked_gap(&c, x).map(|g| g.value()),
+            )?;
+            let gout = kernel(r, &g, out);
+            match rim {
+                Some(rim) => rim.apply(&c, out, gout, f32_out, M::NAME, arg),
+                None => Ok(()),
+            }
         },
     )
 }
 
 /// Batched `x ⊕ y` over broadcast leading axes.
 pub fn add_arrays<'a, M: GyroBall>(c: Curvature, x: Data<'a>, y: Data<'a>, rim: &Rim) -> Result<Output> {
-    add_like::<M>(c, x, y, 1.0, rim)
+    ball_rows::<M, 2>(
+        c,
+        [("x", x, Point), ("y", y, Point)],
+        16,
+        Some(rim),
+        #[inline(always)]
+        |r, g, out| M::add_g(&c, r[0], g[0], r[1], g[1], 1.0, out),
+    )
 }
 
 /// Batched `x ⊖ y`.
 pub fn sub_arrays<'a, M: GyroBall>(c: Curvature, x: Data<'a>, y: Data<'a>, rim: &Rim) -> Result<Output> {
-    add_like::<M>(c, x, y, -1.0, rim)
+    ball_rows::<M, 2>(
+        c,
+        [("x", x, Point), ("y", y, Point)],
+        16,
+        Some(rim),
+        #[inline(always)]
+        |r, g, out| M::add_g(&c, r[0], g[0], r[1], g[1], -1.0, out),
+    )
 }
 
 /// Batched `r ⊗ x`; `r` broadcasts against the leading axes of `x`.
 pub fn scale_arrays<'a, M: GyroBall>(c: Curvature, r: Data<'a>, x: Data<'a>, rim: &Rim) -> Result<Output> {
-    let ops = [Operand::scalar("r", r), Operand::point("x", x)];
-    let (f32_out, arg) = (wants_f32(&ops), blame(&ops));
-    map_rows(
-        &ops,
-        &point_core,
+    ball_rows::<M, 2>(
+        c,
+        [("r", r, Scalar), ("x", x, Point)],
         12,
+        Some(rim),
         #[inline(always)]
-        |rows, out| {
-            let r = finite_scalar(0, rows[0][0])?;
-            let gx = point_gap(&c, rows[1], 1)?;
-            let g = M::scale_g(&c, r, rows[1], gx, out);
-            rim.apply(&c, out, g, f32_out, M::NAME, arg)
-        },
+        |r, g, out| M::scale_g(&c, r[0][0], r[1], g[1], out),
     )
 }
 
 /// Batched `gyr[a, b] v`; `v` is any finite vector (gyrations are linear).
 pub fn gyration_arrays<'a, M: GyroBall>(c: Curvature, a: Data<'a>, b: Data<'a>, v: Data<'a>) -> Result<Output> {
-    let ops = [Operand::point("a", a), Operand::point("b", b), Operand::point("v", v)];
-    map_rows(
-        &ops,
-        &point_core,
+    ball_rows::<M, 3>(
+        c,
+        [("a", a, Point), ("b", b, Point), ("v", v, Vector)],
         40,
+        None,
         #[inline(always)]
-        |r, out| {
-            let ga = point_gap(&c, r[0], 0)?;
-            let gb = point_gap(&c, r[1], 1)?;
-            finite_row(r[2], 2)?;
-            M::gyration_g(&c, r[0], ga, r[1], gb, r[2], out);
-            Ok(())
+        |r, g, out| {
+            M::gyration_g(&c, r[0], g[0], r[1], g[1], r[2], out);
+            1.0
         },
     )
 }
 
 /// Batched midpoint of `x` and `y`.
 pub fn midpoint_arrays<'a, M: GyroBall>(c: Curvature, x: Data<'a>, y: Data<'a>, rim: &Rim) -> Result<Output> {
-    let ops = [Operand::point("x", x), Operand::point("y", y)];
-    let (f32_out, arg) = (wants_f32(&ops), blame(&ops));
-    map_rows(
-        &ops,
-        &point_core,
+    ball_rows::<M, 2>(
+        c,
+        [("x", x, Point), ("y", y, Point)],
         30,
+        Some(rim),
         #[inline(always)]
-        |r, out| {
-            let gx = point_gap(&c, r[0], 0)?;
-            let gy = point_gap(&c, r[1], 1)?;
-            let g = M::midpoint_g(&c, r[0], gx, r[1], gy, out);
-            rim.apply(&c, out, g, f32_out, M::NAME, arg)
-        },
+        |r, g, out| M::midpoint_g(&c, r[0], g[0], r[1], g[1], out),
     )
 }
 
 /// Batched exponential map; `base = None` is the origin.
 pub fn exp_map_arrays<'a, M: GyroBall>(c: Curvature, v: Data<'a>, base: Option<Data<'a>>, rim: &Rim) -> Result<Output> {
     match base {
-        None => {
-            let ops = [Operand::point("v", v)];
-            let (f32_out, arg) = (wants_f32(&ops), blame(&ops));
-            map_rows(
-                &ops,
-                &point_core,
-                16,
-                #[inline(always)]
-                |r, out| {
-                    finite_row(r[0], 0)?;
-                    let g = with_scratch(
-                        r[0].len(),
-                        #[inline(always)]
-                        |z| M::exp_map_g(&c, z, 1.0, r[0], out),
-                    );
-                    rim.apply(&c, out, g, f32_out, M::NAME, arg)
-                },
-            )
-        }
-        Some(b) => {
-            let ops = [Operand::point("v", v), Operand::point("base", b)];
-            let (f32_out, arg) = (wants_f32(&ops), blame(&ops));
-            map_rows(
-                &ops,
-                &point_core,
-                24,
-                #[inline(always)]
-                |r, out| {
-                    finite_row(r[0], 0)?;
-                    let gb = point_gap(&c, r[1], 1)?;
-                    let g = M::exp_map_g(&c, r[1], gb, r[0], out);
-                    rim.apply(&c, out, g, f32_out, M::NAME, arg)
-                },
-            )
-        }
+        None => ball_rows::<M, 1>(
+            c,
+            [("v", v, Vector)],
+            16,
+            Some(rim),
+            #[inline(always)]
+            |r, _, out| {
+                with_scratch(
+                    r[0].len(),
+                    #[inline(always)]
+                    |z| M::exp_map_g(&c, z, 1.0, r[0], out),
+                )
+            },
+        ),
+        Some(b) => ball_rows::<M, 2>(
+            c,
+            [("v", v, Vector), ("base", b, Point)],
+            24,
+            Some(rim),
+            #[inline(always)]
+            |r, g, out| M::exp_map_g(&c, r[1], g[1], r[0], out),
+        ),
     }
 }
 
 /// Batched logarithmic map; `base = None` is the origin.
 pub fn log_map_arrays<'a, M: GyroBall>(c: Curvature, y: Data<'a>, base: Option<Data<'a>>) -> Result<Output> {
     match base {
-        None => {
-            let ops = [Operand::point("y", y)];
-            map_rows(
-                &ops,
-                &point_core,
-                16,
-                #[inline(always)]
-                |r, out| {
-                    let gy = point_gap(&c, r[0], 0)?;
-                    with_scratch(
-                        r[0].len(),
-                        #[inline(always)]
-                        |z| M::log_map_g(&c, z, 1.0, r[0], gy, out),
-                    );
-                    Ok(())
-                },
-            )
-        }
-        Some(b) => {
-            let ops = [Operand::point("y", y), Operand::point("base", b)];
-            map_rows(
-                &ops,
-                &point_core,
-                24,
-                #[inline(always)]
-                |r, out| {
-                    let gy = point_gap(&c, r[0], 0)?;
-                    let gb = point_gap(&c, r[1], 1)?;
-                    M::log_map_g(&c, r[1], gb, r[0], gy, out);
-                    Ok(())
-                },
-            )
-        }
+        None => ball_rows::<M, 1>(
+            c,
+            [("y", y, Point)],
+            16,
+            None,
+            #[inline(always)]
+            |r, g, out| {
+                with_scratch(
+                    r[0].len(),
+                    #[inline(always)]
+                    |z| M::log_map_g(&c, z, 1.0, r[0], g[0], out),
+                );
+                1.0
+            },
+        ),
+        Some(b) => ball_rows::<M, 2>(
+            c,
+            [("y", y, Point), ("base", b, Point)],
+            24,
+            None,
+            #[inline(always)]
+            |r, g, out| {
+                M::log_map_g(&c, r[1], g[1], r[0], g[0], out);
+                1.0
+            },
+        ),
     }
 }
 
 /// Batched parallel transport of `v` from `start` to `end`.
 pub fn transport_arrays<'a, M: GyroBall>(c: Curvature, v: Data<'a>, start: Data<'a>, end: Data<'a>) -> Result<Output> {
-    let ops = [Operand::point("v", v), Operand::point("start", start), Operand::point("end", end)];
-    map_rows(
-        &ops,
-        &point_core,
+    let args = [("v", v, Vector), ("start", start, Point), ("end", end, Point)];
+    ball_rows::<M, 3>(
+        c,
+        args,
         60,
+        None,
         #[inline(always)]
-        |r, out| {
-            finite_row(r[0], 0)?;
-            let gs = point_gap(&c, r[1], 1)?;
-            let ge = point_gap(&c, r[2], 2)?;
-            M::transport_g(&c, r[1], gs, r[2], ge, r[0], out);
-            Ok(())
+        |r, g, out| {
+            M::transport_g(&c, r[1], g[1], r[2], g[2], r[0], out);
+            1.0
         },
     )
 }
@@ -251,23 +297,19 @@ pub fn geodesic_arrays<'a, M: GyroBall>(
     t: Data<'a>,
     rim: &Rim,
 ) -> Result<Output> {
-    let ops = [Operand::point("x", x), Operand::point("y", y), Operand::scalar("t", t)];
-    let (f32_out, arg) = (wants_f32(&ops), blame(&ops));
-    map_rows(
-        &ops,
-        &point_core,
+    ball_rows::<M, 3>(
+        c,
+        [("x", x, Point), ("y", y, Point), ("t", t, Scalar)],
         30,
+        Some(rim),
         #[inline(always)]
-        |r, out| {
-            let gx = point_gap(&c, r[0], 0)?;
-            let gy = point_gap(&c, r[1], 1)?;
-            let t = finite_scalar(2, r[2][0])?;
-            let g = if t.abs() <= GYROLINE_BEYOND {
-                M::geodesic_g(&c, r[0], gx, r[1], gy, t, out)
+        |r, g, out| {
+            let t = r[2][0];
+            if t.abs() <= GYROLINE_BEYOND {
+                M::geodesic_g(&c, r[0], g[0], r[1], g[1], t, out)
             } else {
-                gyroline_g::<M>(&c, r[0], gx, r[1], gy, t, out)
-            };
-            rim.apply(&c, out, g, f32_out, M::NAME, arg)
+                gyroline_g::<M>(&c, r[0], g[0], r[1], g[1], t, out)
+            }
         },
     )
 }

@@ -9,14 +9,15 @@
 //! origin nor large distances lose digits:
 //! `cosh(d/R) - 1 = (cosh(r_x - r_y) - 1) + kappa (|x_s||y_s| - x_s.y_s)`.
 
-use crate::batch::{finite_scalar, map_rows, point_core, scalar_core, Data, Operand, Output};
+use crate::batch::{map_rows, model_operands, point_core, scalar_core, take_row, Core, Data, Operand, Output, Take};
 use crate::error::{Fault, Result, RowFault};
 use crate::models::ball::{finite_row, Curvature};
 use crate::models::klein::chord_ends;
 use crate::numeric::{
-    diff_of_squares, dot2, dot_dd, geodesic_weights, perp_scaled, pow2, sumsq, two_prod, unit_exponent, wedge_dot,
-    wedge_sq, with_scratch, DD,
+    diff_of_squares, div_dd, dot2, dot_dd, geodesic_weights, perp_scaled, pow2, sqrt_dd, sumsq, sumsq_dd, two_prod,
+    unit_exponent, wedge_dot, wedge_sq, with_scratch, DD,
 };
+use Take::{Point, Scalar, Vector};
 
 /// Relative tolerance on x0 when reading a point (loose enough for float32
 /// embeddings, whose x0 is off by ~1e-7 after rounding).
@@ -49,6 +50,46 @@ pub fn read_point(k: &Curvature, x: &[f64]) -> std::result::Result<f64, Fault> {
         return Err(Fault::OffHyperboloid(defect));
     }
     Ok(cx)
+}
+
+// ------------------------------------------------- maps to and from the hub
+
+/// The Poincaré point of a hyperboloid point (spatial part `xs`, `c = x0/R`
+/// as [`read_point`] returns it), `p = x_s/(1 + c)`, and its exact gap
+/// `2/(1 + c)`.
+#[inline(always)]
+pub fn to_poincare(xs: &[f64], c: f64, p: &mut [f64]) -> f64 {
+    for (o, &v) in p.iter_mut().zip(xs) {
+        *o = v / (1.0 + c);
+    }
+    2.0 / (1.0 + c)
+}
+
+/// [`to_poincare`] carried to double-double, with `c` recomputed in
+/// double-double from the exact spatial part: writes the image's high parts
+/// to `hi` and low parts to `lo`, and returns the factor `1/g = (1 + c)/2`
+/// of the image (the pair space of `pairwise`).
+#[inline(always)]
+pub fn to_poincare_dd(k: &Curvature, xs: &[f64], hi: &mut [f64], lo: &mut [f64]) -> f64 {
+    let c = sqrt_dd(DD::from(1.0).add(sumsq_dd(xs).mul_f64(k.kappa)));
+    let den = DD::from(1.0).add(c);
+    for ((h, l), &v) in hi.iter_mut().zip(lo.iter_mut()).zip(xs) {
+        let q = div_dd(v, den);
+        *h = q.hi;
+        *l = q.lo;
+    }
+    0.5 * den.value()
+}
+
+/// The hyperboloid point of a Poincaré point `p` of gap `g`:
+/// `x0 = R (2 - g)/g` (R times the Lorentz factor of the Klein image),
+/// `x_s = 2p/g`.
+#[inline(always)]
+pub fn from_poincare(k: &Curvature, p: &[f64], g: f64, out: &mut [f64]) {
+    out[0] = k.radius * (2.0 - g) / g;
+    for (o, &v) in out[1..].iter_mut().zip(p) {
+        *o = 2.0 * v / g;
+    }
 }
 
 /// `cosh(d/R) - 1` halved, from spatial parts and their `c = x0/R`.
@@ -287,15 +328,9 @@ pub fn inner(u: &[f64], v: &[f64]) -> f64 {
 
 // ---------------------------------------------------------------- batched
 
-/// [`read_point`] for operand number `arg` of a row kernel.
-#[inline(always)]
-fn read_row(k: &Curvature, x: &[f64], arg: usize) -> std::result::Result<f64, RowFault> {
-    read_point(k, x).map_err(|f| RowFault::new(arg, f))
-}
-
-/// Checks that hyperboloid operands have `d + 1 >= 2` coordinates.
+/// Checks that hyperboloid point operands have `d + 1 >= 2` coordinates.
 pub(crate) fn check_dim(ops: &[Operand]) -> Result<()> {
-    for o in ops {
+    for o in ops.iter().filter(|o| o.core == Core::Point) {
         if let Some(&n) = o.data.shape().last() {
             if n < 2 {
                 return crate::error::value_err(format!(
@@ -324,90 +359,116 @@ fn point_out(out: &[f64], arg: usize) -> std::result::Result<(), RowFault> {
     finite_out(out, arg)
 }
 
-/// Batched exponential map; `base = None` is the origin `(R, 0, ..., 0)`.
-pub fn exp_map_arrays<'a>(k: Curvature, v: Data<'a>, base: Option<Data<'a>>) -> Result<Output> {
-    let has_base = base.is_some();
-    let mut ops = vec![Operand::point("v", v)];
-    if let Some(b) = base {
-        ops.push(Operand::point("base", b));
-    }
+/// The batched form of a hyperboloid kernel, written once: operands named
+/// as in Python and taken as `args` says, checked in order on every row
+/// ([`take_row`], points by [`read_point`]); `kernel(rows, cs, out)` gets
+/// `c = x0/R` of the point operands (1 for the others), writes the result
+/// and checks it.
+#[inline(always)]
+fn hyper_rows<'a, const N: usize>(
+    k: Curvature,
+    args: [(&'static str, Data<'a>, Take); N],
+    work: usize,
+    kernel: impl Fn(&[&[f64]], &[f64; N], &mut [f64]) -> std::result::Result<(), RowFault> + Sync,
+) -> Result<Output> {
+    let (ops, takes) = model_operands(args);
     check_dim(&ops)?;
     map_rows(
         &ops,
         &point_core,
-        30,
+        work,
         #[inline(always)]
         |r, out| {
-            finite_row(r[0], 0)?;
-            let n = r[0].len() - 1;
-            with_scratch(
-                2 * n,
+            let c = take_row(
+                r,
+                &takes,
                 #[inline(always)]
-                |buf| {
-                    let (zero, ys) = buf.split_at_mut(n);
-                    let (xs, cx) = if has_base {
-                        let cx = read_row(&k, r[1], 1)?;
-                        (&r[1][1..], cx)
-                    } else {
-                        (&zero[..], 1.0)
-                    };
-                    exp_spatial(&k, xs, cx, &r[0][1..], ys);
-                    write_point(&k, ys, out);
-                    point_out(out, 0)
-                },
-            )
+                |x| read_point(&k, x),
+            )?;
+            kernel(r, &c, out)
         },
     )
+}
+
+/// `exp_x(v)` as a checked point, from spatial parts.
+#[inline(always)]
+fn exp_point(k: &Curvature, xs: &[f64], cx: f64, vs: &[f64], out: &mut [f64]) -> std::result::Result<(), RowFault> {
+    with_scratch(
+        vs.len(),
+        #[inline(always)]
+        |ys| {
+            exp_spatial(k, xs, cx, vs, ys);
+            write_point(k, ys, out);
+        },
+    );
+    point_out(out, 0)
+}
+
+/// Batched exponential map; `base = None` is the origin `(R, 0, ..., 0)`.
+pub fn exp_map_arrays<'a>(k: Curvature, v: Data<'a>, base: Option<Data<'a>>) -> Result<Output> {
+    match base {
+        None => hyper_rows(
+            k,
+            [("v", v, Vector)],
+            30,
+            #[inline(always)]
+            |r, _, out| {
+                with_scratch(
+                    r[0].len() - 1,
+                    #[inline(always)]
+                    |zero| exp_point(&k, zero, 1.0, &r[0][1..], out),
+                )
+            },
+        ),
+        Some(b) => hyper_rows(
+            k,
+            [("v", v, Vector), ("base", b, Point)],
+            30,
+            #[inline(always)]
+            |r, c, out| exp_point(&k, &r[1][1..], c[1], &r[0][1..], out),
+        ),
+    }
 }
 
 /// Batched logarithmic map; `base = None` is the origin.
 pub fn log_map_arrays<'a>(k: Curvature, y: Data<'a>, base: Option<Data<'a>>) -> Result<Output> {
-    let has_base = base.is_some();
-    let mut ops = vec![Operand::point("y", y)];
-    if let Some(b) = base {
-        ops.push(Operand::point("base", b));
+    match base {
+        None => hyper_rows(
+            k,
+            [("y", y, Point)],
+            30,
+            #[inline(always)]
+            |r, c, out| {
+                with_scratch(
+                    r[0].len() - 1,
+                    #[inline(always)]
+                    |zero| log_full(&k, zero, 1.0, &r[0][1..], c[0], out),
+                );
+                finite_out(out, 0)
+            },
+        ),
+        Some(b) => hyper_rows(
+            k,
+            [("y", y, Point), ("base", b, Point)],
+            30,
+            #[inline(always)]
+            |r, c, out| {
+                log_full(&k, &r[1][1..], c[1], &r[0][1..], c[0], out);
+                finite_out(out, 0)
+            },
+        ),
     }
-    check_dim(&ops)?;
-    map_rows(
-        &ops,
-        &point_core,
-        30,
-        #[inline(always)]
-        |r, out| {
-            let cy = read_row(&k, r[0], 0)?;
-            let n = r[0].len() - 1;
-            with_scratch(
-                n,
-                #[inline(always)]
-                |zero| {
-                    let (xs, cx) = if has_base {
-                        let cx = read_row(&k, r[1], 1)?;
-                        (&r[1][1..], cx)
-                    } else {
-                        (&zero[..], 1.0)
-                    };
-                    log_full(&k, xs, cx, &r[0][1..], cy, out);
-                    finite_out(out, 0)
-                },
-            )
-        },
-    )
 }
 
 /// Batched parallel transport of tangent `v` from `start` to `end`.
 pub fn transport_arrays<'a>(k: Curvature, v: Data<'a>, start: Data<'a>, end: Data<'a>) -> Result<Output> {
-    let ops = [Operand::point("v", v), Operand::point("start", start), Operand::point("end", end)];
-    check_dim(&ops)?;
-    map_rows(
-        &ops,
-        &point_core,
+    hyper_rows(
+        k,
+        [("v", v, Vector), ("start", start, Point), ("end", end, Point)],
         40,
         #[inline(always)]
-        |r, out| {
-            finite_row(r[0], 0)?;
-            let cx = read_row(&k, r[1], 1)?;
-            let cy = read_row(&k, r[2], 2)?;
-            transport_full(&k, &r[1][1..], cx, &r[2][1..], cy, &r[0][1..], out);
+        |r, c, out| {
+            transport_full(&k, &r[1][1..], c[1], &r[2][1..], c[2], &r[0][1..], out);
             finite_out(out, 0)
         },
     )
@@ -415,23 +476,17 @@ pub fn transport_arrays<'a>(k: Curvature, v: Data<'a>, start: Data<'a>, end: Dat
 
 /// Batched geodesic interpolation; `t` broadcasts against the leading axes.
 pub fn geodesic_arrays<'a>(k: Curvature, x: Data<'a>, y: Data<'a>, t: Data<'a>) -> Result<Output> {
-    let ops = [Operand::point("x", x), Operand::point("y", y), Operand::scalar("t", t)];
-    check_dim(&ops[..2])?;
-    map_rows(
-        &ops,
-        &point_core,
+    hyper_rows(
+        k,
+        [("x", x, Point), ("y", y, Point), ("t", t, Scalar)],
         30,
         #[inline(always)]
-        |r, out| {
-            let cx = read_row(&k, r[0], 0)?;
-            let cy = read_row(&k, r[1], 1)?;
-            let t = finite_scalar(2, r[2][0])?;
-            let n = r[0].len() - 1;
+        |r, c, out| {
             with_scratch(
-                n,
+                r[0].len() - 1,
                 #[inline(always)]
                 |ys| {
-                    geodesic_spatial(&k, &r[0][1..], cx, &r[1][1..], cy, t, ys);
+                    geodesic_spatial(&k, &r[0][1..], c[0], &r[1][1..], c[1], r[2][0], ys);
                     write_point(&k, ys, out);
                 },
             );

@@ -9,11 +9,11 @@
 //! one formula in one place.
 
 use crate::models::ball::Curvature;
-use crate::models::gyro::GyroBall;
+use crate::models::gyro::gyro_ball;
 use crate::models::poincare;
 use crate::numeric::{
-    artanh_ratio, diff_of_squares, dist_sq, distance_from_half_delta, dot2, dot_with_sum, gap, geodesic_weights,
-    norm_scaled, perp_scaled, pow2, sumsq, unit_exponent, with_scratch,
+    artanh_ratio, diff_of_squares, dist_sq, distance_from_half_delta, div_dd, dot2, dot_with_sum, gap,
+    geodesic_weights, norm_scaled, perp_scaled, pow2, sqrt_dd, sumsq, unit_exponent, with_scratch, DD,
 };
 
 /// Einstein addition `u ⊕ (sv v)` (`sv = -1` gives `u ⊖ v`):
@@ -147,24 +147,74 @@ pub fn distance_g(c: &Curvature, k: &[f64], gk: f64, l: &[f64], gl: f64) -> f64 
     distance_from_half_delta(c.radius, half_delta)
 }
 
+// ------------------------------------------------- maps to and from the hub
+
+/// The map into the Poincaré ball as a radial scaling: `p = k/(1 + a)`
+/// (`a = sqrt(g_k)`), whose image has the exact gap `2a/(1 + a)`. Returns
+/// `(1 + a, 2a/(1 + a))`: the one place of the formula, for every form below.
+#[inline(always)]
+fn poincare_scaling(gk: f64) -> (f64, f64) {
+    let a = gk.sqrt();
+    (1.0 + a, 2.0 * a / (1.0 + a))
+}
+
 /// The Poincaré point of a Klein point, `p = k/(1 + a)`, and its exact gap
 /// `2a/(1 + a)` (`a = sqrt(g_k)`): the one map into the Poincaré ball (the
-/// conversions, the gyration and the log map use it).
+/// conversions, the gyration, the log map, the Einstein midpoint use it).
 #[inline(always)]
 pub fn to_poincare(k: &[f64], gk: f64, p: &mut [f64]) -> f64 {
-    let a = gk.sqrt();
+    let (den, g) = poincare_scaling(gk);
     for (o, &v) in p.iter_mut().zip(k) {
-        *o = v / (1.0 + a);
+        *o = v / den;
     }
-    poincare_gap(gk)
+    g
+}
+
+/// [`to_poincare`] of the point in `x`, written over it.
+#[inline(always)]
+pub fn to_poincare_in_place(x: &mut [f64], gk: f64) -> f64 {
+    let (den, g) = poincare_scaling(gk);
+    x.iter_mut().for_each(|v| *v /= den);
+    g
 }
 
 /// The gap `2a/(1 + a)` (`a = sqrt(g_k)`) of the Poincaré image of a Klein
 /// point of gap `gk`, alone.
 #[inline(always)]
 pub fn poincare_gap(gk: f64) -> f64 {
-    let a = gk.sqrt();
-    2.0 * a / (1.0 + a)
+    poincare_scaling(gk).1
+}
+
+/// [`to_poincare`] carried to double-double from the exact input and its
+/// double-double gap: writes the image's high parts to `hi` and low parts to
+/// `lo`, and returns the factor `1/g = (1 + a)/(2a)` of the image (the pair
+/// space of `pairwise`).
+#[inline(always)]
+pub fn to_poincare_dd(k: &[f64], gk: DD, hi: &mut [f64], lo: &mut [f64]) -> f64 {
+    let (a, den) = poincare_image_dd(k, gk, hi, lo);
+    den.value() / (2.0 * a.value())
+}
+
+/// The image of [`to_poincare_dd`] alone: writes it to `hi`, `lo` and
+/// returns `a = sqrt(g_k)` and `1 + a` in double-double (the image's gap is
+/// `2a/(1 + a)`).
+#[inline(always)]
+pub fn poincare_image_dd(k: &[f64], gk: DD, hi: &mut [f64], lo: &mut [f64]) -> (DD, DD) {
+    let a = sqrt_dd(gk);
+    let den = DD::from(1.0).add(a);
+    for ((h, l), &v) in hi.iter_mut().zip(lo.iter_mut()).zip(k) {
+        let q = div_dd(v, den);
+        *h = q.hi;
+        *l = q.lo;
+    }
+    (a, den)
+}
+
+/// The factor `2/(2 - g_p)` of the map out of the Poincaré ball (Ungar's
+/// `2 ⊗ p`); its differential scales directions across the radius by it too.
+#[inline(always)]
+fn klein_factor(gp: f64) -> f64 {
+    2.0 / (2.0 - gp)
 }
 
 /// The Klein point of a Poincaré point of gap `gp`, `k = 2p/(2 - g_p)`
@@ -172,7 +222,7 @@ pub fn poincare_gap(gk: f64) -> f64 {
 /// of the Poincaré ball.
 #[inline(always)]
 pub fn from_poincare(p: &[f64], gp: f64, k: &mut [f64]) -> f64 {
-    let f = 2.0 / (2.0 - gp);
+    let f = klein_factor(gp);
     for (o, &v) in k.iter_mut().zip(p) {
         *o = f * v;
     }
@@ -293,7 +343,7 @@ pub fn log_map_g(c: &Curvature, x: &[f64], gx: f64, y: &[f64], gy: f64, out: &mu
             let t = c.sqrt_kappa * norm_scaled(w);
             let f = -gp * artanh_ratio(t, gu); // log_p(q) = f (p ⊖ q)
             if p.iter().all(|&v| v == 0.0) {
-                let g2 = 2.0 / (2.0 - gp);
+                let g2 = klein_factor(gp);
                 for i in 0..n {
                     out[i] = g2 * f * w[i];
                 }
@@ -316,7 +366,7 @@ pub fn log_map_g(c: &Curvature, x: &[f64], gx: f64, y: &[f64], gy: f64, out: &mu
             }
             let pp = sumsq(xs);
             let sp = dot2(s, xs) / pp;
-            let g2 = 2.0 / (2.0 - gp);
+            let g2 = klein_factor(gp);
             let shrink = gp / (2.0 - gp);
             let fr = f * shrink / den;
             // (x - y) scaled by a power of two too (the part across is linear in it)
@@ -516,42 +566,7 @@ pub fn geodesic_g(c: &Curvature, x: &[f64], gx: f64, y: &[f64], gy: f64, t: f64,
 #[derive(Clone, Copy, Debug)]
 pub struct Einstein;
 
-impl GyroBall for Einstein {
-    const NAME: &'static str = "Klein";
-
-    #[inline(always)]
-    fn add_g(c: &Curvature, x: &[f64], gx: f64, y: &[f64], gy: f64, sy: f64, out: &mut [f64]) -> f64 {
-        add_g(c, x, gx, y, gy, sy, out)
-    }
-    #[inline(always)]
-    fn scale_g(c: &Curvature, r: f64, x: &[f64], gx: f64, out: &mut [f64]) -> f64 {
-        scale_g(c, r, x, gx, out)
-    }
-    #[inline(always)]
-    fn gyration_g(c: &Curvature, u: &[f64], gu: f64, v: &[f64], gv: f64, w: &[f64], out: &mut [f64]) {
-        gyration_g(c, u, gu, v, gv, w, out)
-    }
-    #[inline(always)]
-    fn midpoint_g(c: &Curvature, a: &[f64], ga: f64, b: &[f64], gb: f64, out: &mut [f64]) -> f64 {
-        midpoint_g(c, a, ga, b, gb, out)
-    }
-    #[inline(always)]
-    fn exp_map_g(c: &Curvature, x: &[f64], gx: f64, v: &[f64], out: &mut [f64]) -> f64 {
-        exp_map_g(c, x, gx, v, out)
-    }
-    #[inline(always)]
-    fn log_map_g(c: &Curvature, x: &[f64], gx: f64, y: &[f64], gy: f64, out: &mut [f64]) {
-        log_map_g(c, x, gx, y, gy, out)
-    }
-    #[inline(always)]
-    fn transport_g(c: &Curvature, x: &[f64], gx: f64, y: &[f64], gy: f64, v: &[f64], out: &mut [f64]) {
-        transport_g(c, x, gx, y, gy, v, out)
-    }
-    #[inline(always)]
-    fn geodesic_g(c: &Curvature, x: &[f64], gx: f64, y: &[f64], gy: f64, t: f64, out: &mut [f64]) -> f64 {
-        geodesic_g(c, x, gx, y, gy, t, out)
-    }
-}
+gyro_ball!(Einstein, "Klein");
 
 #[cfg(test)]
 mod tests {

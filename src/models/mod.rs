@@ -1,8 +1,9 @@
 //! The four models of hyperbolic space and what they share: the curvature,
 //! ball-point validation, the rim rule and projection (`ball`), the
 //! interface of the two gyrovector ball models with their batched forms
-//! written once (`gyro`), one module per model with its own kernels, and the
-//! conversions through the hub (`convert`).
+//! written once (`gyro`), one module per model with its own kernels and its
+//! maps to and from the hub, the conversions through the hub (`convert`), and
+//! the one reader of arrays of points (`points`).
 
 pub mod ball;
 pub mod convert;
@@ -11,6 +12,7 @@ pub mod halfspace;
 pub mod hyperboloid;
 pub mod klein;
 pub mod poincare;
+pub mod points;
 
 use crate::error::{Error, Result};
 

@@ -8,10 +8,10 @@
 //! operations and by the Klein model), a per-point convenience form, and a
 //! batched form over arrays.
 
-use crate::batch::{map_rows, map_rows_with, point_core, wants_f32, Data, Operand, Output};
+use crate::batch::{map_rows_with, wants_f32, Data, Operand, Output, Take};
 use crate::error::Result;
 use crate::models::ball::{point_gap, Curvature, Rim};
-use crate::models::gyro::{self, GyroBall};
+use crate::models::gyro::{self, gyro_ball, GyroBall};
 use crate::numeric::{
     artanh_from_gap, artanh_ratio, diff_of_squares, dist_sq, dot2, gap, geodesic_weights, norm_scaled, pow2,
     radial_scale_factor, scale_exponent, sech2, sumsq, with_scratch,
@@ -372,58 +372,18 @@ pub fn matvec_g(c: &Curvature, m: &[f64], x: &[f64], gx: f64, out: &mut [f64]) -
 #[derive(Clone, Copy, Debug)]
 pub struct Mobius;
 
-impl GyroBall for Mobius {
-    const NAME: &'static str = "Poincaré";
-
-    #[inline(always)]
-    fn add_g(c: &Curvature, x: &[f64], gx: f64, y: &[f64], gy: f64, sy: f64, out: &mut [f64]) -> f64 {
-        add_g(c, x, gx, y, gy, sy, out)
-    }
-    #[inline(always)]
-    fn scale_g(c: &Curvature, r: f64, x: &[f64], gx: f64, out: &mut [f64]) -> f64 {
-        scale_g(c, r, x, gx, out)
-    }
-    #[inline(always)]
-    fn gyration_g(c: &Curvature, u: &[f64], gu: f64, v: &[f64], gv: f64, w: &[f64], out: &mut [f64]) {
-        gyration_g(c, u, gu, v, gv, w, out)
-    }
-    #[inline(always)]
-    fn midpoint_g(c: &Curvature, a: &[f64], ga: f64, b: &[f64], gb: f64, out: &mut [f64]) -> f64 {
-        midpoint_g(c, a, ga, b, gb, out)
-    }
-    #[inline(always)]
-    fn exp_map_g(c: &Curvature, x: &[f64], gx: f64, v: &[f64], out: &mut [f64]) -> f64 {
-        exp_map_g(c, x, gx, v, out)
-    }
-    #[inline(always)]
-    fn log_map_g(c: &Curvature, x: &[f64], gx: f64, y: &[f64], gy: f64, out: &mut [f64]) {
-        log_map_g(c, x, gx, y, gy, out)
-    }
-    #[inline(always)]
-    fn transport_g(c: &Curvature, x: &[f64], gx: f64, y: &[f64], gy: f64, v: &[f64], out: &mut [f64]) {
-        transport_g(c, x, gx, y, gy, v, out)
-    }
-    #[inline(always)]
-    fn geodesic_g(c: &Curvature, x: &[f64], gx: f64, y: &[f64], gy: f64, t: f64, out: &mut [f64]) -> f64 {
-        geodesic_g(c, x, gx, y, gy, t, out)
-    }
-}
+gyro_ball!(Mobius, "Poincaré");
 
 /// Batched `x ⊞ y`.
 pub fn coadd_arrays<'a>(c: Curvature, x: Data<'a>, y: Data<'a>, rim: &Rim) -> Result<Output> {
-    let ops = [Operand::point("x", x), Operand::point("y", y)];
-    let (f32_out, arg) = (wants_f32(&ops), gyro::blame(&ops));
-    map_rows(
-        &ops,
-        &point_core,
+    let args = [("x", x, Take::Point), ("y", y, Take::Point)];
+    gyro::ball_rows::<Mobius, 2>(
+        c,
+        args,
         30,
+        Some(rim),
         #[inline(always)]
-        |r, out| {
-            let gx = point_gap(&c, r[0], 0)?;
-            let gy = point_gap(&c, r[1], 1)?;
-            let g = coadd_g(&c, r[0], gx, r[1], gy, out);
-            rim.apply(&c, out, g, f32_out, Mobius::NAME, arg)
-        },
+        |r, g, out| coadd_g(&c, r[0], g[0], r[1], g[1], out),
     )
 }
 

@@ -73,6 +73,30 @@ impl DD {
     }
 }
 
+/// `a / w` for a float64 `a` and a double-double `w`, to double-double
+/// accuracy (one Newton correction of the quotient).
+#[inline(always)]
+pub fn div_dd(a: f64, w: DD) -> DD {
+    let q1 = a / w.hi;
+    let (p, pe) = two_prod(q1, w.hi);
+    // a - q1 w, exact to the rounding of the small terms: a - p is exact
+    // (Sterbenz), pe and q1 w.lo are the error terms.
+    let r = ((a - p) - pe) - q1 * w.lo;
+    let q2 = r / w.hi;
+    let (h, l) = two_sum(q1, q2);
+    DD { hi: h, lo: l }
+}
+
+/// `sqrt(g)` for a double-double `g > 0`, to double-double accuracy.
+#[inline(always)]
+pub fn sqrt_dd(g: DD) -> DD {
+    let s = g.hi.sqrt();
+    let (p, pe) = two_prod(s, s);
+    let r = ((g.hi - p) - pe) + g.lo;
+    let (h, l) = two_sum(s, r / (2.0 * s));
+    DD { hi: h, lo: l }
+}
+
 /// Four independent double-double accumulators, so that the error-free
 /// sums run in parallel lanes (a single chain is latency-bound at ~12 cycles
 /// per term). The lanes are combined in a fixed order: results depend only
@@ -426,11 +450,18 @@ pub fn acosh1p2_fast(h: f64) -> f64 {
 }
 
 /// Runs `f` with a zeroed scratch buffer of length `n` (on the stack when
-/// small).
+/// `n <= 32`).
 #[inline(always)]
 pub fn with_scratch<R>(n: usize, f: impl FnOnce(&mut [f64]) -> R) -> R {
-    if n <= 32 {
-        let mut buf = [0f64; 32];
+    with_scratch_of::<32, R>(n, f)
+}
+
+/// [`with_scratch`] with room for `N` values on the stack (a larger `N` for
+/// callers whose buffers are larger, at the cost of zeroing it per call).
+#[inline(always)]
+pub fn with_scratch_of<const N: usize, R>(n: usize, f: impl FnOnce(&mut [f64]) -> R) -> R {
+    if n <= N {
+        let mut buf = [0f64; N];
         f(&mut buf[..n])
     } else {
         let mut buf = vec![0f64; n];

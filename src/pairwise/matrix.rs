@@ -180,6 +180,64 @@ fn for_each_h_in<const REFINE: bool>(
     }
 }
 
+/// [`for_each_h`] inside the best SIMD copy of the loop the CPU has (`fast`
+/// from `simd::has_fma`): the one entry of every driver below.
+#[inline(always)]
+fn strip_h(
+    fast: bool,
+    x: &Prepared,
+    y: &Prepared,
+    pk: &Packed,
+    rows: std::ops::Range<usize>,
+    f: impl FnMut(usize, usize, &[f64; LANES], usize),
+) {
+    simd::dispatch(
+        fast,
+        #[inline(always)]
+        || for_each_h(x, y, pk, rows, f),
+    )
+}
+
+/// All pairs of `x` and `y`, row strips of `x` in parallel, for work that
+/// keeps per-row state instead of storing distances: `init(r0..r1)` makes a
+/// strip's state, `visit(state, i, j0, hs, valid)` sees `h(i, j0 + l)` for
+/// the `valid` real columns of one panel (the tiled kernel, so `h` is
+/// bit-identical to every other path), and `finish(state)` turns it into the
+/// strip's result. Results come back in strip order; strips have a fixed
+/// size, so they do not depend on the thread count. Memory: the packed copy
+/// of `y` plus one state per running strip.
+fn sweep<S, T, I, V, F>(x: &Prepared, y: &Prepared, init: I, visit: V, finish: F) -> Vec<T>
+where
+    T: Send,
+    I: Fn(std::ops::Range<usize>) -> S + Sync,
+    V: Fn(&mut S, usize, usize, &[f64; LANES], usize) + Sync,
+    F: Fn(S) -> T + Sync,
+{
+    let n = x.n;
+    if n == 0 {
+        return Vec::new();
+    }
+    let packed = Packed::new(y);
+    let fast = simd::has_fma();
+    (0..n.div_ceil(STRIP))
+        .into_par_iter()
+        .map(|s| {
+            let (r0, r1) = (s * STRIP, ((s + 1) * STRIP).min(n));
+            let mut st = init(r0..r1);
+            strip_h(
+                fast,
+                x,
+                y,
+                &packed,
+                r0..r1,
+                #[inline(always)]
+                |i, j0, hs, valid| visit(&mut st, i, j0, hs, valid),
+            );
+            finish(st)
+        })
+        .collect()
+}
+
 fn check_pair(x: &Prepared, y: &Prepared, names: (&str, &str)) -> Result<()> {
     x.check_compatible(y, names)
 }
@@ -200,37 +258,32 @@ pub fn distance_matrix_into<T: Store>(x: &Prepared, y: &Prepared, out: &mut [T])
     out.par_chunks_mut(STRIP * m).enumerate().for_each(|(s, block)| {
         let r0 = s * STRIP;
         let r1 = (r0 + STRIP).min(n);
-        simd::dispatch(
+        strip_h(
             fast,
+            x,
+            y,
+            &packed,
+            r0..r1,
             #[inline(always)]
-            || {
-                for_each_h(
-                    x,
-                    y,
-                    &packed,
-                    r0..r1,
-                    #[inline(always)]
-                    |i, j0, hs, valid| {
-                        // All 8 lanes at once (padding lanes have h = 0), so the
-                        // transcendental vectorises; only valid lanes are stored.
-                        let mut dv = [0f64; LANES];
-                        for l in 0..LANES {
-                            dv[l] = distance_from_h(kc, hs[l]);
-                        }
-                        let at = (i - r0) * m + j0;
-                        if valid == LANES {
-                            // Fixed length: plain stores, not a memcpy call per tile row.
-                            let row: &mut [T; LANES] = (&mut block[at..at + LANES]).try_into().unwrap();
-                            for l in 0..LANES {
-                                row[l] = T::from_f64(dv[l]);
-                            }
-                        } else {
-                            for l in 0..valid {
-                                block[at + l] = T::from_f64(dv[l]);
-                            }
-                        }
-                    },
-                )
+            |i, j0, hs, valid| {
+                // All 8 lanes at once (padding lanes have h = 0), so the
+                // transcendental vectorises; only valid lanes are stored.
+                let mut dv = [0f64; LANES];
+                for l in 0..LANES {
+                    dv[l] = distance_from_h(kc, hs[l]);
+                }
+                let at = (i - r0) * m + j0;
+                if valid == LANES {
+                    // Fixed length: plain stores, not a memcpy call per tile row.
+                    let row: &mut [T; LANES] = (&mut block[at..at + LANES]).try_into().unwrap();
+                    for l in 0..LANES {
+                        row[l] = T::from_f64(dv[l]);
+                    }
+                } else {
+                    for l in 0..valid {
+                        block[at + l] = T::from_f64(dv[l]);
+                    }
+                }
             },
         )
     });
@@ -266,32 +319,27 @@ pub fn condensed_into<T: Store>(x: &Prepared, out: &mut [T]) -> Result<()> {
     pieces.into_par_iter().for_each(|(r0, block)| {
         let r1 = (r0 + STRIP).min(n);
         let base = start(r0);
-        simd::dispatch(
+        strip_h(
             fast,
+            x,
+            x,
+            &packed,
+            r0..r1,
             #[inline(always)]
-            || {
-                for_each_h(
-                    x,
-                    x,
-                    &packed,
-                    r0..r1,
-                    #[inline(always)]
-                    |i, j0, hs, valid| {
-                        if j0 + valid <= i + 1 {
-                            return;
-                        }
-                        let mut dv = [0f64; LANES];
-                        for l in 0..LANES {
-                            dv[l] = distance_from_h(kc, hs[l]);
-                        }
-                        for l in 0..valid {
-                            let j = j0 + l;
-                            if j > i {
-                                block[start(i) + (j - i - 1) - base] = T::from_f64(dv[l]);
-                            }
-                        }
-                    },
-                )
+            |i, j0, hs, valid| {
+                if j0 + valid <= i + 1 {
+                    return;
+                }
+                let mut dv = [0f64; LANES];
+                for l in 0..LANES {
+                    dv[l] = distance_from_h(kc, hs[l]);
+                }
+                for l in 0..valid {
+                    let j = j0 + l;
+                    if j > i {
+                        block[start(i) + (j - i - 1) - base] = T::from_f64(dv[l]);
+                    }
+                }
             },
         )
     });
@@ -374,52 +422,42 @@ pub fn knn(x: &Prepared, y: &Prepared, k: usize, exclude_self: bool) -> Result<(
     let n = x.n;
     let mut idx = vec![0i64; n * k];
     let mut dist = vec![0f64; n * k];
-    if n == 0 {
-        return Ok((idx, dist));
-    }
-    let packed = Packed::new(y);
     let kc = &x.curvature;
-    let fast = simd::has_fma();
-    idx.par_chunks_mut(STRIP * k).zip(dist.par_chunks_mut(STRIP * k)).enumerate().for_each(|(s, (ib, db))| {
-        let r0 = s * STRIP;
-        let r1 = (r0 + STRIP).min(n);
-        let mut tops: Vec<TopK> = (r0..r1).map(|_| TopK::new(k)).collect();
-        simd::dispatch(
-            fast,
-            #[inline(always)]
-            || {
-                for_each_h(
-                    x,
-                    y,
-                    &packed,
-                    r0..r1,
-                    #[inline(always)]
-                    |i, j0, hs, valid| {
-                        let t = &mut tops[i - r0];
-                        let mut worst = t.worst();
-                        for (l, &h) in hs[..valid].iter().enumerate() {
-                            if h <= worst {
-                                let j = j0 + l;
-                                if exclude_self && j == i {
-                                    continue;
-                                }
-                                t.push(h, j);
-                                worst = t.worst();
-                            }
-                        }
-                    },
-                )
-            },
-        );
-        for (r, t) in tops.into_iter().enumerate() {
-            // Settle by (distance, index) over the k and their near-ties.
-            let mut dd: Vec<f64> = t.h.iter().map(|&h| distance_from_h(kc, h)).collect();
-            let mut jj: Vec<i64> = t.j.iter().map(|&j| j as i64).collect();
-            sort_pairs(&mut dd, &mut jj);
-            ib[r * k..(r + 1) * k].copy_from_slice(&jj[..k]);
-            db[r * k..(r + 1) * k].copy_from_slice(&dd[..k]);
-        }
-    });
+    let parts = sweep(
+        x,
+        y,
+        |rows| (rows.start, rows.map(|_| TopK::new(k)).collect::<Vec<_>>()),
+        #[inline(always)]
+        |(r0, tops), i, j0, hs, valid| {
+            let t = &mut tops[i - *r0];
+            let mut worst = t.worst();
+            for (l, &h) in hs[..valid].iter().enumerate() {
+                if h <= worst {
+                    let j = j0 + l;
+                    if exclude_self && j == i {
+                        continue;
+                    }
+                    t.push(h, j);
+                    worst = t.worst();
+                }
+            }
+        },
+        |(_, tops)| {
+            tops.into_iter()
+                .map(|t| {
+                    // Settle by (distance, index) over the k and their near-ties.
+                    let mut dd: Vec<f64> = t.h.iter().map(|&h| distance_from_h(kc, h)).collect();
+                    let mut jj: Vec<i64> = t.j.iter().map(|&j| j as i64).collect();
+                    sort_pairs(&mut dd, &mut jj);
+                    (jj, dd)
+                })
+                .collect::<Vec<_>>()
+        },
+    );
+    for (r, (jj, dd)) in parts.into_iter().flatten().enumerate() {
+        idx[r * k..(r + 1) * k].copy_from_slice(&jj[..k]);
+        dist[r * k..(r + 1) * k].copy_from_slice(&dd[..k]);
+    }
     Ok((idx, dist))
 }
 
@@ -443,50 +481,34 @@ pub fn radius_neighbors(
         let s = (r / (2.0 * kc.radius)).sinh();
         s * s * (1.0 + 1e-12) + f64::MIN_POSITIVE
     };
-    let packed = Packed::new(y);
-    let fast = simd::has_fma();
-    let nstrips = n.div_ceil(STRIP);
-    let parts: Vec<Vec<(Vec<i64>, Vec<f64>)>> = (0..nstrips)
-        .into_par_iter()
-        .map(|s| {
-            let r0 = s * STRIP;
-            let r1 = (r0 + STRIP).min(n);
-            let mut rows: Vec<(Vec<i64>, Vec<f64>)> = (r0..r1).map(|_| (Vec::new(), Vec::new())).collect();
-            simd::dispatch(
-                fast,
-                #[inline(always)]
-                || {
-                    for_each_h(
-                        x,
-                        y,
-                        &packed,
-                        r0..r1,
-                        #[inline(always)]
-                        |i, j0, hs, valid| {
-                            for (l, &h) in hs[..valid].iter().enumerate() {
-                                if h <= hr {
-                                    let j = j0 + l;
-                                    if exclude_self && j == i {
-                                        continue;
-                                    }
-                                    let d = distance_from_h(kc, h);
-                                    if d <= r {
-                                        let row = &mut rows[i - r0];
-                                        row.0.push(j as i64);
-                                        row.1.push(d);
-                                    }
-                                }
-                            }
-                        },
-                    )
-                },
-            );
+    let parts = sweep(
+        x,
+        y,
+        |rows| (rows.start, rows.map(|_| (Vec::new(), Vec::new())).collect::<Vec<(Vec<i64>, Vec<f64>)>>()),
+        #[inline(always)]
+        |(r0, rows), i, j0, hs, valid| {
+            for (l, &h) in hs[..valid].iter().enumerate() {
+                if h <= hr {
+                    let j = j0 + l;
+                    if exclude_self && j == i {
+                        continue;
+                    }
+                    let d = distance_from_h(kc, h);
+                    if d <= r {
+                        let row = &mut rows[i - *r0];
+                        row.0.push(j as i64);
+                        row.1.push(d);
+                    }
+                }
+            }
+        },
+        |(_, mut rows)| {
             for row in rows.iter_mut() {
                 sort_pairs(&mut row.1, &mut row.0);
             }
             rows
-        })
-        .collect();
+        },
+    );
     let mut indptr = Vec::with_capacity(n + 1);
     indptr.push(0i64);
     let total: usize = parts.iter().flatten().map(|r| r.0.len()).sum();
@@ -500,15 +522,8 @@ pub fn radius_neighbors(
     Ok((indptr, indices, dists))
 }
 
-/// All pairs of `x` with itself, row strips in parallel, for reductions that
-/// keep per-row state instead of storing distances (graph reconstruction
-/// ranks): `init(r0..r1)` makes a strip's state, `visit(state, i, j0, hs,
-/// valid)` sees `h(i, j0 + l)` for the `valid` real columns of one panel
-/// (the tiled kernel of [`distance_matrix_into`], so `h` is bit-identical to
-/// every other path; `j = i` is included), and `finish(state)` turns it into
-/// the strip's result. Results come back in strip order; strips have a fixed
-/// size, so they do not depend on the thread count. Memory: the packed copy
-/// of `x` plus one state per running strip.
+/// [`sweep`] over all pairs of `x` with itself (`j = i` included), for
+/// reductions that keep per-row state (graph reconstruction ranks).
 pub fn sweep_self<S, T, I, V, F>(x: &Prepared, init: I, visit: V, finish: F) -> Vec<T>
 where
     T: Send,
@@ -516,34 +531,7 @@ where
     V: Fn(&mut S, usize, usize, &[f64; LANES], usize) + Sync,
     F: Fn(S) -> T + Sync,
 {
-    let n = x.n;
-    if n == 0 {
-        return Vec::new();
-    }
-    let packed = Packed::new(x);
-    let fast = simd::has_fma();
-    (0..n.div_ceil(STRIP))
-        .into_par_iter()
-        .map(|s| {
-            let (r0, r1) = (s * STRIP, ((s + 1) * STRIP).min(n));
-            let mut st = init(r0..r1);
-            simd::dispatch(
-                fast,
-                #[inline(always)]
-                || {
-                    for_each_h(
-                        x,
-                        x,
-                        &packed,
-                        r0..r1,
-                        #[inline(always)]
-                        |i, j0, hs, valid| visit(&mut st, i, j0, hs, valid),
-                    )
-                },
-            );
-            finish(st)
-        })
-        .collect()
+    sweep(x, x, init, visit, finish)
 }
 
 /// Lanes per panel of the tiled kernel (the length of the `hs` arrays that

@@ -31,14 +31,12 @@
 pub mod matrix;
 pub mod vptree;
 
-use ndarray::Array2;
-use rayon::prelude::*;
-
 use crate::batch::{map_rows, scalar_core, Data, Operand, Output};
 use crate::error::{Error, Fault, Result};
 use crate::models::ball::{checked_gap, Curvature};
-use crate::models::{halfspace, hyperboloid, Model};
-use crate::numeric::{acosh1p2_fast, sumsq_dd, two_prod, two_sum, DD};
+use crate::models::points::PointArray;
+use crate::models::{halfspace, hyperboloid, klein, Model};
+use crate::numeric::{acosh1p2_fast, with_scratch_of};
 
 /// Below this `kappa |p - q|^2` a pair of hub images is refined from the
 /// double-double images (see the module notes): the rounded images are
@@ -113,30 +111,6 @@ pub fn pair_scale(model: Model, k: &Curvature) -> f64 {
     }
 }
 
-/// `a / w` for a float64 `a` and a double-double `w`, to double-double
-/// accuracy (one Newton correction of the quotient).
-#[inline(always)]
-pub(crate) fn div_dd(a: f64, w: DD) -> DD {
-    let q1 = a / w.hi;
-    let (p, pe) = two_prod(q1, w.hi);
-    // a - q1 w, exact to the rounding of the small terms: a - p is exact
-    // (Sterbenz), pe and q1 w.lo are the error terms.
-    let r = ((a - p) - pe) - q1 * w.lo;
-    let q2 = r / w.hi;
-    let (h, l) = two_sum(q1, q2);
-    DD { hi: h, lo: l }
-}
-
-/// `sqrt(g)` for a double-double `g > 0`, to double-double accuracy.
-#[inline(always)]
-pub(crate) fn sqrt_dd(g: DD) -> DD {
-    let s = g.hi.sqrt();
-    let (p, pe) = two_prod(s, s);
-    let r = ((g.hi - p) - pe) + g.lo;
-    let (h, l) = two_sum(s, r / (2.0 * s));
-    DD { hi: h, lo: l }
-}
-
 /// Reads one point of `model` into its pair space: writes the pair-space
 /// coordinates to `hi` (length `w`) and the refinement data to `extra`
 /// (length `PairSpace::of(model).extra_width(w)`), and returns the factor `a`.
@@ -144,8 +118,9 @@ pub(crate) fn sqrt_dd(g: DD) -> DD {
 ///
 /// Hub images: `p = k/(1 + sqrt g_k)` (Klein), `p = x_s/(1 + c)` with
 /// `c = sqrt(1 + kappa |x_s|^2) = x0/R` (hyperboloid), each quotient in
-/// double-double from the exact inputs (the same maps as
-/// `models::convert::to_hub`, carried to twice the precision).
+/// double-double from the exact inputs: the maps of
+/// `models::convert::to_hub` carried to twice the precision, written beside
+/// them (`klein::to_poincare_dd`, `hyperboloid::to_poincare_dd`).
 #[inline(always)]
 pub fn read_pair_point(
     model: Model,
@@ -165,32 +140,14 @@ pub fn read_pair_point(
             hi.copy_from_slice(x);
             Ok(1.0 / x[x.len() - 1])
         }
-        Model::Klein => {
-            let s = sqrt_dd(checked_gap(k, x)?);
-            let w = DD::from(1.0).add(s);
-            for ((h, l), &v) in hi.iter_mut().zip(extra.iter_mut()).zip(x) {
-                let q = div_dd(v, w);
-                *h = q.hi;
-                *l = q.lo;
-            }
-            // 1/g of the image: g = 2 s/(1 + s).
-            Ok(w.value() / (2.0 * s.value()))
-        }
+        Model::Klein => Ok(klein::to_poincare_dd(x, checked_gap(k, x)?, hi, extra)),
         Model::Hyperboloid => {
             let cx = hyperboloid::read_point(k, x)?;
             let xs = &x[1..];
-            let w_ = xs.len();
-            let c = sqrt_dd(DD::from(1.0).add(sumsq_dd(xs).mul_f64(k.kappa)));
-            let w = DD::from(1.0).add(c);
-            let (lo, rest) = extra.split_at_mut(w_);
-            for ((h, l), &v) in hi.iter_mut().zip(lo.iter_mut()).zip(xs) {
-                let q = div_dd(v, w);
-                *h = q.hi;
-                *l = q.lo;
-            }
-            rest[..w_].copy_from_slice(xs);
-            rest[w_] = cx;
-            Ok(0.5 * w.value())
+            let (lo, far) = extra.split_at_mut(xs.len());
+            far[..xs.len()].copy_from_slice(xs);
+            far[xs.len()] = cx;
+            Ok(hyperboloid::to_poincare_dd(k, xs, hi, lo))
         }
     }
 }
@@ -260,7 +217,7 @@ pub fn point_distance(
     let w = x.len() - usize::from(model == Model::Hyperboloid);
     let space = PairSpace::of(model);
     let ew = space.extra_width(w);
-    with_pair_scratch(2 * (w + ew), |buf| {
+    with_scratch_of::<136, _>(2 * (w + ew), |buf| {
         let (bx, by) = buf.split_at_mut(w + ew);
         let (xh, xe) = bx.split_at_mut(w);
         let (yh, ye) = by.split_at_mut(w);
@@ -292,19 +249,6 @@ pub fn distance_arrays<'a>(model: Model, k: Curvature, x: Data<'a>, y: Data<'a>)
     )
 }
 
-/// Runs `f` with a zeroed scratch buffer of length `n` (on the stack when
-/// small).
-#[inline(always)]
-fn with_pair_scratch<R>(n: usize, f: impl FnOnce(&mut [f64]) -> R) -> R {
-    if n <= 136 {
-        let mut buf = [0f64; 136];
-        f(&mut buf[..n])
-    } else {
-        let mut buf = vec![0f64; n];
-        f(&mut buf)
-    }
-}
-
 /// Points of one model ready for pairwise work.
 #[derive(Clone, Debug)]
 pub struct Prepared {
@@ -331,73 +275,24 @@ impl Prepared {
     /// Validates and prepares `(n, d)` points (`(n, d + 1)` for the
     /// hyperboloid). `name` is the argument name used in messages.
     pub fn new(model: Model, curvature: Curvature, name: &str, x: &Data) -> Result<Prepared> {
-        let shape = x.shape().to_vec();
-        if shape.len() != 2 {
-            return Err(Error::Value(format!(
-                "{name} must be a 2-D array of points, shape (n, d); got shape {shape:?}"
-            )));
-        }
-        let (n, width) = (shape[0], shape[1]);
-        let min_w = if model == Model::Hyperboloid { 2 } else { 1 };
-        if width < min_w {
-            return Err(Error::Value(format!(
-                "{name} has {width} coordinates per point; {model:?} points need at least {min_w}"
-            )));
-        }
-        let w = if model == Model::Hyperboloid { width - 1 } else { width };
-        let space = PairSpace::of(model);
-        let ew = space.extra_width(w);
+        let pa = PointArray::new(model, name, x)?;
+        let (n, w) = (pa.n, pa.d);
+        let ew = PairSpace::of(model).extra_width(w);
         let mut coords = vec![0f64; n * w];
         let mut aux = vec![0f64; n];
         let mut extra = vec![0f64; n * ew];
-        let k = curvature;
-        let read = |i0: usize, c: &mut [f64], a: &mut [f64], e: &mut [f64]| -> Option<(usize, Fault)> {
-            let mut row = vec![0f64; width];
-            for (r, ai) in a.iter_mut().enumerate() {
-                let i = i0 + r;
-                match x {
-                    Data::F64(v) | Data::Weak(v) => {
-                        for (j, o) in row.iter_mut().enumerate() {
-                            *o = v[[i, j]];
-                        }
-                    }
-                    Data::F32(v) => {
-                        for (j, o) in row.iter_mut().enumerate() {
-                            *o = f64::from(v[[i, j]]);
-                        }
-                    }
-                }
-                match read_pair_point(model, &k, &row, &mut c[r * w..(r + 1) * w], &mut e[r * ew..(r + 1) * ew]) {
-                    Ok(v) => *ai = v,
-                    Err(f) => return Some((i, f)),
-                }
-            }
-            None
-        };
-        let fault = if n <= PREP_CHUNK {
-            read(0, &mut coords, &mut aux, &mut extra)
-        } else {
-            // Chunks zipped by hand: `extra` is empty for the models stored
-            // in their own coordinates, and a zip of parallel chunk
-            // iterators would stop at the shortest.
-            let mut ec = extra.chunks_mut((PREP_CHUNK * ew).max(1));
-            let parts: Vec<(&mut [f64], &mut [f64], &mut [f64])> = coords
-                .chunks_mut(PREP_CHUNK * w)
-                .zip(aux.chunks_mut(PREP_CHUNK))
-                .map(|(c, a)| (c, a, if ew == 0 { &mut [][..] } else { ec.next().expect("one extra chunk per chunk") }))
-                .collect();
-            parts.into_par_iter().enumerate().map(|(ci, (c, a, e))| read(ci * PREP_CHUNK, c, a, e)).reduce(
-                || None,
-                |p, q| match (p, q) {
-                    (Some(p), Some(q)) => Some(if p.0 <= q.0 { p } else { q }),
-                    (p, None) => p,
-                    (None, q) => q,
-                },
-            )
-        };
-        if let Some((i, f)) = fault {
-            return Err(crate::error::row_error(name, &shape, &[i], f, x.is_f32()));
-        }
+        // Chunks zipped by hand: `extra` is empty for the models stored in
+        // their own coordinates, and a zip would stop at the shortest.
+        let mut ec = extra.chunks_mut((PREP_CHUNK * ew).max(1));
+        let parts: Vec<(&mut [f64], &mut [f64], &mut [f64])> = coords
+            .chunks_mut(PREP_CHUNK * w)
+            .zip(aux.chunks_mut(PREP_CHUNK))
+            .map(|(c, a)| (c, a, if ew == 0 { &mut [][..] } else { ec.next().expect("one extra chunk per chunk") }))
+            .collect();
+        pa.read_rows(PREP_CHUNK, parts, |(c, a, e), r, row| {
+            a[r] = read_pair_point(model, &curvature, row, &mut c[r * w..(r + 1) * w], &mut e[r * ew..(r + 1) * ew])?;
+            Ok(())
+        })?;
         Ok(Prepared { model, curvature, n, w, coords, aux, extra })
     }
 
@@ -522,15 +417,5 @@ impl Prepared {
             )));
         }
         Ok(())
-    }
-
-    /// The pair-space coordinates as an array, for tests.
-    pub fn coords_array(&self) -> Array2<f64> {
-        Array2::from_shape_vec((self.n, self.w), self.coords.clone()).expect("shape")
-    }
-
-    /// Sum of squares of one pair-space row (used by tree heuristics).
-    pub fn norm_sq(&self, i: usize) -> f64 {
-        crate::numeric::sumsq(self.row(i))
     }
 }

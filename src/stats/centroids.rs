@@ -24,6 +24,7 @@ use crate::error::{Error, Result};
 use crate::models::ball::Curvature;
 use crate::models::convert::{from_hub, to_hub};
 use crate::models::poincare;
+use crate::models::points::PointArray;
 use crate::models::Model;
 use crate::numeric::{log1p_fast, sech2, sumsq};
 
@@ -41,89 +42,25 @@ pub struct UnitPoints<'a> {
 
 /// Reads `(n, width)` points of `model` (validated, rows named in errors).
 pub fn unit_points<'a>(model: Model, k: &Curvature, name: &str, x: &'a Data) -> Result<UnitPoints<'a>> {
-    let shape = x.shape().to_vec();
-    if shape.len() != 2 {
-        return Err(Error::Value(format!("{name} must be a 2-D array of points (n, d); got shape {shape:?}")));
-    }
-    let (n, width) = (shape[0], shape[1]);
-    let d = if model == Model::Hyperboloid { width.saturating_sub(1) } else { width };
-    if d == 0 {
-        return Err(Error::Value(format!("{name} has no coordinates per point")));
-    }
-    if n == 0 {
-        return Err(Error::Value(format!("{name} is empty: a centroid needs at least one point")));
-    }
+    let pa = PointArray::new(model, name, x)?.non_empty("a centroid needs at least one point")?;
+    let (n, d) = (pa.n, pa.d);
+    let mut g = vec![0f64; n];
     if model == Model::Poincare && k.kappa == 1.0 {
-        if let Data::F64(a) | Data::Weak(a) = x {
-            if let Some(sl) = a.as_slice() {
-                let mut g = vec![0f64; n];
-                let bad: Vec<Option<(usize, crate::error::Fault)>> = g
-                    .par_chunks_mut(CHUNK)
-                    .enumerate()
-                    .map(|(c, gc)| {
-                        for (r, gr) in gc.iter_mut().enumerate() {
-                            let i = c * CHUNK + r;
-                            match crate::models::ball::checked_gap(k, &sl[i * d..(i + 1) * d]) {
-                                Ok(v) => *gr = v.value(),
-                                Err(f) => return Some((i, f)),
-                            }
-                        }
-                        None
-                    })
-                    .collect();
-                if let Some((i, f)) = bad.into_iter().flatten().next() {
-                    return Err(crate::error::row_error(name, &shape, &[i], f, x.is_f32()));
-                }
-                return Ok(UnitPoints { n, d, p: std::borrow::Cow::Borrowed(sl), g });
-            }
+        if let Some(sl) = pa.as_slice() {
+            pa.read_rows(CHUNK, g.chunks_mut(CHUNK).collect(), |gc, r, row| {
+                gc[r] = crate::models::ball::checked_gap(k, row)?.value();
+                Ok(())
+            })?;
+            return Ok(UnitPoints { n, d, p: std::borrow::Cow::Borrowed(sl), g });
         }
     }
     let mut p = vec![0f64; n * d];
-    let mut g = vec![0f64; n];
-    // 2-D views once; rows are borrowed in place when contiguous.
-    let (a64, a32) = match x {
-        Data::F64(a) | Data::Weak(a) => (Some(a.view().into_dimensionality::<ndarray::Ix2>().expect("2-D")), None),
-        Data::F32(a) => (None, Some(a.view().into_dimensionality::<ndarray::Ix2>().expect("2-D"))),
-    };
-    let res: Vec<Option<(usize, crate::error::Fault)>> = p
-        .par_chunks_mut(CHUNK * d)
-        .zip(g.par_chunks_mut(CHUNK))
-        .enumerate()
-        .map(|(c, (pc, gc))| {
-            let mut row = vec![0f64; width];
-            for (r, (pr, gr)) in pc.chunks_exact_mut(d).zip(gc.iter_mut()).enumerate() {
-                let i = c * CHUNK + r;
-                let src: &[f64] = match (&a64, &a32) {
-                    (Some(a), _) => {
-                        let rv = a.row(i);
-                        match rv.to_slice() {
-                            Some(sl) => sl,
-                            None => {
-                                row.iter_mut().zip(rv.iter()).for_each(|(o, v)| *o = *v);
-                                &row
-                            }
-                        }
-                    }
-                    (_, Some(a)) => {
-                        row.iter_mut().zip(a.row(i).iter()).for_each(|(o, v)| *o = f64::from(*v));
-                        &row
-                    }
-                    _ => unreachable!(),
-                };
-                match to_hub(model, k, src, pr) {
-                    Ok(gap) => {
-                        *gr = gap;
-                        pr.iter_mut().for_each(|v| *v *= k.sqrt_kappa);
-                    }
-                    Err(f) => return Some((i, f)),
-                }
-            }
-            None
-        })
-        .collect();
-    if let Some((i, f)) = res.into_iter().flatten().next() {
-        return Err(crate::error::row_error(name, &shape, &[i], f, x.is_f32()));
-    }
+    pa.read_rows(CHUNK, p.chunks_mut(CHUNK * d).zip(g.chunks_mut(CHUNK)).collect(), |(pc, gc), r, row| {
+        let pr = &mut pc[r * d..(r + 1) * d];
+        gc[r] = to_hub(model, k, row, pr)?;
+        pr.iter_mut().for_each(|v| *v *= k.sqrt_kappa);
+        Ok(())
+    })?;
     Ok(UnitPoints { n, d, p: std::borrow::Cow::Owned(p), g })
 }
 
@@ -244,9 +181,8 @@ pub(crate) fn einstein_sums(
 pub(crate) fn einstein_point(mut num: Vec<f64>, den: f64) -> (Vec<f64>, f64) {
     num.iter_mut().for_each(|v| *v /= den);
     let gk = (1.0 - crate::numeric::sumsq_dd(&num).value()).max(0.0);
-    let a = gk.sqrt();
-    num.iter_mut().for_each(|v| *v /= 1.0 + a);
-    (num, 2.0 * a / (1.0 + a))
+    let g = crate::models::klein::to_poincare_in_place(&mut num, gk);
+    (num, g)
 }
 
 /// Unit-ball Einstein midpoint of the members (with their weights), as a
@@ -679,8 +615,8 @@ pub fn frechet_variance(
             for r in 0..rows {
                 let mu = &mut hub[r * pts.d..(r + 1) * pts.d];
                 let gmu = to_hub(model, &k, &coords[r * width..(r + 1) * width], mu).map_err(|f| {
-                    let row = if rows > 1 { format!(" row {r}") } else { String::new() };
-                    Error::Value(format!("center{row} {}", f.describe()))
+                    let (shape, row) = if rows > 1 { (vec![rows, width], vec![r]) } else { (vec![width], vec![]) };
+                    crate::error::row_error("center", &shape, &row, f, false)
                 })?;
                 mu.iter_mut().for_each(|v| *v *= k.sqrt_kappa);
                 gaps[r] = gmu;
