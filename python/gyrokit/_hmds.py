@@ -79,6 +79,222 @@ def _check_table(D: Any) -> np.ndarray:
     return a
 
 
+def _log_sinh(x: np.ndarray) -> np.ndarray:
+    """``log sinh x`` for ``x >= 0`` without overflow (``-inf`` at 0):
+    ``x - log 2 + log(-expm1(-2x))``."""
+    with np.errstate(divide="ignore"):
+        return x - math.log(2.0) + np.log(-np.expm1(-2.0 * x))
+
+
+def _frame_centre(A: np.ndarray) -> int:
+    """The row whose point, placed at the origin, keeps the finest detail
+    of the table (module notes, "float64 limits"): it minimises
+    ``max_i sinh(A[b, i]) / m_i``, ``m_i`` the distance from point ``i`` to
+    its nearest other point, over the rows whose distances all fit the
+    hyperboloid's range. -1 when none fits."""
+    n = A.shape[0]
+    with np.errstate(divide="ignore"):
+        logm = np.log(np.where(A > 0, A, np.inf).min(axis=1))
+    cost = np.empty(n)
+    step = 1024
+    for lo in range(0, n, step):
+        blk = A[lo : lo + step]
+        cost[lo : lo + step] = (_log_sinh(blk) - logm[None, :]).max(axis=1)
+    ok = A.max(axis=1) <= _MAX_A
+    if not ok.any():
+        return -1
+    cost[~ok] = np.inf
+    return int(np.argmin(cost))
+
+
+def _move_to_origin(s: np.ndarray, b: int, R: float) -> np.ndarray:
+    """Spatial parts of the points after the boost that takes point ``b`` to
+    ``(R, 0, ..., 0)``. Applied to differences (``L x_i = L (x_i - x_b) +
+    (R, 0)``, with ``s_i - s_b`` exact for nearby points and ``x0_i - x0_b``
+    from ``(s_i - s_b).(s_i + s_b) / (x0_i + x0_b)``), so points near ``b``
+    keep their offsets to about ``eps e^(2a)`` relative, ``a R`` the old
+    radius of ``b``; the Gauss-Newton polish that follows recovers the rest
+    from the table."""
+    sb = s[b].copy()
+    nb = math.sqrt(float(sb @ sb))
+    if nb == 0.0:
+        return s.copy()
+    u = sb / nb
+    x0 = np.sqrt(R * R + np.einsum("ij,ij->i", s, s))
+    sh = nb / R
+    a = math.asinh(sh)
+    cm1 = 2.0 * math.sinh(0.5 * a) ** 2  # cosh a - 1
+    ds = s - sb
+    d0 = np.einsum("ij,ij->i", ds, s + sb) / (x0 + x0[b])
+    out = ds + np.multiply.outer(cm1 * (ds @ u) - sh * d0, u)
+    out[b] = 0.0
+    return out
+
+
+def _relative_errors(s: np.ndarray, a: np.ndarray, c: float) -> np.ndarray:
+    """``|d_ij - D_ij| / D_ij`` of the points with spatial parts ``s`` (the
+    library's distance, exact to a few ulps), 0 where ``D_ij = 0``."""
+    from . import distance_matrix
+
+    R = 1.0 / math.sqrt(-c)
+    x = np.column_stack([np.sqrt(R * R + np.einsum("ij,ij->i", s, s)), s])
+    d = distance_matrix(x, model="hyperboloid", curvature=c)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        return np.where(a > 0, np.abs(d - a) / a, 0.0)
+
+
+def _gradients(si: np.ndarray, sj: np.ndarray, x0i: np.ndarray, x0j: np.ndarray, rsh: np.ndarray) -> np.ndarray:
+    """``grad_{s_i} d(x_i, x_j)`` for hyperboloid points read through their
+    spatial parts: from ``|x_i - x_j|_L^2 = |ds|^2 - dx0^2 = 4 R^2
+    sinh^2(d/2R)``, ``grad = (ds - dx0 s_i/x0_i) / (R sinh(d/R))``, with
+    ``dx0 = ds.(s_i + s_j)/(x0_i + x0_j)`` (no difference of large x0).
+    ``rsh`` is ``R sinh(d/R)`` (broadcast against the leading axes)."""
+    ds = si - sj
+    dx0 = np.einsum("...k,...k->...", ds, si + sj) / (x0i + x0j)
+    return (ds - (dx0 / x0i)[..., None] * si) / rsh[..., None]
+
+
+def _gauss_newton_block(s: np.ndarray, a: np.ndarray, B: np.ndarray, c: float, near: np.ndarray) -> None:
+    """One Gauss-Newton step on the points ``B`` (the others fixed) for the
+    residuals ``(d_ij - D_ij) / D_ij`` of every pair with an end in ``B``;
+    updates ``s[B]`` in place.
+
+    The residuals come from the library's exact distance; the Jacobian (the
+    formula of ``_gradients``) needs only a few digits. Rows towards points
+    outside ``B`` are compressed per point by a QR factorisation (rows sorted
+    by decreasing norm, as graded least squares wants), the rows between
+    points of ``B`` kept as they are, and the whole solved by LAPACK's SVD
+    least squares (``gelsd``): the weights ``1/D_ij`` span many orders of
+    magnitude, which the normal equations would square."""
+    from scipy.linalg import lstsq
+
+    from . import hyperboloid
+
+    R = 1.0 / math.sqrt(-c)
+    n, dim = s.shape
+    k = len(B)
+    x0 = np.sqrt(R * R + np.einsum("ij,ij->i", s, s))
+    x = np.column_stack([x0, s])
+    d = hyperboloid.distance(x[B][:, None, :], x[None, :, :], curvature=c)  # (k, n)
+    aB = a[B]
+    inB = np.zeros(n, dtype=bool)
+    inB[B] = True
+    use = (aB > 0) & (d > 0)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        w = np.where(use, 1.0 / aB, 0.0)
+        r = np.where(use, (d - aB) * w, 0.0)
+        rsh = np.where(use, R * np.sinh(d / R), 1.0)
+    g = _gradients(s[B][:, None, :], s[None, :, :], x0[B][:, None], x0[None, :], rsh)  # (k, n, dim)
+    g *= w[..., None]
+    # rows towards fixed points, compressed per point of B
+    ext = np.where(inB[None, :], 0.0, 1.0)
+    ge = g * ext[..., None]
+    re = r * ext
+    order = np.argsort(-np.einsum("ijk,ijk->ij", ge, ge), axis=1, kind="stable")
+    ge = np.take_along_axis(ge, order[..., None], axis=1)
+    re = np.take_along_axis(re, order, axis=1)
+    Q, Rf = np.linalg.qr(ge)  # (k, n, m), (k, m, dim), m = min(n, dim)
+    qr_rhs = np.einsum("ijl,ij->il", Q, re)
+    mq = Rf.shape[1]
+    rows = []
+    rhs = []
+    M_ext = np.zeros((k * mq, k * dim))
+    for t in range(k):
+        M_ext[t * mq : (t + 1) * mq, t * dim : (t + 1) * dim] = Rf[t]
+    rows.append(M_ext)
+    rhs.append(-qr_rhs.reshape(-1))
+    # rows between points of B
+    if k > 1:
+        iu, ju = np.triu_indices(k, 1)
+        bi, bj = B[iu], B[ju]
+        keep = use[iu, bj]
+        iu, ju, bi, bj = iu[keep], ju[keep], bi[keep], bj[keep]
+        if len(iu):
+            gi = g[iu, bj]  # grad wrt s_i, already weighted
+            gj = _gradients(s[bj], s[bi], x0[bj], x0[bi], rsh[iu, bj]) * w[iu, bj][:, None]
+            M_in = np.zeros((len(iu), k * dim))
+            cols = np.arange(dim)
+            M_in[np.arange(len(iu))[:, None], iu[:, None] * dim + cols] = gi
+            M_in[np.arange(len(iu))[:, None], ju[:, None] * dim + cols] = gj
+            rows.append(M_in)
+            rhs.append(-r[iu, bj])
+    # Levenberg-Marquardt damping on each point's own scale (``near``: its
+    # nearest distance in the table): a direction in which moving the point
+    # by ``near`` changes the relative residuals by less than _DAMP holds no
+    # information worth its nonlinearity (seen from far out, a tight cluster's
+    # sideways translation changes the distances to the rest only at second
+    # order) and is left alone.
+    rows.append(np.kron(np.diag(_DAMP / near[B]), np.eye(dim)))
+    rhs.append(np.zeros(k * dim))
+    M = np.concatenate(rows)
+    y = np.concatenate(rhs)
+    o = np.argsort(-np.einsum("ij,ij->i", M, M), kind="stable")
+    delta = lstsq(M[o], y[o], lapack_driver="gelsd")[0]
+    s[B] += delta.reshape(k, dim)
+
+
+def _blocks(bad: np.ndarray, S: np.ndarray, size: int) -> list:
+    """The points ``S`` in groups of at most ``size``: the connected
+    components of the graph of bad pairs, packed in order, larger ones cut."""
+    from scipy.sparse import csr_matrix
+    from scipy.sparse.csgraph import connected_components
+
+    _, lab = connected_components(csr_matrix(bad[np.ix_(S, S)]), directed=False)
+    out: list = []
+    cur: list = []
+    for comp in range(lab.max() + 1 if len(lab) else 0):
+        members = S[lab == comp]
+        for lo in range(0, len(members), size):
+            part = list(members[lo : lo + size])
+            if len(cur) + len(part) > size:
+                out.append(np.array(cur))
+                cur = []
+            cur.extend(part)
+    if cur:
+        out.append(np.array(cur))
+    return out
+
+
+#: Pairs reproduced worse than this (relative) are refined.
+_REFINE_TOL = 2.0**-36
+#: Refinement runs only when the eigensolver's result already reproduces
+#: at least half of the pairs to this (a table from H^dim), so a table that
+#: is not hyperbolic keeps its rank-dim Gram approximation.
+_HYPERBOLIC_TOL = 2.0**-30
+_MAX_SWEEPS = 8
+_DAMP = 2.0**-20
+
+
+def _refine(s: np.ndarray, a: np.ndarray, c: float) -> np.ndarray:
+    """Gauss-Newton polish of the pairs the eigensolver did not resolve
+    (module notes); returns the best spatial parts found."""
+    n, dim = s.shape
+    E = _relative_errors(s, a, c)
+    iu = np.triu_indices(n, 1)
+    if n < 3 or np.median(E[iu]) > _HYPERBOLIC_TOL:
+        return s
+    best, worst = s.copy(), E.max()
+    size = max(4, 640 // dim)
+    near = np.where(a > 0, a, np.inf).min(axis=1)
+    near[~np.isfinite(near)] = 1.0 / math.sqrt(-c)
+    for _ in range(_MAX_SWEEPS):
+        if worst <= _REFINE_TOL:
+            break
+        bad = E > _REFINE_TOL
+        S = np.flatnonzero(bad.any(axis=1))
+        for B in _blocks(bad, S, size):
+            _gauss_newton_block(s, a, B, c, near)
+        E = _relative_errors(s, a, c)
+        w = E.max()
+        if not w < worst:
+            break
+        improved = w < 0.5 * worst
+        best, worst = s.copy(), w
+        if not improved:
+            break
+    return best
+
+
 def from_distances(D: Any, dim: int, *, model: str = "hyperboloid", curvature: float = -1.0) -> Embedding:
     """Points in ``dim``-dimensional hyperbolic space whose distances reproduce ``D``.
 
@@ -122,7 +338,7 @@ def from_distances(D: Any, dim: int, *, model: str = "hyperboloid", curvature: f
     n = a.shape[0]
     R = 1.0 / math.sqrt(-c)
     A = a / R
-    b = int(np.argmin(A.max(axis=1)))
+    b = int(np.argmin(A.max(axis=1)))  # the 1-centre: the best-conditioned Gram matrix
     ab = A[b]
     if ab.max() > _MAX_A:
         i = int(np.argmax(ab))
@@ -142,6 +358,10 @@ def from_distances(D: Any, dim: int, *, model: str = "hyperboloid", curvature: f
     U = U[:, ::-1]
     s = np.zeros((n, dim))
     s[:, :k] = U * (R * np.sqrt(lam))
+    f = _frame_centre(A)
+    if f != b:
+        s = _move_to_origin(s, f, R)
+    s = _refine(s, a, c)
     x0 = np.sqrt(R * R + np.einsum("ij,ij->i", s, s))
     pts = np.column_stack([x0, s])
     if model != "hyperboloid":
