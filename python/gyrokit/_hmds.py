@@ -54,11 +54,11 @@ algorithm. Two refinements reach that grid:
    every pair touching their points (residuals from the core's exact
    distance, the Jacobian ``(ds - dx0 s_i/x0_i) / (R sinh(d/R))`` from the
    chord ``|x_i - x_j|_L = 2R sinh(d/2R)``), the points in groups (connected
-   components of the pairs to refine, at most ``640/dim`` points), the
+   components of the pairs to refine, cut at ``640/dim`` points), the
    others fixed; each group's least-squares problem is solved by LAPACK's
-   SVD solver after compressing the rows towards fixed points by a QR per
-   point (the weights span many orders of magnitude, which normal equations
-   would square), with a Levenberg-Marquardt term ``2^-20 / m_i`` per point:
+   column-pivoted QR (rows sorted by decreasing norm) after compressing the
+   rows towards fixed points by a QR per point (the weights span many orders
+   of magnitude, which normal equations would square), with a Levenberg-Marquardt term ``2^-20 / m_i`` per point:
    seen from far out, a tight cluster's sideways translation changes its
    distances to the rest only at second order, and an undamped step along
    it destroys the cluster. Up to 8 sweeps, while the worst pair improves
@@ -69,7 +69,7 @@ algorithm. Two refinements reach that grid:
    h-MDS.
 
 Measured on 36-point sets of H^2, H^5 and H^10 (50-digit mpmath distances
-of the float64 output): every pair to 1.2e-11 relative or better with
+of the float64 output): every pair to 1.5e-11 (2^-36) relative or better with
 clusters of 8 points 1e-4, 1e-6 and 1e-8 R apart at 2, 5 and 10 R from the
 points' 1-centre (before: up to 4e-7 at 5 R and 7e-3 at 10 R). With two
 such clusters far apart no origin is near both: every pair is then within
@@ -207,8 +207,10 @@ def _gauss_newton_block(s: np.ndarray, a: np.ndarray, B: np.ndarray, c: float, n
     formula of ``_gradients``) needs only a few digits. Rows towards points
     outside ``B`` are compressed per point by a QR factorisation (rows sorted
     by decreasing norm, as graded least squares wants), the rows between
-    points of ``B`` kept as they are, and the whole solved by LAPACK's SVD
-    least squares (``gelsd``): the weights ``1/D_ij`` span many orders of
+    points of ``B`` kept as they are, and the whole solved by LAPACK's
+    column-pivoted QR least squares (``gelsy``; rows sorted by decreasing
+    norm, which with column pivoting makes Householder QR stable row by row,
+    Cox and Higham 1998): the weights ``1/D_ij`` span many orders of
     magnitude, which the normal equations would square."""
     from scipy.linalg import lstsq
 
@@ -273,29 +275,22 @@ def _gauss_newton_block(s: np.ndarray, a: np.ndarray, B: np.ndarray, c: float, n
     M = np.concatenate(rows)
     y = np.concatenate(rhs)
     o = np.argsort(-np.einsum("ij,ij->i", M, M), kind="stable")
-    delta = lstsq(M[o], y[o], lapack_driver="gelsd")[0]
+    delta = lstsq(M[o], y[o], lapack_driver="gelsy")[0]
     s[B] += delta.reshape(k, dim)
 
 
 def _blocks(bad: np.ndarray, S: np.ndarray, size: int) -> list:
-    """The points ``S`` in groups of at most ``size``: the connected
-    components of the graph of bad pairs, packed in order, larger ones cut."""
+    """The points ``S`` in groups: the connected components of the graph of
+    bad pairs, each cut into parts of at most ``size`` points (not packed
+    together: the least-squares work grows with the square of a group)."""
     from scipy.sparse import csr_matrix
     from scipy.sparse.csgraph import connected_components
 
     _, lab = connected_components(csr_matrix(bad[np.ix_(S, S)]), directed=False)
     out: list = []
-    cur: list = []
     for comp in range(lab.max() + 1 if len(lab) else 0):
         members = S[lab == comp]
-        for lo in range(0, len(members), size):
-            part = list(members[lo : lo + size])
-            if len(cur) + len(part) > size:
-                out.append(np.array(cur))
-                cur = []
-            cur.extend(part)
-    if cur:
-        out.append(np.array(cur))
+        out.extend(members[lo : lo + size] for lo in range(0, len(members), size))
     return out
 
 
@@ -356,7 +351,7 @@ def from_distances(D: Any, dim: int, *, model: str = "hyperboloid", curvature: f
     from the 1-centre, the result moved to the origin that keeps the finest
     detail, then a Gauss-Newton polish of the pairs above 2^-36 against the
     table): measured against 50-digit references in dim 2, 5 and 10, every
-    pair to 1.2e-11 for pairs up to 20 R and for clusters 1e-4, 1e-6 and
+    pair to 1.5e-11 (2^-36) for pairs up to 20 R and for clusters 1e-4, 1e-6 and
     1e-8 R wide 10 R from the points' centre. The limit is float64 itself: a
     pair ``d`` apart ``a R`` from the origin of the result cannot be held
     better than about ``u sinh(a) R / d`` (u = 2^-53, the coordinates'
