@@ -417,7 +417,6 @@ pub fn embed(tree: &Tree, dim: usize, scale: Option<f64>, model: Model, k: Curva
             }
         }
     }
-    drop(dir);
     // ---- every node within the model's range?
     let (qmin, gmin) = hg.iter().enumerate().fold((0, 1.0), |acc, (q, &g)| if g < acc.1 { (q, g) } else { acc });
     let far = radius_of_gap(gmin);
@@ -442,7 +441,11 @@ pub fn embed(tree: &Tree, dim: usize, scale: Option<f64>, model: Model, k: Curva
     }
     // ---- once, to the requested model, in node order
     let width = model.width(d);
-    let mut points = vec![0.0f64; n * width];
+    // the directions' buffer becomes the output (every entry is written
+    // below): one n x d allocation fewer, whose fresh pages the kernel would
+    // zero again (page clearing was over half the time at n = 1e6, d = 10)
+    let mut points = dir;
+    points.resize(n * width, 0.0);
     let bad = points
         .par_chunks_mut(width)
         .enumerate()
