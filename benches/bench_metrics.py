@@ -6,8 +6,8 @@ absolute time on the WordNet noun hierarchy (SPEC: under a minute on 2 cores).
 
 Data:
 - ``wordnet``: the WordNet 3.0 noun hierarchy read from the Debian package
-  ``wordnet-base`` (/usr/share/wordnet/data.noun): 82 115 synsets, the
-  graph is the transitive closure of the hypernym and instance-hypernym
+  ``wordnet-base`` (/usr/share/wordnet/data.noun, read by ``benches/wordnet.py``):
+  82 115 synsets, the graph is the transitive closure of the hypernym and instance-hypernym
   relations. Points: an invented tree layout (each synset at hyperbolic
   distance 1.5 from its first hypernym, in a random direction, by Möbius
   addition; d = 10), a stand-in for a trained embedding: most nodes' closure
@@ -26,74 +26,29 @@ from __future__ import annotations
 
 import argparse
 import os
+import sys
 import time
 
 import numpy as np
 
-import gyrokit as gk
+sys.path.insert(0, os.path.dirname(os.path.abspath(__file__)))
+import wordnet  # noqa: E402  (the one WordNet loader, shared with bench_graph.py)
 
-DATA_NOUN = "/usr/share/wordnet/data.noun"
-
-
-def wordnet_nouns(path=DATA_NOUN):
-    """(parents list per synset, index of each synset offset): hypernym (@) and
-    instance-hypernym (@i) pointers of each noun synset."""
-    offsets, ptrs = [], []
-    with open(path, encoding="latin-1") as f:
-        for line in f:
-            if line.startswith("  "):
-                continue  # licence header
-            parts = line.split(" ")
-            offsets.append(parts[0])
-            w_cnt = int(parts[3], 16)
-            i = 4 + 2 * w_cnt
-            p_cnt = int(parts[i])
-            hyp = []
-            for k in range(p_cnt):
-                sym, off, pos = parts[i + 1 + 4 * k : i + 4 + 4 * k]
-                if sym in ("@", "@i") and pos == "n":
-                    hyp.append(off)
-            ptrs.append(hyp)
-    index = {o: i for i, o in enumerate(offsets)}
-    parents = [[index[o] for o in h] for h in ptrs]
-    return parents
+import gyrokit as gk  # noqa: E402
 
 
-def closure_edges(parents):
-    """(child, ancestor) pairs of the transitive closure, and depth order."""
-    n = len(parents)
-    anc = [None] * n
-
-    def ancestors(i):
-        stack = [i]
-        while stack:
-            j = stack[-1]
-            if anc[j] is not None:
-                stack.pop()
-                continue
-            todo = [p for p in parents[j] if anc[p] is None]
-            if todo:
-                stack.extend(todo)
-                continue
-            s = set()
-            for p in parents[j]:
-                s.add(p)
-                s |= anc[p]
-            anc[j] = frozenset(s)
-            stack.pop()
-        return anc[i]
-
-    edges = []
-    for i in range(n):
-        for a in ancestors(i):
-            edges.append((i, a))
-    return np.array(edges, dtype=np.int64)
+def first_parents(n, edges):
+    """Each synset's first hypernym (pointer order of ``data.noun``), -1 for roots."""
+    first = np.full(n, -1, dtype=np.int64)
+    child, at = np.unique(edges[:, 0], return_index=True)
+    first[child] = edges[at, 1]
+    return first
 
 
-def tree_layout(parents, d, rng, step=1.5):
-    """Each node at distance `step` from its first parent, random direction."""
-    n = len(parents)
-    first = np.array([p[0] if p else -1 for p in parents])
+def tree_layout(first, d, rng, step=1.5):
+    """Each node at distance `step` from its first parent (``first``, -1 for
+    roots), random direction."""
+    n = len(first)
     depth = np.full(n, -1)
     depth[first < 0] = 0
     while (depth < 0).any():
@@ -121,13 +76,13 @@ def main():
     ap.add_argument("--d", type=int, default=10)
     ap.add_argument("--cases", default="wordnet,random", help="comma-separated: wordnet, random")
     args = ap.parse_args()
-    parents = wordnet_nouns()
-    edges = closure_edges(parents)
+    names, hyper = wordnet.read_nouns()
+    edges = wordnet.closure(len(names), hyper)
     rng = np.random.default_rng(0)
-    x, depth = tree_layout(parents, args.d, rng)
+    x, depth = tree_layout(first_parents(len(names), hyper), args.d, rng)
     if args.n is not None:
         keep = np.argsort(depth, kind="stable")[: args.n]
-        new = np.full(len(parents), -1)
+        new = np.full(len(names), -1)
         new[keep] = np.arange(len(keep))
         e = new[edges]
         edges = e[(e >= 0).all(axis=1)]

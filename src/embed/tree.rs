@@ -306,7 +306,15 @@ pub fn embed(tree: &Tree, dim: usize, scale: Option<f64>, model: Model, k: Curva
                 hi = mid;
             }
         }
-        lo
+        if lo > 0.0 {
+            lo
+        } else {
+            // No scale keeps 1e-9 (height above 2e6/e, about 7.4e5: `h s <=
+            // ln(2e6 s)` has no solution): the one where the estimated worst
+            // edge error `1e-16 e^(h s) / (2 s)` is smallest, `s = 1/h`
+            // (1.5e-10 e h / 1e6 relative), flagged as not accurate.
+            (1.0 / height as f64).min(rmax / height as f64)
+        }
     };
     let s = match scale {
         None => best,
@@ -409,7 +417,6 @@ pub fn embed(tree: &Tree, dim: usize, scale: Option<f64>, model: Model, k: Curva
             }
         }
     }
-    drop(dir);
     // ---- every node within the model's range?
     let (qmin, gmin) = hg.iter().enumerate().fold((0, 1.0), |acc, (q, &g)| if g < acc.1 { (q, g) } else { acc });
     let far = radius_of_gap(gmin);
@@ -434,7 +441,11 @@ pub fn embed(tree: &Tree, dim: usize, scale: Option<f64>, model: Model, k: Curva
     }
     // ---- once, to the requested model, in node order
     let width = model.width(d);
-    let mut points = vec![0.0f64; n * width];
+    // the directions' buffer becomes the output (every entry is written
+    // below): one n x d allocation fewer, whose fresh pages the kernel would
+    // zero again (page clearing was over half the time at n = 1e6, d = 10)
+    let mut points = dir;
+    points.resize(n * width, 0.0);
     let bad = points
         .par_chunks_mut(width)
         .enumerate()
@@ -559,5 +570,22 @@ mod tests {
         assert!(embed(&tree, 2, Some(4.0), Model::Hyperboloid, k).is_ok());
         let e = embed(&tree, 2, Some(40.0), Model::Hyperboloid, k).unwrap_err().to_string();
         assert!(e.contains("beyond what any model holds"), "{e}");
+    }
+
+    #[test]
+    fn scale_none_for_a_tree_too_deep_for_any_accurate_scale_is_one_over_the_height() {
+        // height 799 999 > 2e6/e: no scale keeps 1e-9 (was: scale 0, every
+        // node at the root); the error estimate e^(h s) / s is smallest at 1/h
+        let k = Curvature::default();
+        let path: Vec<i64> = (0..800_000).map(|i| i - 1).collect();
+        let tree = Tree::from_parents(&path).unwrap();
+        let e = embed(&tree, 2, None, Model::Hyperboloid, k).unwrap();
+        assert_eq!(e.scale, 1.0 / 799_999.0);
+        assert!(!e.accurate);
+        // the last edge: hub points on a line, distances from the origin
+        let w = e.width;
+        let r = |i: usize| e.points[i * w + 1].hypot(e.points[i * w + 2]).asinh();
+        let last = r(799_999) - r(799_998);
+        assert!((last / e.scale - 1.0).abs() < 1e-9, "{last}");
     }
 }
