@@ -565,10 +565,13 @@ def _move_labels(lab: np.ndarray, moves: dict, x0: int) -> np.ndarray:
     return lab
 
 
-def _stats_block(xb: np.ndarray, lab: Optional[np.ndarray], queries: list, model: str, curvature: float) -> list:
+def _stats_block(xb: np.ndarray, lab: Optional[np.ndarray], queries: list, model: str, curvature: float, x0: int) -> list:
     if xb.shape[0] == 0:
         return [None] * len(queries)
-    return _native.centroid_chunk_sums(_rows64(xb), None, 1.0, lab, queries, model, curvature)
+    try:
+        return _native.centroid_chunk_sums(_rows64(xb), None, 1.0, lab, queries, model, curvature)
+    except ValueError as e:
+        raise _relabel(e, {"x": ("X", x0)}) from None
 
 
 def _pair_distances(a: np.ndarray, b: np.ndarray, model: str, curvature: float) -> np.ndarray:
@@ -687,7 +690,7 @@ class KMeans(_InMemoryKMeans):
         summary = list(dask.compute(*[o[1] for o in outs]))
         return labels, summary
 
-    def _rounds(self, drv: Any, blocks: list, labels: Optional[list], once: bool = False) -> list:
+    def _rounds(self, drv: Any, blocks: list, starts: List[int], labels: Optional[list], once: bool = False) -> list:
         """Runs a centroid driver to the end on chunk sums over ``labels``
         (``None``: one group of all points); with ``once``, one round whose
         chunk sums are returned instead of fed."""
@@ -697,12 +700,16 @@ class KMeans(_InMemoryKMeans):
             queries = drv.queries()
             if all(q is None for q in queries):
                 return []
-            parts = list(dask.compute(*[task(xb, lb, queries, self.model, float(self.curvature)) for xb, lb in zip(blocks, labs)]))
+            parts = list(
+                dask.compute(
+                    *[task(xb, lb, queries, self.model, float(self.curvature), x0) for xb, lb, x0 in zip(blocks, labs, starts)]
+                )
+            )
             if once:
                 return parts
             drv.feed(parts)
 
-    def _threshold(self, blocks: list, n: int, d: int) -> float:
+    def _threshold(self, blocks: list, starts: List[int], n: int, d: int) -> float:
         """The stop rule's bound on ``sum_j d(c_j, c_j')^2`` (unit ball):
         ``tol`` times the data's spread, the mean squared distance of the
         points to their Einstein midpoint over ``d`` (gk.KMeans's rule; 2 to
@@ -712,9 +719,9 @@ class KMeans(_InMemoryKMeans):
             return 0.0
         model, curv = self.model, float(self.curvature)
         mid = _native.CentroidDriver(1, False, 1e-12, 0)
-        self._rounds(mid, blocks, None)
+        self._rounds(mid, blocks, starts, None)
         centre = mid.result(d, model, curv)[0]
-        parts = self._rounds(_native.CentroidDriver.lloyd(centre, model, curv), blocks, None, once=True)
+        parts = self._rounds(_native.CentroidDriver.lloyd(centre, model, curv), blocks, starts, None, once=True)
         f = sum(p[0][4] for p in parts if p[0] is not None)  # chunk order
         return tol * f / n / d
 
@@ -762,7 +769,7 @@ class KMeans(_InMemoryKMeans):
                 drv = _native.CentroidDriver.lloyd(centres, model, curv)
             else:
                 drv.feed([s[3] for s in summary])
-            self._rounds(drv, blocks, labels)
+            self._rounds(drv, blocks, starts, labels)
             new = drv.result(d, model, curv, centres)[0]
             shift = float(np.sum((_pair_distances(centres, new, model, curv) / radius) ** 2))
             centres = new
@@ -776,7 +783,7 @@ class KMeans(_InMemoryKMeans):
         # The final centres: the Fréchet means of the last update's clusters
         # from their Einstein midpoints, as frechet_mean(X, labels=...) does.
         final = _native.CentroidDriver(k, True, 1e-12, 50)
-        self._rounds(final, blocks, used)
+        self._rounds(final, blocks, starts, used)
         centres = final.result(d, model, curv, centres)[0]
         labels, summary = self._assign(blocks, starts, centres, None, None)
         history[-1] = float(sum(s[1] for s in summary))
@@ -809,7 +816,7 @@ class KMeans(_InMemoryKMeans):
                 raise ValueError(f"init is not a valid array of {self.model} points: {e}") from None
             seeds = [None]
         blocks, starts = self._blocks(x)
-        threshold = self._threshold(blocks, n, d)
+        threshold = self._threshold(blocks, starts, n, d)
         best = None
         for seed in seeds:
             centres = self._seed(blocks, starts, n, seed, init)

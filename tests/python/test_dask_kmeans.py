@@ -72,10 +72,10 @@ def test_empty_cluster_repair_matches_in_memory(client):
 def test_seeding_does_not_depend_on_chunks_or_workers(client):
     x = _blobs(2500, 4, 3, k=6)
     fits = [
-        gk.dask.KMeans(6, random_state=11).fit(da.from_array(x, chunks=c)) for c in (2500, 97, ((1000, 1, 1499), -1))
+        gk.dask.KMeans(6, random_state=11, tol=0).fit(da.from_array(x, chunks=c)) for c in (2500, 97, ((1000, 1, 1499), -1))
     ]
     with dask.config.set(scheduler="synchronous"):
-        fits.append(gk.dask.KMeans(6, random_state=11).fit(da.from_array(x, chunks=600)))
+        fits.append(gk.dask.KMeans(6, random_state=11, tol=0).fit(da.from_array(x, chunks=600)))
     seeded = [
         gk.dask.KMeans(6)._seed(*gk.dask.KMeans(6)._blocks(da.from_array(x, chunks=c)), 2500, 123, "k-means++")
         for c in (2500, 97)
@@ -85,7 +85,7 @@ def test_seeding_does_not_depend_on_chunks_or_workers(client):
     for f in fits[1:]:
         assert np.array_equal(f.labels_.compute(), fits[0].labels_.compute())
         assert _far(f.cluster_centers_, fits[0].cluster_centers_, "poincare") <= 1e-13
-    # a fixed point of Lloyd's iteration (common practice): every point is
+    # with tol=0, a fixed point of Lloyd's iteration (common practice): every point is
     # with its nearest centre, every centre is the Fréchet mean of its points
     lab = fits[0].labels_.compute()
     assert np.array_equal(gk.knn(x, 1, fits[0].cluster_centers_)[0][:, 0], lab)
