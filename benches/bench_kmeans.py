@@ -48,13 +48,7 @@ def ball_points(rng, n, d, max_radius=3.0):
     return v * np.tanh(rng.uniform(0, max_radius, n) / 2)[:, None]
 
 
-def taxonomy(rng, n=36_607, d=10):
-    """Invented taxonomy: twelve branches; a node's direction scatters around
-    its branch's, its depth (hyperbolic radius) is Gamma(3, 0.9), capped at 12."""
-    branches = rng.standard_normal((12, d))
-    u = branches[rng.integers(0, 12, n)] + 0.6 * rng.standard_normal((n, d))
-    u /= np.linalg.norm(u, axis=1, keepdims=True)
-    return np.tanh(np.minimum(rng.gamma(3.0, 0.9, n), 12.0) / 2)[:, None] * u
+from bench_centroids import taxonomy  # noqa: E402 - the same invented taxonomy (this script's folder is on sys.path)
 
 
 def main(argv):

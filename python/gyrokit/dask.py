@@ -623,28 +623,9 @@ class KMeans(_InMemoryKMeans):
     as in :class:`gyrokit.KMeans`) costs 2 to 4 passes once per fit.
     """
 
-    def __init__(
-        self,
-        n_clusters: int = 8,
-        *,
-        model: str = "poincare",
-        curvature: float = -1.0,
-        init: Any = "k-means++",
-        n_init: Any = 1,
-        max_iter: int = 100,
-        tol: float = 1e-4,
-        random_state: Any = None,
-    ) -> None:
-        super().__init__(
-            n_clusters,
-            model=model,
-            curvature=curvature,
-            init=init,
-            n_init=n_init,
-            max_iter=max_iter,
-            tol=tol,
-            random_state=random_state,
-        )
+    def __init__(self, n_clusters: int = 8, *, n_init: Any = 1, **params: Any) -> None:
+        # gk.KMeans's parameters; only n_init's default differs (one run).
+        super().__init__(n_clusters, n_init=n_init, **params)
 
     def __repr__(self) -> str:
         return "gyrokit.dask." + super().__repr__()

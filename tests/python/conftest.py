@@ -209,3 +209,21 @@ def client():
     yield c
     c.close()
     cluster.close()
+
+
+def die_once(marker: str):
+    """A ``map_blocks`` function that kills the first worker process to run it
+    (``os._exit``; the marker file records that one died) and passes every
+    block through unchanged: dask then reschedules the lost tasks on a
+    restarted worker (the gyrokit.dask tests of a worker dying mid-run)."""
+    import os
+
+    here = os.getpid()
+
+    def f(block):
+        if os.getpid() != here and block.size and not os.path.exists(marker):
+            open(marker, "w").close()
+            os._exit(1)
+        return block
+
+    return f

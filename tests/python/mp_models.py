@@ -51,7 +51,7 @@ own precision; importing this module does not change ``mp.dps``.
 
 from __future__ import annotations
 
-from typing import Callable, Dict, Iterable, List, Optional, Sequence, Union
+from typing import Callable, Dict, Iterable, List, Optional, Sequence, Tuple, Union
 
 import mpmath
 from mpmath import mp, mpf
@@ -908,3 +908,27 @@ def geodesic_via_hyperboloid(model: str, x, y, t, *, curvature: float, dps: int 
     with mp.workdps(dps):
         k = kappa_of(curvature)
         return down(_h_geodesic(up(to_mp(x), k), up(to_mp(y), k), mpf(float(t)), k), k)
+
+
+def triangle(pts: Sequence[Sequence[mpf]], curvature: float = -1.0) -> Tuple[List[mpf], List[mpf], mpf]:
+    """Sides (opposite a, b, c, in model units), angles (at a, b, c) and
+    defect of the triangle of three Poincaré points, at the working
+    precision (handbook: hyperbolic law of cosines, cos α = (cosh b cosh c -
+    cosh a)/(sinh b sinh c) with sides in units of R; Gauss–Bonnet: defect =
+    π - sum of the angles)."""
+    k = -mpf(curvature)
+
+    def dist(x, y):  # in units of R
+        gx = 1 - k * sum(t * t for t in x)
+        gy = 1 - k * sum(t * t for t in y)
+        return mp.acosh(1 + 2 * k * sum((s - t) ** 2 for s, t in zip(x, y)) / (gx * gy))
+
+    A, B, C = pts
+    s = [dist(B, C), dist(A, C), dist(A, B)]
+
+    def ang(opp, e1, e2):
+        return mp.acos((mp.cosh(e1) * mp.cosh(e2) - mp.cosh(opp)) / (mp.sinh(e1) * mp.sinh(e2)))
+
+    angles = [ang(s[0], s[1], s[2]), ang(s[1], s[0], s[2]), ang(s[2], s[0], s[1])]
+    R = 1 / mp.sqrt(k)
+    return [x * R for x in s], angles, mp.pi - sum(angles)

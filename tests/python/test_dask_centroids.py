@@ -19,7 +19,7 @@ dask = pytest.importorskip("dask")
 da = pytest.importorskip("dask.array")
 pytest.importorskip("distributed")
 
-from conftest import MODELS  # noqa: E402
+from conftest import MODELS, die_once  # noqa: E402
 
 
 def _ball(n: int, d: int, seed: int, rmax: float = 4.0) -> np.ndarray:
@@ -96,18 +96,8 @@ def test_independent_of_workers(client):
 def test_worker_killed_mid_computation(client, tmp_path):
     x = _ball(20000, 4, 7)
     marker = str(tmp_path / "died")
-    here = os.getpid()
     ref = gk.dask.frechet_mean(da.from_array(x, chunks=(2500, -1)))
-
-    def die_once(block):
-        # The first task to read a block kills its worker process; dask
-        # reschedules the block on a restarted worker.
-        if os.getpid() != here and block.size and not os.path.exists(marker):
-            open(marker, "w").close()
-            os._exit(1)
-        return block
-
-    dx = da.from_array(x, chunks=(2500, -1)).map_blocks(die_once, dtype=x.dtype, meta=np.empty((0, 0)))
+    dx = da.from_array(x, chunks=(2500, -1)).map_blocks(die_once(marker), dtype=x.dtype, meta=np.empty((0, 0)))
     got = gk.dask.frechet_mean(dx)
     assert os.path.exists(marker)  # a worker did die
     assert np.array_equal(got.mean, ref.mean)

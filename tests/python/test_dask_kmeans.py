@@ -21,6 +21,8 @@ dask = pytest.importorskip("dask")
 da = pytest.importorskip("dask.array")
 pytest.importorskip("distributed")
 
+from conftest import die_once  # noqa: E402
+
 
 def _blobs(n: int, d: int, seed: int, k: int = 4, spread: float = 0.3) -> np.ndarray:
     """``k`` groups of points around random centres within 3 R (Poincaré ball)."""
@@ -123,15 +125,7 @@ def test_worker_killed_mid_fit(client, tmp_path):
     init = x[:4]
     ref = gk.dask.KMeans(4, init=init).fit(da.from_array(x, chunks=1000))
     marker = str(tmp_path / "died")
-    here = os.getpid()
-
-    def die_once(block):
-        if os.getpid() != here and block.size and not os.path.exists(marker):
-            open(marker, "w").close()
-            os._exit(1)
-        return block
-
-    dx = da.from_array(x, chunks=(1000, -1)).map_blocks(die_once, dtype=x.dtype, meta=np.empty((0, 0)))
+    dx = da.from_array(x, chunks=(1000, -1)).map_blocks(die_once(marker), dtype=x.dtype, meta=np.empty((0, 0)))
     got = gk.dask.KMeans(4, init=init).fit(dx)
     assert os.path.exists(marker)
     assert np.array_equal(got.cluster_centers_, ref.cluster_centers_)

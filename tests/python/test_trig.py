@@ -26,24 +26,9 @@ def _mp_triangle(a, b, c, model="poincare", curvature=-1.0):
     (handbook: hyperbolic law of cosines, cos α = (cosh b cosh c - cosh a)/(sinh b sinh c)
     with sides in units of R; Gauss–Bonnet defect = π - sum)."""
     with mp.workdps(DPS):
-        k = -mpf(curvature)
         pts = [mp_models.convert(list(map(float, v)), model, "poincare", curvature=curvature, dps=DPS)
                if model != "poincare" else [mpf(float(t)) for t in v] for v in (a, b, c)]
-
-        def dist(x, y):  # in units of R
-            gx = 1 - k * sum(t * t for t in x)
-            gy = 1 - k * sum(t * t for t in y)
-            return mp.acosh(1 + 2 * k * sum((s - t) ** 2 for s, t in zip(x, y)) / (gx * gy))
-
-        A, B, C = pts
-        s = [dist(B, C), dist(A, C), dist(A, B)]
-
-        def ang(opp, e1, e2):
-            return mp.acos((mp.cosh(e1) * mp.cosh(e2) - mp.cosh(opp)) / (mp.sinh(e1) * mp.sinh(e2)))
-
-        angles = [ang(s[0], s[1], s[2]), ang(s[1], s[0], s[2]), ang(s[2], s[0], s[1])]
-        R = 1 / mp.sqrt(k)
-        return [x * R for x in s], angles, mp.pi - sum(angles)
+        return mp_models.triangle(pts, curvature)
 
 
 def _rel(got, ref):

@@ -45,23 +45,8 @@ TOL = 1e-14
 def reference(pts, model, curvature):
     """Sides (opposite a, b, c), angles (at a, b, c) and defect at DPS digits."""
     with mp.workdps(DPS):
-        k = -mpf(curvature)
         P = [mp_models.convert([float(t) for t in v], model, "poincare", curvature=curvature, dps=DPS) for v in pts]
-
-        def dist(x, y):  # in units of R
-            gx = 1 - k * sum(t * t for t in x)
-            gy = 1 - k * sum(t * t for t in y)
-            return mp.acosh(1 + 2 * k * sum((s - t) ** 2 for s, t in zip(x, y)) / (gx * gy))
-
-        A, B, C = P
-        s = [dist(B, C), dist(A, C), dist(A, B)]
-
-        def ang(opp, e1, e2):
-            return mp.acos((mp.cosh(e1) * mp.cosh(e2) - mp.cosh(opp)) / (mp.sinh(e1) * mp.sinh(e2)))
-
-        angles = [ang(s[0], s[1], s[2]), ang(s[1], s[0], s[2]), ang(s[2], s[0], s[1])]
-        R = 1 / mp.sqrt(k)
-        return [x * R for x in s], angles, mp.pi - sum(angles)
+        return mp_models.triangle(P, curvature)
 
 
 def errors(pts, model, curvature=-1.0):
