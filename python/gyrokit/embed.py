@@ -69,8 +69,10 @@ def tree(
     ``model``'s float64 coordinates: ``height x scale`` at most the accurate
     radius below with a margin of 10 (``ln(2e6 scale)`` R, about 15.2 R for
     ``scale = 2``; in the Klein ball ``ln(4e6 scale)/2``, about 8.0 R) and
-    within the model's
-    range. The ranges are wider: 37.4 R in the Poincaré ball, 18.7 R in the
+    within the model's range. A tree too tall for any such scale (a path of
+    about 740 000 nodes and more) gets ``scale = 1/height``, where the
+    estimated edge error is smallest, with an :class:`EdgeAccuracyWarning`.
+    The ranges are wider: 37.4 R in the Poincaré ball, 18.7 R in the
     Klein ball, about 173 R on the hyperboloid and in the half-space (their
     coordinates reach 2^250). An explicit scale may use the whole range:
     nodes beyond the accurate radius are placed as exactly as float64
