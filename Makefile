@@ -11,7 +11,7 @@ VENV    := .venv
 VPY     := $(VENV)/bin/python
 STAMP   := $(VENV)/.deps-stamp
 # Build and test dependencies (numpy etc. come with the package's own requirements).
-DEPS    := "maturin>=1.5,<2" numpy scipy mpmath hypothesis pytest mypy scikit-learn pandas atheris networkx matplotlib "dask[array]" distributed tqdm
+DEPS    := "maturin>=1.5,<2" numpy scipy mpmath hypothesis pytest mypy scikit-learn pandas atheris networkx matplotlib "dask[array]" distributed tqdm zarr
 FUZZ_RUNS ?= 1000000
 FUZZ_DIR  ?= target/fuzz
 export VIRTUAL_ENV := $(abspath $(VENV))

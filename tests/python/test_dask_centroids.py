@@ -126,3 +126,22 @@ def test_errors_name_rows_of_the_whole_array(client):
         gk.dask.frechet_mean(da.zeros((0, 2)))
     with pytest.raises(ValueError, match="length"):
         gk.dask.frechet_mean(da.from_array(x, chunks=(1000, -1)), weights=np.ones(5))
+
+
+def test_zarr_store_on_disk(client, tmp_path):
+    # data written to a zarr store on disk and read back lazily by the
+    # workers (the SPEC, "Beyond one machine": np.memmap / zarr inputs)
+    zarr = pytest.importorskip("zarr")
+    x = _ball(5000, 3, 9)
+    lab = np.arange(5000) % 4
+    store = str(tmp_path / "points.zarr")
+    da.to_zarr(da.from_array(x, chunks=(1250, -1)), store)
+    dx = da.from_zarr(store)
+    assert isinstance(zarr.open_array(store, mode="r"), zarr.Array)
+    got = gk.dask.frechet_mean(dx, labels=lab)
+    ref = gk.frechet_mean(x, labels=lab)
+    assert _gap(got.mean, ref.mean, "poincare") <= 1e-13
+    km = gk.dask.KMeans(4, init=x[:4], tol=0).fit(dx)
+    assert np.array_equal(km.labels_.compute(), gk.KMeans(4, init=x[:4], tol=0).fit(x).labels_)
+    idx, dist = dask.compute(*gk.dask.knn(dx, 3))
+    assert np.array_equal(idx, gk.knn(x, 3)[0])
