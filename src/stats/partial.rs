@@ -95,6 +95,7 @@ impl Driver {
     /// A driver already in Newton's iteration at `nt`'s starting point (the
     /// warm start of k-means' intermediate centres). A group whose
     /// statistics have no weight ends without a result.
+    #[cfg_attr(not(feature = "python"), allow(dead_code))] // called by the pyo3 layer only
     pub(crate) fn from_newton(nt: Newton) -> Driver {
         Driver { phase: Phase::Newton(Box::new(nt)), first: None, newton: None }
     }
