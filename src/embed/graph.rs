@@ -114,62 +114,9 @@ const MAX_HALVINGS: usize = 64;
 
 // ------------------------------------------------------------------ random
 
-/// One SplitMix64 step (Steele, Lea and Flood, "Fast splittable
-/// pseudorandom number generators", OOPSLA 2014).
-#[inline(always)]
-fn splitmix64(state: &mut u64) -> u64 {
-    *state = state.wrapping_add(0x9e37_79b9_7f4a_7c15);
-    let mut z = *state;
-    z = (z ^ (z >> 30)).wrapping_mul(0xbf58_476d_1ce4_e5b9);
-    z = (z ^ (z >> 27)).wrapping_mul(0x94d0_49bb_1331_11eb);
-    z ^ (z >> 31)
-}
-
-/// xoshiro256** (Blackman and Vigna, "Scrambled linear pseudorandom number
-/// generators", ACM TOMS 2021), its state filled by SplitMix64 from the
-/// seed, as the authors recommend. Used for the starting points and the
-/// per-epoch shuffles.
-#[derive(Clone, Debug)]
-pub struct Xoshiro {
-    s: [u64; 4],
-}
-
-impl Xoshiro {
-    pub fn new(seed: u64) -> Xoshiro {
-        let mut st = seed;
-        Xoshiro { s: [splitmix64(&mut st), splitmix64(&mut st), splitmix64(&mut st), splitmix64(&mut st)] }
-    }
-
-    pub fn next_u64(&mut self) -> u64 {
-        let s = &mut self.s;
-        let result = s[1].wrapping_mul(5).rotate_left(7).wrapping_mul(9);
-        let t = s[1] << 17;
-        s[2] ^= s[0];
-        s[3] ^= s[1];
-        s[1] ^= s[2];
-        s[0] ^= s[3];
-        s[2] ^= t;
-        s[3] = s[3].rotate_left(45);
-        result
-    }
-
-    /// Uniform in [0, 1): the top 53 bits times 2^-53.
-    pub fn uniform(&mut self) -> f64 {
-        (self.next_u64() >> 11) as f64 * (1.0 / 9007199254740992.0)
-    }
-
-    /// Uniform in `0..m` (`m >= 1`), unbiased (Lemire's multiply-shift with
-    /// rejection).
-    pub fn below(&mut self, m: u64) -> u64 {
-        let threshold = m.wrapping_neg() % m;
-        loop {
-            let p = u128::from(self.next_u64()) * u128::from(m);
-            if (p as u64) >= threshold {
-                return (p >> 64) as u64;
-            }
-        }
-    }
-}
+// The generator of the starting points and the per-epoch shuffles is the
+// library's xoshiro256** seeded by SplitMix64 (`numeric::rng`).
+use crate::numeric::rng::{splitmix64, Rng};
 
 /// The stream of one positive: SplitMix64 started from a hash of
 /// `(seed, epoch, position in the epoch)`, so that its negatives do not
@@ -696,7 +643,7 @@ pub struct Trainer {
     /// The positives, shuffled in place at the start of every epoch (read in
     /// sequence, not through an index).
     order: Vec<[u32; 2]>,
-    rng: Xoshiro,
+    rng: Rng,
     epoch: usize,
     pos: usize,
     loss_sum: f64,
@@ -729,7 +676,7 @@ impl Trainer {
         let n = graph.n;
         let w = lay.width();
         let mut rec = vec![0.0; n * w];
-        let mut rng = Xoshiro::new(p.seed);
+        let mut rng = Rng::new(p.seed);
         let mut x = vec![0.0; p.dim];
         let mut pt = vec![0.0; p.dim + 1];
         for i in 0..n {
@@ -1159,7 +1106,7 @@ mod tests {
         // reference: poincare::exp_map_g (the double-double exponential map,
         // itself checked against mpmath in tests/python); random points and
         // steps up to the fast path's limit (common practice)
-        let mut rng = Xoshiro::new(7);
+        let mut rng = Rng::new(7);
         for kv in [-1.0, -0.25, -9.0] {
             let k = Curvature::new(kv).unwrap();
             let mut worst = 0.0f64;
