@@ -113,7 +113,9 @@ def graph(
     in Nickel & Kiela's experiments (half the work per epoch).
 
     For every positive ``(u, v)``, ``negatives`` nodes are drawn uniformly among those not
-    adjacent to ``u`` (in either direction), and the loss is
+    adjacent to ``u`` (in either direction; with ``directed=True``, among the
+    nodes ``w`` without a row ``(u, w)``, as in Nickel & Kiela's loss, so a
+    descendant of ``u`` in a hierarchy's closure can be drawn), and the loss is
     ``-log(exp(-d(u, v)) / sum over {v} and the negatives of exp(-d(u, w)))``,
     distances in the metric of ``curvature``. Each step is the model's exact
     exponential map of ``-learning_rate`` times the Riemannian gradient (the

@@ -21,12 +21,13 @@ class Reconstruction:
     """Result of :func:`reconstruction`.
 
     ``mean_average_precision``: mean over the nodes with neighbours of their
-    average precision. ``mean_rank``: mean over both directions of every
-    edge. ``nodes``: the nodes with at least one neighbour (int64,
+    average precision. ``mean_rank``: mean over the edges ranked (both
+    directions of every undirected edge; every distinct arc of a directed
+    graph). ``nodes``: the nodes with at least one neighbour (int64,
     ascending; the average precision is undefined for the others), and
     ``average_precision`` the average precision of each of them.
-    ``ranked_edges``: directed edges ranked (twice the distinct undirected
-    edges).
+    ``ranked_edges``: edges ranked (twice the distinct undirected edges, or
+    the distinct arcs).
     """
 
     mean_average_precision: float
@@ -90,13 +91,22 @@ def _npoints(x: Any) -> Optional[int]:
     return int(shape[0]) if shape is not None and len(shape) >= 1 else None
 
 
-def reconstruction(x: Any, edges: Any, *, model: str = "poincare", curvature: float = -1.0) -> Reconstruction:
+def reconstruction(
+    x: Any, edges: Any, *, model: str = "poincare", curvature: float = -1.0, directed: bool = False
+) -> Reconstruction:
     """Graph reconstruction scores of the points ``x`` (``(n, d)``, row ``i``
-    the point of node ``i``) for an undirected graph (Nickel & Kiela 2017).
+    the point of node ``i``) for a graph (Nickel & Kiela 2017).
 
     ``edges``: an ``(m, 2)`` integer array of node pairs, or a networkx
-    graph whose nodes are the integers ``0..n-1``. Every edge is undirected;
-    repeated edges and both directions of one edge count once. A node out of
+    graph whose nodes are the integers ``0..n-1``. By default every edge is
+    undirected: repeated edges and both directions of one edge count once,
+    and ``N(u)`` is the set of ``u``'s neighbours. With ``directed=True``
+    each row ``(u, v)`` is an arc and ``N(u)`` the set of its targets
+    ``{v : (u, v) a row}`` (repeated rows count once): every other node,
+    including one with an arc to ``u``, ranks as a non-neighbour. For a
+    hierarchy's closure given as ``(descendant, ancestor)`` rows this is
+    the protocol behind Nickel & Kiela's WordNet figures: each observed
+    ``(u, v)`` ranked among ``{v' : (u, v') not observed}``. A node out of
     range, a self-loop or no edge at all is a ``ValueError`` naming the row
     (or node).
 
@@ -108,9 +118,10 @@ def reconstruction(x: Any, edges: Any, *, model: str = "poincare", curvature: fl
       neighbours among the nodes at distance ``<= d(u, v)``. Exact ties count
       against (every node tied with ``v`` ranks at or above it), as in
       scikit-learn's ``label_ranking_average_precision_score``;
-    * ``mean_rank``: mean over edges ``(u, v)``, each undirected edge counted
-      in both directions, of ``1 + #{non-neighbours w != u of u with
-      d(u, w) < d(u, v)}`` (strict: ties do not count against).
+    * ``mean_rank``: mean over edges ``(u, v)`` (each undirected edge counted
+      in both directions; each distinct arc once) of ``1 + #{non-neighbours
+      w != u of u with d(u, w) < d(u, v)}`` (strict: ties do not count
+      against).
 
     Distances are compared as the library's kernels compute them (through
     ``sinh(d/2R)^2``, monotone in ``d``, bit-identical to
@@ -121,8 +132,10 @@ def reconstruction(x: Any, edges: Any, *, model: str = "poincare", curvature: fl
     threads.
     """
     c = real("curvature", curvature)
+    if not isinstance(directed, (bool, np.bool_)):
+        raise TypeError(f"directed must be True or False, got {directed!r}")
     e = _index_pairs("edges", edges, _npoints(x))
-    m, r, ap, _, ranked = _native.reconstruction(x, e, model, c)
+    m, r, ap, _, ranked = _native.reconstruction(x, e, model, c, bool(directed))
     # The core marks the nodes without neighbours with NaN; they are left
     # out here rather than handed on as NaN.
     nodes = np.flatnonzero(~np.isnan(ap)).astype(np.int64)

@@ -99,3 +99,18 @@ unsafe fn avx2_fma<R>(f: impl FnOnce() -> R) -> R {
 pub fn baseline<R>(f: impl FnOnce() -> R) -> R {
     f()
 }
+
+/// A hint to bring the cache line holding `p` into the caches ahead of a
+/// load (for gathers from large arrays at random indices). Never changes a
+/// result; a no-op where the architecture has no such instruction here.
+#[inline(always)]
+pub fn prefetch<T>(p: *const T) {
+    #[cfg(target_arch = "x86_64")]
+    // SAFETY: PREFETCHT0 is a hint: it never faults and has no architectural
+    // effect, whatever the address (SSE, part of the x86-64 baseline).
+    unsafe {
+        std::arch::x86_64::_mm_prefetch(p as *const i8, std::arch::x86_64::_MM_HINT_T0)
+    }
+    #[cfg(not(target_arch = "x86_64"))]
+    let _ = p;
+}

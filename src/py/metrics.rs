@@ -24,13 +24,14 @@ fn index_pairs(a: &PyReadonlyArray2<'_, i64>, name: &str) -> PyResult<Vec<i64>> 
 
 /// `(mean_average_precision, mean_rank, average_precision (n,), ranked_nodes, ranked_edges)`.
 #[pyfunction]
-#[pyo3(signature = (x, edges, model = "poincare", curvature = -1.0))]
+#[pyo3(signature = (x, edges, model = "poincare", curvature = -1.0, directed = false))]
 fn reconstruction<'py>(
     py: Python<'py>,
     x: &Bound<'py, PyAny>,
     edges: PyReadonlyArray2<'py, i64>,
     model: &str,
     curvature: f64,
+    directed: bool,
 ) -> PyResult<(f64, f64, Py<PyAny>, usize, usize)> {
     let c = Curvature::new(curvature)?;
     let md = Model::parse(model, "model")?;
@@ -39,7 +40,7 @@ fn reconstruction<'py>(
     let xd = xa.data();
     let r = py.detach(move || -> crate::error::Result<_> {
         let px = Prepared::new(md, c, "x", &xd)?;
-        let adj = Adjacency::from_edges(px.n, &e)?;
+        let adj = Adjacency::from_edges(px.n, &e, directed)?;
         reconstruction_core(&px, &adj)
     })?;
     Ok((

@@ -72,6 +72,44 @@ def test_random_graph_matches_sklearn_and_brute_force(model):
     assert r.ranked_edges == int(a.sum())
 
 
+@pytest.mark.parametrize("model", ["poincare", "hyperboloid"])
+def test_directed_graph_matches_sklearn_and_brute_force(model):
+    # directed=True: N(u) = the targets of u's rows only (Nickel & Kiela
+    # 2017, sec. 4.1: each observed (u, v) ranked among {v' : (u, v') not
+    # observed}); the same references on the one-way adjacency matrix
+    rng = np.random.default_rng(31)
+    n, dim = 143, 4
+    p = ball_points(rng, n, dim, 3.0)
+    p[5:9] = p[0:4]
+    x = to_model(p, model)
+    e = rng.integers(0, n, (400, 2))
+    e = e[e[:, 0] != e[:, 1]]
+    # a node with many targets, rows repeated, and both directions of a pair
+    e = np.vstack([e, np.column_stack([np.full(30, 7), np.arange(60, 90)]), e[:5], [[1, 2], [2, 1]]])
+    r = gk.metrics.reconstruction(x, e, model=model, directed=True)
+    d = gk.distance_matrix(x, model=model)
+    a = np.zeros((n, n), dtype=bool)
+    a[e[:, 0], e[:, 1]] = True
+    m, mr, per = _reference(d, a)
+    assert r.mean_average_precision == pytest.approx(m, rel=1e-12)
+    assert r.mean_rank == pytest.approx(mr, rel=1e-12)
+    has = a.any(axis=1)
+    np.testing.assert_array_equal(r.nodes, np.flatnonzero(has))
+    np.testing.assert_allclose(r.average_precision, per[has], rtol=1e-12)
+    assert r.ranked_edges == int(a.sum())
+    # a node pointing at u ranks against u's targets in the directed score
+    # only: on a chain 0 -> 1 -> 2 placed 0, 1, 2 along a line, node 1's only
+    # target 2 is as far as node 0 (a non-neighbour when directed)
+    xc = np.array([[-0.5, 0.0], [0.0, 0.0], [0.5, 0.0]])
+    ch = np.array([[0, 1], [1, 2]])
+    assert gk.metrics.reconstruction(xc, ch).mean_rank == 1.0
+    rd = gk.metrics.reconstruction(xc, ch, directed=True)
+    assert rd.ranked_edges == 2 and rd.mean_rank == 1.0
+    assert rd.average_precision.tolist() == [1.0, 0.5]  # the tie with node 0 counts against
+    with pytest.raises(TypeError, match="directed"):
+        gk.metrics.reconstruction(xc, ch, directed="yes")
+
+
 def test_ties_with_neighbours_and_non_neighbours():
     # Five points on a line in the disc; node 0's neighbours are 1 and 3,
     # and node 2 duplicates node 1, node 4 duplicates node 3.
