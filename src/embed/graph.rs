@@ -199,7 +199,9 @@ impl Graph {
             }
             let (u, v) = (u as usize, v as usize);
             deg[u] += 1;
-            deg[v] += 1;
+            if !directed {
+                deg[v] += 1;
+            }
             out.push([u as u32, v as u32]);
         }
         let mut off = vec![0usize; n + 1];
@@ -1123,6 +1125,10 @@ mod tests {
     fn kth_non_neighbour_enumerates_the_complement() {
         // reference: a direct scan of 0..n (common practice)
         let edges = [[0i64, 3], [3, 5], [5, 0], [7, 3], [1, 3]];
+        // directed: a node's negatives exclude its targets only (Nickel &
+        // Kiela 2017, N(u) = {v' : (u, v') not in D}); undirected: both ways
+        assert_eq!(Graph::new(9, &edges, true).unwrap().excluded(3), &[3, 5]);
+        assert_eq!(Graph::new(9, &edges, false).unwrap().excluded(3), &[0, 1, 3, 5, 7]);
         let g = Graph::new(9, &edges, true).unwrap();
         for u in 0..9 {
             let ex = g.excluded(u);
