@@ -95,7 +95,7 @@
 
 use rayon::prelude::*;
 
-use crate::error::{value_err, Error, Result};
+use crate::error::{row_error, value_err, Error, Result};
 use crate::models::ball::{checked_gap, settle, Curvature};
 use crate::models::hyperboloid::{self, MAX_SPATIAL_SQ};
 use crate::models::{poincare, Model};
@@ -761,10 +761,7 @@ impl Trainer {
                 *c = (2.0 * rng.uniform() - 1.0) * p.init * k.radius;
             }
             if model == Model::Hyperboloid {
-                // x_s = 2p/g, x0 from it
-                let g = gap(k.kappa, &x);
-                let xs: Vec<f64> = x.iter().map(|v| 2.0 * v / g).collect();
-                hyperboloid::write_point(&k, &xs, &mut pt);
+                hyperboloid::from_poincare(&k, &x, gap(k.kappa, &x), &mut pt);
                 lay.store(&k, &pt, &mut rec[i * w..(i + 1) * w])
             } else {
                 lay.store(&k, &x, &mut rec[i * w..(i + 1) * w])
@@ -1078,7 +1075,7 @@ pub fn loss_and_gradient(
     let mut rec = vec![0.0; nodes.len() * w];
     for (j, &i) in nodes.iter().enumerate() {
         lay.store(&k, &points[i * ow..(i + 1) * ow], &mut rec[j * w..(j + 1) * w])
-            .map_err(|f| Error::Value(format!("points: row {i} is not a valid point ({f:?})")))?;
+            .map_err(|f| row_error("points", &[n, ow], &[i], f, false))?;
     }
     let ctx = Ctx { lay, k, s: pair_scale(model, &k), rec: &rec };
     let ids: Vec<u32> = (0..nodes.len() as u32).collect();
