@@ -30,6 +30,17 @@
 //!    for `tol > 0`), or after `max_iter` updates; the last assignment gives
 //!    `labels` and `inertia`.
 //!
+//! Each Lloyd iteration makes one fused pass over the points (assignment,
+//! distances, and the Newton statistics of every cluster at its current
+//! centre: the first Newton step of the next update), plus one pass of
+//! statistics per further Newton step (usually one; none once the first
+//! step is below `INTERMEDIATE_LAST_STEP`). The passes read the points
+//! transposed (once per fit), 16 at a time: the assignment keeps the
+//! squared distances of a block to every centre in registers; the
+//! statistics are summed per cluster over 16 members at a time (members
+//! grouped by a counting sort per chunk), lane by lane, and the lanes added
+//! in order at the end of the chunk.
+//!
 //! Randomness comes from [`Rng`] (xoshiro256**), one generator per run
 //! seeded with a 64-bit seed given by the caller, so runs are independent and
 //! reproducible. Every reduction runs over fixed chunks summed in order:
@@ -765,7 +776,10 @@ fn lloyd(pts: &UnitPoints, soa: &Soa, mut cen: Centres, p: &Params, threshold: f
     let mut history = vec![inertia0];
     let mut n_iter = 0;
     for _ in 0..p.max_iter {
-        if repair(pts, &mut labels, &mut dist, &mut cen) {
+        // The gathered statistics count each cluster's points (`wsum`, exact
+        // integers): no empty cluster, nothing to repair.
+        let full = gathered.as_ref().is_some_and(|st| st.iter().all(|s| s.wsum > 0.0));
+        if !full && repair(pts, &mut labels, &mut dist, &mut cen) {
             gathered = None; // clusters and centres changed: statistics from scratch
         }
         let means = update(soa, &labels, &cen, gathered.take());
