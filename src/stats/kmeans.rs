@@ -62,10 +62,12 @@ use crate::pairwise::{scaled_h, seq_dist_sq};
 /// Points per parallel chunk of the seeding (fixed: results never depend on
 /// threads; the running sums of the D^2 draw are grouped by it).
 const SEED_CHUNK: usize = 4096;
-/// Points per parallel chunk of the Lloyd passes (fixed; small enough that
-/// two threads share 36 chunks evenly, large enough to amortise the per-chunk
-/// cluster sums).
-const CHUNK: usize = 1024;
+/// Points per parallel chunk of the Lloyd passes (fixed: results never
+/// depend on threads; a power of two). Large enough that the partly filled
+/// last block of each cluster wastes few lanes and the per-chunk cluster
+/// sums cost little, small enough that two threads share 18 chunks of
+/// 36 607 points evenly.
+const CHUNK: usize = 2048;
 /// Points per block of the fused kernels: two AVX-512 registers of lanes
 /// (four AVX2 ones), so that the long dependency chain of one point's
 /// statistics (division, square root, logarithm) overlaps with 15 others
