@@ -615,12 +615,24 @@ fn assign(
                             lab[bi * B + l] = lb[l];
                         }
                     }
-                    let mut s = 0.0;
-                    for r in 0..len {
-                        lc[r] = lab[r];
-                        dc[r] = k.radius * du[r];
-                        s += dc[r] * dc[r];
+                    lc.copy_from_slice(&lab[..len]);
+                    for (o, &u) in dc.iter_mut().zip(&du[..len]) {
+                        *o = k.radius * u;
                     }
+                    // squares summed in B running lanes (not one chain of
+                    // dependent additions), the lanes added in order
+                    let mut sl = [0f64; B];
+                    let mut blocks = dc.chunks_exact(B);
+                    for blk in &mut blocks {
+                        let blk: &[f64; B] = blk.try_into().expect("B lanes");
+                        for l in 0..B {
+                            sl[l] = blk[l].mul_add(blk[l], sl[l]);
+                        }
+                    }
+                    for (a, &v) in sl.iter_mut().zip(blocks.remainder()) {
+                        *a = v.mul_add(v, *a);
+                    }
+                    let s = sl.iter().fold(0.0, |x, y| x + y);
                     if gather {
                         let mut sc = Scratch::new(nc, d);
                         chunk_stats(soa, i0, &lab[..len], Some(&du), &cen.c, &cen.g, &need, &mut sums, &mut sc);
