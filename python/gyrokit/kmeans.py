@@ -117,8 +117,8 @@ class KMeans:
         or more rarely keeps one, at that many times the cost. Cost of one
         run, 10 clusters, against scikit-learn's Euclidean ``KMeans`` with
         the same parameters and one thread each (``benches/bench_kmeans.py``,
-        figures in the README): 3.7 times its time on 36 607 points at
-        d = 10, 1.6 to 2.3 times on 1 000 000 points at d = 2 (hyperbolic
+        figures in the README): 3.6 times its time on 36 607 points at
+        d = 10, 1.7 to 2.3 times on 1 000 000 points at d = 2 (hyperbolic
         Lloyd also takes more iterations than Euclidean Lloyd on these data).
     max_iter : int, default 100
         Maximum number of Lloyd updates per run.
