@@ -18,16 +18,19 @@ Configurations, ``n_clusters=10``, k-means++ seeding, ``random_state=0``
 * ``default tol, n_init=1``: each library's default stop rule (gyrokit:
   ``tol=1e-4`` relative to the data's spread; scikit-learn: ``tol=1e-4``
   relative to the mean per-feature variance), one run each.
-* ``defaults``: each library's defaults (gyrokit: ``n_init=4``;
-  scikit-learn: ``n_init="auto"`` = 1 run for k-means++).
+* ``defaults``: each library's defaults (gyrokit: ``n_init="auto"``;
+  scikit-learn: ``n_init="auto"``; both 1 run for k-means++).
 
 Each fit is timed twice, alternating the libraries, and the faster time of
 each is kept; the ratio gk/sklearn is printed beside the times, with the
-iteration counts. Threads: gyrokit uses rayon (``RAYON_NUM_THREADS``,
-default all cores), scikit-learn OpenMP (``OMP_NUM_THREADS``, default all
-cores).
+iteration counts. Threads: gyrokit uses rayon (``RAYON_NUM_THREADS``),
+scikit-learn OpenMP (``OMP_NUM_THREADS``); both default to all cores, and
+``--threads N`` sets both to N (read before either library starts its
+threads). On a machine shared with another busy job, OpenMP's spinning
+threads lose much of their time when there are fewer free cores than
+threads: compare with ``--threads 1`` too.
 
-Run: ``.venv/bin/python benches/bench_kmeans.py [--repeat N] [--only small|large]``.
+Run: ``.venv/bin/python benches/bench_kmeans.py [--repeat N] [--only small|large] [--threads N]``.
 """
 
 from __future__ import annotations
@@ -36,9 +39,13 @@ import os
 import sys
 import time
 
-import numpy as np
+if "--threads" in sys.argv:
+    _n = sys.argv[sys.argv.index("--threads") + 1]
+    os.environ["RAYON_NUM_THREADS"] = os.environ["OMP_NUM_THREADS"] = _n
 
-import gyrokit as gk
+import numpy as np  # noqa: E402
+
+import gyrokit as gk  # noqa: E402
 
 
 def ball_points(rng, n, d, max_radius=3.0):
@@ -48,7 +55,17 @@ def ball_points(rng, n, d, max_radius=3.0):
     return v * np.tanh(rng.uniform(0, max_radius, n) / 2)[:, None]
 
 
-from bench_centroids import taxonomy  # noqa: E402 - the same invented taxonomy (this script's folder is on sys.path)
+# The same invented taxonomy as bench_centroids (this script's folder is on
+# sys.path). That module pins the BLAS/OpenMP threads to 1 for its NumPy
+# baselines when imported; here scikit-learn keeps the threads it is given.
+_saved = {v: os.environ.get(v) for v in ("OPENBLAS_NUM_THREADS", "OMP_NUM_THREADS", "MKL_NUM_THREADS", "BLIS_NUM_THREADS")}
+from bench_centroids import taxonomy  # noqa: E402
+
+for _v, _val in _saved.items():
+    if _val is None:
+        os.environ.pop(_v, None)
+    else:
+        os.environ[_v] = _val
 
 
 def main(argv):

@@ -108,13 +108,18 @@ class KMeans:
         Sectional curvature K < 0.
     init : "k-means++", "random" or array (n_clusters, width)
         Seeding; see the module docstring.
-    n_init : int or "auto", default 4
+    n_init : int or "auto", default "auto"
         Number of seeded runs; the one with the lowest inertia is kept
         (ignored, i.e. 1, when ``init`` is an array). ``"auto"``: 1 run with
-        ``init="k-means++"``, 10 with ``init="random"`` (scikit-learn's rule
-        for its default ``n_init="auto"``; one k-means++ run can end in a
-        local optimum that merges two separated clusters, which the default
-        of 4 runs rarely keeps).
+        ``init="k-means++"``, 10 with ``init="random"`` (the rule of
+        scikit-learn's default ``n_init="auto"``). One k-means++ run can end
+        in a local optimum that merges two separated clusters; ``n_init=4``
+        or more rarely keeps one, at that many times the cost. Cost of one
+        run, 10 clusters, against scikit-learn's Euclidean ``KMeans`` with
+        the same parameters and one thread each (``benches/bench_kmeans.py``,
+        figures in the README): 3.6 times its time on 36 607 points at
+        d = 10, 1.7 to 2.3 times on 1 000 000 points at d = 2 (hyperbolic
+        Lloyd also takes more iterations than Euclidean Lloyd on these data).
     max_iter : int, default 100
         Maximum number of Lloyd updates per run.
     tol : float, default 1e-4
@@ -142,7 +147,7 @@ class KMeans:
         model: str = "poincare",
         curvature: float = -1.0,
         init: Any = "k-means++",
-        n_init: Any = 4,
+        n_init: Any = "auto",
         max_iter: int = 100,
         tol: float = 1e-4,
         random_state: Any = None,

@@ -89,7 +89,8 @@ def overlapping(rng, n, d):
 def test_recovers_separated_blobs(d, n_blobs):
     rng = np.random.default_rng(100 + d)
     X, y, _ = blobs(rng, n_blobs, 150, d)
-    km = KMeans(n_blobs, random_state=1).fit(X)
+    # n_init=4: the best of four runs (one k-means++ run can merge two blobs)
+    km = KMeans(n_blobs, random_state=1, n_init=4).fit(X)
     assert ari(y, km.labels_) == 1.0
     # Each centre is the Fréchet mean of its cluster (the fixed point of Lloyd).
     ref = gk.frechet_mean(X, labels=km.labels_).mean
@@ -102,9 +103,9 @@ def test_recovers_separated_blobs(d, n_blobs):
 def test_every_model_same_clustering(model):
     rng = np.random.default_rng(7)
     X, y, _ = blobs(rng, 4, 100, 3)
-    base = KMeans(4, random_state=3).fit(X)
+    base = KMeans(4, random_state=3, n_init=4).fit(X)
     Xm = X if model == "poincare" else gk.convert(X, "poincare", model)
-    km = KMeans(4, model=model, random_state=3).fit(Xm)
+    km = KMeans(4, model=model, random_state=3, n_init=4).fit(Xm)
     assert ari(y, km.labels_) == 1.0
     np.testing.assert_array_equal(km.labels_, base.labels_)
     width = 4 if model == "hyperboloid" else 3
@@ -122,7 +123,7 @@ def test_other_curvature():
     K = -4.0
     rng = np.random.default_rng(11)
     X, y, _ = blobs(rng, 3, 120, 4, curvature=K)
-    km = KMeans(3, curvature=K, random_state=0).fit(X)
+    km = KMeans(3, curvature=K, random_state=0, n_init=4).fit(X)
     assert ari(y, km.labels_) == 1.0
     ref = gk.frechet_mean(X, labels=km.labels_, curvature=K).mean
     np.testing.assert_allclose(km.cluster_centers_, ref, rtol=0, atol=1e-12)
@@ -313,7 +314,7 @@ def test_get_set_params():
     km = KMeans(3, model="klein", tol=1e-8)
     p = km.get_params()
     assert p == {
-        "n_clusters": 3, "model": "klein", "curvature": -1.0, "init": "k-means++", "n_init": 4,
+        "n_clusters": 3, "model": "klein", "curvature": -1.0, "init": "k-means++", "n_init": "auto",
         "max_iter": 100, "tol": 1e-8, "random_state": None,
     }
     assert KMeans(3).tol == 1e-4  # the default of scikit-learn's KMeans too (its docs)

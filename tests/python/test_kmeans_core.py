@@ -67,7 +67,8 @@ def cloud(rng, n, d, rmax=4.0):
     return np.tanh(rng.uniform(0, rmax, n) / 2)[:, None] * u
 
 
-@pytest.mark.parametrize("n,d,k,max_iter", [(3000, 3, 12, 300), (5000, 10, 10, 300), (2000, 2, 7, 3), (400, 2, 3, 50)])
+@pytest.mark.parametrize("n,d,k,max_iter", [(3000, 3, 12, 300), (5000, 10, 10, 300), (2000, 2, 7, 3), (400, 2, 3, 50),
+                                             (4500, 20, 6, 300)])
 @pytest.mark.parametrize("tol", [1e-4, 0.0])
 def test_core_matches_reference_lloyd(n, d, k, max_iter, tol):
     rng = np.random.default_rng(n + d)
