@@ -48,6 +48,17 @@ def _reference(d, a):
     return m, float(np.mean(ranks)), per_node
 
 
+def _assert_matches_reference(r, d, a):
+    """``r`` against :func:`_reference` on distances ``d`` and adjacency ``a``."""
+    m, mr, per = _reference(d, a)
+    assert r.mean_average_precision == pytest.approx(m, rel=1e-12)
+    assert r.mean_rank == pytest.approx(mr, rel=1e-12)
+    has = a.any(axis=1)
+    np.testing.assert_array_equal(r.nodes, np.flatnonzero(has))
+    np.testing.assert_allclose(r.average_precision, per[has], rtol=1e-12)
+    assert r.ranked_edges == int(a.sum())
+
+
 @pytest.mark.parametrize("model", MODELS)
 def test_random_graph_matches_sklearn_and_brute_force(model):
     rng = np.random.default_rng(7 + MODELS.index(model))
@@ -63,13 +74,7 @@ def test_random_graph_matches_sklearn_and_brute_force(model):
     r = gk.metrics.reconstruction(x, e, model=model)
     d = gk.distance_matrix(x, model=model)
     a = _adjacency(n, e)
-    m, mr, per = _reference(d, a)
-    assert r.mean_average_precision == pytest.approx(m, rel=1e-12)
-    assert r.mean_rank == pytest.approx(mr, rel=1e-12)
-    has = a.any(axis=1)
-    np.testing.assert_array_equal(r.nodes, np.flatnonzero(has))
-    np.testing.assert_allclose(r.average_precision, per[has], rtol=1e-12)
-    assert r.ranked_edges == int(a.sum())
+    _assert_matches_reference(r, d, a)
 
 
 @pytest.mark.parametrize("model", ["poincare", "hyperboloid"])
@@ -90,13 +95,7 @@ def test_directed_graph_matches_sklearn_and_brute_force(model):
     d = gk.distance_matrix(x, model=model)
     a = np.zeros((n, n), dtype=bool)
     a[e[:, 0], e[:, 1]] = True
-    m, mr, per = _reference(d, a)
-    assert r.mean_average_precision == pytest.approx(m, rel=1e-12)
-    assert r.mean_rank == pytest.approx(mr, rel=1e-12)
-    has = a.any(axis=1)
-    np.testing.assert_array_equal(r.nodes, np.flatnonzero(has))
-    np.testing.assert_allclose(r.average_precision, per[has], rtol=1e-12)
-    assert r.ranked_edges == int(a.sum())
+    _assert_matches_reference(r, d, a)
     # a node pointing at u ranks against u's targets in the directed score
     # only: on a chain 0 -> 1 -> 2 placed 0, 1, 2 along a line, node 1's only
     # target 2 is as far as node 0 (a non-neighbour when directed)
