@@ -138,6 +138,7 @@ def run(args, model: str, names, pairs) -> Dict[str, float]:
         learning_rate=args.lr, burn_in=args.burn_in, batch_size=args.batch_size, seed=args.seed,
         n_nodes=len(names), progress=args.progress, node_steps=args.node_steps, schedule=args.schedule,
         burn_in_factor=args.burn_in_factor, curvature=args.curvature,
+        degree_epochs=args.degree_epochs, degree_power=args.degree_power,
     )
     train = time.perf_counter() - t
     cpu = time.process_time() - c
@@ -149,7 +150,8 @@ def run(args, model: str, names, pairs) -> Dict[str, float]:
     out = {
         "model": model, "dim": args.dim, "epochs": emb.epochs, "negatives": args.negatives, "lr": args.lr,
         "burn_in": args.burn_in, "batch_size": args.batch_size, "node_steps": args.node_steps,
-        "schedule": args.schedule, "curvature": args.curvature, "train_s": train, "train_cpu_s": cpu, "eval_s": ev,
+        "schedule": args.schedule, "curvature": args.curvature, "degree_epochs": args.degree_epochs,
+        "degree_power": args.degree_power, "train_s": train, "train_cpu_s": cpu, "eval_s": ev,
         "positives_per_s_per_core": positives / train / threads, "positives_per_cpu_s": positives / cpu,
         "threads": threads,
         "final_loss": float(emb.loss[-1]) if len(emb.loss) else float("nan"), **m,
@@ -192,6 +194,8 @@ def main() -> None:
     ap.add_argument("--burn-in-factor", type=float, default=0.1)
     ap.add_argument("--node-steps", default="sum", choices=("sum", "mean"))
     ap.add_argument("--schedule", default="constant", choices=("constant", "linear"))
+    ap.add_argument("--degree-epochs", type=int, default=0, help="epochs of degree-weighted negatives")
+    ap.add_argument("--degree-power", type=float, default=0.75)
     ap.add_argument("--seed", type=int, default=0)
     ap.add_argument("--curvature", type=float, default=-1.0)
     ap.add_argument("--progress", action="store_true", default=None)

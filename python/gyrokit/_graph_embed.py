@@ -96,6 +96,8 @@ def graph(
     directed: bool = False,
     node_steps: str = "sum",
     schedule: str = "constant",
+    degree_epochs: int = 0,
+    degree_power: float = 0.75,
 ) -> Embedding:
     """Learn an embedding of a graph by Riemannian SGD on the ranking loss of
     Nickel & Kiela (2017; hyperboloid: 2018).
@@ -132,6 +134,23 @@ def graph(
     closure the nodes near the root take part in a large share of all
     positives, and their summed steps overshoot at large batches and rates;
     ``"mean"`` allows both to grow (see the benchmark figures in the README).
+
+    ``degree_epochs``: during the first ``degree_epochs`` epochs the
+    negatives of ``u`` are drawn with probability proportional to
+    ``c ** degree_power`` among its admissible ones, ``c`` a node's number of
+    positives (its degree; the exponent 0.75 is the convention of word2vec's
+    negative sampling), by Walker's alias method, a draw excluded for ``u``
+    drawn again; afterwards uniformly. Early on this confronts every node
+    with the hubs of the graph. Measured (d = 10, 10 negatives, rate 0.5
+    decaying linearly, 2 epochs of burn-in; directed / undirected protocol
+    of ``gyrokit.metrics.reconstruction``): on the WordNet ``animal``
+    subtree (4017 nodes, 60 epochs) the mean rank went from 11.0 / 31.7 to
+    7.5 / 16.1 with ``degree_epochs=2`` and 7.3 / 14.7 with 5, the mean
+    average precision from 0.855 / 0.832 to 0.865 / 0.844 and 0.866 / 0.852;
+    on all 82 115 WordNet nouns (40 epochs), ``degree_epochs=2`` moved the
+    mean rank from 41.9 / 324 to 39.1 / 210 and the mean average precision
+    from 0.765 / 0.741 to 0.758 / 0.743. ``0`` (the default): uniform
+    negatives throughout.
 
     ``schedule``: ``"constant"`` keeps ``learning_rate`` after burn-in;
     ``"linear"`` lowers it linearly with the positives done, to
@@ -199,6 +218,10 @@ def graph(
     if not (math.isfinite(learning_rate) and learning_rate > 0):
         raise ValueError(f"learning_rate must be a finite positive number, got {learning_rate}")
     burn_in_factor = _args.real("burn_in_factor", burn_in_factor)
+    degree_epochs = _args.count("degree_epochs", degree_epochs, 0)
+    degree_power = _args.real("degree_power", degree_power)
+    if not (math.isfinite(degree_power) and 0.0 <= degree_power <= 4.0):
+        raise ValueError(f"degree_power must lie in [0, 4], got {degree_power}")
     curvature = _args.real("curvature", curvature)
     if not isinstance(directed, (bool, np.bool_)):
         raise TypeError(f"directed must be True or False, got {directed!r}")
@@ -216,7 +239,7 @@ def graph(
 
     trainer = _native.GraphTrainer(
         e, n, dim, model, curvature, negatives, learning_rate, burn_in, burn_in_factor, batch_size, 1e-3, seed,
-        bool(directed), node_steps == "mean", epochs if schedule == "linear" else 0,
+        bool(directed), node_steps == "mean", epochs if schedule == "linear" else 0, degree_epochs, degree_power,
     )
     m = trainer.n_edges
     bar = _progress_bar(progress, epochs * m) if epochs > 0 else None

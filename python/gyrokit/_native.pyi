@@ -154,7 +154,8 @@ class GraphTrainer:
     def __new__(
         cls, edges: Any, n_nodes: int, dim: int, model: str, curvature: float, negatives: int,
         learning_rate: float, burn_in: int, burn_in_factor: float, batch_size: int, init: float, seed: int,
-        directed: bool = False, node_mean: bool = False, decay_epochs: int = 0,
+        directed: bool = False, node_mean: bool = False, decay_epochs: int = 0, degree_epochs: int = 0,
+        degree_power: float = 0.75,
     ) -> GraphTrainer: ...
     def run(self, max_edges: int) -> tuple[int, float | None]: ...
     def points(self) -> Any: ...

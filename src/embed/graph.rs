@@ -112,6 +112,8 @@ const NODE_CHUNK: usize = 128;
 const NONE: u32 = u32::MAX;
 /// Largest number of halvings of one step at the rim.
 const MAX_HALVINGS: usize = 64;
+/// Marks a staged draw whose node is already known (a weighted draw).
+const FOUND: usize = usize::MAX - 1;
 
 // ------------------------------------------------------------------ random
 
@@ -138,6 +140,12 @@ impl Stream {
     fn below(&mut self, m: u64) -> u64 {
         ((u128::from(splitmix64(&mut self.0)) * u128::from(m)) >> 64) as u64
     }
+
+    /// Uniform in `[0, 1)`, a multiple of 2^-53.
+    #[inline(always)]
+    fn uniform(&mut self) -> f64 {
+        (splitmix64(&mut self.0) >> 11) as f64 * (1.0 / 9_007_199_254_740_992.0)
+    }
 }
 
 // ------------------------------------------------------------------- graph
@@ -148,6 +156,8 @@ impl Stream {
 #[derive(Clone, Debug)]
 pub struct Graph {
     pub n: usize,
+    /// Whether the rows were taken as given (else both directions).
+    pub directed: bool,
     pub edges: Vec<[u32; 2]>,
     excl_off: Vec<usize>,
     excl: Vec<u32>,
@@ -256,7 +266,7 @@ impl Graph {
             }
             top_off[i + 1] = top.len();
         }
-        Ok(Graph { n, edges: out, excl_off: new_off, excl, top_off, top })
+        Ok(Graph { n, directed, edges: out, excl_off: new_off, excl, top_off, top })
     }
 
     /// Nodes excluded as negatives of `u` (sorted; `u` included).
@@ -332,6 +342,82 @@ fn partition_point_idx(s: &[u32], lo: usize, hi: usize, k: usize) -> usize {
     lo
 }
 
+// ----------------------------------------------------- weighted negatives
+
+/// Draws of nodes with probability proportional to `c^power`, `c` the
+/// node's number of positives (each undirected edge counts at both ends; a
+/// directed row at both its nodes), by Walker's alias method (Walker 1977;
+/// the table built by Vose's stable procedure, Vose 1991): one index and one
+/// uniform per draw. A draw excluded for `u` is rejected (a binary search in
+/// `u`'s excluded list) and drawn again, up to [`MAX_REJECTIONS`] times, then
+/// one uniform admissible node is taken instead; on a hierarchy's closure the
+/// excluded nodes of a leaf are its ancestors, the heaviest nodes of all, so
+/// a few percent of the draws are rejected.
+#[derive(Clone, Debug)]
+pub struct DegreeSampler {
+    prob: Vec<f64>,
+    alias: Vec<u32>,
+}
+
+/// Draws rejected before [`DegreeSampler`] falls back to a uniform node.
+const MAX_REJECTIONS: usize = 32;
+
+impl DegreeSampler {
+    pub fn new(graph: &Graph, power: f64) -> DegreeSampler {
+        let n = graph.n;
+        let mut count = vec![0u64; n];
+        for &[u, v] in &graph.edges {
+            count[u as usize] += 1;
+            if graph.directed {
+                count[v as usize] += 1;
+            }
+        }
+        let w: Vec<f64> = count.iter().map(|&c| if c == 0 { 0.0 } else { (c as f64).powf(power) }).collect();
+        let total: f64 = w.iter().sum();
+        let mut prob: Vec<f64> = w.iter().map(|x| x * (n as f64 / total)).collect();
+        let mut alias: Vec<u32> = (0..n as u32).collect();
+        let (mut small, mut large): (Vec<usize>, Vec<usize>) = (0..n).partition(|&i| prob[i] < 1.0);
+        while let (Some(&s), Some(&l)) = (small.last(), large.last()) {
+            small.pop();
+            alias[s] = l as u32;
+            prob[l] -= 1.0 - prob[s];
+            if prob[l] < 1.0 {
+                large.pop();
+                small.push(l);
+            }
+        }
+        // What is left has probability 1 up to rounding.
+        for i in large.into_iter().chain(small) {
+            prob[i] = 1.0;
+        }
+        DegreeSampler { prob, alias }
+    }
+
+    /// One node with probability proportional to its weight.
+    #[inline(always)]
+    fn draw(&self, st: &mut Stream) -> u32 {
+        let i = st.below(self.prob.len() as u64) as usize;
+        if st.uniform() < self.prob[i] {
+            i as u32
+        } else {
+            self.alias[i]
+        }
+    }
+
+    /// A weighted draw among `u`'s admissible negatives (`c > 0` of them).
+    #[inline(always)]
+    fn draw_for(&self, graph: &Graph, u: usize, c: usize, st: &mut Stream) -> u32 {
+        let ex = graph.excluded(u);
+        for _ in 0..MAX_REJECTIONS {
+            let w = self.draw(st);
+            if ex.binary_search(&w).is_err() {
+                return w;
+            }
+        }
+        graph.kth_non_neighbour(u, st.below(c as u64) as usize)
+    }
+}
+
 // ------------------------------------------------------------------ params
 
 /// Training parameters (validated by [`Params::check`]).
@@ -358,6 +444,12 @@ pub struct Params {
     /// point), `true` by their mean (at most one positive's step per batch,
     /// whatever the node's degree).
     pub node_mean: bool,
+    /// During the first `degree_epochs` epochs the negatives are drawn
+    /// with probability proportional to `c^degree_power`, `c` the node's
+    /// number of positives (its degree), among `u`'s admissible negatives
+    /// ([`DegreeSampler`]); afterwards uniformly. `0`: uniform throughout.
+    pub degree_epochs: usize,
+    pub degree_power: f64,
     /// `0`: a constant rate after burn-in. Otherwise the rate after burn-in
     /// falls linearly with the positives done, from `learning_rate` at the
     /// end of burn-in to `learning_rate * MIN_RATE_FRACTION` at the end of
@@ -382,6 +474,8 @@ impl Default for Params {
             init: 1e-3,
             seed: 0,
             node_mean: false,
+            degree_epochs: 0,
+            degree_power: 0.75,
             decay_epochs: 0,
         }
     }
@@ -409,6 +503,9 @@ impl Params {
                 "decay_epochs must be 0 (a constant rate) or more than burn_in = {}, got {}",
                 self.burn_in, self.decay_epochs
             ));
+        }
+        if !(self.degree_power.is_finite() && (0.0..=4.0).contains(&self.degree_power)) {
+            return value_err(format!("degree_power must lie in [0, 4], got {}", self.degree_power));
         }
         if !(self.init.is_finite() && self.init > 0.0 && self.init <= 0.5) {
             return value_err(format!("init must lie in (0, 0.5] (units of R), got {}", self.init));
@@ -736,6 +833,8 @@ pub struct Trainer {
     offs: Vec<u32>,
     list: Vec<u32>,
     new_rec: Vec<f64>,
+    /// The weighted draws of the first `degree_epochs` epochs.
+    degree: Option<DegreeSampler>,
 }
 
 impl Trainer {
@@ -769,6 +868,7 @@ impl Trainer {
             .map_err(|_| Error::Value("starting point outside the model".into()))?;
         }
         let order = graph.edges.clone();
+        let degree = (p.degree_epochs > 0).then(|| DegreeSampler::new(&graph, p.degree_power));
         Ok(Trainer {
             lay,
             k,
@@ -790,6 +890,7 @@ impl Trainer {
             offs: Vec::new(),
             list: Vec::new(),
             new_rec: Vec::new(),
+            degree,
             p,
         })
     }
@@ -893,6 +994,7 @@ impl Trainer {
         let ctx = Ctx { lay, k: self.k, s: pair_scale(lay.model, &self.k), rec: &self.rec };
         let graph = &self.graph;
         let (seed, epoch) = (self.p.seed, self.epoch as u64);
+        let weighted = if self.epoch < self.p.degree_epochs { self.degree.as_ref() } else { None };
         // (A) gradients of every positive into its own slots
         let chunk_loss: Vec<f64> = self.order[start..end]
             .par_chunks(EDGE_CHUNK)
@@ -917,7 +1019,10 @@ impl Trainer {
                             let mut st = Stream::new(seed, epoch, pos);
                             ctx.prefetch_node(v);
                             for t in 2..kslots {
-                                if c != 0 {
+                                if let (Some(ds), true) = (weighted, c != 0) {
+                                    // the node itself, marked as found
+                                    kb[j * kslots + t] = (ds.draw_for(graph, u as usize, c, &mut st) as usize, FOUND);
+                                } else if c != 0 {
                                     let k = st.below(c as u64) as usize;
                                     let lo = graph.locate(u as usize, k);
                                     if lo != usize::MAX {
@@ -937,7 +1042,7 @@ impl Trainer {
                                     NONE
                                 } else {
                                     let (k, lo) = kb[j * kslots + t];
-                                    let w = graph.finish(u as usize, k, lo);
+                                    let w = if lo == FOUND { k as u32 } else { graph.finish(u as usize, k, lo) };
                                     ctx.prefetch_node(w);
                                     w
                                 };
@@ -1172,7 +1277,70 @@ mod tests {
         assert!(Graph::new(4, &[], false).is_err());
     }
 
+    #[test]
+    fn degree_draws_follow_the_weights_and_skip_the_excluded() {
+        // A star with a tail: node 0 joined to 1..=5, and 5 - 6 - 7. Counts of
+        // positives (undirected: one per edge end): 0 -> 5, 5 -> 2, 6 -> 2,
+        // 1..=4 and 7 -> 1.
+        let edges = [[0, 1], [0, 2], [0, 3], [0, 4], [0, 5], [5, 6], [6, 7]];
+        let g = Graph::new(8, &edges, false).unwrap();
+        let counts = [5.0f64, 1.0, 1.0, 1.0, 1.0, 2.0, 2.0, 1.0];
+        let power = 0.75;
+        let ds = DegreeSampler::new(&g, power);
+        let total: f64 = counts.iter().map(|c| c.powf(power)).sum();
+        // Unrestricted draws: frequencies against c^power / sum (Walker's
+        // alias method is exact; a binomial 5-sigma band, common practice).
+        let draws = 400_000;
+        let mut st = Stream::new(3, 0, 0);
+        let mut hist = [0usize; 8];
+        for _ in 0..draws {
+            hist[ds.draw(&mut st) as usize] += 1;
+        }
+        for i in 0..8 {
+            let p = counts[i].powf(power) / total;
+            let sd = (draws as f64 * p * (1.0 - p)).sqrt();
+            assert!(
+                (hist[i] as f64 - draws as f64 * p).abs() < 5.0 * sd,
+                "node {i}: {} vs {}",
+                hist[i],
+                draws as f64 * p
+            );
+        }
+        // For u = 6 (excluded: 5, 6, 7) the draws are the weights restricted
+        // to {0, 1, 2, 3, 4}, renormalised.
+        let mut hist = [0usize; 8];
+        let c = g.non_neighbours(6);
+        for _ in 0..draws {
+            hist[ds.draw_for(&g, 6, c, &mut st) as usize] += 1;
+        }
+        assert_eq!(hist[5] + hist[6] + hist[7], 0);
+        let sub: f64 = counts[..5].iter().map(|c| c.powf(power)).sum();
+        for i in 0..5 {
+            let p = counts[i].powf(power) / sub;
+            let sd = (draws as f64 * p * (1.0 - p)).sqrt();
+            assert!((hist[i] as f64 - draws as f64 * p).abs() < 5.0 * sd, "node {i}");
+        }
+        // Power 0: uniform over the nodes with positives.
+        let flat = DegreeSampler::new(&g, 0.0);
+        let mut hist = [0usize; 8];
+        for _ in 0..80_000 {
+            hist[flat.draw(&mut st) as usize] += 1;
+        }
+        assert!(hist.iter().all(|&h| (h as f64 - 10_000.0).abs() < 500.0), "{hist:?}");
+        // A node whose only admissible negative has no positives (weight 0)
+        // gets it through the uniform fallback after the rejections.
+        let g = Graph::new(5, &[[0, 1], [0, 2], [0, 3]], false).unwrap();
+        let ds = DegreeSampler::new(&g, power);
+        for _ in 0..100 {
+            assert_eq!(ds.draw_for(&g, 0, g.non_neighbours(0), &mut st), 4);
+        }
+    }
+
     fn train(model: Model, threads: usize, epochs: usize) -> (Vec<f64>, Vec<f64>) {
+        train_with(model, threads, epochs, 0)
+    }
+
+    fn train_with(model: Model, threads: usize, epochs: usize, degree_epochs: usize) -> (Vec<f64>, Vec<f64>) {
         let (n, edges) = tree_closure(3, 3);
         let g = Graph::new(n, &edges, false).unwrap();
         let p = Params {
@@ -1182,6 +1350,7 @@ mod tests {
             burn_in: 2,
             batch_size: 7,
             seed: 11,
+            degree_epochs,
             ..Params::default()
         };
         let pool = rayon::ThreadPoolBuilder::new().num_threads(threads).build().unwrap();
@@ -1205,6 +1374,12 @@ mod tests {
             let (p2, l2) = train(model, 2, 6);
             assert_eq!(p1, p2);
             assert_eq!(l1, l2);
+            // weighted negatives in the first epochs too
+            let (p1, l1) = train_with(model, 1, 6, 3);
+            let (p2, l2) = train_with(model, 2, 6, 3);
+            assert_eq!(p1, p2);
+            assert_eq!(l1, l2);
+            assert_ne!(p1, train(model, 1, 6).0);
         }
     }
 

@@ -33,7 +33,7 @@ impl GraphTrainer {
 impl GraphTrainer {
     /// `edges` is a C-contiguous `(m, 2)` int64 array.
     #[new]
-    #[pyo3(signature = (edges, n_nodes, dim, model, curvature, negatives, learning_rate, burn_in, burn_in_factor, batch_size, init, seed, directed = false, node_mean = false, decay_epochs = 0))]
+    #[pyo3(signature = (edges, n_nodes, dim, model, curvature, negatives, learning_rate, burn_in, burn_in_factor, batch_size, init, seed, directed = false, node_mean = false, decay_epochs = 0, degree_epochs = 0, degree_power = 0.75))]
     fn new(
         py: Python<'_>,
         edges: PyReadonlyArray2<'_, i64>,
@@ -51,6 +51,8 @@ impl GraphTrainer {
         directed: bool,
         node_mean: bool,
         decay_epochs: usize,
+        degree_epochs: usize,
+        degree_power: f64,
     ) -> PyResult<Self> {
         let k = Curvature::new(curvature)?;
         let md = Model::parse(model, "model")?;
@@ -69,6 +71,8 @@ impl GraphTrainer {
             init,
             seed,
             node_mean,
+            degree_epochs,
+            degree_power,
             decay_epochs,
         };
         let t = py.detach(move || {

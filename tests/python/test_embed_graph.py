@@ -180,6 +180,21 @@ def test_balanced_tree_reaches_high_map():
     assert abs(r.mean_average_precision - m) < 1e-12
 
 
+def test_degree_weighted_negatives_still_reach_high_map():
+    # the run of test_balanced_tree_reaches_high_map with degree-weighted
+    # negatives in the first 10 epochs (scikit-learn reference, see
+    # sklearn_map); a different run, not the uniform one
+    n, e = tree_closure(3, 4)
+    kw = dict(epochs=60, learning_rate=0.3, batch_size=16, seed=1, progress=False)
+    emb = gk.embed.graph(e, 5, degree_epochs=10, **kw)
+    assert sklearn_map(emb.points, "poincare", n, e) >= 0.95
+    assert not np.array_equal(emb.points, gk.embed.graph(e, 5, **kw).points)
+    # power 0 weighs every node alike: uniform draws, but from another
+    # stream than the default sampler (one extra uniform per draw)
+    flat = gk.embed.graph(e, 5, degree_epochs=60, degree_power=0.0, **kw)
+    assert sklearn_map(flat.points, "poincare", n, e) >= 0.95
+
+
 def test_node_mean_and_linear_schedule_tame_a_large_rate():
     # the balanced tree of test_balanced_tree_reaches_high_map at a rate ten
     # times larger, in batches of 256 positives (a third of an epoch): the
@@ -231,6 +246,8 @@ for model in ("poincare", "hyperboloid"):
     emb = gk.embed.graph(e, 4, model=model, epochs=4, batch_size=32, seed=9, progress=False,
                          node_steps="mean", schedule="linear", burn_in=1)
     sys.stdout.write(emb.points.tobytes().hex() + emb.loss.tobytes().hex() + "\\n")
+    emb = gk.embed.graph(e, 4, model=model, epochs=4, batch_size=32, seed=9, progress=False, degree_epochs=2)
+    sys.stdout.write(emb.points.tobytes().hex() + emb.loss.tobytes().hex() + "\\n")
 """
 
 
@@ -261,6 +278,9 @@ def test_one_and_two_threads_are_bit_identical():
         (np.array([[0, 1]]), {"curvature": 1.0}, "curvature"),
         (np.array([[0, 1]]), {"node_steps": "max"}, "node_steps"),
         (np.array([[0, 1]]), {"schedule": "cosine"}, "schedule"),
+        (np.array([[0, 1]]), {"degree_power": -0.5}, "degree_power"),
+        (np.array([[0, 1]]), {"degree_power": float("nan")}, "degree_power"),
+        (np.array([[0, 1]]), {"degree_epochs": -1}, "degree_epochs"),
         (np.array([[0, 1]]), {"schedule": "linear", "epochs": 5, "burn_in": 5}, "schedule.*epochs > burn_in"),
     ],
 )
