@@ -219,9 +219,7 @@ def graph(
         raise ValueError(f"learning_rate must be a finite positive number, got {learning_rate}")
     burn_in_factor = _args.real("burn_in_factor", burn_in_factor)
     degree_epochs = _args.count("degree_epochs", degree_epochs, 0)
-    degree_power = _args.real("degree_power", degree_power)
-    if not (math.isfinite(degree_power) and 0.0 <= degree_power <= 4.0):
-        raise ValueError(f"degree_power must lie in [0, 4], got {degree_power}")
+    degree_power = _args.real("degree_power", degree_power)  # the core checks its range
     curvature = _args.real("curvature", curvature)
     if not isinstance(directed, (bool, np.bool_)):
         raise TypeError(f"directed must be True or False, got {directed!r}")
