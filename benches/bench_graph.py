@@ -194,7 +194,8 @@ def main() -> None:
     ap.add_argument("--burn-in-factor", type=float, default=0.1)
     ap.add_argument("--node-steps", default="sum", choices=("sum", "mean"))
     ap.add_argument("--schedule", default="constant", choices=("constant", "linear"))
-    ap.add_argument("--degree-epochs", type=int, default=0, help="epochs of degree-weighted negatives")
+    ap.add_argument("--degree-epochs", type=int, default=None,
+                    help="epochs of degree-weighted negatives (default: the burn-in epochs)")
     ap.add_argument("--degree-power", type=float, default=0.75)
     ap.add_argument("--seed", type=int, default=0)
     ap.add_argument("--curvature", type=float, default=-1.0)
