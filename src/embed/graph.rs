@@ -350,9 +350,12 @@ fn partition_point_idx(s: &[u32], lo: usize, hi: usize, k: usize) -> usize {
 /// the table built by Vose's stable procedure, Vose 1991): one index and one
 /// uniform per draw. A draw excluded for `u` is rejected (a binary search in
 /// `u`'s excluded list) and drawn again, up to [`MAX_REJECTIONS`] times, then
-/// one uniform admissible node is taken instead; on a hierarchy's closure the
-/// excluded nodes of a leaf are its ancestors, the heaviest nodes of all, so
-/// a few percent of the draws are rejected.
+/// one uniform admissible node is taken instead. On a hierarchy's closure
+/// the excluded nodes of a leaf are its ancestors, the heaviest nodes of
+/// all: on the WordNet nouns 14% of the draws are rejected (mean over the
+/// positives), and for the nodes near the root, excluded with most of the
+/// weight, the uniform fallback is the rule (8.6% of the positives have a
+/// rejection probability above one half).
 #[derive(Clone, Debug)]
 pub struct DegreeSampler {
     prob: Vec<f64>,
