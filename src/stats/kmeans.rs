@@ -423,7 +423,7 @@ fn row_mut(v: &mut [f64], q: usize) -> &mut [f64; B] {
 /// Adds the points `i0 + r` of a chunk (`r` over `lab`) to the Newton
 /// statistics of their clusters, each at its cluster's point (`mu`:
 /// row-major unit-ball points, `gmu` their gaps), for the clusters flagged
-/// in `need`. The terms are those of [`Stats::accumulate`] (the gradient
+/// in `need`. The terms are those of [`super::centroids::stats`] (the gradient
 /// `sum d/t y`, the Hessian's parts `sum d coth d` and `sum (1 - d coth d)/t^2
 /// y y^T` with `y = (-mu) ⊕ x`, `t = |y|`, `d = 2 artanh t`), computed over B
 /// members of one cluster at a time and summed lane by lane (fixed order).
