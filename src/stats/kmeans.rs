@@ -319,14 +319,28 @@ impl Soa {
         let (d, n) = (pts.d, pts.n.div_ceil(CHUNK) * CHUNK);
         let mut x = vec![0f64; d * n];
         let mut g = vec![0f64; n];
+        let mut ax = vec![0f64; n];
         let p: &[f64] = &pts.p;
-        x.par_chunks_mut(n).enumerate().for_each(|(t, col)| {
-            for (i, v) in col.iter_mut().enumerate() {
-                *v = p[i.min(pts.n - 1) * d + t];
+        // Chunk by chunk (rows read in order), each chunk's piece of every
+        // column.
+        let mut pieces: Vec<Vec<&mut [f64]>> = (0..n / CHUNK).map(|_| Vec::with_capacity(d)).collect();
+        for col in x.chunks_mut(n) {
+            for (ci, piece) in col.chunks_mut(CHUNK).enumerate() {
+                pieces[ci].push(piece);
             }
-        });
-        g.iter_mut().enumerate().for_each(|(i, v)| *v = pts.g[i.min(pts.n - 1)]);
-        let ax = g.iter().map(|v| 1.0 / v).collect();
+        }
+        pieces.into_par_iter().zip(g.par_chunks_mut(CHUNK)).zip(ax.par_chunks_mut(CHUNK)).enumerate().for_each(
+            |(ci, ((mut cols, gc), ac))| {
+                for r in 0..CHUNK {
+                    let i = (ci * CHUNK + r).min(pts.n - 1);
+                    for (t, col) in cols.iter_mut().enumerate() {
+                        col[r] = p[i * d + t];
+                    }
+                    gc[r] = pts.g[i];
+                    ac[r] = 1.0 / pts.g[i];
+                }
+            },
+        );
         Soa { n, d, x, g, ax }
     }
 }
