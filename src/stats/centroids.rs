@@ -220,69 +220,19 @@ impl Stats {
         self.f += o.f;
         self.wsum += o.wsum;
     }
-
-    /// Adds point `p` (gap `gp`, weight `wi > 0`) at the unit-ball point
-    /// `mu` (gap `gmu`); `y` is scratch of length d. `dist`, if given, is
-    /// their unit-ball distance as the caller already has it (k-means'
-    /// assignment), saving the logarithm.
-    #[inline(always)]
-    pub(crate) fn accumulate(
-        &mut self,
-        p: &[f64],
-        gp: f64,
-        wi: f64,
-        mu: &[f64],
-        gmu: f64,
-        dist: Option<f64>,
-        y: &mut [f64],
-    ) {
-        let d = mu.len();
-        let st = self;
-        // y = (-mu) ⊕ p, its gap exact: g_mu g_p / D.
-        let mut ss = 0.0;
-        for j in 0..d {
-            let s = p[j] - mu[j];
-            y[j] = s;
-            ss += s * s;
-        }
-        let den = gmu * gp + ss;
-        let (a, b) = (gmu / den, ss / den);
-        let mut t2 = 0.0;
-        for j in 0..d {
-            y[j] = a * y[j] - b * mu[j];
-            t2 += y[j] * y[j];
-        }
-        let gy = gmu * gp / den;
-        st.wsum += wi;
-        let t = t2.sqrt();
-        if t == 0.0 {
-            st.hscal += wi;
-            return;
-        }
-        // d = 2 artanh t, from the gap (fast compensated log1p).
-        let dist = match dist {
-            Some(v) => v,
-            None => log1p_fast(2.0 * t * (1.0 + t) / gy),
-        };
-        // d coth d with coth(2 artanh t) = (1 + t^2)/(2t): no exp.
-        let c = dist * (1.0 + t2) / (2.0 * t);
-        st.f += wi * dist * dist;
-        st.hscal += wi * c;
-        let fg = wi * dist / t;
-        for j in 0..d {
-            st.grad[j] += fg * y[j];
-        }
-        let fh = wi * (1.0 - c) / t2;
-        // Full outer product (vectorises better than a triangle).
-        for (r, row) in st.hout.chunks_exact_mut(d).enumerate() {
-            let yr = fh * y[r];
-            for (o, &ys) in row.iter_mut().zip(y.iter()) {
-                *o = yr.mul_add(ys, *o);
-            }
-        }
-    }
 }
 
+/// Members per block of the statistics kernel: the long dependency chain of
+/// one point's terms (division, square root, logarithm) overlaps with 15
+/// others, and the sums run in 16 lanes.
+const LANES: usize = 16;
+
+/// Newton statistics of the members `idx` at `mu` (the gradient `sum w d/t
+/// y`, the Hessian's parts `sum w d coth d` and `sum w (1 - d coth d)/t^2
+/// y y^T` with `y = (-mu) ⊕ x`, `t = |y|`, `d = 2 artanh t`), 16 members at a time (consecutive in `idx`, so
+/// the grouping depends only on the member list), summed lane by lane over
+/// each chunk and the lanes added in order (upper triangle of the outer
+/// products, mirrored). Members of weight zero add nothing.
 pub(crate) fn stats(pts: &UnitPoints, idx: &[usize], w: Option<&[f64]>, mu: &[f64], gmu: f64) -> Stats {
     let d = pts.d;
     let parts: Vec<Stats> = idx
@@ -291,18 +241,7 @@ pub(crate) fn stats(pts: &UnitPoints, idx: &[usize], w: Option<&[f64]>, mu: &[f6
             crate::numeric::simd::dispatch(
                 crate::numeric::simd::has_fma(),
                 #[inline(always)]
-                || {
-                    let mut st = Stats::zero(d);
-                    let mut y = vec![0f64; d];
-                    for &i in ch {
-                        let wi = w.map_or(1.0, |w| w[i]);
-                        if wi == 0.0 {
-                            continue;
-                        }
-                        st.accumulate(&pts.p[i * d..(i + 1) * d], pts.g[i], wi, mu, gmu, None, &mut y);
-                    }
-                    st
-                },
+                || lane_stats(pts, ch, w, mu, gmu),
             )
         })
         .collect();
@@ -311,6 +250,124 @@ pub(crate) fn stats(pts: &UnitPoints, idx: &[usize], w: Option<&[f64]>, mu: &[f6
         tot.add(&p);
     }
     tot
+}
+
+#[inline(always)]
+fn lane_stats(pts: &UnitPoints, ch: &[usize], w: Option<&[f64]>, mu: &[f64], gmu: f64) -> Stats {
+    const B: usize = LANES;
+    let d = pts.d;
+    // lane accumulators: wsum, f, hscal, grad (d), upper triangle (d x d)
+    let rows = 3 + d + d * d;
+    let mut acc = vec![[0f64; B]; rows];
+    let mut ys = vec![[0f64; B]; d];
+    for blk in ch.chunks(B) {
+        let m = blk.len();
+        let mut idx = [0usize; B];
+        let mut wl = [0f64; B];
+        for l in 0..B {
+            idx[l] = blk[l.min(m - 1)];
+            wl[l] = if l < m { w.map_or(1.0, |w| w[idx[l]]) } else { 0.0 };
+        }
+        let mut gp = [0f64; B];
+        for l in 0..B {
+            gp[l] = pts.g[idx[l]];
+        }
+        // s = x - mu, |s|^2
+        let mut ss = [0f64; B];
+        for (t, yt) in ys.iter_mut().enumerate() {
+            let mt = mu[t];
+            for l in 0..B {
+                let s = pts.p[idx[l] * d + t] - mt;
+                yt[l] = s;
+                ss[l] = s.mul_add(s, ss[l]);
+            }
+        }
+        // y = (-mu) ⊕ x = (g_mu s - |s|^2 mu) / D, D = g_mu g_x + |s|^2, its
+        // gap g_mu g_x / D: one division for 1/D and the inverse gap
+        let mut a = [0f64; B];
+        let mut b = [0f64; B];
+        let mut igy = [0f64; B];
+        for l in 0..B {
+            let gg = gmu * gp[l];
+            let den = gg + ss[l];
+            let inv = 1.0 / (gg * den);
+            let r = gg * inv;
+            a[l] = gmu * r;
+            b[l] = ss[l] * r;
+            igy[l] = den * den * inv;
+        }
+        let mut t2 = [0f64; B];
+        for (t, yt) in ys.iter_mut().enumerate() {
+            let mt = mu[t];
+            for l in 0..B {
+                let y = a[l] * yt[l] - b[l] * mt;
+                yt[l] = y;
+                t2[l] = y.mul_add(y, t2[l]);
+            }
+        }
+        // d = 2 artanh t = log1p(2t (1 + t) / g_y); d coth d with
+        // coth(2 artanh t) = (1 + t^2)/(2t); a member on mu adds its weight
+        // to the scalar part only; a zero weight (and padding) adds nothing.
+        let mut c = [0f64; B];
+        let mut fg = [0f64; B];
+        let mut fh = [0f64; B];
+        let mut f = [0f64; B];
+        for l in 0..B {
+            let tt = t2[l].sqrt();
+            let zero = tt == 0.0;
+            let dv = log1p_fast(2.0 * tt * (1.0 + tt) * igy[l]);
+            let it = 1.0 / tt;
+            let q = dv * it;
+            let cc = 0.5 * q * (1.0 + t2[l]);
+            let wi = wl[l];
+            c[l] = wi * if zero { 1.0 } else { cc };
+            fg[l] = if zero { 0.0 } else { wi * q };
+            fh[l] = if zero { 0.0 } else { wi * (((1.0 - cc) * it) * it) };
+            f[l] = if zero { 0.0 } else { wi * (dv * dv) };
+        }
+        for (q, v) in [wl, f, c].iter().enumerate() {
+            for l in 0..B {
+                acc[q][l] += v[l];
+            }
+        }
+        for t in 0..d {
+            let yt = ys[t];
+            let r = &mut acc[3 + t];
+            for l in 0..B {
+                r[l] = fg[l].mul_add(yt[l], r[l]);
+            }
+        }
+        for r in 0..d {
+            let yr = ys[r];
+            let mut hr = [0f64; B];
+            for l in 0..B {
+                hr[l] = fh[l] * yr[l];
+            }
+            for s2 in r..d {
+                let ys2 = ys[s2];
+                let o = &mut acc[3 + d + r * d + s2];
+                for l in 0..B {
+                    o[l] = hr[l].mul_add(ys2[l], o[l]);
+                }
+            }
+        }
+    }
+    let sum = |v: &[f64; B]| v.iter().fold(0.0, |x, y| x + y);
+    let mut st = Stats::zero(d);
+    st.wsum = sum(&acc[0]);
+    st.f = sum(&acc[1]);
+    st.hscal = sum(&acc[2]);
+    for t in 0..d {
+        st.grad[t] = sum(&acc[3 + t]);
+    }
+    for r in 0..d {
+        for s2 in r..d {
+            let v = sum(&acc[3 + d + r * d + s2]);
+            st.hout[r * d + s2] = v;
+            st.hout[s2 * d + r] = v;
+        }
+    }
+    st
 }
 
 /// Solves `(hscal I + hout) s = g` by Cholesky (the matrix is symmetric
@@ -641,4 +698,85 @@ pub fn frechet_variance(
         out.push(v.ok_or_else(|| empty_group(keys[gi], labels.is_some()))? * r2);
     }
     Ok((keys, out))
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// One member's terms, point by point: the formulas of Pennec's exact
+    /// Hessian as the module docs give them (gradient `w d/t y`, scalar part
+    /// `w d coth d`, outer part `w (1 - d coth d)/t^2 y y^T`, `f = w d^2`),
+    /// with `y = (-mu) ⊕ x` by Möbius addition and `d = 2 artanh t`
+    /// (std's `atanh`): the reference of the lane kernel.
+    fn reference(p: &[f64], mu: &[f64], w: f64, st: &mut Stats) {
+        let d = mu.len();
+        let dot = |a: &[f64], b: &[f64]| a.iter().zip(b).map(|(x, y)| x * y).sum::<f64>();
+        let nm: Vec<f64> = mu.iter().map(|v| -v).collect();
+        // Möbius addition (-mu) ⊕ p (Ungar)
+        let (xy, xx, yy) = (dot(&nm, p), dot(&nm, &nm), dot(p, p));
+        let den = 1.0 + 2.0 * xy + xx * yy;
+        let y: Vec<f64> = (0..d).map(|t| ((1.0 + 2.0 * xy + yy) * nm[t] + (1.0 - xx) * p[t]) / den).collect();
+        let t = dot(&y, &y).sqrt();
+        st.wsum += w;
+        if t == 0.0 {
+            st.hscal += w;
+            return;
+        }
+        let dist = 2.0 * t.atanh();
+        let c = dist / dist.tanh();
+        st.f += w * dist * dist;
+        st.hscal += w * c;
+        for r in 0..d {
+            st.grad[r] += w * dist / t * y[r];
+            for s in 0..d {
+                st.hout[r * d + s] += w * (1.0 - c) / (t * t) * y[r] * y[s];
+            }
+        }
+    }
+
+    #[test]
+    fn lane_statistics_match_the_point_by_point_formulas() {
+        let (n, d) = (37, 3); // two full blocks of 16 and a partial one
+        let mut s = 11u64;
+        let mut u = || {
+            s = s.wrapping_mul(6364136223846793005).wrapping_add(1442695040888963407);
+            (s >> 11) as f64 / (1u64 << 53) as f64
+        };
+        let mut x = Vec::new();
+        for _ in 0..n {
+            let v: Vec<f64> = (0..d).map(|_| u() - 0.5).collect();
+            let nv = v.iter().map(|a| a * a).sum::<f64>().sqrt();
+            let r = (0.5 * 4.0 * u()).tanh();
+            x.extend(v.iter().map(|a| a / nv * r));
+        }
+        let mu = x[5 * d..6 * d].to_vec(); // member 5 lies on mu
+        let mut w: Vec<f64> = (0..n).map(|_| 0.5 + u()).collect();
+        w[9] = 0.0; // adds nothing
+        let a = ndarray::ArrayView2::from_shape((n, d), &x[..]).unwrap().into_dyn();
+        let data = Data::F64(a);
+        let pts = unit_points(Model::Poincare, &Curvature::default(), "x", &data).unwrap();
+        let gmu = crate::models::ball::checked_gap(&Curvature::default(), &mu).unwrap().value();
+        let idx: Vec<usize> = (0..n).rev().collect(); // any member order
+        let got = stats(&pts, &idx, Some(&w), &mu, gmu);
+        let mut want = Stats::zero(d);
+        for &i in &idx {
+            if w[i] > 0.0 {
+                reference(&x[i * d..(i + 1) * d], &mu, w[i], &mut want);
+            }
+        }
+        let close = |a: f64, b: f64, scale: f64| (a - b).abs() <= 1e-13 * scale;
+        assert!(close(got.wsum, want.wsum, want.wsum));
+        assert!(close(got.f, want.f, want.f), "{} {}", got.f, want.f);
+        assert!(close(got.hscal, want.hscal, want.hscal));
+        let gs = want.grad.iter().map(|v| v.abs()).sum::<f64>();
+        assert!(got.grad.iter().zip(&want.grad).all(|(a, b)| close(*a, *b, gs)), "{:?} {:?}", got.grad, want.grad);
+        let hs = want.hout.iter().map(|v| v.abs()).sum::<f64>();
+        assert!(got.hout.iter().zip(&want.hout).all(|(a, b)| close(*a, *b, hs)), "{:?} {:?}", got.hout, want.hout);
+        // the lane grouping depends on the member list only: bit-identical
+        // when run again
+        let again = stats(&pts, &idx, Some(&w), &mu, gmu);
+        assert_eq!(again.grad, got.grad);
+        assert_eq!(again.hout, got.hout);
+    }
 }

@@ -164,8 +164,9 @@ fn recip_gap(p: &[f64], g: f64) -> f64 {
     1.0 / checked_gap(&Curvature::default(), p).map(|v| v.value()).unwrap_or(g)
 }
 
-/// `h` between point `i` and a unit-ball point `c` with factor `ac`.
-#[inline(always)]
+/// `h` between point `i` and a unit-ball point `c` with factor `ac`, one
+/// point at a time (the reference of the tests).
+#[cfg(test)]
 fn h_point(pts: &UnitPoints, i: usize, c: &[f64], ac: f64) -> f64 {
     let d = pts.d;
     scaled_h(seq_dist_sq(&pts.p[i * d..(i + 1) * d], c), 1.0 / pts.g[i], ac, 1.0)
@@ -179,8 +180,12 @@ fn bad_points(model: Model, name: &str, e: Error) -> Error {
 // ---------------------------------------------------------------- seeding
 
 /// Squared unit distances to the nearest chosen centre, lowered by centre
-/// `c`; returns the fixed-chunk sums.
-fn lower_d2(pts: &UnitPoints, d2: &mut [f64], c: &[f64], ac: f64) -> Vec<f64> {
+/// `c`; returns the fixed-chunk sums. The distances of 16 points at a time
+/// (transposed coordinates; the operations and order of [`nearest`], which
+/// are those of `knn`), then lowered and summed point by point in input
+/// order.
+fn lower_d2(soa: &Soa, d2: &mut [f64], c: &[f64], ac: f64) -> Vec<f64> {
+    let n = soa.n;
     d2.par_chunks_mut(SEED_CHUNK)
         .enumerate()
         .map(|(ci, ch)| {
@@ -188,11 +193,28 @@ fn lower_d2(pts: &UnitPoints, d2: &mut [f64], c: &[f64], ac: f64) -> Vec<f64> {
                 has_fma(),
                 #[inline(always)]
                 || {
+                    let i0 = ci * SEED_CHUNK;
                     let mut s = 0.0;
-                    for (r, v) in ch.iter_mut().enumerate() {
-                        let t = acosh1p2_fast(h_point(pts, ci * SEED_CHUNK + r, c, ac));
-                        *v = v.min(t * t);
-                        s += *v;
+                    for (bi, blk) in ch.chunks_mut(B).enumerate() {
+                        let base = i0 + bi * B;
+                        let mut acc = [0f64; B];
+                        for (t, &ct) in c.iter().enumerate() {
+                            let xt = row(&soa.x[t * n + base..], 0);
+                            for l in 0..B {
+                                let u = xt[l] - ct;
+                                acc[l] = u.mul_add(u, acc[l]);
+                            }
+                        }
+                        let ax = row(&soa.ax[base..], 0);
+                        let mut tv = [0f64; B];
+                        for l in 0..B {
+                            let t = acosh1p2_fast(scaled_h(acc[l], ax[l], ac, 1.0));
+                            tv[l] = t * t;
+                        }
+                        for (v, &t2) in blk.iter_mut().zip(&tv) {
+                            *v = v.min(t2);
+                            s += *v;
+                        }
                     }
                     s
                 },
@@ -243,7 +265,7 @@ fn nth_free(chosen: &[usize], m: usize) -> usize {
 }
 
 /// k-means++ seeding: indices of the chosen points.
-fn plusplus(pts: &UnitPoints, k: usize, rng: &mut Rng) -> Vec<usize> {
+fn plusplus(pts: &UnitPoints, soa: &Soa, k: usize, rng: &mut Rng) -> Vec<usize> {
     let n = pts.n;
     let d = pts.d;
     let mut chosen = vec![rng.below(n as u64) as usize];
@@ -251,7 +273,7 @@ fn plusplus(pts: &UnitPoints, k: usize, rng: &mut Rng) -> Vec<usize> {
     let mut last = chosen[0];
     for _ in 1..k {
         let c = &pts.p[last * d..(last + 1) * d];
-        let sums = lower_d2(pts, &mut d2, c, recip_gap(c, pts.g[last]));
+        let sums = lower_d2(soa, &mut d2, c, recip_gap(c, pts.g[last]));
         let total: f64 = sums.iter().sum();
         let i = if total > 0.0 {
             draw_d2(&d2, &sums, rng.uniform())
@@ -297,14 +319,28 @@ impl Soa {
         let (d, n) = (pts.d, pts.n.div_ceil(CHUNK) * CHUNK);
         let mut x = vec![0f64; d * n];
         let mut g = vec![0f64; n];
+        let mut ax = vec![0f64; n];
         let p: &[f64] = &pts.p;
-        x.par_chunks_mut(n).enumerate().for_each(|(t, col)| {
-            for (i, v) in col.iter_mut().enumerate() {
-                *v = p[i.min(pts.n - 1) * d + t];
+        // Chunk by chunk (rows read in order), each chunk's piece of every
+        // column.
+        let mut pieces: Vec<Vec<&mut [f64]>> = (0..n / CHUNK).map(|_| Vec::with_capacity(d)).collect();
+        for col in x.chunks_mut(n) {
+            for (ci, piece) in col.chunks_mut(CHUNK).enumerate() {
+                pieces[ci].push(piece);
             }
-        });
-        g.iter_mut().enumerate().for_each(|(i, v)| *v = pts.g[i.min(pts.n - 1)]);
-        let ax = g.iter().map(|v| 1.0 / v).collect();
+        }
+        pieces.into_par_iter().zip(g.par_chunks_mut(CHUNK)).zip(ax.par_chunks_mut(CHUNK)).enumerate().for_each(
+            |(ci, ((mut cols, gc), ac))| {
+                for r in 0..CHUNK {
+                    let i = (ci * CHUNK + r).min(pts.n - 1);
+                    for (t, col) in cols.iter_mut().enumerate() {
+                        col[r] = p[i * d + t];
+                    }
+                    gc[r] = pts.g[i];
+                    ac[r] = 1.0 / pts.g[i];
+                }
+            },
+        );
         Soa { n, d, x, g, ax }
     }
 }
@@ -401,7 +437,7 @@ fn row_mut(v: &mut [f64], q: usize) -> &mut [f64; B] {
 /// Adds the points `i0 + r` of a chunk (`r` over `lab`) to the Newton
 /// statistics of their clusters, each at its cluster's point (`mu`:
 /// row-major unit-ball points, `gmu` their gaps), for the clusters flagged
-/// in `need`. The terms are those of [`Stats::accumulate`] (the gradient
+/// in `need`. The terms are those of [`super::centroids::stats`] (the gradient
 /// `sum d/t y`, the Hessian's parts `sum d coth d` and `sum (1 - d coth d)/t^2
 /// y y^T` with `y = (-mu) ⊕ x`, `t = |y|`, `d = 2 artanh t`), computed over B
 /// members of one cluster at a time and summed lane by lane (fixed order).
@@ -862,7 +898,7 @@ fn check_params(p: &Params, n: usize) -> Result<()> {
 pub fn plusplus_indices(model: Model, k: Curvature, x: &Data, n_clusters: usize, seed: u64) -> Result<Vec<usize>> {
     let pts = unit_points(model, &k, "x", x).map_err(|e| bad_points(model, "X", e))?;
     check_params(&Params { n_clusters, max_iter: 1, tol: 0.0 }, pts.n)?;
-    Ok(plusplus(&pts, n_clusters, &mut Rng::new(seed)))
+    Ok(plusplus(&pts, &Soa::new(&pts), n_clusters, &mut Rng::new(seed)))
 }
 
 /// Fits k-means: one run per seed (one run for given centres), the run of
@@ -904,7 +940,7 @@ pub fn fit(model: Model, k: Curvature, x: &Data, init: Init, seeds: &[u64], p: &
                 let mut rng = Rng::new(seeds[r]);
                 let idx = match &init {
                     Init::Random => distinct(pts.n, p.n_clusters, &mut rng),
-                    _ => plusplus(&pts, p.n_clusters, &mut rng),
+                    _ => plusplus(&pts, &soa, p.n_clusters, &mut rng),
                 };
                 let mut cen = Centres::new(d);
                 for &i in &idx {
@@ -963,6 +999,58 @@ mod tests {
         assert_eq!(nth_free(&[0, 2, 3], 0), 1);
         assert_eq!(nth_free(&[0, 2, 3], 1), 4);
         assert_eq!(nth_free(&[5], 5), 6);
+    }
+
+    /// Points of the unit ball, radii up to `rmax` (a small LCG: common
+    /// practice for reproducible test data).
+    fn ball(n: usize, d: usize, rmax: f64, seed: u64) -> Vec<f64> {
+        let mut s = seed;
+        let mut u = || {
+            s = s.wrapping_mul(6364136223846793005).wrapping_add(1442695040888963407);
+            (s >> 11) as f64 / (1u64 << 53) as f64
+        };
+        let mut out = Vec::with_capacity(n * d);
+        for _ in 0..n {
+            let v: Vec<f64> = (0..d).map(|_| u() - 0.5).collect();
+            let nv = v.iter().map(|a| a * a).sum::<f64>().sqrt();
+            let r = (0.5 * rmax * u()).tanh();
+            out.extend(v.iter().map(|a| a / nv * r));
+        }
+        out
+    }
+
+    #[test]
+    fn lower_d2_in_lanes_matches_the_point_by_point_formula() {
+        // Regression against the scalar formula (h_point, acosh1p2_fast,
+        // running sums in input order) that the seeding used before its
+        // lanes: the same bits, so the same draws. n is neither a multiple
+        // of the lane count nor of a seed chunk.
+        for (n, d) in [(9001, 3), (37, 10), (4096 + 17, 2)] {
+            let x = ball(n, d, 6.0, n as u64);
+            let a = ndarray::ArrayView2::from_shape((n, d), &x[..]).unwrap().into_dyn();
+            let data = Data::F64(a);
+            let pts = unit_points(Model::Poincare, &Curvature::default(), "x", &data).unwrap();
+            let soa = Soa::new(&pts);
+            let mut d2 = vec![f64::INFINITY; n];
+            let mut want = vec![f64::INFINITY; n];
+            for c in [0, n / 2, n - 1] {
+                let cp = &pts.p[c * d..(c + 1) * d];
+                let ac = recip_gap(cp, pts.g[c]);
+                let sums = lower_d2(&soa, &mut d2, cp, ac);
+                let mut want_sums = Vec::new();
+                for ch in 0..n.div_ceil(SEED_CHUNK) {
+                    let mut s = 0.0;
+                    for i in ch * SEED_CHUNK..((ch + 1) * SEED_CHUNK).min(n) {
+                        let t = acosh1p2_fast(h_point(&pts, i, cp, ac));
+                        want[i] = want[i].min(t * t);
+                        s += want[i];
+                    }
+                    want_sums.push(s);
+                }
+                assert!(d2.iter().zip(&want).all(|(a, b)| a.to_bits() == b.to_bits()), "n {n}, d {d}");
+                assert_eq!(sums, want_sums);
+            }
+        }
     }
 
     #[test]
