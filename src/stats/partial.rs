@@ -344,24 +344,6 @@ mod tests {
     use super::*;
     use crate::stats::centroids::frechet_mean;
 
-    /// Points of the unit Poincaré ball, radii up to `rmax` (a small LCG:
-    /// common practice for reproducible test data).
-    fn points(n: usize, d: usize, rmax: f64, seed: u64) -> Vec<f64> {
-        let mut s = seed;
-        let mut u = || {
-            s = s.wrapping_mul(6364136223846793005).wrapping_add(1442695040888963407);
-            (s >> 11) as f64 / (1u64 << 53) as f64
-        };
-        let mut out = Vec::with_capacity(n * d);
-        for _ in 0..n {
-            let v: Vec<f64> = (0..d).map(|_| u() - 0.5).collect();
-            let nv = v.iter().map(|a| a * a).sum::<f64>().sqrt();
-            let r = (0.5 * rmax * u()).tanh();
-            out.extend(v.iter().map(|a| a / nv * r));
-        }
-        out
-    }
-
     /// Runs the driver on chunk sums of the given chunk length, as a
     /// distributed caller does.
     fn chunked(x: &[f64], d: usize, w: Option<&[f64]>, len: usize) -> GroupMean {
@@ -395,7 +377,7 @@ mod tests {
     fn chunk_sums_give_the_in_memory_mean() {
         let (n, d) = (5000, 3);
         for (rmax, seed) in [(3.0, 1), (30.0, 2)] {
-            let x = points(n, d, rmax, seed);
+            let x = crate::stats::test_ball(n, d, rmax, seed);
             let w: Vec<f64> = (0..n).map(|i| ((i * 7919) % 13) as f64 * 0.25).collect();
             let a = ndarray::ArrayView2::from_shape((n, d), &x[..]).unwrap().into_dyn();
             let whole =
