@@ -225,7 +225,7 @@ impl Stats {
 /// Members per block of the statistics kernel: the long dependency chain of
 /// one point's terms (division, square root, logarithm) overlaps with 15
 /// others, and the sums run in 16 lanes.
-pub(crate) const LANES: usize = 16;
+const LANES: usize = 16;
 
 /// Newton statistics of the members `idx` at `mu` (the gradient `sum w d/t
 /// y`, the Hessian's parts `sum w d coth d` and `sum w (1 - d coth d)/t^2
@@ -282,7 +282,75 @@ fn lane_stats(pts: &UnitPoints, ch: &[usize], w: Option<&[f64]>, mu: &[f64], gmu
                 ss[l] = s.mul_add(s, ss[l]);
             }
         }
-        block_terms(&mut ys, &ss, &gp, &wl, mu, gmu, None, &mut acc);
+        // y = (-mu) ⊕ x = (g_mu s - |s|^2 mu) / D, D = g_mu g_x + |s|^2, its
+        // gap g_mu g_x / D: one division for 1/D and the inverse gap
+        let mut a = [0f64; B];
+        let mut b = [0f64; B];
+        let mut igy = [0f64; B];
+        for l in 0..B {
+            let gg = gmu * gp[l];
+            let den = gg + ss[l];
+            let inv = 1.0 / (gg * den);
+            let r = gg * inv;
+            a[l] = gmu * r;
+            b[l] = ss[l] * r;
+            igy[l] = den * den * inv;
+        }
+        let mut t2 = [0f64; B];
+        for (t, yt) in ys.iter_mut().enumerate() {
+            let mt = mu[t];
+            for l in 0..B {
+                let y = a[l] * yt[l] - b[l] * mt;
+                yt[l] = y;
+                t2[l] = y.mul_add(y, t2[l]);
+            }
+        }
+        // d = 2 artanh t = log1p(2t (1 + t) / g_y); d coth d with
+        // coth(2 artanh t) = (1 + t^2)/(2t); a member on mu adds its weight
+        // to the scalar part only; a zero weight (and padding) adds nothing.
+        let mut c = [0f64; B];
+        let mut fg = [0f64; B];
+        let mut fh = [0f64; B];
+        let mut f = [0f64; B];
+        for l in 0..B {
+            let tt = t2[l].sqrt();
+            let zero = tt == 0.0;
+            let dv = log1p_fast(2.0 * tt * (1.0 + tt) * igy[l]);
+            let it = 1.0 / tt;
+            let q = dv * it;
+            let cc = 0.5 * q * (1.0 + t2[l]);
+            let wi = wl[l];
+            c[l] = wi * if zero { 1.0 } else { cc };
+            fg[l] = if zero { 0.0 } else { wi * q };
+            fh[l] = if zero { 0.0 } else { wi * (((1.0 - cc) * it) * it) };
+            f[l] = if zero { 0.0 } else { wi * (dv * dv) };
+        }
+        for (q, v) in [wl, f, c].iter().enumerate() {
+            for l in 0..B {
+                acc[q][l] += v[l];
+            }
+        }
+        for t in 0..d {
+            let yt = ys[t];
+            let r = &mut acc[3 + t];
+            for l in 0..B {
+                r[l] = fg[l].mul_add(yt[l], r[l]);
+            }
+        }
+        for r in 0..d {
+            let yr = ys[r];
+            let mut hr = [0f64; B];
+            for l in 0..B {
+                hr[l] = fh[l] * yr[l];
+            }
+            for s2 in r..d {
+                let ys2 = ys[s2];
+                let o = &mut acc[3 + d + r * d + s2];
+                for l in 0..B {
+                    o[l] = hr[l].mul_add(ys2[l], o[l]);
+                }
+            }
+        }
     }
     let sum = |v: &[f64; B]| v.iter().fold(0.0, |x, y| x + y);
     let mut st = Stats::zero(d);
@@ -300,114 +368,6 @@ fn lane_stats(pts: &UnitPoints, ch: &[usize], w: Option<&[f64]>, mu: &[f64], gmu
         }
     }
     st
-}
-
-/// Adds the Newton terms of one block of [`LANES`] members at `mu` (gap
-/// `gmu`) to the lane accumulators `acc`, rows: the weights, `sum w d^2`,
-/// `sum w d coth d`, the gradient `sum w d/t y` (`d` rows), then the upper
-/// triangle of `sum w (1 - d coth d)/t^2 y y^T` (row `3 + d + r d + s`,
-/// `s >= r`), with `y = (-mu) ⊕ x`, `t = |y|`, `d = 2 artanh t`. On entry
-/// `ys[t]` holds the members' `s = x - mu` (overwritten with `y`) and `ss`
-/// their `|s|^2`; `gp` their gaps; `wl` their weights (0 for padding);
-/// `du` their distances when the caller has them (k-means' assignment).
-/// The one kernel of `stats` and of k-means' fused passes.
-#[allow(clippy::too_many_arguments)]
-#[inline(always)]
-pub(crate) fn block_terms(
-    ys: &mut [[f64; LANES]],
-    ss: &[f64; LANES],
-    gp: &[f64; LANES],
-    wl: &[f64; LANES],
-    mu: &[f64],
-    gmu: f64,
-    du: Option<&[f64; LANES]>,
-    acc: &mut [[f64; LANES]],
-) {
-    const B: usize = LANES;
-    let d = mu.len();
-    // y = (-mu) ⊕ x = (g_mu s - |s|^2 mu) / D, D = g_mu g_x + |s|^2, its
-    // gap g_mu g_x / D: one division for 1/D and the inverse gap
-    let mut a = [0f64; B];
-    let mut b = [0f64; B];
-    let mut igy = [0f64; B];
-    for l in 0..B {
-        let gg = gmu * gp[l];
-        let den = gg + ss[l];
-        let inv = 1.0 / (gg * den);
-        let r = gg * inv;
-        a[l] = gmu * r;
-        b[l] = ss[l] * r;
-        igy[l] = den * den * inv;
-    }
-    let mut t2 = [0f64; B];
-    for (t, yt) in ys.iter_mut().enumerate() {
-        let mt = mu[t];
-        for l in 0..B {
-            let y = a[l] * yt[l] - b[l] * mt;
-            yt[l] = y;
-            t2[l] = y.mul_add(y, t2[l]);
-        }
-    }
-    let mut tt = [0f64; B];
-    for l in 0..B {
-        tt[l] = t2[l].sqrt();
-    }
-    // d = 2 artanh t = log1p(2t (1 + t) / g_y), unless given
-    let dv = match du {
-        Some(u) => *u,
-        None => {
-            let mut dv = [0f64; B];
-            for l in 0..B {
-                dv[l] = log1p_fast(2.0 * tt[l] * (1.0 + tt[l]) * igy[l]);
-            }
-            dv
-        }
-    };
-    // d coth d with coth(2 artanh t) = (1 + t^2)/(2t) (one division for
-    // 1/t; `(1 - c)` is 0 or at least 2^-53, so for t < 1e-8, where 1/t^2
-    // could overflow, the product is 0); a member on mu adds its weight to
-    // the scalar part only; a zero weight (and padding) adds nothing.
-    let mut c = [0f64; B];
-    let mut fg = [0f64; B];
-    let mut fh = [0f64; B];
-    let mut f = [0f64; B];
-    for l in 0..B {
-        let zero = tt[l] == 0.0;
-        let it = 1.0 / tt[l];
-        let q = dv[l] * it;
-        let cc = 0.5 * q * (1.0 + t2[l]);
-        let wi = wl[l];
-        c[l] = wi * if zero { 1.0 } else { cc };
-        fg[l] = if zero { 0.0 } else { wi * q };
-        fh[l] = if zero { 0.0 } else { wi * (((1.0 - cc) * it) * it) };
-        f[l] = if zero { 0.0 } else { wi * (dv[l] * dv[l]) };
-    }
-    for (q, v) in [wl, &f, &c].iter().enumerate() {
-        for l in 0..B {
-            acc[q][l] += v[l];
-        }
-    }
-    for t in 0..d {
-        let yt = ys[t];
-        let r = &mut acc[3 + t];
-        for l in 0..B {
-            r[l] = fg[l].mul_add(yt[l], r[l]);
-        }
-    }
-    for r in 0..d {
-        let yr = ys[r];
-        let mut hr = [0f64; B];
-        for l in 0..B {
-            hr[l] = fh[l] * yr[l];
-        }
-        for s2 in r..d {
-            let ys2 = ys[s2];
-            let o = &mut acc[3 + d + r * d + s2];
-            for l in 0..B {
-                o[l] = hr[l].mul_add(ys2[l], o[l]);
-            }
-        }
-    }
 }
 
 /// Solves `(hscal I + hout) s = g` by Cholesky (the matrix is symmetric

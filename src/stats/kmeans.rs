@@ -50,13 +50,13 @@ use std::collections::HashMap;
 
 use rayon::prelude::*;
 
-use super::centroids::{block_terms, frechet_group, to_model, unit_points, Newton, Stats, UnitPoints};
+use super::centroids::{frechet_group, to_model, unit_points, Newton, Stats, UnitPoints};
 use crate::batch::Data;
 use crate::error::{Error, Result};
 use crate::models::ball::{checked_gap, Curvature};
 use crate::models::Model;
-use crate::numeric::acosh1p2_fast;
 use crate::numeric::simd::{dispatch, has_fma};
+use crate::numeric::{acosh1p2_fast, log1p_fast};
 use crate::pairwise::{scaled_h, seq_dist_sq};
 
 /// Points per parallel chunk of the seeding (fixed: results never depend on
@@ -72,7 +72,7 @@ const CHUNK: usize = 2048;
 /// (four AVX2 ones), so that the long dependency chain of one point's
 /// statistics (division, square root, logarithm) overlaps with 15 others
 /// (measured: 16 lanes take 0.6-0.75 of the time of 8, 32 lanes more than 16).
-const B: usize = super::centroids::LANES;
+const B: usize = 16;
 /// Gradient tolerance of the Newton iteration for each centre (the default
 /// of `frechet_mean`), and its iteration cap.
 const CENTRE_TOL: f64 = 1e-12;
@@ -407,11 +407,9 @@ struct Scratch {
     /// order within a cluster), and each cluster's start.
     order: Vec<u32>,
     start: Vec<usize>,
-    /// Lane accumulators, one row per entry of a cluster's sums
-    /// (`centroids::block_terms`), and the members' `y`, one row per
-    /// coordinate.
-    acc: Vec<[f64; B]>,
-    ys: Vec<[f64; B]>,
+    /// Lane accumulators `[q * B + l]`, one row per entry of a cluster's sums.
+    acc: Vec<f64>,
+    ys: Vec<f64>,
 }
 
 impl Scratch {
@@ -419,8 +417,8 @@ impl Scratch {
         Scratch {
             order: vec![0; CHUNK],
             start: vec![0; k + 1],
-            acc: vec![[0f64; B]; 3 + d + d * d],
-            ys: vec![[0f64; B]; d],
+            acc: vec![0f64; (3 + d + d * d) * B],
+            ys: vec![0f64; d * B],
         }
     }
 }
@@ -429,6 +427,11 @@ impl Scratch {
 #[inline(always)]
 fn row(v: &[f64], q: usize) -> &[f64; B] {
     v[q * B..(q + 1) * B].try_into().expect("B lanes")
+}
+
+#[inline(always)]
+fn row_mut(v: &mut [f64], q: usize) -> &mut [f64; B] {
+    (&mut v[q * B..(q + 1) * B]).try_into().expect("B lanes")
 }
 
 /// Adds the points `i0 + r` of a chunk (`r` over `lab`) to the Newton
@@ -474,7 +477,7 @@ fn chunk_stats(
         }
         let mj = &mu[j * d..(j + 1) * d];
         let gm = gmu[j];
-        sc.acc.iter_mut().for_each(|v| *v = [0.0; B]);
+        sc.acc.iter_mut().for_each(|v| *v = 0.0);
         for blk in members.chunks(B) {
             let m = blk.len();
             let mut idx = [0usize; B];
@@ -493,7 +496,7 @@ fn chunk_stats(
             let mut ss = [0f64; B];
             for t in 0..d {
                 let col: &[f64; CHUNK] = soa.x[t * n + i0..t * n + i0 + CHUNK].try_into().expect("whole chunks");
-                let yt = &mut sc.ys[t];
+                let yt = row_mut(&mut sc.ys, t);
                 let mt = mj[t];
                 for l in 0..B {
                     let s = col[idx[l]] - mt;
@@ -501,24 +504,106 @@ fn chunk_stats(
                     ss[l] = s.mul_add(s, ss[l]);
                 }
             }
-            let dl = du.map(|u| {
-                let mut dl = [0f64; B];
+            // y = (-mu) ⊕ x = (g_mu s - |s|^2 mu) / D, D = g_mu g_x + |s|^2;
+            // its gap g_mu g_x / D
+            // one division for 1/D and the inverse gap D / (g_mu g_x)
+            let mut a = [0f64; B];
+            let mut b = [0f64; B];
+            let mut igy = [0f64; B];
+            for l in 0..B {
+                let gg = gm * gp[l];
+                let den = gg + ss[l];
+                let inv = 1.0 / (gg * den);
+                let r = gg * inv;
+                a[l] = gm * r;
+                b[l] = ss[l] * r;
+                igy[l] = den * den * inv;
+            }
+            let mut t2 = [0f64; B];
+            for t in 0..d {
+                let yt = row_mut(&mut sc.ys, t);
+                let mt = mj[t];
                 for l in 0..B {
-                    dl[l] = u[idx[l]];
+                    let y = a[l] * yt[l] - b[l] * mt;
+                    yt[l] = y;
+                    t2[l] = y.mul_add(y, t2[l]);
                 }
-                dl
-            });
-            block_terms(&mut sc.ys, &ss, &gp, &live, mj, gm, dl.as_ref(), &mut sc.acc);
+            }
+            let mut tt = [0f64; B];
+            for l in 0..B {
+                tt[l] = t2[l].sqrt();
+            }
+            // d = 2 artanh t = log1p(2t (1 + t) / g_y), unless given
+            let mut dv = [0f64; B];
+            match du {
+                Some(u) => {
+                    for l in 0..B {
+                        dv[l] = u[idx[l]];
+                    }
+                }
+                None => {
+                    for l in 0..B {
+                        dv[l] = log1p_fast(2.0 * tt[l] * (1.0 + tt[l]) * igy[l]);
+                    }
+                }
+            }
+            // d coth d with coth(2 artanh t) = (1 + t^2)/(2t) (one division
+            // for 1/t; `(1 - c)` is 0 or at least 2^-53, so for t < 1e-8,
+            // where 1/t^2 could overflow, the product is 0); a point on its
+            // centre adds its weight to the scalar part only; padding lanes
+            // add nothing.
+            let mut c = [0f64; B];
+            let mut fg = [0f64; B];
+            let mut fh = [0f64; B];
+            let mut f = [0f64; B];
+            for l in 0..B {
+                let zero = tt[l] == 0.0;
+                let it = 1.0 / tt[l];
+                let q = dv[l] * it;
+                let cc = 0.5 * q * (1.0 + t2[l]);
+                c[l] = live[l] * if zero { 1.0 } else { cc };
+                fg[l] = if zero { 0.0 } else { live[l] * q };
+                fh[l] = if zero { 0.0 } else { live[l] * (((1.0 - cc) * it) * it) };
+                f[l] = if zero { 0.0 } else { live[l] * (dv[l] * dv[l]) };
+            }
+            for (q, v) in [live, f, c].iter().enumerate() {
+                let r = row_mut(&mut sc.acc, q);
+                for l in 0..B {
+                    r[l] += v[l];
+                }
+            }
+            for t in 0..d {
+                let yt = *row(&sc.ys, t);
+                let r = row_mut(&mut sc.acc, 3 + t);
+                for l in 0..B {
+                    r[l] = fg[l].mul_add(yt[l], r[l]);
+                }
+            }
+            // the upper triangle of sum fh y y^T
+            for r in 0..d {
+                let yr = *row(&sc.ys, r);
+                let mut hr = [0f64; B];
+                for l in 0..B {
+                    hr[l] = fh[l] * yr[l];
+                }
+                for s2 in r..d {
+                    let ys2 = *row(&sc.ys, s2);
+                    let acc = row_mut(&mut sc.acc, 3 + d + r * d + s2);
+                    for l in 0..B {
+                        acc[l] = hr[l].mul_add(ys2[l], acc[l]);
+                    }
+                }
+            }
         }
         // lanes summed in order; the lower triangle mirrors the upper
         let out = &mut sums.v[j * w..(j + 1) * w];
         for q in 0..3 + d {
-            out[q] += sc.acc[q].iter().fold(0.0, |x, y| x + y);
+            out[q] += row(&sc.acc, q).iter().fold(0.0, |x, y| x + y);
         }
         for r in 0..d {
             for s2 in r..d {
                 let q = 3 + d + r * d + s2;
-                let v = sc.acc[q].iter().fold(0.0, |x, y| x + y);
+                let v = row(&sc.acc, q).iter().fold(0.0, |x, y| x + y);
                 out[q] += v;
                 if s2 != r {
                     out[3 + d + s2 * d + r] += v;
