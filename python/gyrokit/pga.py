@@ -61,14 +61,18 @@ def _as_array(name: str, value: Any, dtype: Any = None) -> np.ndarray:
     dtype) becomes a ``TypeError`` naming the argument, as does a conversion
     to a real ``dtype`` that NumPy would make with a loss or a guess
     (complex numbers, strings, dates)."""
-    try:
-        raw = np.asarray(value)
-        out = raw if dtype is None else np.asarray(raw, dtype=dtype)
-    except Exception as e:  # noqa: BLE001 - whatever the caller's object raises
-        raise TypeError(f"{name} must be an array of real numbers: {type(e).__name__}: {e}") from None
+    def convert(v: Any, dt: Any) -> np.ndarray:
+        try:
+            return np.asarray(v, dtype=dt)
+        except Exception as e:  # noqa: BLE001 - whatever the caller's object raises
+            raise TypeError(f"{name} must be an array of real numbers: {type(e).__name__}: {e}") from None
+
+    raw = convert(value, None)
+    # the dtype is judged before converting (NumPy warns when a conversion
+    # drops the imaginary parts of complex numbers)
     if dtype is not None and raw.dtype.kind not in "biufO":
         raise TypeError(f"{name} must be an array of real numbers, got dtype {raw.dtype}")
-    return out
+    return raw if dtype is None else convert(raw, dtype)
 
 
 def _hub_of(model: str) -> str:
