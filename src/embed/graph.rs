@@ -119,7 +119,7 @@ const FOUND: usize = usize::MAX - 1;
 
 // The generator of the starting points and the per-epoch shuffles is the
 // library's xoshiro256** seeded by SplitMix64 (`numeric::rng`).
-use crate::numeric::rng::{splitmix64, Rng};
+use crate::numeric::rng::{splitmix64, unit_f64, Rng};
 
 /// The stream of one positive: SplitMix64 started from a hash of
 /// `(seed, epoch, position in the epoch)`, so that its negatives do not
@@ -144,7 +144,7 @@ impl Stream {
     /// Uniform in `[0, 1)`, a multiple of 2^-53.
     #[inline(always)]
     fn uniform(&mut self) -> f64 {
-        (splitmix64(&mut self.0) >> 11) as f64 * (1.0 / 9_007_199_254_740_992.0)
+        unit_f64(splitmix64(&mut self.0))
     }
 }
 

@@ -30,6 +30,12 @@ pub fn splitmix64(state: &mut u64) -> u64 {
     z ^ (z >> 31)
 }
 
+/// The top 53 bits of `bits` times 2^-53: uniform in [0, 1) when `bits` is.
+#[inline(always)]
+pub fn unit_f64(bits: u64) -> f64 {
+    (bits >> 11) as f64 * (1.0 / 9007199254740992.0)
+}
+
 /// The jump polynomial of xoshiro256** for 2^128 steps (from the authors'
 /// reference code).
 const JUMP: [u64; 4] = [0x180e_c6d3_3cfd_0aba, 0xd5a6_1266_f0c9_392c, 0xa958_2618_e03f_c9aa, 0x39ab_dc45_29b1_661c];
@@ -75,7 +81,7 @@ impl Rng {
     /// Uniform in [0, 1).
     #[inline(always)]
     pub fn uniform(&mut self) -> f64 {
-        (self.next_u64() >> 11) as f64 * (1.0 / 9007199254740992.0)
+        unit_f64(self.next_u64())
     }
 
     /// Uniform in (0, 1]: safe to take the logarithm of.
