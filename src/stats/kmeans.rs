@@ -38,8 +38,9 @@
 //! transposed (once per fit), 16 at a time: the assignment keeps the
 //! squared distances of a block to every centre in registers; the
 //! statistics are summed per cluster over 16 members at a time (members
-//! grouped by a counting sort per chunk), lane by lane, and the lanes added
-//! in order at the end of the chunk.
+//! grouped by a counting sort per chunk, done once in the assignment pass
+//! and kept for the update's further passes), lane by lane, and the lanes
+//! added in order at the end of the chunk.
 //!
 //! Randomness comes from [`Rng`] (xoshiro256**), one generator per run
 //! seeded with a 64-bit seed given by the caller, so runs are independent and
@@ -403,23 +404,69 @@ fn nearest(soa: &Soa, i0: usize, cen: &Centres, best: &mut [f64; B], lab: &mut [
 
 /// Scratch of one chunk's statistics.
 struct Scratch {
-    /// Member offsets of the chunk, grouped by cluster (counting sort, input
-    /// order within a cluster), and each cluster's start.
-    order: Vec<u32>,
-    start: Vec<usize>,
     /// Lane accumulators `[q * B + l]`, one row per entry of a cluster's sums.
     acc: Vec<f64>,
     ys: Vec<f64>,
 }
 
 impl Scratch {
-    fn new(k: usize, d: usize) -> Scratch {
-        Scratch {
-            order: vec![0; CHUNK],
-            start: vec![0; k + 1],
-            acc: vec![0f64; (3 + d + d * d) * B],
-            ys: vec![0f64; d * B],
-        }
+    fn new(d: usize) -> Scratch {
+        Scratch { acc: vec![0f64; (3 + d + d * d) * B], ys: vec![0f64; d * B] }
+    }
+}
+
+/// Each chunk's member offsets grouped by cluster (a counting sort, input
+/// order within a cluster) and each cluster's start in them: computed in the
+/// assignment pass that sets the labels and reused by every further pass of
+/// the update that follows (the labels do not change in between).
+struct Groups {
+    k: usize,
+    /// `order[ci * CHUNK..]`: chunk `ci`'s offsets.
+    order: Vec<u32>,
+    /// `start[ci * (k + 1)..]`: chunk `ci`'s cluster starts.
+    start: Vec<u32>,
+}
+
+impl Groups {
+    fn new(n_padded: usize, k: usize) -> Groups {
+        Groups { k, order: vec![0; n_padded], start: vec![0; n_padded / CHUNK * (k + 1)] }
+    }
+
+    /// Regroups every chunk from `labels` (after an empty-cluster repair).
+    fn rebuild(&mut self, labels: &[usize]) {
+        let k = self.k;
+        labels
+            .par_chunks(CHUNK)
+            .zip(self.order.par_chunks_mut(CHUNK))
+            .zip(self.start.par_chunks_mut(k + 1))
+            .for_each(|((lab, order), start)| group(lab, order, start));
+    }
+}
+
+/// Counting sort of one chunk's labels: `order` the offsets by cluster,
+/// `start` (`k + 1` values) where each cluster's offsets begin.
+#[inline(always)]
+fn group(lab: &[usize], order: &mut [u32], start: &mut [u32]) {
+    let k = start.len() - 1;
+    start.iter_mut().for_each(|v| *v = 0);
+    for &l in lab {
+        start[l + 1] += 1;
+    }
+    for j in 0..k {
+        start[j + 1] += start[j];
+    }
+    let mut pos = [0u32; 64];
+    let mut pos_heap;
+    let pos: &mut [u32] = if k <= 64 {
+        &mut pos[..k]
+    } else {
+        pos_heap = vec![0u32; k];
+        &mut pos_heap
+    };
+    pos.copy_from_slice(&start[..k]);
+    for (r, &l) in lab.iter().enumerate() {
+        order[pos[l] as usize] = r as u32;
+        pos[l] += 1;
     }
 }
 
@@ -446,7 +493,8 @@ fn row_mut(v: &mut [f64], q: usize) -> &mut [f64; B] {
 fn chunk_stats(
     soa: &Soa,
     i0: usize,
-    lab: &[usize],
+    order: &[u32],
+    start: &[u32],
     du: Option<&[f64; CHUNK]>,
     mu: &[f64],
     gmu: &[f64],
@@ -456,22 +504,9 @@ fn chunk_stats(
 ) {
     let (d, n, w) = (soa.d, soa.n, sums.w);
     let k = gmu.len();
-    // counting sort of the chunk by cluster
-    sc.start.iter_mut().for_each(|v| *v = 0);
-    for &l in lab {
-        sc.start[l + 1] += 1;
-    }
-    for j in 0..k {
-        sc.start[j + 1] += sc.start[j];
-    }
-    let mut pos = sc.start.clone();
-    for (r, &l) in lab.iter().enumerate() {
-        sc.order[pos[l]] = r as u32;
-        pos[l] += 1;
-    }
     let g: &[f64; CHUNK] = soa.g[i0..i0 + CHUNK].try_into().expect("whole chunks");
     for j in 0..k {
-        let members = &sc.order[sc.start[j]..sc.start[j + 1]];
+        let members = &order[start[j] as usize..start[j + 1] as usize];
         if !need[j] || members.is_empty() {
             continue;
         }
@@ -614,69 +649,86 @@ fn chunk_stats(
 }
 
 /// Nearest centre (ties to the lower index) and its distance, per point;
-/// returns the inertia (fixed-chunk sums in order) and, with `gather`, each
+/// returns the inertia (fixed-chunk sums in order) and, with `groups`, each
 /// cluster's Newton statistics at its centre (the first pass of the next
-/// update, done while the chunk is in cache).
+/// update, done while the chunk is in cache), grouping the chunks' members
+/// by their new labels into `groups` for the update's further passes.
 fn assign(
     soa: &Soa,
     cen: &Centres,
     k: &Curvature,
     labels: &mut [usize],
     dist: &mut [f64],
-    gather: bool,
+    groups: Option<&mut Groups>,
 ) -> (f64, Option<Vec<Stats>>) {
     let nc = cen.a.len();
     let d = soa.d;
     let need = vec![true; nc];
+    let gather = groups.is_some();
+    // Without groups, one unused slot per chunk stands in for them.
+    let nchunks = labels.len().div_ceil(CHUNK);
+    let mut unused: (Vec<u32>, Vec<u32>);
+    let (gorder, gstart, ow, sw) = match groups {
+        Some(g) => (&mut g.order[..], &mut g.start[..], CHUNK, nc + 1),
+        None => {
+            unused = (vec![0u32; nchunks], vec![0u32; nchunks]);
+            (&mut unused.0[..], &mut unused.1[..], 1, 1)
+        }
+    };
     let parts: Vec<(f64, Sums)> = labels
         .par_chunks_mut(CHUNK)
         .zip(dist.par_chunks_mut(CHUNK))
+        .zip(gorder.par_chunks_mut(ow))
+        .zip(gstart.par_chunks_mut(sw))
         .enumerate()
-        .map(|(ci, (lc, dc))| {
-            dispatch(
-                has_fma(),
-                #[inline(always)]
-                || {
-                    let i0 = ci * CHUNK;
-                    let mut sums = Sums::zero(if gather { nc } else { 0 }, d);
-                    let mut du = [0f64; CHUNK];
-                    let mut lab = [0usize; CHUNK];
-                    let len = lc.len();
-                    for bi in 0..CHUNK / B {
-                        let mut best = [0f64; B];
-                        let mut lb = [0usize; B];
-                        nearest(soa, i0 + bi * B, cen, &mut best, &mut lb);
-                        for l in 0..B {
-                            du[bi * B + l] = acosh1p2_fast(best[l]);
-                            lab[bi * B + l] = lb[l];
+        .map_init(
+            || Scratch::new(d),
+            |sc, (ci, (((lc, dc), oc), stc))| {
+                dispatch(
+                    has_fma(),
+                    #[inline(always)]
+                    || {
+                        let i0 = ci * CHUNK;
+                        let mut sums = Sums::zero(if gather { nc } else { 0 }, d);
+                        let mut du = [0f64; CHUNK];
+                        let mut lab = [0usize; CHUNK];
+                        let len = lc.len();
+                        for bi in 0..CHUNK / B {
+                            let mut best = [0f64; B];
+                            let mut lb = [0usize; B];
+                            nearest(soa, i0 + bi * B, cen, &mut best, &mut lb);
+                            for l in 0..B {
+                                du[bi * B + l] = acosh1p2_fast(best[l]);
+                                lab[bi * B + l] = lb[l];
+                            }
                         }
-                    }
-                    lc.copy_from_slice(&lab[..len]);
-                    for (o, &u) in dc.iter_mut().zip(&du[..len]) {
-                        *o = k.radius * u;
-                    }
-                    // squares summed in B running lanes (not one chain of
-                    // dependent additions), the lanes added in order
-                    let mut sl = [0f64; B];
-                    let mut blocks = dc.chunks_exact(B);
-                    for blk in &mut blocks {
-                        let blk: &[f64; B] = blk.try_into().expect("B lanes");
-                        for l in 0..B {
-                            sl[l] = blk[l].mul_add(blk[l], sl[l]);
+                        lc.copy_from_slice(&lab[..len]);
+                        for (o, &u) in dc.iter_mut().zip(&du[..len]) {
+                            *o = k.radius * u;
                         }
-                    }
-                    for (a, &v) in sl.iter_mut().zip(blocks.remainder()) {
-                        *a = v.mul_add(v, *a);
-                    }
-                    let s = sl.iter().fold(0.0, |x, y| x + y);
-                    if gather {
-                        let mut sc = Scratch::new(nc, d);
-                        chunk_stats(soa, i0, &lab[..len], Some(&du), &cen.c, &cen.g, &need, &mut sums, &mut sc);
-                    }
-                    (s, sums)
-                },
-            )
-        })
+                        // squares summed in B running lanes (not one chain of
+                        // dependent additions), the lanes added in order
+                        let mut sl = [0f64; B];
+                        let mut blocks = dc.chunks_exact(B);
+                        for blk in &mut blocks {
+                            let blk: &[f64; B] = blk.try_into().expect("B lanes");
+                            for l in 0..B {
+                                sl[l] = blk[l].mul_add(blk[l], sl[l]);
+                            }
+                        }
+                        for (a, &v) in sl.iter_mut().zip(blocks.remainder()) {
+                            *a = v.mul_add(v, *a);
+                        }
+                        let s = sl.iter().fold(0.0, |x, y| x + y);
+                        if gather {
+                            group(&lab[..len], oc, stc);
+                            chunk_stats(soa, i0, oc, stc, Some(&du), &cen.c, &cen.g, &need, &mut sums, sc);
+                        }
+                        (s, sums)
+                    },
+                )
+            },
+        )
         .collect();
     let mut inertia = 0.0;
     let mut tot = Sums::zero(if gather { nc } else { 0 }, d);
@@ -729,7 +781,7 @@ fn members(labels: &[usize], k: usize) -> Vec<Vec<usize>> {
 
 /// Newton statistics of every cluster flagged in `need`, each at its own
 /// iterate, in one pass over the points (fixed chunks summed in order).
-fn multi_stats(soa: &Soa, labels: &[usize], it: &[Newton], need: &[bool]) -> Vec<Stats> {
+fn multi_stats(soa: &Soa, groups: &Groups, it: &[Newton], need: &[bool]) -> Vec<Stats> {
     let (k, d) = (it.len(), soa.d);
     // The iterates in one array (finished ones as the origin: never summed).
     let mut mu = vec![0f64; k * d];
@@ -740,21 +792,25 @@ fn multi_stats(soa: &Soa, labels: &[usize], it: &[Newton], need: &[bool]) -> Vec
             gmu[j] = n.gmu;
         }
     }
-    let parts: Vec<Sums> = labels
+    let parts: Vec<Sums> = groups
+        .order
         .par_chunks(CHUNK)
+        .zip(groups.start.par_chunks(k + 1))
         .enumerate()
-        .map(|(ci, lc)| {
-            dispatch(
-                has_fma(),
-                #[inline(always)]
-                || {
-                    let mut sums = Sums::zero(k, d);
-                    let mut sc = Scratch::new(k, d);
-                    chunk_stats(soa, ci * CHUNK, lc, None, &mu, &gmu, need, &mut sums, &mut sc);
-                    sums
-                },
-            )
-        })
+        .map_init(
+            || Scratch::new(d),
+            |sc, (ci, (oc, stc))| {
+                dispatch(
+                    has_fma(),
+                    #[inline(always)]
+                    || {
+                        let mut sums = Sums::zero(k, d);
+                        chunk_stats(soa, ci * CHUNK, oc, stc, None, &mu, &gmu, need, &mut sums, sc);
+                        sums
+                    },
+                )
+            },
+        )
         .collect();
     let mut tot = Sums::zero(k, d);
     for p in &parts {
@@ -767,13 +823,13 @@ fn multi_stats(soa: &Soa, labels: &[usize], it: &[Newton], need: &[bool]) -> Vec
 /// at its centre, all clusters advancing together so that each further
 /// round of statistics is one sequential pass over the points. `first`
 /// holds the statistics at the centres if the assignment pass gathered them.
-fn update(soa: &Soa, labels: &[usize], cen: &Centres, first: Option<Vec<Stats>>) -> Vec<(Vec<f64>, f64)> {
+fn update(soa: &Soa, groups: &Groups, cen: &Centres, first: Option<Vec<Stats>>) -> Vec<(Vec<f64>, f64)> {
     let k = cen.a.len();
     let mut it: Vec<Newton> = (0..k).map(|j| centre_newton(cen.row(j).to_vec(), cen.g[j])).collect();
     let mut need = vec![true; k];
     let mut st = match first {
         Some(s) => s,
-        None => multi_stats(soa, labels, &it, &need),
+        None => multi_stats(soa, groups, &it, &need),
     };
     loop {
         for j in 0..k {
@@ -786,7 +842,7 @@ fn update(soa: &Soa, labels: &[usize], cen: &Centres, first: Option<Vec<Stats>>)
         if !need.iter().any(|&b| b) {
             break;
         }
-        st = multi_stats(soa, labels, &it, &need);
+        st = multi_stats(soa, groups, &it, &need);
     }
     it.into_iter()
         .enumerate()
@@ -822,7 +878,8 @@ fn lloyd(pts: &UnitPoints, soa: &Soa, mut cen: Centres, p: &Params, threshold: f
     let mut dist = vec![0f64; pts.n];
     let mut new_labels = vec![0usize; pts.n];
     let mut labels_used = vec![0usize; pts.n];
-    let (inertia0, mut gathered) = assign(soa, &cen, k, &mut labels, &mut dist, true);
+    let mut groups = Groups::new(soa.n, nc);
+    let (inertia0, mut gathered) = assign(soa, &cen, k, &mut labels, &mut dist, Some(&mut groups));
     let mut history = vec![inertia0];
     let mut n_iter = 0;
     for _ in 0..p.max_iter {
@@ -831,8 +888,9 @@ fn lloyd(pts: &UnitPoints, soa: &Soa, mut cen: Centres, p: &Params, threshold: f
         let full = gathered.as_ref().is_some_and(|st| st.iter().all(|s| s.wsum > 0.0));
         if !full && repair(pts, &mut labels, &mut dist, &mut cen) {
             gathered = None; // clusters and centres changed: statistics from scratch
+            groups.rebuild(&labels);
         }
-        let means = update(soa, &labels, &cen, gathered.take());
+        let means = update(soa, &groups, &cen, gathered.take());
         let mut shift = 0.0;
         for (j, (mu, g)) in means.iter().enumerate() {
             let a = 1.0 / cen.g[j];
@@ -842,7 +900,7 @@ fn lloyd(pts: &UnitPoints, soa: &Soa, mut cen: Centres, p: &Params, threshold: f
             cen.set(j, mu, *g);
         }
         n_iter += 1;
-        let (inertia, g) = assign(soa, &cen, k, &mut new_labels, &mut dist, true);
+        let (inertia, g) = assign(soa, &cen, k, &mut new_labels, &mut dist, Some(&mut groups));
         gathered = g;
         history.push(inertia);
         let unchanged = new_labels == labels;
@@ -873,7 +931,7 @@ fn lloyd(pts: &UnitPoints, soa: &Soa, mut cen: Centres, p: &Params, threshold: f
             cen.set(j, &mu, g);
         }
     }
-    let inertia = assign(soa, &cen, k, &mut labels, &mut dist, false).0;
+    let inertia = assign(soa, &cen, k, &mut labels, &mut dist, None).0;
     *history.last_mut().expect("one assignment") = inertia;
     Run { cen, labels, inertia, n_iter, history }
 }
@@ -1032,6 +1090,26 @@ mod tests {
                 assert!(d2.iter().zip(&want).all(|(a, b)| a.to_bits() == b.to_bits()), "n {n}, d {d}");
                 assert_eq!(sums, want_sums);
             }
+        }
+    }
+
+    #[test]
+    fn group_is_a_stable_counting_sort() {
+        // reference: a stable sort of the offsets by label (common practice)
+        let mut r = Rng::new(11);
+        for k in [1usize, 3, 64, 65, 100] {
+            let lab: Vec<usize> = (0..1000).map(|_| r.below(k as u64) as usize).collect();
+            let mut order = vec![0u32; CHUNK];
+            let mut start = vec![0u32; k + 1];
+            group(&lab, &mut order, &mut start);
+            let mut want: Vec<u32> = (0..lab.len() as u32).collect();
+            want.sort_by_key(|&i| lab[i as usize]);
+            assert_eq!(&order[..lab.len()], &want[..], "k = {k}");
+            for j in 0..k {
+                let n = lab.iter().filter(|&&l| l == j).count() as u32;
+                assert_eq!(start[j + 1] - start[j], n, "k = {k}, cluster {j}");
+            }
+            assert_eq!(start[k] as usize, lab.len());
         }
     }
 
