@@ -197,14 +197,10 @@ def _mpmath_precision_restored():
     mpmath.mp.prec = prec
 
 
-@pytest.fixture(scope="module")
+@pytest.fixture(scope="session")
 def client():
     """A distributed.LocalCluster of two worker processes (2 GiB each), shared
-    by the tests of one gyrokit.dask test module and closed after it. (Kept
-    for the whole session, its background threads ran on through the later
-    modules: in one CI run the Ctrl-C test of embed.graph, which checks its
-    warning with pytest.warns, recorded no warning. The warnings registry is
-    process-global and not thread-safe.)"""
+    by the gyrokit.dask tests and closed at the end of the session."""
     distributed = pytest.importorskip("distributed")
     cluster = distributed.LocalCluster(
         n_workers=2, threads_per_worker=1, processes=True, dashboard_address=None, memory_limit="2GiB"

@@ -2,7 +2,7 @@
 
 Reference: gk.frechet_mean and gk.einstein_midpoint (the SPEC, "Beyond one
 machine": the same answer to 1e-13, independent of the number of workers).
-The cluster is the module's distributed.LocalCluster of two worker
+The cluster is the session's distributed.LocalCluster of two worker
 processes (conftest.py).
 """
 

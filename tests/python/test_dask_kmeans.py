@@ -4,7 +4,7 @@ References: gk.KMeans (the SPEC, "Beyond one machine": KMeans on the same
 partial sums as the distributed Fréchet mean); the exponential race for
 weighted sampling (Efraimidis & Spirakis 2006: the smallest of E_i / w_i,
 E_i standard exponential, is i with probability w_i / sum w), checked with
-scipy.stats.chisquare. The cluster is the module's LocalCluster of two
+scipy.stats.chisquare. The cluster is the session's LocalCluster of two
 worker processes (conftest.py).
 """
 
