@@ -328,6 +328,10 @@ def test_progress_true_without_tqdm_names_the_extra(monkeypatch):
 
 def test_ctrl_c_returns_the_points_so_far():
     n, e = tree_closure(3, 5)
+    # Python's own Ctrl-C handler, whatever the process inherited: a process
+    # started in the background by a non-interactive shell ignores SIGINT
+    # (and Python then installs no handler), so the signal would be lost.
+    previous = signal.signal(signal.SIGINT, signal.default_int_handler)
     timer = threading.Timer(0.5, lambda: os.kill(os.getpid(), signal.SIGINT))
     timer.start()
     try:
@@ -335,5 +339,6 @@ def test_ctrl_c_returns_the_points_so_far():
             emb = gk.embed.graph(e, 5, epochs=100000, progress=False)
     finally:
         timer.cancel()
+        signal.signal(signal.SIGINT, previous)
     assert 0 < emb.epochs < 100000 and emb.loss.shape == (emb.epochs,)
     assert np.all(np.isfinite(emb.points)) and inside_ball(emb.points)
