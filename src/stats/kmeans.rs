@@ -455,19 +455,14 @@ fn group(lab: &[usize], order: &mut [u32], start: &mut [u32]) {
     for j in 0..k {
         start[j + 1] += start[j];
     }
-    let mut pos = [0u32; 64];
-    let mut pos_heap;
-    let pos: &mut [u32] = if k <= 64 {
-        &mut pos[..k]
-    } else {
-        pos_heap = vec![0u32; k];
-        &mut pos_heap
-    };
-    pos.copy_from_slice(&start[..k]);
+    // `start[l]` as cluster l's cursor; afterwards it holds the cluster's
+    // end, the next one's start: shifted back by one place
     for (r, &l) in lab.iter().enumerate() {
-        order[pos[l] as usize] = r as u32;
-        pos[l] += 1;
+        order[start[l] as usize] = r as u32;
+        start[l] += 1;
     }
+    start.copy_within(0..k, 1);
+    start[0] = 0;
 }
 
 /// Row `q` of a lane array: `B` values (one check, then none per lane).
@@ -649,7 +644,7 @@ fn chunk_stats(
 }
 
 /// Nearest centre (ties to the lower index) and its distance, per point;
-/// returns the inertia (fixed-chunk sums in order) and, with `groups`, each
+/// returns the inertia (fixed-chunk sums in order) and, with `gather`, each
 /// cluster's Newton statistics at its centre (the first pass of the next
 /// update, done while the chunk is in cache), grouping the chunks' members
 /// by their new labels into `groups` for the update's further passes.
@@ -659,27 +654,17 @@ fn assign(
     k: &Curvature,
     labels: &mut [usize],
     dist: &mut [f64],
-    groups: Option<&mut Groups>,
+    groups: &mut Groups,
+    gather: bool,
 ) -> (f64, Option<Vec<Stats>>) {
     let nc = cen.a.len();
     let d = soa.d;
     let need = vec![true; nc];
-    let gather = groups.is_some();
-    // Without groups, one unused slot per chunk stands in for them.
-    let nchunks = labels.len().div_ceil(CHUNK);
-    let mut unused: (Vec<u32>, Vec<u32>);
-    let (gorder, gstart, ow, sw) = match groups {
-        Some(g) => (&mut g.order[..], &mut g.start[..], CHUNK, nc + 1),
-        None => {
-            unused = (vec![0u32; nchunks], vec![0u32; nchunks]);
-            (&mut unused.0[..], &mut unused.1[..], 1, 1)
-        }
-    };
     let parts: Vec<(f64, Sums)> = labels
         .par_chunks_mut(CHUNK)
         .zip(dist.par_chunks_mut(CHUNK))
-        .zip(gorder.par_chunks_mut(ow))
-        .zip(gstart.par_chunks_mut(sw))
+        .zip(groups.order.par_chunks_mut(CHUNK))
+        .zip(groups.start.par_chunks_mut(nc + 1))
         .enumerate()
         .map_init(
             || Scratch::new(d),
@@ -879,7 +864,7 @@ fn lloyd(pts: &UnitPoints, soa: &Soa, mut cen: Centres, p: &Params, threshold: f
     let mut new_labels = vec![0usize; pts.n];
     let mut labels_used = vec![0usize; pts.n];
     let mut groups = Groups::new(soa.n, nc);
-    let (inertia0, mut gathered) = assign(soa, &cen, k, &mut labels, &mut dist, Some(&mut groups));
+    let (inertia0, mut gathered) = assign(soa, &cen, k, &mut labels, &mut dist, &mut groups, true);
     let mut history = vec![inertia0];
     let mut n_iter = 0;
     for _ in 0..p.max_iter {
@@ -900,7 +885,7 @@ fn lloyd(pts: &UnitPoints, soa: &Soa, mut cen: Centres, p: &Params, threshold: f
             cen.set(j, mu, *g);
         }
         n_iter += 1;
-        let (inertia, g) = assign(soa, &cen, k, &mut new_labels, &mut dist, Some(&mut groups));
+        let (inertia, g) = assign(soa, &cen, k, &mut new_labels, &mut dist, &mut groups, true);
         gathered = g;
         history.push(inertia);
         let unchanged = new_labels == labels;
@@ -916,8 +901,8 @@ fn lloyd(pts: &UnitPoints, soa: &Soa, mut cen: Centres, p: &Params, threshold: f
     // those labels computes them (the warm starts only save iterations).
     // So a centre depends on its members alone, and runs that end with the
     // same clusters (labels permuted) report the same inertia.
-    let groups = members(&labels_used, nc);
-    let means: Vec<Option<(Vec<f64>, f64)>> = groups
+    let clusters = members(&labels_used, nc);
+    let means: Vec<Option<(Vec<f64>, f64)>> = clusters
         .par_iter()
         .map(|idx| {
             if idx.is_empty() {
@@ -931,7 +916,7 @@ fn lloyd(pts: &UnitPoints, soa: &Soa, mut cen: Centres, p: &Params, threshold: f
             cen.set(j, &mu, g);
         }
     }
-    let inertia = assign(soa, &cen, k, &mut labels, &mut dist, None).0;
+    let inertia = assign(soa, &cen, k, &mut labels, &mut dist, &mut groups, false).0;
     *history.last_mut().expect("one assignment") = inertia;
     Run { cen, labels, inertia, n_iter, history }
 }
