@@ -19,6 +19,8 @@ fixes its pool size at start-up).
     python benches/bench_graph.py                   # the full run (Poincaré and hyperboloid)
     python benches/bench_graph.py --subset mammal   # the mammal subtree, for tuning
     python benches/bench_graph.py --scaling         # time per epoch, 1 vs 2 threads
+    python benches/bench_graph.py --models poincare --negatives 10 --epochs 20 --burn-in 2 \
+        --degree-epochs 2 --radial-search            # the radial line search (README figures)
     python benches/bench_graph.py --models poincare --epochs 60 --burn-in 2 --lr 0.6 \
         --batch-size 1024 --node-steps mean          # the best setting found on subsets
 
@@ -138,7 +140,7 @@ def run(args, model: str, names, pairs) -> Dict[str, float]:
         learning_rate=args.lr, burn_in=args.burn_in, batch_size=args.batch_size, seed=args.seed,
         n_nodes=len(names), progress=args.progress, node_steps=args.node_steps, schedule=args.schedule,
         burn_in_factor=args.burn_in_factor, curvature=args.curvature,
-        degree_epochs=args.degree_epochs, degree_power=args.degree_power,
+        degree_epochs=args.degree_epochs, degree_power=args.degree_power, radial_search=args.radial_search,
     )
     train = time.perf_counter() - t
     cpu = time.process_time() - c
@@ -151,7 +153,7 @@ def run(args, model: str, names, pairs) -> Dict[str, float]:
         "model": model, "dim": args.dim, "epochs": emb.epochs, "negatives": args.negatives, "lr": args.lr,
         "burn_in": args.burn_in, "batch_size": args.batch_size, "node_steps": args.node_steps,
         "schedule": args.schedule, "curvature": args.curvature, "degree_epochs": args.degree_epochs,
-        "degree_power": args.degree_power, "train_s": train, "train_cpu_s": cpu, "eval_s": ev,
+        "degree_power": args.degree_power, "radial_search": args.radial_search, "train_s": train, "train_cpu_s": cpu, "eval_s": ev,
         "positives_per_s_per_core": positives / train / threads, "positives_per_cpu_s": positives / cpu,
         "threads": threads,
         "final_loss": float(emb.loss[-1]) if len(emb.loss) else float("nan"), **m,
@@ -197,6 +199,8 @@ def main() -> None:
     ap.add_argument("--degree-epochs", type=int, default=None,
                     help="epochs of degree-weighted negatives (default: the burn-in epochs)")
     ap.add_argument("--degree-power", type=float, default=0.75)
+    ap.add_argument("--radial-search", action="store_true",
+                    help="a line search on the loss over a common scaling of the radii after every epoch")
     ap.add_argument("--seed", type=int, default=0)
     ap.add_argument("--curvature", type=float, default=-1.0)
     ap.add_argument("--progress", action="store_true", default=None)

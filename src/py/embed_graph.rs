@@ -33,7 +33,7 @@ impl GraphTrainer {
 impl GraphTrainer {
     /// `edges` is a C-contiguous `(m, 2)` int64 array.
     #[new]
-    #[pyo3(signature = (edges, n_nodes, dim, model, curvature, negatives, learning_rate, burn_in, burn_in_factor, batch_size, init, seed, directed = false, node_mean = false, decay_epochs = 0, degree_epochs = 0, degree_power = 0.75))]
+    #[pyo3(signature = (edges, n_nodes, dim, model, curvature, negatives, learning_rate, burn_in, burn_in_factor, batch_size, init, seed, directed = false, node_mean = false, decay_epochs = 0, degree_epochs = 0, degree_power = 0.75, radial_search = false))]
     fn new(
         py: Python<'_>,
         edges: PyReadonlyArray2<'_, i64>,
@@ -53,6 +53,7 @@ impl GraphTrainer {
         decay_epochs: usize,
         degree_epochs: usize,
         degree_power: f64,
+        radial_search: bool,
     ) -> PyResult<Self> {
         let k = Curvature::new(curvature)?;
         let md = Model::parse(model, "model")?;
@@ -74,6 +75,7 @@ impl GraphTrainer {
             degree_epochs,
             degree_power,
             decay_epochs,
+            radial_search,
         };
         let t = py.detach(move || {
             let g = Graph::new(n_nodes, &rows, directed)?;
@@ -120,6 +122,12 @@ impl GraphTrainer {
     #[getter]
     fn shortened(&self) -> u64 {
         self.lock().shortened()
+    }
+    /// The radial factors of the line searches so far (one per epoch after
+    /// burn-in; 1.0 where none lowered the loss).
+    #[getter]
+    fn scales(&self) -> Vec<f64> {
+        self.lock().scales().to_vec()
     }
 }
 

@@ -198,6 +198,27 @@ def test_degree_weighted_negatives_default_to_the_burn_in():
     assert sklearn_map(flat.points, "poincare", n, e) >= 0.95
 
 
+@pytest.mark.parametrize("model", ["poincare", "hyperboloid"])
+def test_radial_search_grows_the_radii_and_keeps_the_points_inside(model):
+    # the run of test_balanced_tree_reaches_high_map with the radial line
+    # search after every epoch past burn-in: the points stay in the model
+    # (common practice: the model's domain), the hyperbolic radii grew well
+    # beyond the plain run's (the search moves along the radii only), and the
+    # embedding still reconstructs the tree (MAP from scikit-learn, see
+    # sklearn_map; 0.943 measured against 0.975 for the plain run)
+    n, e = tree_closure(3, 4)
+    kw = dict(epochs=60, learning_rate=0.3, batch_size=16, seed=1, progress=False, model=model)
+    plain = gk.embed.graph(e, 5, **kw)
+    emb = gk.embed.graph(e, 5, radial_search=True, **kw)
+    pts = emb.points if model == "poincare" else gk.convert(emb.points, "hyperboloid", "poincare")
+    assert inside_ball(pts)
+    assert sklearn_map(pts, "poincare", n, e) >= 0.9
+    p0 = plain.points if model == "poincare" else gk.convert(plain.points, "hyperboloid", "poincare")
+    r0 = np.median(gk.poincare.distance(p0, np.zeros(5)))
+    r1 = np.median(gk.poincare.distance(pts, np.zeros(5)))
+    assert r1 > 1.1 * r0, (r0, r1)
+
+
 def test_node_mean_and_linear_schedule_tame_a_large_rate():
     # the balanced tree of test_balanced_tree_reaches_high_map at a rate ten
     # times larger, in batches of 256 positives (a third of an epoch): the
@@ -251,6 +272,9 @@ for model in ("poincare", "hyperboloid"):
     sys.stdout.write(emb.points.tobytes().hex() + emb.loss.tobytes().hex() + "\\n")
     emb = gk.embed.graph(e, 4, model=model, epochs=4, batch_size=32, seed=9, progress=False, degree_epochs=2)
     sys.stdout.write(emb.points.tobytes().hex() + emb.loss.tobytes().hex() + "\\n")
+    emb = gk.embed.graph(e, 4, model=model, epochs=4, batch_size=32, seed=9, progress=False, burn_in=1,
+                         radial_search=True)
+    sys.stdout.write(emb.points.tobytes().hex() + emb.loss.tobytes().hex() + "\\n")
 """
 
 
@@ -297,6 +321,8 @@ def test_bad_types():
         gk.embed.graph(np.array([[0.5, 1.0]]), progress=False)
     with pytest.raises(TypeError, match="negatives"):
         gk.embed.graph(np.array([[0, 1]]), negatives=1.5, progress=False)
+    with pytest.raises(TypeError, match="radial_search"):
+        gk.embed.graph(np.array([[0, 1]]), radial_search="yes", progress=False)
 
 
 def test_networkx_self_loop_names_the_node():
