@@ -26,10 +26,13 @@ Algorithm (per run; the best of ``n_init`` runs by inertia is kept):
    centre (lowest index on ties) is moved into the empty cluster and
    becomes its centre. This never raises the inertia and never empties
    another cluster.
-4. Update: every centre becomes the Fréchet mean of its points, by the
-   Newton iteration of :func:`gyrokit.frechet_mean` started at the previous
-   centre; these intermediate centres stop after a Newton step shorter than
-   1e-5 R (they are then within about 1e-10 R of the mean). The centres of
+4. Update: every centre whose points changed becomes the Fréchet mean of
+   its points, by the Newton iteration of :func:`gyrokit.frechet_mean`
+   started at the previous centre (the others stay); these intermediate
+   centres stop after a Newton step shorter than 1e-5 R (they are then
+   within about 1e-10 R of the mean). A cluster's first step costs no pass
+   over the data once it has been updated before: it takes the Hessian of
+   its last update and the statistics of the points that moved in or out. The centres of
    the last update are recomputed exactly as
    ``frechet_mean(X, labels=...)`` computes them (from the Einstein
    midpoint, to its default tolerance), so ``cluster_centers_`` depends only

@@ -464,7 +464,7 @@ pub(crate) struct Newton {
     iterations: usize,
     tol: f64,
     max_iter: usize,
-    last_step: f64,
+    pub(crate) last_step: f64,
     pub result: Option<GroupMean>,
 }
 
