@@ -667,8 +667,8 @@ type Move = (usize, usize, usize);
 struct Assigned {
     /// The inertia (fixed-chunk sums in order).
     inertia: f64,
-    /// With `gather`: the Newton statistics at its centre of every cluster
-    /// flagged there (zero for the others).
+    /// With `gather` flagging some cluster: the Newton statistics at its
+    /// centre of every flagged cluster (zero for the others).
     stats: Option<Vec<Stats>>,
     /// With `prev`: the clusters that gained or lost a point against `prev`,
     /// and the points that moved, `(index, old cluster, new cluster)` in
@@ -785,7 +785,7 @@ fn assign(
                 counts[j] += (st[j + 1] - st[j]) as usize;
             }
         }
-        stats = Some(if ns > 0 { tot.into_stats() } else { Sums::zero(nc, d).into_stats() });
+        stats = (ns > 0).then(|| tot.into_stats());
     }
     Assigned { inertia, stats, changed, moves, counts }
 }
