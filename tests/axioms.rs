@@ -16,12 +16,14 @@
 //! the Möbius/Einstein isomorphism.
 //!
 //! The number of proptest cases per property is read from the environment
-//! variable `GYROKIT_PROPTEST_CASES` (default 256).
+//! variable `GYROKIT_PROPTEST_CASES` (default 256). The draws are the same in
+//! every run (a fixed seed, so that CI results do not depend on luck);
+//! `GYROKIT_TEST_EXPLORE=1` draws fresh cases each run for exploratory runs.
 
 use gyrokit::{klein, poincare, Curvature};
 use proptest::collection::vec as pvec;
 use proptest::prelude::*;
-use proptest::test_runner::TestCaseError;
+use proptest::test_runner::{RngSeed, TestCaseError};
 
 type Res = Result<(), TestCaseError>;
 
@@ -37,6 +39,11 @@ fn config() -> ProptestConfig {
         cases,
         // No regression files: this suite must not write into the source tree.
         failure_persistence: None,
+        rng_seed: if std::env::var("GYROKIT_TEST_EXPLORE").is_ok_and(|v| v == "1") {
+            RngSeed::Random
+        } else {
+            RngSeed::Fixed(0)
+        },
         ..ProptestConfig::default()
     }
 }

@@ -546,15 +546,29 @@ fn transport_unit(c: &Curvature, x: &[f64], gx: f64, y: &[f64], gy: f64, v: &[f6
 /// `(a sqrt(g_y) x + b sqrt(g_x) y) / (a sqrt(g_y) + b sqrt(g_x))` with the
 /// geodesic weights `(a, b)` of `D = d(x, y)/R`. Returns the gap of the
 /// result, `g_x g_y / den^2` (`1/z0^2` for the hyperboloid point `z = a x_H + b y_H`).
+///
+/// The point is written as a step from the nearer end, `x + f_b (y - x)`
+/// or `y + f_a (x - y)` with the step weight at most 1/2: each coordinate
+/// then lies between those of `x` and `y` after rounding (the convex form
+/// `f_a x + f_b y` rounds `f_a + f_b` away from 1 and can land an ulp past
+/// an end, which near the sphere is ~1e-7 of a short chord), and `t = 0`,
+/// `t = 1` return `x`, `y` exactly.
 #[inline(always)]
 pub fn geodesic_g(c: &Curvature, x: &[f64], gx: f64, y: &[f64], gy: f64, t: f64, out: &mut [f64]) -> f64 {
     let big_d = distance_g(c, x, gx, y, gy) * c.sqrt_kappa;
     let (a, b) = geodesic_weights(t, big_d);
     let (ca, cb) = (a * gy.sqrt(), b * gx.sqrt());
     let den = ca + cb;
-    let (fa, fb) = (ca / den, cb / den);
-    for i in 0..x.len() {
-        out[i] = fa * x[i] + fb * y[i];
+    if cb <= ca {
+        let fb = cb / den;
+        for i in 0..x.len() {
+            out[i] = x[i] + fb * (y[i] - x[i]);
+        }
+    } else {
+        let fa = ca / den;
+        for i in 0..x.len() {
+            out[i] = y[i] + fa * (x[i] - y[i]);
+        }
     }
     gx * gy / (den * den)
 }
@@ -622,6 +636,60 @@ mod tests {
         let mut got = [0.0; 3];
         exp_map_g(&c, &x, gx, &v, &mut got);
         assert!(rel(&got, &want) < 1e-14, "{got:?} vs {want:?}");
+    }
+
+    #[test]
+    fn geodesic_points_stay_on_the_chord_near_the_sphere() {
+        // handbook: Klein geodesics are straight chords; on a diameter (d = 1,
+        // R = 1) the coordinate is tanh(rho), so the point at fraction t is
+        // tanh((1 - t) rho_x + t rho_y). The pair was drawn by a randomised
+        // test: the convex form put the point two ulps past y (chord
+        // parameter 1 + 1.6e-7).
+        let c = Curvature::new(-1.0).unwrap();
+        let (x, y, t) = ([0.9999999933611915f64], [0.9999999926671334f64], 0.999999982583457);
+        let (gx, gy) = (gap(1.0, &x), gap(1.0, &y));
+        let rho = |k: f64, g: f64| ((1.0 + k) / g.sqrt()).ln();
+        let want = ((1.0 - t) * rho(x[0], gx) + t * rho(y[0], gy)).tanh();
+        let mut z = [0.0];
+        geodesic_g(&c, &x, gx, &y, gy, t, &mut z);
+        assert!(z[0] >= y[0] && z[0] <= x[0], "{} outside [{}, {}]", z[0], y[0], x[0]);
+        assert!((z[0] - want).abs() <= 2.0 * f64::EPSILON, "{} vs {}", z[0], want);
+        // the ends are returned exactly, and in d = 5 every coordinate of
+        // every point lies between those of the ends (common practice)
+        let mut rng = crate::numeric::rng::Rng::new(7);
+        for _ in 0..2000 {
+            let mut p = [[0.0; 5]; 2];
+            for q in p.iter_mut() {
+                rng.fill_normal(q);
+                let r = q.iter().map(|v| v * v).sum::<f64>().sqrt();
+                let rim = 1.0 - 10f64.powf(-15.0 * rng.uniform());
+                q.iter_mut().for_each(|v| *v *= rim / r);
+            }
+            if rng.uniform() < 0.5 {
+                // nearly coincident pairs
+                let e = 10f64.powf(-12.0 * rng.uniform());
+                for i in 0..5 {
+                    p[1][i] = p[0][i] * (1.0 - e) + e * p[1][i];
+                }
+            }
+            let (x, y) = (p[0], p[1]);
+            let (gx, gy) = (gap(1.0, &x), gap(1.0, &y));
+            let mut z = [0.0; 5];
+            for t in [0.0, 1.0, rng.uniform(), 10f64.powf(-9.0 * rng.uniform()), 1.0 - 10f64.powf(-9.0 * rng.uniform())]
+            {
+                geodesic_g(&c, &x, gx, &y, gy, t, &mut z);
+                for i in 0..5 {
+                    let (lo, hi) = (x[i].min(y[i]), x[i].max(y[i]));
+                    assert!(z[i] >= lo && z[i] <= hi, "t {t}: {z:?} outside {x:?} .. {y:?}");
+                }
+                if t == 0.0 {
+                    assert_eq!(z, x);
+                }
+                if t == 1.0 {
+                    assert_eq!(z, y);
+                }
+            }
+        }
     }
 
     #[test]

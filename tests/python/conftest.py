@@ -13,7 +13,10 @@ Hypothesis: one profile, ``gyrokit``, loaded for the whole suite. Its example
 count comes from the environment variable GYROKIT_HYPOTHESIS_EXAMPLES
 (default 100; CI sets 200), no deadline (the mpmath references are slow), and
 the "too slow" / "data too large" health checks off (each example checks a
-batch of points at once).
+batch of points at once). The draws are derandomized (the same examples in
+every run, so a CI result never depends on luck); GYROKIT_TEST_EXPLORE=1
+draws fresh examples each run, for exploratory runs with a large example
+count. A case found that way goes into the test as an ``@example``.
 """
 
 from __future__ import annotations
@@ -36,6 +39,7 @@ settings.register_profile(
     "gyrokit",
     max_examples=HYPOTHESIS_EXAMPLES,
     deadline=None,
+    derandomize=os.environ.get("GYROKIT_TEST_EXPLORE") != "1",
     suppress_health_check=[HealthCheck.too_slow, HealthCheck.data_too_large],
 )
 settings.load_profile("gyrokit")
