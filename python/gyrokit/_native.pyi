@@ -153,9 +153,9 @@ def distortion(
 class GraphTrainer:
     def __new__(
         cls, edges: Any, n_nodes: int, dim: int, model: str, curvature: float, negatives: int,
-        learning_rate: float, burn_in: int, burn_in_factor: float, batch_size: int, init: float, seed: int,
-        directed: bool = False, node_mean: bool = False, decay_epochs: int = 0, degree_epochs: int = 0,
-        degree_power: float = 0.75, radial_search: bool = False,
+        learning_rate: float, burn_in: int, burn_in_factor: float, batch_size: int, init_scale: float,
+        seed: int, directed: bool = False, node_mean: bool = False, decay_epochs: int = 0, degree_epochs: int = 0,
+        degree_power: float = 0.75, radial_search: bool = False, init: Any = None,
     ) -> GraphTrainer: ...
     def run(self, max_edges: int) -> tuple[int, float | None]: ...
     def points(self) -> Any: ...

@@ -104,9 +104,11 @@
 
 use rayon::prelude::*;
 
+use crate::batch::Data;
 use crate::error::{row_error, value_err, Error, Result};
 use crate::models::ball::{checked_gap, settle, Curvature};
 use crate::models::hyperboloid::{self, MAX_SPATIAL_SQ};
+use crate::models::points::PointArray;
 use crate::models::{poincare, Model};
 use crate::numeric::simd::{dispatch, has_fma, prefetch};
 use crate::numeric::{acosh1p2_fast, gap, sumsq};
@@ -458,9 +460,9 @@ pub struct Params {
     pub burn_in_factor: f64,
     /// Positives per synchronous step.
     pub batch_size: usize,
-    /// Starting points uniform in `[-init, init]^dim` (units of R) in the
-    /// Poincaré ball.
-    pub init: f64,
+    /// Starting points (unless given to [`Trainer::new`]) uniform in
+    /// `[-init_scale, init_scale]^dim` (units of R) in the Poincaré ball.
+    pub init_scale: f64,
     pub seed: u64,
     /// How a node touched by several slots of a batch moves: `false` by the
     /// sum of their gradients (the step sequential SGD would take from one
@@ -498,7 +500,7 @@ impl Default for Params {
             burn_in: 10,
             burn_in_factor: 0.1,
             batch_size: 256,
-            init: 1e-3,
+            init_scale: 1e-3,
             seed: 0,
             node_mean: false,
             degree_epochs: 0,
@@ -535,8 +537,8 @@ impl Params {
         if !(self.degree_power.is_finite() && (0.0..=4.0).contains(&self.degree_power)) {
             return value_err(format!("degree_power must lie in [0, 4], got {}", self.degree_power));
         }
-        if !(self.init.is_finite() && self.init > 0.0 && self.init <= 0.5) {
-            return value_err(format!("init must lie in (0, 0.5] (units of R), got {}", self.init));
+        if !(self.init_scale.is_finite() && self.init_scale > 0.0 && self.init_scale <= 0.5) {
+            return value_err(format!("init_scale must lie in (0, 0.5] (units of R), got {}", self.init_scale));
         }
         Ok(())
     }
@@ -881,9 +883,14 @@ pub struct Trainer {
 }
 
 impl Trainer {
-    /// Starts a run: starting points uniform in `[-init R, init R]^dim` in
-    /// the Poincaré ball (their images on the hyperboloid).
-    pub fn new(model: Model, k: Curvature, graph: Graph, p: Params) -> Result<Trainer> {
+    /// Starts a run from `start` (points of `model`, `(n, width)`, read and
+    /// checked row by row like every point input: argument name `init`), or
+    /// when it is `None` from points uniform in `[-init_scale R,
+    /// init_scale R]^dim` in the Poincaré ball (their images on the
+    /// hyperboloid). The draws of the training do not depend on which (the
+    /// uniform draws are skipped over when `start` is given), so a run from
+    /// the points of an `epochs = 0` run repeats the run from scratch.
+    pub fn new(model: Model, k: Curvature, graph: Graph, p: Params, start: Option<&Data>) -> Result<Trainer> {
         p.check()?;
         if !matches!(model, Model::Poincare | Model::Hyperboloid) {
             return value_err(format!(
@@ -896,19 +903,39 @@ impl Trainer {
         let w = lay.width();
         let mut rec = vec![0.0; n * w];
         let mut rng = Rng::new(p.seed);
-        let mut x = vec![0.0; p.dim];
-        let mut pt = vec![0.0; p.dim + 1];
-        for i in 0..n {
-            for c in x.iter_mut() {
-                *c = (2.0 * rng.uniform() - 1.0) * p.init * k.radius;
+        if let Some(data) = start {
+            let pa = PointArray::new(model, "init", data)?;
+            if pa.n != n || pa.d != p.dim {
+                return value_err(format!(
+                    "init must have shape (n_nodes, width) = ({n}, {}) for {} points of dim {}; got ({}, {})",
+                    model.width(p.dim),
+                    Model::NAMES[model as usize],
+                    p.dim,
+                    pa.n,
+                    pa.width
+                ));
             }
-            if model == Model::Hyperboloid {
-                hyperboloid::from_poincare(&k, &x, gap(k.kappa, &x), &mut pt);
-                lay.store(&k, &pt, &mut rec[i * w..(i + 1) * w])
-            } else {
-                lay.store(&k, &x, &mut rec[i * w..(i + 1) * w])
+            const CHUNK: usize = 4096;
+            let parts: Vec<&mut [f64]> = rec.chunks_mut(CHUNK * w).collect();
+            pa.read_rows(CHUNK, parts, |part, r, row| lay.store(&k, row, &mut part[r * w..(r + 1) * w]))?;
+            for _ in 0..n * p.dim {
+                rng.uniform();
             }
-            .map_err(|_| Error::Value("starting point outside the model".into()))?;
+        } else {
+            let mut x = vec![0.0; p.dim];
+            let mut pt = vec![0.0; p.dim + 1];
+            for i in 0..n {
+                for c in x.iter_mut() {
+                    *c = (2.0 * rng.uniform() - 1.0) * p.init_scale * k.radius;
+                }
+                if model == Model::Hyperboloid {
+                    hyperboloid::from_poincare(&k, &x, gap(k.kappa, &x), &mut pt);
+                    lay.store(&k, &pt, &mut rec[i * w..(i + 1) * w])
+                } else {
+                    lay.store(&k, &x, &mut rec[i * w..(i + 1) * w])
+                }
+                .map_err(|_| Error::Value("starting point outside the model".into()))?;
+            }
         }
         let order = graph.edges.clone();
         let degree = (p.degree_epochs > 0).then(|| DegreeSampler::new(&graph, p.degree_power));
@@ -1483,7 +1510,7 @@ mod tests {
         for model in [Model::Poincare, Model::Hyperboloid] {
             let g = Graph::new(n, &edges, false).unwrap();
             let p = Params { dim: 5, burn_in: 2, batch_size: 16, radial_search: true, seed: 1, ..Params::default() };
-            let mut t = Trainer::new(model, Curvature::new(-1.0).unwrap(), g, p).unwrap();
+            let mut t = Trainer::new(model, Curvature::new(-1.0).unwrap(), g, p, None).unwrap();
             while t.epoch() < 12 {
                 t.run(usize::MAX);
             }
@@ -1636,7 +1663,7 @@ mod tests {
         };
         let pool = rayon::ThreadPoolBuilder::new().num_threads(threads).build().unwrap();
         pool.install(|| {
-            let mut t = Trainer::new(model, Curvature::new(-1.0).unwrap(), g, p).unwrap();
+            let mut t = Trainer::new(model, Curvature::new(-1.0).unwrap(), g, p, None).unwrap();
             let mut losses = Vec::new();
             while t.epoch() < epochs {
                 // uneven calls: batches are never split
@@ -1739,7 +1766,7 @@ mod tests {
             batch_size: 1 << 20,
             ..Params::default()
         };
-        let mut t = Trainer::new(Model::Poincare, Curvature::new(-1.0).unwrap(), g.clone(), p.clone()).unwrap();
+        let mut t = Trainer::new(Model::Poincare, Curvature::new(-1.0).unwrap(), g.clone(), p.clone(), None).unwrap();
         let mut want = vec![0.2, 0.2, 0.8];
         for e in 3..14 {
             want.push((0.8 * (1.0 - (e - 2) as f64 / 10.0)).max(0.008));
@@ -1763,7 +1790,7 @@ mod tests {
                 ..Params::default()
             };
             let k = Curvature::new(-1.0).unwrap();
-            let mut t = Trainer::new(Model::Poincare, k, g.clone(), p).unwrap();
+            let mut t = Trainer::new(Model::Poincare, k, g.clone(), p, None).unwrap();
             let before = t.points();
             t.run(usize::MAX);
             let after = t.points();
@@ -1784,7 +1811,7 @@ mod tests {
         for model in [Model::Poincare, Model::Hyperboloid] {
             let p = Params { dim: 2, negatives: 5, learning_rate: 1e6, burn_in: 0, batch_size: 4, ..Params::default() };
             let k = Curvature::new(-1.0).unwrap();
-            let mut t = Trainer::new(model, k, g.clone(), p).unwrap();
+            let mut t = Trainer::new(model, k, g.clone(), p, None).unwrap();
             for _ in 0..3 {
                 t.run(usize::MAX);
             }
@@ -1800,6 +1827,36 @@ mod tests {
             if model == Model::Poincare {
                 assert!(t.shortened() > 0);
             }
+        }
+    }
+
+    #[test]
+    fn a_run_from_the_starting_points_repeats_the_run() {
+        // common practice (a warm start): the draws do not depend on the
+        // start, so starting from the points of a fresh trainer repeats its
+        // run bit for bit; a bad start names the argument and the row
+        let (n, edges) = tree_closure(2, 4);
+        let g = Graph::new(n, &edges, false).unwrap();
+        let k = Curvature::new(-0.5).unwrap();
+        for model in [Model::Poincare, Model::Hyperboloid] {
+            let p = Params { dim: 3, burn_in: 2, batch_size: 8, seed: 5, ..Params::default() };
+            let mut a = Trainer::new(model, k, g.clone(), p.clone(), None).unwrap();
+            let w = a.width();
+            let start = ndarray::Array2::from_shape_vec((n, w), a.points()).unwrap().into_dyn();
+            let data = Data::F64(start.view());
+            let mut b = Trainer::new(model, k, g.clone(), p.clone(), Some(&data)).unwrap();
+            assert_eq!(a.points(), b.points());
+            for _ in 0..6 {
+                a.run(usize::MAX);
+                b.run(usize::MAX);
+            }
+            assert_eq!(a.points(), b.points());
+            assert_eq!(a.losses(), b.losses());
+            let mut bad = start.clone();
+            bad[[5, 0]] = f64::NAN;
+            let data = Data::F64(bad.view());
+            let err = Trainer::new(model, k, g.clone(), p.clone(), Some(&data)).err().unwrap().to_string();
+            assert!(err.contains("init") && err.contains("row 5"), "{err}");
         }
     }
 }

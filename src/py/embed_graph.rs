@@ -14,6 +14,7 @@ use pyo3::prelude::*;
 use crate::embed::graph::{loss_and_gradient, Graph, Params, Trainer};
 use crate::models::ball::Curvature;
 use crate::models::Model;
+use crate::py::coerce::coerce_opt;
 
 #[pyclass(frozen, module = "gyrokit._native", name = "GraphTrainer")]
 pub struct GraphTrainer {
@@ -31,9 +32,10 @@ impl GraphTrainer {
 
 #[pymethods]
 impl GraphTrainer {
-    /// `edges` is a C-contiguous `(m, 2)` int64 array.
+    /// `edges` is a C-contiguous `(m, 2)` int64 array; `init`, when given,
+    /// the starting points (`(n_nodes, width)` points of `model`).
     #[new]
-    #[pyo3(signature = (edges, n_nodes, dim, model, curvature, negatives, learning_rate, burn_in, burn_in_factor, batch_size, init, seed, directed = false, node_mean = false, decay_epochs = 0, degree_epochs = 0, degree_power = 0.75, radial_search = false))]
+    #[pyo3(signature = (edges, n_nodes, dim, model, curvature, negatives, learning_rate, burn_in, burn_in_factor, batch_size, init_scale, seed, directed = false, node_mean = false, decay_epochs = 0, degree_epochs = 0, degree_power = 0.75, radial_search = false, init = None))]
     fn new(
         py: Python<'_>,
         edges: PyReadonlyArray2<'_, i64>,
@@ -46,7 +48,7 @@ impl GraphTrainer {
         burn_in: usize,
         burn_in_factor: f64,
         batch_size: usize,
-        init: f64,
+        init_scale: f64,
         seed: u64,
         directed: bool,
         node_mean: bool,
@@ -54,6 +56,7 @@ impl GraphTrainer {
         degree_epochs: usize,
         degree_power: f64,
         radial_search: bool,
+        init: Option<&Bound<'_, PyAny>>,
     ) -> PyResult<Self> {
         let k = Curvature::new(curvature)?;
         let md = Model::parse(model, "model")?;
@@ -69,7 +72,7 @@ impl GraphTrainer {
             burn_in,
             burn_in_factor,
             batch_size,
-            init,
+            init_scale,
             seed,
             node_mean,
             degree_epochs,
@@ -77,9 +80,11 @@ impl GraphTrainer {
             decay_epochs,
             radial_search,
         };
+        let start = coerce_opt(py, "init", init)?;
+        let sd = start.as_ref().map(|a| a.data());
         let t = py.detach(move || {
             let g = Graph::new(n_nodes, &rows, directed)?;
-            Trainer::new(md, k, g, p)
+            Trainer::new(md, k, g, p, sd.as_ref())
         })?;
         Ok(GraphTrainer { inner: Mutex::new(t), n: n_nodes })
     }

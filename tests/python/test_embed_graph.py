@@ -278,6 +278,64 @@ for model in ("poincare", "hyperboloid"):
 """
 
 
+@pytest.mark.parametrize("model", ["poincare", "hyperboloid"])
+def test_init_starts_from_given_points_and_continues_a_run(model):
+    # common practice (a warm start): epochs=0 returns the start; a run
+    # continued from the points of an epochs=0 run is the run from scratch
+    # (the random draws do not depend on the start, bit for bit in both
+    # models), and a second run (another seed, no burn-in) from the
+    # Embedding of a first one starts at the first one's level of loss, not
+    # from scratch, and reaches the MAP (scikit-learn reference, sklearn_map)
+    n, e = tree_closure(3, 4)
+    kw = dict(model=model, learning_rate=0.3, batch_size=16, seed=1, progress=False)
+    start = gk.embed.graph(e, 5, epochs=0, **kw)
+    same = gk.embed.graph(e, 5, epochs=0, init=start.points, **kw)
+    assert same.epochs == 0 and np.array_equal(same.points, start.points)
+    full = gk.embed.graph(e, 5, epochs=30, **kw)
+    resumed = gk.embed.graph(e, 5, epochs=30, init=start, **kw)
+    assert np.array_equal(resumed.points, full.points)
+    assert np.array_equal(resumed.loss, full.loss)
+    first = gk.embed.graph(e, 5, epochs=15, burn_in=0, **kw)
+    second = gk.embed.graph(e, 5, epochs=25, burn_in=0, seed=2, init=first, **{k: v for k, v in kw.items() if k != "seed"})
+    assert second.loss[0] < 1.2 * first.loss[-1] < 0.5 * first.loss[0]
+    assert sklearn_map(second.points, model, n, e) >= 0.95
+    # a start near the sphere stays inside
+    if model == "poincare":
+        rim = start.points / np.linalg.norm(start.points, axis=1, keepdims=True) * (1 - 1e-15)
+        out = gk.embed.graph(e, 5, epochs=2, init=rim, **kw)
+        assert inside_ball(out.points) and np.all(np.isfinite(out.points))
+
+
+def test_bad_init_is_a_value_error_naming_the_row():
+    n, e = tree_closure(2, 3)
+    kw = dict(epochs=1, progress=False)
+    good = gk.embed.graph(e, 3, epochs=0, progress=False).points
+    with pytest.raises(ValueError, match=r"init must have shape \(n_nodes, width\) = \(15, 3\)"):
+        gk.embed.graph(e, 3, init=good[:-1], **kw)
+    with pytest.raises(ValueError, match=r"init must have shape"):
+        gk.embed.graph(e, 4, init=good, **kw)
+    with pytest.raises(ValueError, match=r"init must be a 2-D array"):
+        gk.embed.graph(e, 3, init=good[0], **kw)
+    bad = good.copy()
+    bad[7] = [0.6, 0.8, 0.1]
+    with pytest.raises(ValueError, match=r"init.*row 7"):
+        gk.embed.graph(e, 3, init=bad, **kw)
+    bad = good.copy()
+    bad[4, 1] = np.nan
+    with pytest.raises(ValueError, match=r"init.*row 4"):
+        gk.embed.graph(e, 3, init=bad, **kw)
+    hyp = gk.embed.graph(e, 3, epochs=0, model="hyperboloid", progress=False).points
+    hyp[9, 0] = 2.0  # off the sheet
+    with pytest.raises(ValueError, match=r"init.*row 9"):
+        gk.embed.graph(e, 3, init=hyp, model="hyperboloid", **kw)
+    with pytest.raises(ValueError, match=r"init is an embedding in model 'poincare'"):
+        gk.embed.graph(e, 3, init=gk.embed.graph(e, 3, epochs=0, progress=False), model="hyperboloid", **kw)
+    with pytest.raises(ValueError, match=r"curvature"):
+        gk.embed.graph(e, 3, init=gk.embed.graph(e, 3, epochs=0, progress=False), curvature=-2.0, **kw)
+    with pytest.raises(TypeError, match="init"):
+        gk.embed.graph(e, 3, init="random", **kw)
+
+
 def test_one_and_two_threads_are_bit_identical():
     out = {}
     for th in ("1", "2"):
