@@ -25,6 +25,9 @@ fixes its pool size at start-up).
         --batch-size 1024 --node-steps mean          # the best setting found on subsets
     python benches/bench_graph.py --models poincare --directed --negatives 10 --epochs 100 --burn-in 10
                                                      # training on the directed rows (README figures)
+    python benches/bench_graph.py --models poincare --negatives 10 --epochs 20 --burn-in 2 \
+        --degree-epochs 2 --radial-search --then-directed 40
+                                                     # undirected, then directed rows (README figures)
 
 Each run prints one JSON line: the settings, wall and CPU seconds of the
 training, positives per second per core (wall) and per CPU second, the final
@@ -145,12 +148,28 @@ def run(args, model: str, names, pairs) -> Dict[str, float]:
         degree_epochs=args.degree_epochs, degree_power=args.degree_power, radial_search=args.radial_search,
         directed=args.directed,
     )
+    positives = (1 if args.directed else 2) * len(pairs) * emb.epochs
+    stage1 = None
+    if args.then_directed:
+        # a second stage from the first one's points: directed rows, no burn-in
+        t1, c1 = time.perf_counter() - t, time.process_time() - c
+        stage1 = {"train_s": t1, "epochs": emb.epochs, "final_loss": float(emb.loss[-1]), **evaluate(emb, pairs)}
+        first = emb
+        # the evaluation of the first stage is not training time
+        t, c = time.perf_counter() - t1, time.process_time() - c1
+        emb = gk.embed.graph(
+            pairs, args.dim, model=model, negatives=args.then_negatives or args.negatives,
+            epochs=args.then_directed, learning_rate=args.then_lr or args.lr, burn_in=0,
+            batch_size=args.batch_size, seed=args.seed + 1, n_nodes=len(names), progress=args.progress,
+            node_steps=args.node_steps, schedule=args.then_schedule, curvature=args.curvature,
+            radial_search=args.then_radial_search, directed=True, init=first,
+        )
+        positives += len(pairs) * emb.epochs
     train = time.perf_counter() - t
     cpu = time.process_time() - c
     t = time.perf_counter()
     m = evaluate(emb, pairs)
     ev = time.perf_counter() - t
-    positives = (1 if args.directed else 2) * len(pairs) * emb.epochs
     threads = int(os.environ.get("RAYON_NUM_THREADS", os.cpu_count() or 1))
     out = {
         "model": model, "dim": args.dim, "epochs": emb.epochs, "negatives": args.negatives, "lr": args.lr,
@@ -162,6 +181,10 @@ def run(args, model: str, names, pairs) -> Dict[str, float]:
         "threads": threads,
         "final_loss": float(emb.loss[-1]) if len(emb.loss) else float("nan"), **m,
     }
+    if stage1 is not None:
+        out.update(then_directed=args.then_directed, then_negatives=args.then_negatives or args.negatives,
+                   then_lr=args.then_lr or args.lr, then_schedule=args.then_schedule,
+                   then_radial_search=args.then_radial_search, first_stage=stage1)
     print(json.dumps(out), flush=True)
     return out
 
@@ -207,6 +230,13 @@ def main() -> None:
                     help="a line search on the loss over a common scaling of the radii after every epoch")
     ap.add_argument("--directed", action="store_true",
                     help="train on each (noun, ancestor) row one way (embed.graph's directed=True)")
+    ap.add_argument("--then-directed", type=int, default=0, metavar="EPOCHS",
+                    help="a second stage of EPOCHS epochs on the directed rows (burn-in 0, seed + 1), "
+                         "started from the first stage's points (embed.graph's init=)")
+    ap.add_argument("--then-negatives", type=int, default=None, help="negatives of the second stage (default: --negatives)")
+    ap.add_argument("--then-lr", type=float, default=None, help="rate of the second stage (default: --lr)")
+    ap.add_argument("--then-schedule", default="constant", choices=("constant", "linear"))
+    ap.add_argument("--then-radial-search", action="store_true")
     ap.add_argument("--seed", type=int, default=0)
     ap.add_argument("--curvature", type=float, default=-1.0)
     ap.add_argument("--progress", action="store_true", default=None)

@@ -143,10 +143,11 @@ def graph(
     ``gyrokit.metrics.reconstruction``; README, Benchmarks): on the 82 115
     WordNet nouns, 20 undirected epochs (10 negatives, rate 0.3, burn-in 2,
     ``degree_epochs=2``, ``radial_search=True``) then 40 directed epochs
-    (``burn_in=0``) reached 0.814 / 12.4 in 229 s, where the best single
-    runs reached 0.820 / 26.8 in about 950 s; on the 4017-noun ``animal``
-    subtree 100 undirected then 50 directed epochs reached 0.948 / 1.48
-    against 0.869 / 3.68 for 100 directed epochs alone.
+    (``burn_in=0``) reached 0.814 / 12.4 in 164 s (40 + 40 epochs, 50
+    negatives in the second stage: 0.832 / 11.3 in 448 s), where the best
+    single runs reached 0.820 / 26.8 in about 950 s; on the 4017-noun
+    ``animal`` subtree 100 undirected then 50 directed epochs reached
+    0.948 / 1.48 against 0.869 / 3.68 for 100 directed epochs alone.
 
     ``node_steps``: how a node touched by several positives of one batch
     moves. ``"sum"`` takes the summed step (what sequential SGD would do,
