@@ -279,9 +279,13 @@ def graph(
         raise TypeError(f"progress must be None, True or False, got {progress!r}")
     if isinstance(init, Embedding):
         if init.model != model or init.curvature != curvature:
+            hint = (
+                "convert its points with gyrokit.convert" if init.model != model
+                else "pass points of this curvature's ball"
+            )
             raise ValueError(
                 f"init is an embedding in model {init.model!r} at curvature {init.curvature}; this training uses "
-                f"model {model!r} at curvature {curvature} (convert it with gyrokit.convert, or pass its points)"
+                f"model {model!r} at curvature {curvature} ({hint})"
             )
         init = init.points
 
