@@ -559,16 +559,9 @@ pub fn geodesic_g(c: &Curvature, x: &[f64], gx: f64, y: &[f64], gy: f64, t: f64,
     let (a, b) = geodesic_weights(t, big_d);
     let (ca, cb) = (a * gy.sqrt(), b * gx.sqrt());
     let den = ca + cb;
-    if cb <= ca {
-        let fb = cb / den;
-        for i in 0..x.len() {
-            out[i] = x[i] + fb * (y[i] - x[i]);
-        }
-    } else {
-        let fa = ca / den;
-        for i in 0..x.len() {
-            out[i] = y[i] + fa * (x[i] - y[i]);
-        }
+    let (from, to, f) = if cb <= ca { (x, y, cb / den) } else { (y, x, ca / den) };
+    for i in 0..x.len() {
+        out[i] = from[i] + f * (to[i] - from[i]);
     }
     gx * gy / (den * den)
 }
