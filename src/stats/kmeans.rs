@@ -391,31 +391,82 @@ impl Sums {
     }
 }
 
-/// Nearest centre of the points `i0..i0 + B` by `h` (ties to the lower
-/// index), each pair's `|x - c|^2` summed in coordinate order and scaled as
-/// `pairwise::scaled_h` does, so the ranking is that of `knn`.
+/// Nearest centre of the points `off..off + B` of a chunk by `h` (ties to
+/// the lower index): `cols` holds the chunk's piece of every coordinate
+/// column, `ax` the points' `1/g`. Each pair's `|x - c|^2` is summed in
+/// coordinate order and scaled as `pairwise::scaled_h` does, so the ranking
+/// is that of `knn`; four centres at a time share the loads of the points'
+/// coordinates, and the centres are ranked in index order.
 #[inline(always)]
-fn nearest(soa: &Soa, i0: usize, cen: &Centres, best: &mut [f64; B], lab: &mut [usize; B]) {
-    let (d, n) = (cen.d, soa.n);
-    let ax = row(&soa.ax[i0..], 0);
-    *best = [f64::INFINITY; B];
-    *lab = [0; B];
-    for (j, &aj) in cen.a.iter().enumerate() {
-        let mut acc = [0f64; B];
-        for t in 0..d {
-            let c = cen.c[j * d + t];
-            let xt = row(&soa.x[t * n + i0..], 0);
+fn nearest(
+    cols: &[&[f64; CHUNK]],
+    ax: &[f64; B],
+    off: usize,
+    cen: &Centres,
+    best: &mut [f64; B],
+    lab: &mut [usize; B],
+) {
+    let d = cen.d;
+    let k = cen.a.len();
+    let mut bh = [f64::INFINITY; B];
+    // the label as a float: one blend per register, as for `bh`
+    let mut bl = [0f64; B];
+    let mut j = 0;
+    while j + 4 <= k {
+        let (c0, rest) = cen.c[j * d..(j + 4) * d].split_at(d);
+        let (c1, rest) = rest.split_at(d);
+        let (c2, c3) = rest.split_at(d);
+        let mut s0 = [0f64; B];
+        let mut s1 = [0f64; B];
+        let mut s2 = [0f64; B];
+        let mut s3 = [0f64; B];
+        for (((col, &a0), &a1), (&a2, &a3)) in cols.iter().zip(c0).zip(c1).zip(c2.iter().zip(c3)) {
+            let xt: &[f64; B] = col[off..off + B].try_into().expect("B lanes");
             for l in 0..B {
-                let u = xt[l] - c;
-                acc[l] = u.mul_add(u, acc[l]);
+                let u0 = xt[l] - a0;
+                let u1 = xt[l] - a1;
+                let u2 = xt[l] - a2;
+                let u3 = xt[l] - a3;
+                s0[l] = u0.mul_add(u0, s0[l]);
+                s1[l] = u1.mul_add(u1, s1[l]);
+                s2[l] = u2.mul_add(u2, s2[l]);
+                s3[l] = u3.mul_add(u3, s3[l]);
             }
         }
-        for l in 0..B {
-            let h = scaled_h(acc[l], ax[l], aj, 1.0);
-            let m = h < best[l];
-            best[l] = if m { h } else { best[l] };
-            lab[l] = if m { j } else { lab[l] };
+        rank(&s0, ax, cen.a[j], j, &mut bh, &mut bl);
+        rank(&s1, ax, cen.a[j + 1], j + 1, &mut bh, &mut bl);
+        rank(&s2, ax, cen.a[j + 2], j + 2, &mut bh, &mut bl);
+        rank(&s3, ax, cen.a[j + 3], j + 3, &mut bh, &mut bl);
+        j += 4;
+    }
+    for j in j..k {
+        let mut s = [0f64; B];
+        for (col, &c) in cols.iter().zip(&cen.c[j * d..(j + 1) * d]) {
+            let xt: &[f64; B] = col[off..off + B].try_into().expect("B lanes");
+            for l in 0..B {
+                let u = xt[l] - c;
+                s[l] = u.mul_add(u, s[l]);
+            }
         }
+        rank(&s, ax, cen.a[j], j, &mut bh, &mut bl);
+    }
+    *best = bh;
+    for l in 0..B {
+        lab[l] = bl[l] as usize;
+    }
+}
+
+/// Ranks centre `j` (factor `aj`, squared distances `s`) against the best
+/// so far, lane by lane (strictly better wins: ties stay with the lower
+/// index).
+#[inline(always)]
+fn rank(s: &[f64; B], ax: &[f64; B], aj: f64, j: usize, bh: &mut [f64; B], bl: &mut [f64; B]) {
+    let jf = j as f64;
+    for l in 0..B {
+        let h = scaled_h(s[l], ax[l], aj, 1.0);
+        let m = h < bh[l];
+        bh[l] = if m { h } else { bh[l] };
+        bl[l] = if m { jf } else { bl[l] };
     }
 }
 
@@ -716,10 +767,14 @@ fn assign(
                         let mut du = [0f64; CHUNK];
                         let mut lab = [0usize; CHUNK];
                         let len = lc.len();
+                        let n = soa.n;
+                        let cols: Vec<&[f64; CHUNK]> = (0..d)
+                            .map(|t| soa.x[t * n + i0..t * n + i0 + CHUNK].try_into().expect("whole chunks"))
+                            .collect();
                         for bi in 0..CHUNK / B {
                             let mut best = [0f64; B];
                             let mut lb = [0usize; B];
-                            nearest(soa, i0 + bi * B, cen, &mut best, &mut lb);
+                            nearest(&cols, row(&soa.ax[i0..], bi), bi * B, cen, &mut best, &mut lb);
                             for l in 0..B {
                                 du[bi * B + l] = acosh1p2_fast(best[l]);
                                 lab[bi * B + l] = lb[l];
