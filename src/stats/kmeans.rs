@@ -1306,6 +1306,46 @@ mod tests {
     }
 
     #[test]
+    fn assignment_matches_the_point_by_point_ranking() {
+        // Regression against the scalar ranking (h_point per pair, centres
+        // in index order, strictly smaller wins): the same labels and the
+        // same distances bit for bit, for every count of centres (the
+        // assignment ranks them four, two and one at a time), including
+        // ties (a centre repeated) and n not a multiple of a chunk.
+        for (n, d) in [(2048 + 37, 1), (3001, 2), (500, 5), (777, 10)] {
+            let x = crate::stats::test_ball(n, d, 6.0, (n * d) as u64);
+            let a = ndarray::ArrayView2::from_shape((n, d), &x[..]).unwrap().into_dyn();
+            let data = Data::F64(a);
+            let pts = unit_points(Model::Poincare, &Curvature::default(), "x", &data).unwrap();
+            let soa = Soa::new(&pts);
+            let k = Curvature::default();
+            for nc in 1..=11 {
+                let mut cen = Centres::new(d);
+                for j in 0..nc {
+                    // centre 3 repeats centre 0: their points stay with 0
+                    let i = if j == 3 { 7 } else { (j * 131 + 7) % n };
+                    cen.push(&pts.p[i * d..(i + 1) * d], pts.g[i]);
+                }
+                let mut labels = vec![0usize; n];
+                let mut dist = vec![0f64; n];
+                let mut groups = Groups::new(soa.n, nc);
+                assign(&soa, &cen, &k, &mut labels, None, &mut dist, &mut groups, None);
+                for i in 0..n {
+                    let (mut bh, mut bl) = (f64::INFINITY, 0);
+                    for j in 0..nc {
+                        let h = h_point(&pts, i, cen.row(j), cen.a[j]);
+                        if h < bh {
+                            (bh, bl) = (h, j);
+                        }
+                    }
+                    assert_eq!(labels[i], bl, "n {n}, d {d}, {nc} centres, point {i}");
+                    assert_eq!(dist[i].to_bits(), acosh1p2_fast(bh).to_bits(), "n {n}, d {d}, {nc} centres, point {i}");
+                }
+            }
+        }
+    }
+
+    #[test]
     fn an_update_from_kept_statistics_reaches_the_mean_of_the_new_points() {
         // The centre of a cluster after a few of its points moved, updated
         // from the kept Hessian and the moved points' statistics, against
