@@ -120,9 +120,9 @@ class KMeans:
         or more rarely keeps one, at that many times the cost. Cost of one
         run, 10 clusters, against scikit-learn's Euclidean ``KMeans`` with
         the same parameters (``benches/bench_kmeans.py``, quiet machine,
-        figures in the README): with one thread each 3.9 times its time on
-        36 607 points at d = 10 and 1.7 to 2.4 times on 1 000 000 points at
-        d = 2; with two threads each 1.35 to 2.0 and 1.3 times (hyperbolic
+        figures in the README): with one thread each 2.6 to 3.1 times its time
+        on 36 607 points at d = 10 and 1.4 to 1.9 times on 1 000 000 points
+        at d = 2; with two threads each 1.3 to 1.6 and 1.1 times (hyperbolic
         Lloyd also takes more iterations than Euclidean Lloyd on these data).
     max_iter : int, default 100
         Maximum number of Lloyd updates per run.
