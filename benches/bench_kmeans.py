@@ -30,7 +30,19 @@ threads). On a machine shared with another busy job, OpenMP's spinning
 threads lose much of their time when there are fewer free cores than
 threads: compare with ``--threads 1`` too.
 
-Run: ``.venv/bin/python benches/bench_kmeans.py [--repeat N] [--only small|large] [--threads N]``.
+BLAS threads: scikit-learn's k-means++ seeding computes its distances with
+BLAS (NumPy's OpenBLAS, all cores by default; its Lloyd steps limit BLAS to
+one thread and run on OpenMP). OpenBLAS's idle threads keep spinning for a
+while after such a call, so on a 2-core machine they slow whatever runs
+next: the rest of scikit-learn's fit and the next gyrokit fit of the
+alternation (seen here: best-of-7 times of the same gyrokit fit 51-76 ms,
+scikit-learn's 30-45 ms; with one BLAS thread 47-48 and 23 ms, steady).
+``--blas-threads N`` sets the BLAS pool of NumPy (and so of scikit-learn) to
+N threads before NumPy starts it; ``--blas-threads 1`` gives the steady
+figures and the stronger baseline.
+
+Run: ``.venv/bin/python benches/bench_kmeans.py [--repeat N] [--only small|large] [--threads N]
+[--blas-threads N]``.
 """
 
 from __future__ import annotations
@@ -42,6 +54,10 @@ import time
 if "--threads" in sys.argv:
     _n = sys.argv[sys.argv.index("--threads") + 1]
     os.environ["RAYON_NUM_THREADS"] = os.environ["OMP_NUM_THREADS"] = _n
+if "--blas-threads" in sys.argv:
+    _b = sys.argv[sys.argv.index("--blas-threads") + 1]
+    for _v in ("OPENBLAS_NUM_THREADS", "MKL_NUM_THREADS", "BLIS_NUM_THREADS"):
+        os.environ[_v] = _b
 
 import numpy as np  # noqa: E402
 
@@ -94,7 +110,8 @@ def main(argv):
     load = os.getloadavg()[0] if hasattr(os, "getloadavg") else float("nan")
     print(f"KMeans(n_clusters=10, random_state=0), k-means++; best of {repeat}, alternating; threads: gyrokit "
           f"RAYON_NUM_THREADS={os.environ.get('RAYON_NUM_THREADS', 'all')}, scikit-learn OMP_NUM_THREADS="
-          f"{os.environ.get('OMP_NUM_THREADS', 'all')}, {os.cpu_count()} cpus; load average {load:.2f}")
+          f"{os.environ.get('OMP_NUM_THREADS', 'all')}, BLAS OPENBLAS_NUM_THREADS="
+          f"{os.environ.get('OPENBLAS_NUM_THREADS', 'all')}, {os.cpu_count()} cpus; load average {load:.2f}")
     ratios = []
     for name, X in cases:
         print(f"{name}")

@@ -120,10 +120,11 @@ class KMeans:
         or more rarely keeps one, at that many times the cost. Cost of one
         run, 10 clusters, against scikit-learn's Euclidean ``KMeans`` with
         the same parameters (``benches/bench_kmeans.py``, quiet machine,
-        figures in the README): with one thread each 2.6 to 3.1 times its time
-        on 36 607 points at d = 10 and 1.4 to 1.9 times on 1 000 000 points
-        at d = 2; with two threads each 1.3 to 1.6 and 1.1 times (hyperbolic
-        Lloyd also takes more iterations than Euclidean Lloyd on these data).
+        figures in the README; NumPy's BLAS at one thread): with one thread
+        each 2.6 times its time on 36 607 points at d = 10 and 1.4 to 1.9
+        times on 1 000 000 points at d = 2; with two threads each 2.0 to 2.2
+        and 1.1 to 1.3 times (hyperbolic Lloyd also takes more iterations
+        than Euclidean Lloyd on these data).
     max_iter : int, default 100
         Maximum number of Lloyd updates per run.
     tol : float, default 1e-4
