@@ -1310,7 +1310,7 @@ mod tests {
         // Regression against the scalar ranking (h_point per pair, centres
         // in index order, strictly smaller wins): the same labels and the
         // same distances bit for bit, for every count of centres (the
-        // assignment ranks them four, two and one at a time), including
+        // assignment ranks them four at a time, the rest one by one), including
         // ties (a centre repeated) and n not a multiple of a chunk.
         for (n, d) in [(2048 + 37, 1), (3001, 2), (500, 5), (777, 10)] {
             let x = crate::stats::test_ball(n, d, 6.0, (n * d) as u64);
