@@ -27,7 +27,12 @@ class Reconstruction:
     ascending; the average precision is undefined for the others), and
     ``average_precision`` the average precision of each of them.
     ``ranked_edges``: edges ranked (twice the distinct undirected edges, or
-    the distinct arcs).
+    the distinct arcs). ``arcs``: the ranked arcs ``(u, v)``, an
+    ``(ranked_edges, 2)`` int64 array sorted by ``u`` then ``v`` (both
+    directions of an undirected edge; each distinct row of a directed
+    graph), and ``ranks`` the rank of each (int64; ``mean_rank`` is their
+    mean): the relations an embedding places worst are
+    ``arcs[np.argsort(ranks)[::-1]]``.
     """
 
     mean_average_precision: float
@@ -35,6 +40,8 @@ class Reconstruction:
     nodes: np.ndarray
     average_precision: np.ndarray
     ranked_edges: int
+    arcs: np.ndarray
+    ranks: np.ndarray
 
 
 @dataclass(frozen=True)
@@ -121,7 +128,7 @@ def reconstruction(
     * ``mean_rank``: mean over edges ``(u, v)`` (each undirected edge counted
       in both directions; each distinct arc once) of ``1 + #{non-neighbours
       w != u of u with d(u, w) < d(u, v)}`` (strict: ties do not count
-      against).
+      against); each arc's rank is returned (``arcs``, ``ranks``).
 
     Distances are compared as the library's kernels compute them (through
     ``sinh(d/2R)^2``, monotone in ``d``, bit-identical to
@@ -135,11 +142,12 @@ def reconstruction(
     if not isinstance(directed, (bool, np.bool_)):
         raise TypeError(f"directed must be True or False, got {directed!r}")
     e = _index_pairs("edges", edges, _npoints(x))
-    m, r, ap, _, ranked = _native.reconstruction(x, e, model, c, bool(directed))
+    m, r, ap, _, ranked, degrees, targets, ranks = _native.reconstruction(x, e, model, c, bool(directed))
     # The core marks the nodes without neighbours with NaN; they are left
     # out here rather than handed on as NaN.
     nodes = np.flatnonzero(~np.isnan(ap)).astype(np.int64)
-    return Reconstruction(float(m), float(r), nodes, ap[nodes], int(ranked))
+    arcs = np.column_stack([np.repeat(np.arange(len(degrees), dtype=np.int64), degrees), targets])
+    return Reconstruction(float(m), float(r), nodes, ap[nodes], int(ranked), arcs, ranks)
 
 
 def distortion(

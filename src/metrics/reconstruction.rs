@@ -136,6 +136,10 @@ pub struct Reconstruction {
     /// Edges ranked (twice the undirected edges; the distinct rows of a
     /// directed graph).
     pub ranked_edges: usize,
+    /// The rank of every ranked arc `(u, v)`, in the order of the
+    /// adjacency's lists (`ranks[adj.indptr[u] + i]` for `v =
+    /// adj.neighbours(u)[i]`); `mean_rank` is their mean.
+    pub ranks: Vec<u64>,
 }
 
 /// Above this degree a row locates a column among its neighbours' values by
@@ -152,6 +156,9 @@ struct Row {
     /// The neighbours' `h`, ascending, then `+inf` (a sentinel no column
     /// equals).
     t: Vec<f64>,
+    /// `perm[i]`: the position in `adj.neighbours(u)` of the neighbour
+    /// whose value is `t[i]`.
+    perm: Vec<u32>,
     /// `below[p]`: columns (the node itself included, removed at the end)
     /// with exactly `p` of the neighbours' `h` strictly below theirs;
     /// `below[k]` collects the columns beyond every neighbour.
@@ -164,11 +171,13 @@ struct Row {
 impl Row {
     fn new(x: &Prepared, adj: &Adjacency, u: usize) -> Row {
         let nb = adj.neighbours(u);
-        let mut t: Vec<f64> = nb.iter().map(|&v| x.half_delta(u, x, v)).collect();
-        t.sort_unstable_by(|a, b| a.total_cmp(b));
+        let h: Vec<f64> = nb.iter().map(|&v| x.half_delta(u, x, v)).collect();
+        let mut perm: Vec<u32> = (0..h.len() as u32).collect();
+        perm.sort_unstable_by(|&a, &b| h[a as usize].total_cmp(&h[b as usize]));
+        let mut t: Vec<f64> = perm.iter().map(|&i| h[i as usize]).collect();
         let k = t.len();
         t.push(f64::INFINITY);
-        Row { u, k, t, below: vec![0; k + 1], ties: Vec::new() }
+        Row { u, k, t, perm, below: vec![0; k + 1], ties: Vec::new() }
     }
 
     /// Records a column with value `h` that has `p <= k` of the neighbours'
@@ -224,8 +233,9 @@ impl Row {
         }
     }
 
-    /// (average precision, sum of ranks) of the row; `k > 0`.
-    fn finish(&self) -> (f64, u64) {
+    /// (average precision, sum of ranks) of the row, and the rank of each
+    /// neighbour (in the order of `adj.neighbours(u)`) in `rank`; `k > 0`.
+    fn finish(&self, rank: &mut [u64]) -> (f64, u64) {
         let k = self.k;
         // A column w with p = #{t < h_w} and q = #{t <= h_w} has
         // h_w <= t_i exactly when p <= i, and h_w < t_i exactly when q <= i:
@@ -259,7 +269,11 @@ impl Row {
             // equal), so le now counts p <= i and lt counts q <= i: the
             // columns at or below t_i and strictly below it.
             ap += (j as f64 / le as f64) * (j - i) as f64;
-            ranks += (1 + lt as u64 - i as u64) * (j - i) as u64;
+            let r = 1 + lt as u64 - i as u64;
+            ranks += r * (j - i) as u64;
+            for &pos in &self.perm[i..j] {
+                rank[pos as usize] = r;
+            }
             i = j;
         }
         (ap / k as f64, ranks)
@@ -280,11 +294,21 @@ pub fn reconstruction(x: &Prepared, adj: &Adjacency) -> Result<Reconstruction> {
             let r0 = st[0].u;
             st[i - r0].visit(hs, valid)
         },
-        |st| st.iter().map(|r| if r.k == 0 { (f64::NAN, 0) } else { r.finish() }).collect::<Vec<_>>(),
+        |st| {
+            st.iter()
+                .map(|r| {
+                    let mut rank = vec![0u64; r.k];
+                    let (ap, rs) = if r.k == 0 { (f64::NAN, 0) } else { r.finish(&mut rank) };
+                    (ap, rs, rank)
+                })
+                .collect::<Vec<_>>()
+        },
     );
     let mut average_precision = Vec::with_capacity(x.n);
+    let mut ranks = Vec::with_capacity(adj.indices.len());
     let (mut sum_ap, mut ranked_nodes, mut rank_sum) = (0.0f64, 0usize, 0u128);
-    for (ap, rs) in parts.into_iter().flatten() {
+    for (ap, rs, rank) in parts.into_iter().flatten() {
+        ranks.extend_from_slice(&rank);
         if !ap.is_nan() {
             sum_ap += ap;
             ranked_nodes += 1;
@@ -299,6 +323,7 @@ pub fn reconstruction(x: &Prepared, adj: &Adjacency) -> Result<Reconstruction> {
         average_precision,
         ranked_nodes,
         ranked_edges,
+        ranks,
     })
 }
 
@@ -333,10 +358,11 @@ mod tests {
     }
 
     /// The definitions of the module notes, pair by pair (common practice:
-    /// the direct O(n^2 k) count).
-    fn brute(x: &Prepared, nbs: &[Vec<usize>]) -> (f64, f64) {
+    /// the direct O(n^2 k) count), and the rank of each arc `(u, v)`.
+    fn brute(x: &Prepared, nbs: &[Vec<usize>]) -> (f64, f64, std::collections::HashMap<(usize, usize), u64>) {
         let n = x.n;
         let (mut sum_ap, mut nodes, mut ranks, mut edges) = (0.0, 0, 0u64, 0u64);
+        let mut arc = std::collections::HashMap::new();
         for u in 0..n {
             let nb = &nbs[u];
             if nb.is_empty() {
@@ -350,12 +376,13 @@ mod tests {
                 ap += rel as f64 / all as f64;
                 let ahead = (0..n).filter(|&w| w != u && !nb.contains(&w) && h[w] < h[v]).count();
                 ranks += 1 + ahead as u64;
+                arc.insert((u, v), 1 + ahead as u64);
                 edges += 1;
             }
             sum_ap += ap / nb.len() as f64;
             nodes += 1;
         }
-        (sum_ap / nodes as f64, ranks as f64 / edges as f64)
+        (sum_ap / nodes as f64, ranks as f64 / edges as f64, arc)
     }
 
     #[test]
@@ -393,10 +420,18 @@ mod tests {
             }
             let adj = Adjacency::from_edges(n, &e, directed).unwrap();
             let r = reconstruction(&x, &adj).unwrap();
-            let (map, mr) = brute(&x, &nbs);
+            let (map, mr, arc) = brute(&x, &nbs);
             assert!((r.mean_average_precision - map).abs() <= 1e-12, "{} vs {map}", r.mean_average_precision);
             assert!((r.mean_rank - mr).abs() <= 1e-12 * mr, "{} vs {mr}", r.mean_rank);
             assert_eq!(r.ranked_edges, nbs.iter().map(|v| v.len()).sum::<usize>());
+            // every arc's rank, in the adjacency's order (ties among the
+            // neighbours of 10 and of 5 included)
+            assert_eq!(r.ranks.len(), r.ranked_edges);
+            for u in 0..n {
+                for (i, &v) in adj.neighbours(u).iter().enumerate() {
+                    assert_eq!(r.ranks[adj.indptr[u] + i], arc[&(u, v)], "arc ({u}, {v}), directed {directed}");
+                }
+            }
         }
     }
 

@@ -22,7 +22,9 @@ fn index_pairs(a: &PyReadonlyArray2<'_, i64>, name: &str) -> PyResult<Vec<i64>> 
     Ok(v.iter().copied().collect())
 }
 
-/// `(mean_average_precision, mean_rank, average_precision (n,), ranked_nodes, ranked_edges)`.
+/// `(mean_average_precision, mean_rank, average_precision (n,), ranked_nodes, ranked_edges,
+/// degrees (n,), targets (E,), ranks (E,))`: the arcs ranked are node `u` repeated
+/// `degrees[u]` times against `targets` (each list ascending), `ranks` theirs.
 #[pyfunction]
 #[pyo3(signature = (x, edges, model = "poincare", curvature = -1.0, directed = false))]
 fn reconstruction<'py>(
@@ -32,7 +34,7 @@ fn reconstruction<'py>(
     model: &str,
     curvature: f64,
     directed: bool,
-) -> PyResult<(f64, f64, Py<PyAny>, usize, usize)> {
+) -> PyResult<(f64, f64, Py<PyAny>, usize, usize, Py<PyAny>, Py<PyAny>, Py<PyAny>)> {
     let c = Curvature::new(curvature)?;
     let md = Model::parse(model, "model")?;
     let xa = coerce(py, "x", x)?;
@@ -41,14 +43,21 @@ fn reconstruction<'py>(
     let r = py.detach(move || -> crate::error::Result<_> {
         let px = Prepared::new(md, c, "x", &xd)?;
         let adj = Adjacency::from_edges(px.n, &e, directed)?;
-        reconstruction_core(&px, &adj)
+        reconstruction_core(&px, &adj).map(|r| (r, adj))
     })?;
+    let (r, adj) = r;
+    let degrees: Vec<i64> = adj.indptr.windows(2).map(|w| (w[1] - w[0]) as i64).collect();
+    let targets: Vec<i64> = adj.indices.iter().map(|&v| v as i64).collect();
+    let ranks: Vec<i64> = r.ranks.iter().map(|&v| v as i64).collect();
     Ok((
         r.mean_average_precision,
         r.mean_rank,
         r.average_precision.into_pyarray(py).into_any().unbind(),
         r.ranked_nodes,
         r.ranked_edges,
+        degrees.into_pyarray(py).into_any().unbind(),
+        targets.into_pyarray(py).into_any().unbind(),
+        ranks.into_pyarray(py).into_any().unbind(),
     ))
 }
 

@@ -26,7 +26,8 @@ def _adjacency(n, edges):
 
 
 def _reference(d, a):
-    """(MAP from scikit-learn, mean rank from a brute-force count, per-node AP)."""
+    """(MAP from scikit-learn, mean rank from a brute-force count, per-node AP,
+    per-arc ranks as a dict (u, v) -> rank)."""
     n = d.shape[0]
     # Scores: -distance; the node itself gets a score below every other,
     # so it never ranks ahead of anything (the SPEC ranks v != u only).
@@ -39,24 +40,28 @@ def _reference(d, a):
     for u in np.flatnonzero(has):
         per_node[u] = label_ranking_average_precision_score(a[u : u + 1], s[u : u + 1])
     # Mean rank, the SPEC's definition counted directly (common practice).
-    ranks = []
+    ranks = {}
     idx = np.arange(n)
     for u in np.flatnonzero(has):
         non = (~a[u]) & (idx != u)
         for v in np.flatnonzero(a[u]):
-            ranks.append(1 + np.count_nonzero(non & (d[u] < d[u, v])))
-    return m, float(np.mean(ranks)), per_node
+            ranks[(int(u), int(v))] = 1 + np.count_nonzero(non & (d[u] < d[u, v]))
+    return m, float(np.mean(list(ranks.values()))), per_node, ranks
 
 
 def _assert_matches_reference(r, d, a):
     """``r`` against :func:`_reference` on distances ``d`` and adjacency ``a``."""
-    m, mr, per = _reference(d, a)
+    m, mr, per, ranks = _reference(d, a)
     assert r.mean_average_precision == pytest.approx(m, rel=1e-12)
     assert r.mean_rank == pytest.approx(mr, rel=1e-12)
     has = a.any(axis=1)
     np.testing.assert_array_equal(r.nodes, np.flatnonzero(has))
     np.testing.assert_allclose(r.average_precision, per[has], rtol=1e-12)
     assert r.ranked_edges == int(a.sum())
+    # every arc once, sorted by (u, v), with its rank
+    np.testing.assert_array_equal(r.arcs, np.argwhere(a))
+    assert r.arcs.dtype == np.int64 and r.ranks.dtype == np.int64
+    np.testing.assert_array_equal(r.ranks, [ranks[(u, v)] for u, v in r.arcs])
 
 
 @pytest.mark.parametrize("model", MODELS)
@@ -129,6 +134,8 @@ def test_ties_with_neighbours_and_non_neighbours():
     # (2 is tied): 1. (0,3): non-neighbours 2 (0.2) strictly closer, 4 tied: 2.
     # (1,0): node 2 closer: 2. (3,0): nodes 4, 1, 2 closer: 4.
     assert r.mean_rank == pytest.approx((1 + 2 + 2 + 4) / 4, rel=1e-15)
+    np.testing.assert_array_equal(r.arcs, [[0, 1], [0, 3], [1, 0], [3, 0]])
+    np.testing.assert_array_equal(r.ranks, [1, 2, 2, 4])
 
 
 def test_networkx_graph_and_duplicate_edges():
