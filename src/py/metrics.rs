@@ -22,8 +22,12 @@ fn index_pairs(a: &PyReadonlyArray2<'_, i64>, name: &str) -> PyResult<Vec<i64>> 
     Ok(v.iter().copied().collect())
 }
 
-/// `(mean_average_precision, mean_rank, average_precision (n,), ranked_nodes, ranked_edges,
-/// degrees (n,), targets (E,), ranks (E,))`: the arcs ranked are node `u` repeated
+/// What [`reconstruction`] hands to Python: `(mean_average_precision,
+/// mean_rank, average_precision (n,), ranked_nodes, ranked_edges, degrees
+/// (n,), targets (E,), ranks (E,))`.
+type ReconstructionTuple = (f64, f64, Py<PyAny>, usize, usize, Py<PyAny>, Py<PyAny>, Py<PyAny>);
+
+/// See [`ReconstructionTuple`]: the arcs ranked are node `u` repeated
 /// `degrees[u]` times against `targets` (each list ascending), `ranks` theirs.
 #[pyfunction]
 #[pyo3(signature = (x, edges, model = "poincare", curvature = -1.0, directed = false))]
@@ -34,7 +38,7 @@ fn reconstruction<'py>(
     model: &str,
     curvature: f64,
     directed: bool,
-) -> PyResult<(f64, f64, Py<PyAny>, usize, usize, Py<PyAny>, Py<PyAny>, Py<PyAny>)> {
+) -> PyResult<ReconstructionTuple> {
     let c = Curvature::new(curvature)?;
     let md = Model::parse(model, "model")?;
     let xa = coerce(py, "x", x)?;
