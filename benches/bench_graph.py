@@ -28,6 +28,9 @@ fixes its pool size at start-up).
     python benches/bench_graph.py --models poincare --negatives 10 --epochs 20 --burn-in 2 \
         --degree-epochs 2 --radial-search --then-directed 40
                                                      # undirected, then directed rows (README figures)
+    python benches/bench_graph.py --models poincare --negatives 10 --epochs 40 --burn-in 2 \
+        --degree-epochs 2 --radial-search --then-directed 40 --then-negatives 50 --then-rounds 4 \
+        --then-hard-repeat 4                         # the same with the worst-ranked rows repeated
 
 Each run prints one JSON line: the settings, wall and CPU seconds of the
 training, positives per second per core (wall) and per CPU second, the final
@@ -157,14 +160,8 @@ def run(args, model: str, names, pairs) -> Dict[str, float]:
         first = emb
         # the evaluation of the first stage is not training time
         t, c = time.perf_counter() - t1, time.process_time() - c1
-        emb = gk.embed.graph(
-            pairs, args.dim, model=model, negatives=args.then_negatives or args.negatives,
-            epochs=args.then_directed, learning_rate=args.then_lr or args.lr, burn_in=0,
-            batch_size=args.batch_size, seed=args.seed + 1, n_nodes=len(names), progress=args.progress,
-            node_steps=args.node_steps, schedule=args.then_schedule, curvature=args.curvature,
-            radial_search=args.then_radial_search, directed=True, init=first,
-        )
-        positives += len(pairs) * emb.epochs
+        emb, extra = second_stage(args, model, names, pairs, first)
+        positives += len(pairs) * args.then_directed + extra
     train = time.perf_counter() - t
     cpu = time.process_time() - c
     t = time.perf_counter()
@@ -184,9 +181,45 @@ def run(args, model: str, names, pairs) -> Dict[str, float]:
     if stage1 is not None:
         out.update(then_directed=args.then_directed, then_negatives=args.then_negatives or args.negatives,
                    then_lr=args.then_lr or args.lr, then_schedule=args.then_schedule,
-                   then_radial_search=args.then_radial_search, first_stage=stage1)
+                   then_radial_search=args.then_radial_search, then_rounds=args.then_rounds,
+                   then_hard_rank=args.then_hard_rank, then_hard_repeat=args.then_hard_repeat, first_stage=stage1)
     print(json.dumps(out), flush=True)
     return out
+
+
+def hard_rows(x: np.ndarray, pairs: np.ndarray, model: str, curvature: float, threshold: float) -> np.ndarray:
+    """The ``(noun, ancestor)`` rows whose directed rank (``gk.metrics.reconstruction``'s
+    ``ranks``) is above ``threshold``."""
+    r = gk.metrics.reconstruction(x, pairs, model=model, curvature=curvature, directed=True)
+    return r.arcs[r.ranks > threshold]
+
+
+def second_stage(args, model: str, names, pairs: np.ndarray, first):
+    """The directed second stage from ``first``'s points: ``--then-rounds``
+    calls of ``--then-directed / --then-rounds`` epochs each, seeds
+    ``seed + 1, seed + 2, ...``; with ``--then-hard-repeat K``, before each
+    call the rows ranked worse than ``--then-hard-rank`` are found
+    (``reconstruction``'s per-arc ranks, counted in the training time) and
+    given ``K`` more times in that call's rows, so that they are drawn ``K +
+    1`` times per epoch. Returns the embedding and the extra positives."""
+    rounds = max(1, args.then_rounds)
+    if args.then_directed % rounds:
+        raise SystemExit("--then-directed must be a multiple of --then-rounds")
+    emb, extra = first, 0
+    for k in range(rounds):
+        rows = pairs
+        if args.then_hard_repeat:
+            hard = hard_rows(emb.points, pairs, model, args.curvature, args.then_hard_rank)
+            rows = np.concatenate([pairs] + [hard] * args.then_hard_repeat)
+            extra += len(hard) * args.then_hard_repeat * (args.then_directed // rounds)
+        emb = gk.embed.graph(
+            rows, args.dim, model=model, negatives=args.then_negatives or args.negatives,
+            epochs=args.then_directed // rounds, learning_rate=args.then_lr or args.lr, burn_in=0,
+            batch_size=args.batch_size, seed=args.seed + 1 + k, n_nodes=len(names), progress=args.progress,
+            node_steps=args.node_steps, schedule=args.then_schedule, curvature=args.curvature,
+            radial_search=args.then_radial_search, directed=True, init=emb,
+        )
+    return emb, extra
 
 
 def scaling(args, model: str) -> None:
@@ -237,6 +270,12 @@ def main() -> None:
     ap.add_argument("--then-lr", type=float, default=None, help="rate of the second stage (default: --lr)")
     ap.add_argument("--then-schedule", default="constant", choices=("constant", "linear"))
     ap.add_argument("--then-radial-search", action="store_true")
+    ap.add_argument("--then-rounds", type=int, default=1,
+                    help="split the second stage into this many calls (each from the last one's points)")
+    ap.add_argument("--then-hard-repeat", type=int, default=0, metavar="K",
+                    help="before each call of the second stage, repeat K times the rows ranked worse than "
+                         "--then-hard-rank (0: off)")
+    ap.add_argument("--then-hard-rank", type=float, default=30.0)
     ap.add_argument("--seed", type=int, default=0)
     ap.add_argument("--curvature", type=float, default=-1.0)
     ap.add_argument("--progress", action="store_true", default=None)
