@@ -31,6 +31,9 @@ fixes its pool size at start-up).
     python benches/bench_graph.py --models poincare --negatives 10 --epochs 40 --burn-in 2 \
         --degree-epochs 2 --radial-search --then-directed 40 --then-negatives 50 --then-rounds 4 \
         --then-hard-repeat 4                         # the same with the worst-ranked rows repeated
+    python benches/bench_graph.py --models poincare --negatives 10 --epochs 40 --burn-in 2 \
+        --degree-epochs 2 --radial-search --then-directed 40 --then-negatives 50 --then-hard-negatives 10
+                                                     # negatives that outrank the positive (README figures)
 
 Each run prints one JSON line: the settings, wall and CPU seconds of the
 training, positives per second per core (wall) and per CPU second, the final
@@ -182,7 +185,9 @@ def run(args, model: str, names, pairs) -> Dict[str, float]:
         out.update(then_directed=args.then_directed, then_negatives=args.then_negatives or args.negatives,
                    then_lr=args.then_lr or args.lr, then_schedule=args.then_schedule,
                    then_radial_search=args.then_radial_search, then_rounds=args.then_rounds,
-                   then_hard_rank=args.then_hard_rank, then_hard_repeat=args.then_hard_repeat, first_stage=stage1)
+                   then_hard_rank=args.then_hard_rank, then_hard_repeat=args.then_hard_repeat,
+                   then_hard_negatives=args.then_hard_negatives, then_hard_pool=args.then_hard_pool,
+                   then_hard_every=args.then_hard_every, first_stage=stage1)
     print(json.dumps(out), flush=True)
     return out
 
@@ -218,6 +223,7 @@ def second_stage(args, model: str, names, pairs: np.ndarray, first):
             batch_size=args.batch_size, seed=args.seed + 1 + k, n_nodes=len(names), progress=args.progress,
             node_steps=args.node_steps, schedule=args.then_schedule, curvature=args.curvature,
             radial_search=args.then_radial_search, directed=True, init=emb,
+            hard_negatives=args.then_hard_negatives, hard_pool=args.then_hard_pool, hard_every=args.then_hard_every,
         )
     return emb, extra
 
@@ -276,6 +282,10 @@ def main() -> None:
                     help="before each call of the second stage, repeat K times the rows ranked worse than "
                          "--then-hard-rank (0: off)")
     ap.add_argument("--then-hard-rank", type=float, default=30.0)
+    ap.add_argument("--then-hard-negatives", type=int, default=0,
+                    help="embed.graph's hard_negatives in the second stage (negatives that outrank the positive)")
+    ap.add_argument("--then-hard-pool", type=int, default=128)
+    ap.add_argument("--then-hard-every", type=int, default=5)
     ap.add_argument("--seed", type=int, default=0)
     ap.add_argument("--curvature", type=float, default=-1.0)
     ap.add_argument("--progress", action="store_true", default=None)

@@ -112,7 +112,8 @@ use crate::models::points::PointArray;
 use crate::models::{poincare, Model};
 use crate::numeric::simd::{dispatch, has_fma, prefetch};
 use crate::numeric::{acosh1p2_fast, gap, sumsq};
-use crate::pairwise::{pair_h, pair_scale, read_pair_point, seq_dist_sq, PairSpace};
+use crate::pairwise::matrix::knn;
+use crate::pairwise::{pair_h, pair_scale, read_pair_point, seq_dist_sq, PairSpace, Prepared};
 
 /// Positives per task in the gradient phase (fixed: results never depend on
 /// the thread count).
@@ -484,6 +485,20 @@ pub struct Params {
     /// radii (distances to the origin) by the common factor that minimises
     /// the loss on a sample ([`Trainer::radial_step`]).
     pub radial_search: bool,
+    /// Negatives per positive `(u, v)` drawn from `u`'s list of nearest
+    /// non-neighbours in the current embedding; `0`: none. The lists hold
+    /// the `hard_pool` nearest admissible nodes among `u`'s `2 hard_pool`
+    /// nearest, recomputed by an exact k-nearest-neighbour search at the
+    /// start of every `hard_every`-th epoch after burn-in. A drawn `w` is
+    /// kept only if it violates the ranking of the positive, i.e. is
+    /// currently closer to `u` than `v` is (`h(u, w) < h(u, v)`, `pair_h` as
+    /// in the loss); otherwise that slot takes the ordinary draw (uniform,
+    /// or degree-weighted during the degree epochs) from the same stream.
+    /// (Keeping every pool draw, the nearest non-neighbours, measured worse:
+    /// they include a node's siblings, which belong near it.)
+    pub hard_negatives: usize,
+    pub hard_pool: usize,
+    pub hard_every: usize,
 }
 
 /// The floor of the linearly decaying rate, as a fraction of
@@ -507,6 +522,9 @@ impl Default for Params {
             degree_power: 0.75,
             decay_epochs: 0,
             radial_search: false,
+            hard_negatives: 0,
+            hard_pool: 128,
+            hard_every: 5,
         }
     }
 }
@@ -536,6 +554,18 @@ impl Params {
         }
         if !(self.degree_power.is_finite() && (0.0..=4.0).contains(&self.degree_power)) {
             return value_err(format!("degree_power must lie in [0, 4], got {}", self.degree_power));
+        }
+        if self.hard_negatives > self.negatives {
+            return value_err(format!(
+                "hard_negatives must be at most negatives = {}, got {}",
+                self.negatives, self.hard_negatives
+            ));
+        }
+        if self.hard_pool < 1 || self.hard_pool > 1 << 12 {
+            return value_err(format!("hard_pool must be between 1 and 4096, got {}", self.hard_pool));
+        }
+        if self.hard_every < 1 {
+            return value_err(format!("hard_every must be >= 1, got {}", self.hard_every));
         }
         if !(self.init_scale.is_finite() && self.init_scale > 0.0 && self.init_scale <= 0.5) {
             return value_err(format!("init_scale must lie in (0, 0.5] (units of R), got {}", self.init_scale));
@@ -621,6 +651,13 @@ impl<'a> Ctx<'a> {
         let w = self.lay.width();
         let i = i as usize;
         self.lay.view(&self.rec[i * w..(i + 1) * w])
+    }
+    /// `h = sinh(d/2)^2` of nodes `a`, `b`, as the loss computes it.
+    #[inline(always)]
+    fn pair_h(&self, a: u32, b: u32) -> f64 {
+        let (pa, ea, aa, _) = self.node(a);
+        let (pb, eb, ab, _) = self.node(b);
+        pair_h(self.lay.space, &self.k, self.s, seq_dist_sq(pa, pb), (pa, ea, aa), (pb, eb, ab))
     }
     /// Prefetches node `i`'s record (its first and last cache lines).
     #[inline(always)]
@@ -880,6 +917,10 @@ pub struct Trainer {
     degree: Option<DegreeSampler>,
     /// The radial factor applied after each epoch (1 where none was).
     scales: Vec<f64>,
+    /// Each node's nearest non-neighbours (CSR: `hard_off`, `hard_ids`),
+    /// empty until the first refresh.
+    hard_off: Vec<u32>,
+    hard_ids: Vec<u32>,
 }
 
 impl Trainer {
@@ -962,6 +1003,8 @@ impl Trainer {
             new_rec: Vec::new(),
             degree,
             scales: Vec::new(),
+            hard_off: Vec::new(),
+            hard_ids: Vec::new(),
             p,
         })
     }
@@ -1008,6 +1051,10 @@ impl Trainer {
         let m = self.graph.edges.len();
         let mut done = 0;
         if self.pos == 0 {
+            let p = &self.p;
+            if p.hard_negatives > 0 && self.epoch >= p.burn_in && (self.epoch - p.burn_in) % p.hard_every == 0 {
+                self.refresh_hard();
+            }
             // Fisher-Yates shuffle of the epoch's order.
             for i in (1..m).rev() {
                 let j = self.rng.below(i as u64 + 1) as usize;
@@ -1205,6 +1252,47 @@ impl Trainer {
         f
     }
 
+    /// Recomputes every node's list of nearest non-neighbours (see
+    /// [`Params::hard_negatives`]): the exact `2 hard_pool` nearest of the
+    /// current points (`pairwise::knn`, ascending by distance then index),
+    /// the excluded nodes dropped, at most `hard_pool` kept.
+    fn refresh_hard(&mut self) {
+        let n = self.graph.n;
+        let w = self.width();
+        let q = (2 * self.p.hard_pool).min(n.saturating_sub(1));
+        self.hard_off.clear();
+        self.hard_ids.clear();
+        self.hard_off.push(0);
+        if q == 0 {
+            self.hard_off.resize(n + 1, 0);
+            return;
+        }
+        let pts = self.points();
+        let view = ndarray::ArrayView2::from_shape((n, w), &pts).expect("(n, width) points").into_dyn();
+        let near = Prepared::new(self.lay.model, self.k, "points", &Data::F64(view))
+            .and_then(|x| knn(&x, &x, q, true))
+            .map(|r| r.0);
+        match near {
+            Ok(idx) => {
+                for u in 0..n {
+                    let ex = self.graph.excluded(u);
+                    let mut kept = 0;
+                    for &j in &idx[u * q..(u + 1) * q] {
+                        let j = j as u32;
+                        if kept < self.p.hard_pool && ex.binary_search(&j).is_err() {
+                            self.hard_ids.push(j);
+                            kept += 1;
+                        }
+                    }
+                    self.hard_off.push(self.hard_ids.len() as u32);
+                }
+            }
+            // The trainer's points are always valid: cannot happen; uniform
+            // draws then.
+            Err(_) => self.hard_off.resize(n + 1, 0),
+        }
+    }
+
     /// The rate of the batch starting at position `start` of the current
     /// epoch (see [`Params::decay_epochs`]).
     pub fn rate(&self, start: usize) -> f64 {
@@ -1239,6 +1327,8 @@ impl Trainer {
         let graph = &self.graph;
         let (seed, epoch) = (self.p.seed, self.epoch as u64);
         let weighted = if self.epoch < self.p.degree_epochs { self.degree.as_ref() } else { None };
+        let n_hard = if self.hard_off.is_empty() { 0 } else { self.p.hard_negatives };
+        let (hard_off, hard_ids) = (&self.hard_off, &self.hard_ids);
         // (A) gradients of every positive into its own slots
         let chunk_loss: Vec<f64> = self.order[start..end]
             .par_chunks(EDGE_CHUNK)
@@ -1262,7 +1352,24 @@ impl Trainer {
                             let c = graph.non_neighbours(u as usize);
                             let mut st = Stream::new(seed, epoch, pos);
                             ctx.prefetch_node(v);
+                            let hard = if n_hard > 0 {
+                                &hard_ids[hard_off[u as usize] as usize..hard_off[u as usize + 1] as usize]
+                            } else {
+                                &[][..]
+                            };
+                            // h(u, v), computed on the first pool draw
+                            let mut h_uv = f64::NAN;
                             for t in 2..kslots {
+                                if t - 2 < n_hard && !hard.is_empty() {
+                                    let h = hard[st.below(hard.len() as u64) as usize];
+                                    if h_uv.is_nan() {
+                                        h_uv = ctx.pair_h(u, v);
+                                    }
+                                    if ctx.pair_h(u, h) < h_uv {
+                                        kb[j * kslots + t] = (h as usize, FOUND);
+                                        continue;
+                                    }
+                                }
                                 if let (Some(ds), true) = (weighted, c != 0) {
                                     // the node itself, marked as found
                                     kb[j * kslots + t] = (ds.draw_for(graph, u as usize, c, &mut st) as usize, FOUND);
@@ -1689,6 +1796,42 @@ mod tests {
             assert_eq!(l1, l2);
             assert_ne!(p1, train(model, 1, 6).0);
         }
+    }
+
+    #[test]
+    fn hard_negatives_are_deterministic_and_change_the_run() {
+        // pool draws do not depend on the thread count, and they change the
+        // trajectory
+        let run = |threads: usize, hard: usize| {
+            let (n, edges) = tree_closure(3, 3);
+            let g = Graph::new(n, &edges, true).unwrap();
+            let p = Params {
+                dim: 3,
+                negatives: 8,
+                learning_rate: 0.5,
+                burn_in: 1,
+                batch_size: 7,
+                seed: 5,
+                hard_negatives: hard,
+                hard_pool: 6,
+                hard_every: 2,
+                ..Params::default()
+            };
+            let pool = rayon::ThreadPoolBuilder::new().num_threads(threads).build().unwrap();
+            pool.install(|| {
+                let mut t = Trainer::new(Model::Poincare, Curvature::new(-1.0).unwrap(), g, p, None).unwrap();
+                while t.epoch() < 6 {
+                    t.run(5);
+                }
+                assert!(t.losses().iter().all(|l| l.is_finite()));
+                t.points()
+            })
+        };
+        let plain = run(1, 0);
+        let hard = run(1, 3);
+        assert_eq!(hard, run(2, 3));
+        assert_ne!(plain, hard);
+        assert_eq!(plain, run(2, 0));
     }
 
     #[test]

@@ -35,7 +35,7 @@ impl GraphTrainer {
     /// `edges` is a C-contiguous `(m, 2)` int64 array; `init`, when given,
     /// the starting points (`(n_nodes, width)` points of `model`).
     #[new]
-    #[pyo3(signature = (edges, n_nodes, dim, model, curvature, negatives, learning_rate, burn_in, burn_in_factor, batch_size, init_scale, seed, directed = false, node_mean = false, decay_epochs = 0, degree_epochs = 0, degree_power = 0.75, radial_search = false, init = None))]
+    #[pyo3(signature = (edges, n_nodes, dim, model, curvature, negatives, learning_rate, burn_in, burn_in_factor, batch_size, init_scale, seed, directed = false, node_mean = false, decay_epochs = 0, degree_epochs = 0, degree_power = 0.75, radial_search = false, init = None, hard_negatives = 0, hard_pool = 128, hard_every = 5))]
     fn new(
         py: Python<'_>,
         edges: PyReadonlyArray2<'_, i64>,
@@ -57,6 +57,9 @@ impl GraphTrainer {
         degree_power: f64,
         radial_search: bool,
         init: Option<&Bound<'_, PyAny>>,
+        hard_negatives: usize,
+        hard_pool: usize,
+        hard_every: usize,
     ) -> PyResult<Self> {
         let k = Curvature::new(curvature)?;
         let md = Model::parse(model, "model")?;
@@ -79,6 +82,9 @@ impl GraphTrainer {
             degree_power,
             decay_epochs,
             radial_search,
+            hard_negatives,
+            hard_pool,
+            hard_every,
         };
         let start = coerce_opt(py, "init", init)?;
         let sd = start.as_ref().map(|a| a.data());

@@ -275,6 +275,9 @@ for model in ("poincare", "hyperboloid"):
     emb = gk.embed.graph(e, 4, model=model, epochs=4, batch_size=32, seed=9, progress=False, burn_in=1,
                          radial_search=True)
     sys.stdout.write(emb.points.tobytes().hex() + emb.loss.tobytes().hex() + "\\n")
+    emb = gk.embed.graph(e, 4, model=model, epochs=4, batch_size=32, seed=9, progress=False, burn_in=1,
+                         hard_negatives=4, hard_pool=8, hard_every=1)
+    sys.stdout.write(emb.points.tobytes().hex() + emb.loss.tobytes().hex() + "\\n")
 """
 
 
@@ -336,6 +339,22 @@ def test_bad_init_is_a_value_error_naming_the_row():
         gk.embed.graph(e, 3, init="random", **kw)
 
 
+def test_hard_negatives_change_the_run_and_keep_the_map():
+    # the run of test_balanced_tree_reaches_high_map with 3 of its 10
+    # negatives drawn among each node's nearest non-neighbours that outrank
+    # the positive: another run (the pool draws are used), which reaches the
+    # same MAP (scikit-learn reference, see sklearn_map) and repeats itself
+    n, e = tree_closure(3, 4)
+    kw = dict(epochs=60, learning_rate=0.3, batch_size=16, seed=1, progress=False)
+    plain = gk.embed.graph(e, 5, **kw)
+    hard = gk.embed.graph(e, 5, hard_negatives=3, hard_pool=16, hard_every=3, **kw)
+    assert not np.array_equal(plain.points, hard.points)
+    assert sklearn_map(hard.points, "poincare", n, e) >= 0.95
+    again = gk.embed.graph(e, 5, hard_negatives=3, hard_pool=16, hard_every=3, **kw)
+    assert np.array_equal(hard.points, again.points)
+    assert inside_ball(hard.points)
+
+
 def test_one_and_two_threads_are_bit_identical():
     out = {}
     for th in ("1", "2"):
@@ -366,6 +385,11 @@ def test_one_and_two_threads_are_bit_identical():
         (np.array([[0, 1]]), {"degree_power": -0.5}, "degree_power"),
         (np.array([[0, 1]]), {"degree_power": float("nan")}, "degree_power"),
         (np.array([[0, 1]]), {"degree_epochs": -1}, "degree_epochs"),
+        (np.array([[0, 1]]), {"negatives": 5, "hard_negatives": 6}, "hard_negatives must be at most negatives = 5"),
+        (np.array([[0, 1]]), {"hard_negatives": -1}, "hard_negatives"),
+        (np.array([[0, 1]]), {"hard_pool": 0}, "hard_pool"),
+        (np.array([[0, 1]]), {"hard_pool": 5000}, "hard_pool"),
+        (np.array([[0, 1]]), {"hard_every": 0}, "hard_every"),
         (np.array([[0, 1]]), {"schedule": "linear", "epochs": 5, "burn_in": 5}, "schedule.*epochs > burn_in"),
     ],
 )
