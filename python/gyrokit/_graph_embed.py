@@ -204,11 +204,13 @@ def graph(
     ranking of the positive (``w`` is closer to ``u`` than ``v`` is);
     otherwise the slot takes the ordinary draw. Uniform negatives almost
     never hit the few nodes that outrank a node's true neighbours (on the
-    WordNet nouns, 10 to 50 of 82 115); these draws aim at them. Measured on
+    WordNet nouns about 10 of 82 115 per row, on average); these draws aim
+    at them. Measured on
     the WordNet noun closure at d = 10, directed stage of 40 epochs with 50
     negatives from an undirected start (README, Benchmarks): directed MAP /
     mean rank 0.832 / 11.3 without, 0.879 / 9.76 with ``hard_negatives=10``
-    (pool 128, every 5 epochs), at about 1.5 times the time (the searches).
+    (pool 128, every 5 epochs), in about the same training time (440 s for
+    both stages against 448 s, quiet machine).
     Keeping every pool draw (the nearest non-neighbours, siblings included)
     measured worse (0.770 / 35.8). Default 0 (off).
 
