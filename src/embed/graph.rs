@@ -1814,18 +1814,19 @@ mod tests {
     }
 
     fn train_with(model: Model, threads: usize, epochs: usize, degree_epochs: usize) -> (Vec<f64>, Vec<f64>) {
+        run_tree(model, threads, epochs, false, Params { burn_in: 2, seed: 11, degree_epochs, ..small_params() })
+    }
+
+    /// The settings of the small-tree runs.
+    fn small_params() -> Params {
+        Params { dim: 3, negatives: 8, learning_rate: 0.5, batch_size: 7, ..Params::default() }
+    }
+
+    /// Points and epoch losses of a run on the closure of a 3-ary tree of
+    /// depth 3 with `threads` threads.
+    fn run_tree(model: Model, threads: usize, epochs: usize, directed: bool, p: Params) -> (Vec<f64>, Vec<f64>) {
         let (n, edges) = tree_closure(3, 3);
-        let g = Graph::new(n, &edges, false).unwrap();
-        let p = Params {
-            dim: 3,
-            negatives: 8,
-            learning_rate: 0.5,
-            burn_in: 2,
-            batch_size: 7,
-            seed: 11,
-            degree_epochs,
-            ..Params::default()
-        };
+        let g = Graph::new(n, &edges, directed).unwrap();
         let pool = rayon::ThreadPoolBuilder::new().num_threads(threads).build().unwrap();
         pool.install(|| {
             let mut t = Trainer::new(model, Curvature::new(-1.0).unwrap(), g, p, None).unwrap();
@@ -1861,29 +1862,10 @@ mod tests {
         // pool draws do not depend on the thread count, and they change the
         // trajectory
         let run = |threads: usize, hard: usize| {
-            let (n, edges) = tree_closure(3, 3);
-            let g = Graph::new(n, &edges, true).unwrap();
-            let p = Params {
-                dim: 3,
-                negatives: 8,
-                learning_rate: 0.5,
-                burn_in: 1,
-                batch_size: 7,
-                seed: 5,
-                hard_negatives: hard,
-                hard_pool: 6,
-                hard_every: 2,
-                ..Params::default()
-            };
-            let pool = rayon::ThreadPoolBuilder::new().num_threads(threads).build().unwrap();
-            pool.install(|| {
-                let mut t = Trainer::new(Model::Poincare, Curvature::new(-1.0).unwrap(), g, p, None).unwrap();
-                while t.epoch() < 6 {
-                    t.run(5);
-                }
-                assert!(t.losses().iter().all(|l| l.is_finite()));
-                t.points()
-            })
+            let p = Params { burn_in: 1, seed: 5, hard_negatives: hard, hard_pool: 6, hard_every: 2, ..small_params() };
+            let (points, losses) = run_tree(Model::Poincare, threads, 6, true, p);
+            assert!(losses.iter().all(|l| l.is_finite()));
+            points
         };
         let plain = run(1, 0);
         let hard = run(1, 3);
