@@ -34,6 +34,9 @@ fixes its pool size at start-up).
     python benches/bench_graph.py --models poincare --negatives 10 --epochs 40 --burn-in 2 \
         --degree-epochs 2 --radial-search --then-directed 40 --then-negatives 50 --then-hard-negatives 10
                                                      # negatives that outrank the positive (README figures)
+    python benches/bench_graph.py --models poincare --negatives 10 --epochs 40 --burn-in 2 \
+        --degree-epochs 2 --radial-search --then-directed 40 --then-negatives 50 --then-hard-negatives 10 \
+        --then-schedule linear                       # the same, second stage's rate decaying (best so far)
 
 Each run prints one JSON line: the settings, wall and CPU seconds of the
 training, positives per second per core (wall) and per CPU second, the final
