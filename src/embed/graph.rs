@@ -795,25 +795,31 @@ fn step(lay: &Layout, k: &Curvature, r: &[f64], gr: &[f64], lr: f64, out: &mut [
     let (p, extra, _, g) = lay.view(r);
     let (v, y) = tmp.split_at_mut(d);
     let (ys, y) = y.split_at_mut(d);
-    if lay.model == Model::Hyperboloid {
-        // A short step in the hub: the same intrinsic step by the Poincaré
-        // closed form from the record's Poincaré image (an isometry away),
-        // then the hyperboloid image of its result, stored as every point.
-        let f = -lr * 0.25 * g * g;
-        for i in 0..d {
-            v[i] = f * gr[i];
-        }
-        if fast_poincare_step(k, p, g, v, ys) {
-            if let Ok(gy) = checked_gap(k, ys) {
-                let gy = gy.value();
-                if gy >= FAST_MIN_GAP {
-                    hyperboloid::from_poincare(k, ys, gy, y);
-                    if lay.store(k, y, out).is_ok() {
-                        return 0;
-                    }
+    // Short steps, both models: the ball's closed form from the hub point
+    // (on the hyperboloid the record's Poincaré image, an isometry away),
+    // kept when the exact gap of the rounded result is at least
+    // FAST_MIN_GAP; the hyperboloid stores the image of that point.
+    let f = -lr * 0.25 * g * g;
+    for i in 0..d {
+        v[i] = f * gr[i];
+    }
+    if fast_poincare_step(k, p, g, v, ys) {
+        let kept = if lay.model == Model::Hyperboloid {
+            match checked_gap(k, ys) {
+                Ok(gy) if gy.value() >= FAST_MIN_GAP => {
+                    hyperboloid::from_poincare(k, ys, gy.value(), y);
+                    lay.store(k, y, out).is_ok()
                 }
+                _ => false,
             }
+        } else {
+            lay.store(k, ys, out).is_ok() && out[d + lay.ew + 1] >= FAST_MIN_GAP
+        };
+        if kept {
+            return 0;
         }
+    }
+    if lay.model == Model::Hyperboloid {
         let pg: f64 = p.iter().zip(gr).map(|(a, b)| a * b).sum();
         for i in 0..d {
             v[i] = -lr * (0.5 * g * gr[i] + k.kappa * pg * p[i]);
@@ -832,21 +838,13 @@ fn step(lay: &Layout, k: &Curvature, r: &[f64], gr: &[f64], lr: f64, out: &mut [
             v.iter_mut().for_each(|x| *x *= 0.5);
         }
     } else {
-        let f = -lr * 0.25 * g * g;
-        for i in 0..d {
-            v[i] = f * gr[i];
-        }
-        let y = ys;
-        if fast_poincare_step(k, p, g, v, y) && lay.store(k, y, out).is_ok() && out[d + lay.ew + 1] >= FAST_MIN_GAP {
-            return 0;
-        }
         for halvings in 0..MAX_HALVINGS {
             if v.iter().all(|x| x.is_finite()) {
-                let gy = poincare::exp_map_g(k, p, g, v, y);
+                let gy = poincare::exp_map_g(k, p, g, v, ys);
                 // The rim rule judges the exact gap of the result: held (moved
                 // to the last radius inside only if its last rounding fell
                 // on the sphere), or beyond float64 and the step is halved.
-                if settle(k, y, gy, false) && lay.store(k, y, out).is_ok() {
+                if settle(k, ys, gy, false) && lay.store(k, ys, out).is_ok() {
                     return halvings;
                 }
             }
