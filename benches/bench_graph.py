@@ -36,7 +36,10 @@ fixes its pool size at start-up).
                                                      # negatives that outrank the positive (README figures)
     python benches/bench_graph.py --models poincare --negatives 10 --epochs 40 --burn-in 2 \
         --degree-epochs 2 --radial-search --then-directed 40 --then-negatives 50 --then-hard-negatives 10 \
-        --then-schedule linear                       # the same, second stage's rate decaying (best so far)
+        --then-schedule linear                       # the same, second stage's rate decaying
+    python benches/bench_graph.py --models poincare --negatives 10 --epochs 40 --burn-in 2 \
+        --degree-epochs 2 --radial-search --then-directed 40 --then-negatives 50 --then-hard-negatives 10 \
+        --then-schedule linear --init tree           # the same from a spanning tree's embedding (best so far)
 
 Each run prints one JSON line: the settings, wall and CPU seconds of the
 training, positives per second per core (wall) and per CPU second, the final
@@ -146,16 +149,105 @@ def load(subset: str) -> Tuple[List[str], np.ndarray]:
     return [names[i] for i in ids], remap[sub]
 
 
+def spanning_parents(n: int, pairs: np.ndarray) -> np.ndarray:
+    """A spanning tree of a hierarchy given by its closure (``(descendant,
+    ancestor)`` rows): each node's parent is its ancestor with the most
+    ancestors (lowest index on ties), which is always a direct parent (an
+    ancestor of a direct parent has fewer ancestors than it); -1 for a node
+    without ancestors. More than one such root gets a virtual root
+    (index ``n``, returned as the last entry) as their common parent."""
+    nanc = np.bincount(pairs[:, 0], minlength=n)
+    # rows sorted by descendant, then by the ancestor's ancestor count
+    # (descending), then by the ancestor's index: the first row of each
+    # descendant is its parent
+    o = np.lexsort((pairs[:, 1], -nanc[pairs[:, 1]], pairs[:, 0]))
+    rows = pairs[o]
+    first = np.ones(len(rows), bool)
+    first[1:] = rows[1:, 0] != rows[:-1, 0]
+    parent = -np.ones(n, np.int64)
+    parent[rows[first, 0]] = rows[first, 1]
+    if (parent < 0).sum() > 1:
+        parent = np.append(np.where(parent < 0, n, parent), -1)
+    return parent
+
+
+def direct_parents(n: int, pairs: np.ndarray) -> List[np.ndarray]:
+    """Each node's direct parents from the closure: its ancestors that are
+    not an ancestor of another of its ancestors."""
+    o = np.lexsort((pairs[:, 1], pairs[:, 0]))
+    rows = pairs[o]
+    off = np.searchsorted(rows[:, 0], np.arange(n + 1))
+    anc = [rows[off[u]:off[u + 1], 1] for u in range(n)]
+    out = []
+    for u in range(n):
+        a = anc[u]
+        if len(a) <= 1:
+            out.append(a)
+            continue
+        above = np.concatenate([anc[w] for w in a])
+        out.append(np.setdiff1d(a, above))
+    return out
+
+
+def tree_init(args, model: str, n: int, pairs: np.ndarray) -> np.ndarray:
+    """Starting points from the combinatorial embedding (``gk.embed.tree``)
+    of the hierarchy's spanning tree (:func:`spanning_parents`): every node
+    starts beyond its parent, in its parent's direction. With ``--init
+    dag``, then each node with more than one direct parent (fewest
+    ancestors first) is moved, with its subtree of the spanning tree, by
+    the Möbius translation taking it to the point one edge beyond the
+    Fréchet mean of its parents' points (radially outward)."""
+    parent = spanning_parents(n, pairs)
+    e = gk.embed.tree(parent, args.dim, scale=args.init_scale, model="poincare", curvature=args.curvature)
+    x = e.points.copy()
+    if args.init == "dag":
+        k = args.curvature
+        m = len(parent)
+        children: List[List[int]] = [[] for _ in range(m)]
+        for u in range(m):
+            if parent[u] >= 0:
+                children[parent[u]].append(u)
+        # preorder: a subtree is a contiguous run of `order`
+        order, end = np.zeros(m, np.int64), np.zeros(m, np.int64)
+        pos = np.zeros(m, np.int64)
+        root = int(np.flatnonzero(parent < 0)[0])
+        stack, t = [(root, 0)], 0
+        while stack:
+            v, i = stack.pop()
+            if i == 0:
+                order[t], pos[v] = v, t
+                t += 1
+            if i < len(children[v]):
+                stack.append((v, i + 1))
+                stack.append((children[v][i], 0))
+            else:
+                end[v] = t
+        dp = direct_parents(n, pairs)
+        nanc = np.bincount(pairs[:, 0], minlength=n)
+        multi = [u for u in range(n) if len(dp[u]) > 1]
+        for u in sorted(multi, key=lambda u: (nanc[u], u)):
+            mid = gk.frechet_mean(x[dp[u]], curvature=k).mean
+            r = np.linalg.norm(mid)
+            # one edge (scale R) radially outward: mid ⊕ w with |w| = R tanh(scale / 2)
+            w = mid / r * np.sqrt(-1.0 / k) * np.tanh(e.scale / 2) if r > 0 else np.zeros_like(mid)
+            target = gk.poincare.add(mid, w, curvature=k)
+            sub = order[pos[u]:end[u]]
+            x[sub] = gk.poincare.add(target, gk.poincare.add(-x[u], x[sub], curvature=k), curvature=k)
+    x = x[:n]
+    return x if model == "poincare" else gk.convert(x, "poincare", model, curvature=args.curvature)
+
+
 def run(args, model: str, names, pairs) -> Dict[str, float]:
     t = time.perf_counter()
     c = time.process_time()
+    init = tree_init(args, model, len(names), pairs) if args.init in ("tree", "dag") else None
     emb = gk.embed.graph(
         pairs, args.dim, model=model, negatives=args.negatives, epochs=args.epochs,
         learning_rate=args.lr, burn_in=args.burn_in, batch_size=args.batch_size, seed=args.seed,
         n_nodes=len(names), progress=args.progress, node_steps=args.node_steps, schedule=args.schedule,
         burn_in_factor=args.burn_in_factor, curvature=args.curvature,
         degree_epochs=args.degree_epochs, degree_power=args.degree_power, radial_search=args.radial_search,
-        directed=args.directed,
+        directed=args.directed, init=init,
     )
     positives = (1 if args.directed else 2) * len(pairs) * emb.epochs
     stage1 = None
@@ -179,6 +271,7 @@ def run(args, model: str, names, pairs) -> Dict[str, float]:
         "burn_in": args.burn_in, "batch_size": args.batch_size, "node_steps": args.node_steps,
         "schedule": args.schedule, "curvature": args.curvature, "degree_epochs": args.degree_epochs,
         "degree_power": args.degree_power, "radial_search": args.radial_search, "directed_training": args.directed,
+        "init": args.init,
         "train_s": train, "train_cpu_s": cpu, "eval_s": ev,
         "positives_per_s_per_core": positives / train / threads, "positives_per_cpu_s": positives / cpu,
         "threads": threads,
@@ -289,6 +382,10 @@ def main() -> None:
                     help="embed.graph's hard_negatives in the second stage (negatives that outrank the positive)")
     ap.add_argument("--then-hard-pool", type=int, default=128)
     ap.add_argument("--then-hard-every", type=int, default=5)
+    ap.add_argument("--init", default="random", choices=("random", "tree", "dag"),
+                    help="starting points: gk.embed.graph's own, the combinatorial embedding of a spanning tree, "
+                         "or that with the nodes of several parents moved between them (see tree_init)")
+    ap.add_argument("--init-scale", type=float, default=None, help="edge length of --init tree (default: gk.embed.tree's)")
     ap.add_argument("--seed", type=int, default=0)
     ap.add_argument("--curvature", type=float, default=-1.0)
     ap.add_argument("--progress", action="store_true", default=None)
