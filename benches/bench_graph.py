@@ -243,7 +243,13 @@ def tree_init(args, model: str, n: int, pairs: np.ndarray) -> np.ndarray:
 def run(args, model: str, names, pairs) -> Dict[str, float]:
     t = time.perf_counter()
     c = time.process_time()
-    init = tree_init(args, model, len(names), pairs) if args.init in ("tree", "dag") else None
+    if args.init == "hierarchy":
+        init = gk.embed.hierarchy(pairs, args.dim, scale=args.init_scale, model=model, curvature=args.curvature,
+                                  n_nodes=len(names))
+    elif args.init in ("tree", "dag"):
+        init = tree_init(args, model, len(names), pairs)
+    else:
+        init = None
     emb = gk.embed.graph(
         pairs, args.dim, model=model, negatives=args.negatives, epochs=args.epochs,
         learning_rate=args.lr, burn_in=args.burn_in, batch_size=args.batch_size, seed=args.seed,
@@ -385,10 +391,12 @@ def main() -> None:
                     help="embed.graph's hard_negatives in the second stage (negatives that outrank the positive)")
     ap.add_argument("--then-hard-pool", type=int, default=128)
     ap.add_argument("--then-hard-every", type=int, default=5)
-    ap.add_argument("--init", default="random", choices=("random", "tree", "dag"),
+    ap.add_argument("--init", default="random", choices=("random", "tree", "dag", "hierarchy"),
                     help="starting points: gk.embed.graph's own, the combinatorial embedding of a spanning tree, "
-                         "or that with the nodes of several parents moved between them (see tree_init)")
-    ap.add_argument("--init-scale", type=float, default=None, help="edge length of --init tree (default: gk.embed.tree's)")
+                         "or that with the nodes of several parents moved between them (see tree_init), or "
+                         "gk.embed.hierarchy's")
+    ap.add_argument("--init-scale", type=float, default=None,
+                    help="edge length of --init tree / dag / hierarchy (default: gk.embed.tree's)")
     ap.add_argument("--seed", type=int, default=0)
     ap.add_argument("--curvature", type=float, default=-1.0)
     ap.add_argument("--progress", action="store_true", default=None)

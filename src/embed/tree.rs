@@ -39,6 +39,7 @@ use crate::models::ball::{settle, Curvature};
 use crate::models::convert::from_hub;
 use crate::models::{halfspace, hyperboloid, poincare, Model};
 use crate::numeric::{sech2, sumsq, with_scratch};
+use crate::stats::centroids::{frechet_group, UnitPoints};
 use crate::tree::Tree;
 
 /// The result: points in node order, `n` rows of `width` coordinates.
@@ -116,6 +117,22 @@ fn splitmix(s: &mut u64) -> u64 {
 fn normalize(x: &mut [f64]) {
     let n = sumsq(x).sqrt();
     x.iter_mut().for_each(|v| *v /= n);
+}
+
+/// The Fréchet mean (unit ball, with its gap) of the hub points of the nodes
+/// `ps`, read at their breadth-first positions `pos` in `p` / `g`.
+fn parents_mean(ps: &[u32], pos: &[u32], p: &[f64], g: &[f64], d: usize) -> (Vec<f64>, f64) {
+    let mut pts = Vec::with_capacity(ps.len() * d);
+    let mut gs = Vec::with_capacity(ps.len());
+    for &v in ps {
+        let q = pos[v as usize] as usize;
+        pts.extend_from_slice(&p[q * d..(q + 1) * d]);
+        gs.push(g[q]);
+    }
+    let up = UnitPoints { n: ps.len(), d, p: std::borrow::Cow::Owned(pts), g: gs };
+    let idx: Vec<usize> = (0..ps.len()).collect();
+    let r = frechet_group(&up, &idx, None, 1e-12, 50).expect("a non-empty group of points has a mean");
+    (r.mu, r.gap)
 }
 
 /// `m` unit vectors of R^d (row-major), deterministic, as far apart as the
@@ -277,6 +294,41 @@ fn turn(c0: &[f64], a: &[f64], w: &[f64], out: &mut [f64]) {
 /// largest with `height * scale <= min(max_radius(model),
 /// accurate_radius(model, scale))`).
 pub fn embed(tree: &Tree, dim: usize, scale: Option<f64>, model: Model, k: Curvature) -> Result<Embedded> {
+    embed_joined(tree, dim, scale, model, k, None)
+}
+
+/// Nodes of a tree that also hang below other nodes (a hierarchy with
+/// multiple inheritance, [`super::hierarchy`]): node `v`'s parents are
+/// `parents[start[v]..start[v + 1]]` (tree node ids, all at smaller depths
+/// than `v`), and a node with two or more of them is placed from all of
+/// them instead of from its tree parent alone.
+pub struct Joins {
+    pub start: Vec<u32>,
+    pub parents: Vec<u32>,
+}
+
+impl Joins {
+    fn of(&self, v: usize) -> &[u32] {
+        &self.parents[self.start[v] as usize..self.start[v + 1] as usize]
+    }
+}
+
+/// As [`embed`]; a node `v` with two or more parents in `joins` goes, instead
+/// of one edge beyond its tree parent, one edge (`scale`) beyond the Fréchet
+/// mean `m` of its parents (hub points, exact gaps), in the direction
+/// halfway between the radial one at `m` and the direction the tree would
+/// have given it (so that nodes of the same parents do not coincide; the
+/// tree's direction alone when `m` is the origin). Its children are spread
+/// around the direction back to `m` as usual: its subtree keeps the tree's
+/// shape.
+pub fn embed_joined(
+    tree: &Tree,
+    dim: usize,
+    scale: Option<f64>,
+    model: Model,
+    k: Curvature,
+    joins: Option<&Joins>,
+) -> Result<Embedded> {
     if dim < 2 {
         return value_err(format!("dim must be at least 2, got {dim}"));
     }
@@ -392,6 +444,31 @@ pub fn embed(tree: &Tree, dim: usize, scale: Option<f64>, model: Model, k: Curva
                     b[i] = t * w[i];
                 }
                 *g_out = poincare::add_g(&one, xp, gp, b, gb, 1.0, p_out);
+                let joined = joins.map(|j| j.of(tree.bfs[q] as usize)).filter(|ps| ps.len() > 1);
+                let mean = joined.map(|ps| {
+                    // from the Fréchet mean m of the parents: radially
+                    // outward, tilted towards the tree's direction w (so
+                    // that nodes of the same parents do not coincide)
+                    let (m, gm) = parents_mean(ps, &pos, done_p, done_g, d);
+                    let rm = sumsq(&m).sqrt();
+                    if rm > 0.0 {
+                        w.iter_mut().zip(&m).for_each(|(wi, mi)| *wi += mi / rm);
+                        if sumsq(w) > 0.0 {
+                            normalize(w);
+                        } else {
+                            w.iter_mut().zip(&m).for_each(|(wi, mi)| *wi = mi / rm);
+                        }
+                    }
+                    for i in 0..d {
+                        b[i] = t * w[i];
+                    }
+                    *g_out = poincare::add_g(&one, &m, gm, b, gb, 1.0, p_out);
+                    (m, gm)
+                });
+                let (xp, gp) = match &mean {
+                    None => (xp, gp),
+                    Some((m, gm)) => (&m[..], *gm),
+                };
                 if tree.bfs_child[q + 1] > tree.bfs_child[q] {
                     poincare::gyration_g(&one, xp, gp, b, gb, w, a_out);
                     a_out.iter_mut().for_each(|x| *x = -*x);
@@ -480,7 +557,10 @@ pub fn embed(tree: &Tree, dim: usize, scale: Option<f64>, model: Model, k: Curva
             model_name(model)
         ));
     }
-    let accurate = height as f64 * s <= accurate_radius(model, s);
+    // a tree's deepest node may lie up to height * s out; nodes placed from
+    // several parents lie closer in, so there the farthest one placed counts
+    let reach = if joins.is_some() { far } else { height as f64 * s };
+    let accurate = reach <= accurate_radius(model, s);
     Ok(Embedded { points, width, scale: s, accurate })
 }
 

@@ -6,6 +6,7 @@ use numpy::ndarray::Array2;
 use numpy::{IntoPyArray, PyReadonlyArrayDyn};
 use pyo3::prelude::*;
 
+use crate::embed::hierarchy;
 use crate::embed::tree as embed_tree_core;
 use crate::error::{Error, Result};
 use crate::metrics::tree_distances as hops;
@@ -58,6 +59,32 @@ fn embed_tree(
     Ok((pts.into_any().unbind(), e.scale, beyond))
 }
 
+/// `embed_hierarchy(rows, n, dim, scale, model, curvature)` -> `(points,
+/// scale, beyond)` for `(child, parent)` rows (C-contiguous int64, `(m, 2)`).
+#[pyfunction]
+#[pyo3(signature = (rows, n, dim, scale, model = "poincare", curvature = -1.0))]
+fn embed_hierarchy(
+    py: Python<'_>,
+    rows: PyReadonlyArrayDyn<'_, i64>,
+    n: usize,
+    dim: usize,
+    scale: Option<f64>,
+    model: &str,
+    curvature: f64,
+) -> PyResult<(Py<PyAny>, f64, Option<f64>)> {
+    let k = Curvature::new(curvature)?;
+    let md = Model::parse(model, "model")?;
+    let data = contiguous(&rows, "edges")?;
+    let e = py.detach(|| {
+        let r: Vec<[i64; 2]> = data.chunks_exact(2).map(|c| [c[0], c[1]]).collect();
+        let h = hierarchy::read(n, &r)?;
+        hierarchy::embed(&h, dim, scale, md, k)
+    })?;
+    let beyond = (!e.accurate).then(|| embed_tree_core::accurate_radius(md, e.scale));
+    let pts = Array2::from_shape_vec((n, e.width), e.points).expect("shape").into_pyarray(py);
+    Ok((pts.into_any().unbind(), e.scale, beyond))
+}
+
 /// `tree_distances(kind, tree, n, root, pairs)`: hop counts, `(p,)` for the
 /// `(p, 2)` pairs or `(n, n)`.
 #[pyfunction]
@@ -93,6 +120,7 @@ fn tree_distances(
 
 pub fn register(m: &Bound<'_, PyModule>) -> PyResult<()> {
     m.add_function(wrap_pyfunction!(embed_tree, m)?)?;
+    m.add_function(wrap_pyfunction!(embed_hierarchy, m)?)?;
     m.add_function(wrap_pyfunction!(tree_distances, m)?)?;
     Ok(())
 }
