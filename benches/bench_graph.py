@@ -42,7 +42,10 @@ fixes its pool size at start-up).
         --then-schedule linear --init tree           # the same from a spanning tree's embedding
     python benches/bench_graph.py --models poincare --negatives 10 --epochs 40 --burn-in 2 \
         --degree-epochs 2 --radial-search --then-directed 40 --then-negatives 50 --then-hard-negatives 10 \
-        --then-schedule linear --init dag            # and nouns of several parents started between them (best)
+        --then-schedule linear --init dag            # and nouns of several parents started between them
+    python benches/bench_graph.py --models poincare --negatives 10 --epochs 10 --burn-in 0 --degree-epochs 0 \
+        --radial-search --then-directed 30 --then-negatives 50 --then-hard-negatives 10 --then-schedule linear \
+        --init hierarchy --init-scale 0.75           # gk.embed.hierarchy's start, shorter stages (README figures)
 
 Each run prints one JSON line: the settings, wall and CPU seconds of the
 training, positives per second per core (wall) and per CPU second, the final
