@@ -40,9 +40,6 @@ fixes its pool size at start-up).
     python benches/bench_graph.py --models poincare --negatives 10 --epochs 40 --burn-in 2 \
         --degree-epochs 2 --radial-search --then-directed 40 --then-negatives 50 --then-hard-negatives 10 \
         --then-schedule linear --init tree           # the same from a spanning tree's embedding
-    python benches/bench_graph.py --models poincare --negatives 10 --epochs 40 --burn-in 2 \
-        --degree-epochs 2 --radial-search --then-directed 40 --then-negatives 50 --then-hard-negatives 10 \
-        --then-schedule linear --init dag            # and nouns of several parents started between them
     python benches/bench_graph.py --models poincare --negatives 10 --epochs 10 --burn-in 0 --degree-epochs 0 \
         --radial-search --then-directed 30 --then-negatives 50 --then-hard-negatives 10 --then-schedule linear \
         --init hierarchy --init-scale 0.75           # gk.embed.hierarchy's start, shorter stages (README figures)
@@ -177,69 +174,16 @@ def spanning_parents(n: int, pairs: np.ndarray) -> np.ndarray:
     return parent
 
 
-def direct_parents(n: int, pairs: np.ndarray) -> List[np.ndarray]:
-    """Each node's direct parents from the closure: its ancestors that are
-    not an ancestor of another of its ancestors."""
-    o = np.lexsort((pairs[:, 1], pairs[:, 0]))
-    rows = pairs[o]
-    off = np.searchsorted(rows[:, 0], np.arange(n + 1))
-    anc = [rows[off[u]:off[u + 1], 1] for u in range(n)]
-    out = []
-    for u in range(n):
-        a = anc[u]
-        if len(a) <= 1:
-            out.append(a)
-            continue
-        above = np.concatenate([anc[w] for w in a])
-        out.append(np.setdiff1d(a, above))
-    return out
-
-
 def tree_init(args, model: str, n: int, pairs: np.ndarray) -> np.ndarray:
     """Starting points from the combinatorial embedding (``gk.embed.tree``)
     of the hierarchy's spanning tree (:func:`spanning_parents`): every node
-    starts beyond its parent, in its parent's direction. With ``--init
-    dag``, then each node with more than one direct parent (fewest
-    ancestors first) is moved, with its subtree of the spanning tree, by
-    the Möbius translation taking it to the point one edge beyond the
-    Fréchet mean of its parents' points (radially outward)."""
+    starts beyond its parent, in its parent's direction. (``--init
+    hierarchy`` places the nodes of several parents between them:
+    ``gk.embed.hierarchy``; an earlier variant of it in this script,
+    ``--init dag``, is in the history at commit 37b4fea.)"""
     parent = spanning_parents(n, pairs)
     e = gk.embed.tree(parent, args.dim, scale=args.init_scale, model="poincare", curvature=args.curvature)
-    x = e.points.copy()
-    if args.init == "dag":
-        k = args.curvature
-        m = len(parent)
-        children: List[List[int]] = [[] for _ in range(m)]
-        for u in range(m):
-            if parent[u] >= 0:
-                children[parent[u]].append(u)
-        # preorder: a subtree is a contiguous run of `order`
-        order, end = np.zeros(m, np.int64), np.zeros(m, np.int64)
-        pos = np.zeros(m, np.int64)
-        root = int(np.flatnonzero(parent < 0)[0])
-        stack, t = [(root, 0)], 0
-        while stack:
-            v, i = stack.pop()
-            if i == 0:
-                order[t], pos[v] = v, t
-                t += 1
-            if i < len(children[v]):
-                stack.append((v, i + 1))
-                stack.append((children[v][i], 0))
-            else:
-                end[v] = t
-        dp = direct_parents(n, pairs)
-        nanc = np.bincount(pairs[:, 0], minlength=n)
-        multi = [u for u in range(n) if len(dp[u]) > 1]
-        for u in sorted(multi, key=lambda u: (nanc[u], u)):
-            mid = gk.frechet_mean(x[dp[u]], curvature=k).mean
-            r = np.linalg.norm(mid)
-            # one edge (scale R) radially outward: mid ⊕ w with |w| = R tanh(scale / 2)
-            w = mid / r * np.sqrt(-1.0 / k) * np.tanh(e.scale / 2) if r > 0 else np.zeros_like(mid)
-            target = gk.poincare.add(mid, w, curvature=k)
-            sub = order[pos[u]:end[u]]
-            x[sub] = gk.poincare.add(target, gk.poincare.add(-x[u], x[sub], curvature=k), curvature=k)
-    x = x[:n]
+    x = e.points[:n]
     return x if model == "poincare" else gk.convert(x, "poincare", model, curvature=args.curvature)
 
 
@@ -249,7 +193,7 @@ def run(args, model: str, names, pairs) -> Dict[str, float]:
     if args.init == "hierarchy":
         init = gk.embed.hierarchy(pairs, args.dim, scale=args.init_scale, model=model, curvature=args.curvature,
                                   n_nodes=len(names))
-    elif args.init in ("tree", "dag"):
+    elif args.init == "tree":
         init = tree_init(args, model, len(names), pairs)
     else:
         init = None
@@ -394,12 +338,11 @@ def main() -> None:
                     help="embed.graph's hard_negatives in the second stage (negatives that outrank the positive)")
     ap.add_argument("--then-hard-pool", type=int, default=128)
     ap.add_argument("--then-hard-every", type=int, default=5)
-    ap.add_argument("--init", default="random", choices=("random", "tree", "dag", "hierarchy"),
-                    help="starting points: gk.embed.graph's own, the combinatorial embedding of a spanning tree, "
-                         "or that with the nodes of several parents moved between them (see tree_init), or "
-                         "gk.embed.hierarchy's")
+    ap.add_argument("--init", default="random", choices=("random", "tree", "hierarchy"),
+                    help="starting points: gk.embed.graph's own, the combinatorial embedding of a spanning tree "
+                         "(see tree_init), or gk.embed.hierarchy's (the nodes of several parents between them)")
     ap.add_argument("--init-scale", type=float, default=None,
-                    help="edge length of --init tree / dag / hierarchy (default: gk.embed.tree's)")
+                    help="edge length of --init tree / hierarchy (default: gk.embed.tree's)")
     ap.add_argument("--seed", type=int, default=0)
     ap.add_argument("--curvature", type=float, default=-1.0)
     ap.add_argument("--progress", action="store_true", default=None)

@@ -100,6 +100,7 @@ def valid_call(name: str, fn, module: str):
         "gyrokit.PrincipalGeodesicAnalysis": ((), {"n_components": 2}),
         "hyperboloid.inner": ((HYP, HYP[::-1].copy()), {}),
         "embed.tree": ((TREE,), {}),
+        "embed.hierarchy": ((np.column_stack([np.arange(1, N), TREE[1:]]),), {}),
         "metrics.tree_distances": ((TREE, TREE_PAIRS), {}),
         "metrics.reconstruction": ((BALL, np.column_stack([np.arange(N - 1), np.arange(1, N)])), {}),
         "metrics.distortion": ((BALL, 2.0 * gk.distance_matrix(BALL)), {}),
