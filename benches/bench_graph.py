@@ -41,8 +41,8 @@ fixes its pool size at start-up).
         --degree-epochs 2 --radial-search --then-directed 40 --then-negatives 50 --then-hard-negatives 10 \
         --then-schedule linear --init tree           # the same from a spanning tree's embedding
     python benches/bench_graph.py --models poincare --negatives 10 --epochs 10 --burn-in 0 --degree-epochs 0 \
-        --radial-search --then-directed 30 --then-negatives 50 --then-hard-negatives 10 --then-schedule linear \
-        --init hierarchy --init-scale 0.75           # gk.embed.hierarchy's start, shorter stages (README figures)
+        --radial-search --then-directed 36 --then-negatives 40 --then-hard-negatives 10 --then-schedule linear \
+        --init hierarchy --init-scale 0.75           # gk.embed.hierarchy's start, shorter stages (best; README)
 
 Each run prints one JSON line: the settings, wall and CPU seconds of the
 training, positives per second per core (wall) and per CPU second, the final

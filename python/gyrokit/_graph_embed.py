@@ -153,11 +153,11 @@ def graph(
     0.948 / 1.48 against 0.869 / 3.68 for 100 directed epochs alone.
     On a taxonomy, start from its combinatorial embedding instead of random
     points (``init=gyrokit.embed.hierarchy(edges, dim, scale=0.75)``,
-    ``burn_in=0``): on WordNet 10 undirected epochs from it, then 30
-    directed ones with 50 negatives, ``hard_negatives=10`` and a linearly
-    decaying rate, reached 0.943 / 4.01 in 889 s on 2 threads, where the
-    same second stage after 40 undirected epochs from random points
-    reached 0.886 / 9.15.
+    ``burn_in=0``): on WordNet 10 undirected epochs from it, then 36
+    directed ones with 40 negatives, ``hard_negatives=10`` and a linearly
+    decaying rate, reached 0.947 / 3.79 in 769 s on 2 threads, where 40
+    undirected epochs from random points then 40 directed ones (50
+    negatives) reached 0.886 / 9.15.
 
     ``node_steps``: how a node touched by several positives of one batch
     moves. ``"sum"`` takes the summed step (what sequential SGD would do,
