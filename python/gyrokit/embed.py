@@ -101,6 +101,14 @@ def tree(
     s = None if scale is None else _args.real("scale", scale)
     kind, data, n, r = tree_args(parent, root)
     points, used, beyond = _native.embed_tree(kind, data, n, r, dim, s, model, _args.real("curvature", curvature))
+    _warn_if_inaccurate(used, beyond)
+    return Embedding(points=points, model=model, curvature=float(curvature), scale=used)
+
+
+def _warn_if_inaccurate(used: float, beyond: Optional[float]) -> None:
+    """The core's verdict on the edges (``beyond``: the accurate radius, only
+    when nodes lie beyond it) as an :class:`EdgeAccuracyWarning` to the
+    caller of the public function."""
     if beyond is not None:
         import warnings
 
@@ -110,9 +118,8 @@ def tree(
             f"about 1e-16 e^r / scale relative at distance r R from the root, and siblings may merge. "
             f"scale=None picks the largest accurate scale",
             EdgeAccuracyWarning,
-            stacklevel=2,
+            stacklevel=3,
         )
-    return Embedding(points=points, model=model, curvature=float(curvature), scale=used)
 
 
 def hierarchy(
@@ -190,15 +197,7 @@ def hierarchy(
     dim = _args.count("dim", dim, 2)
     s = None if scale is None else _args.real("scale", scale)
     points, used, beyond = _native.embed_hierarchy(e, n, dim, s, model, _args.real("curvature", curvature))
-    if beyond is not None:
-        import warnings
-
-        warnings.warn(
-            f"scale = {used}: the deepest nodes lie beyond the radius ({beyond:.2f} R) up to which float64 "
-            f"coordinates keep every edge within 1e-9 of the scale; scale=None picks the largest accurate scale",
-            EdgeAccuracyWarning,
-            stacklevel=2,
-        )
+    _warn_if_inaccurate(used, beyond)
     return Embedding(points=points, model=model, curvature=float(curvature), scale=used)
 
 
