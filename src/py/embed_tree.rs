@@ -53,10 +53,15 @@ fn embed_tree(
         embed_tree_core::embed(&t, dim, scale, md, k).map(|e| (t.n, e))
     })?;
     let (n, e) = e;
-    let pts = Array2::from_shape_vec((n, e.width), e.points).expect("shape").into_pyarray(py);
-    // the accurate radius, only when the deepest nodes lie beyond it
+    Ok(embedded(py, n, e, md))
+}
+
+/// `(points, scale, beyond)`: `beyond` is the accurate radius, only when the
+/// deepest nodes lie beyond it.
+fn embedded(py: Python<'_>, n: usize, e: embed_tree_core::Embedded, md: Model) -> (Py<PyAny>, f64, Option<f64>) {
     let beyond = (!e.accurate).then(|| embed_tree_core::accurate_radius(md, e.scale));
-    Ok((pts.into_any().unbind(), e.scale, beyond))
+    let pts = Array2::from_shape_vec((n, e.width), e.points).expect("shape").into_pyarray(py);
+    (pts.into_any().unbind(), e.scale, beyond)
 }
 
 /// `embed_hierarchy(rows, n, dim, scale, model, curvature)` -> `(points,
@@ -80,9 +85,7 @@ fn embed_hierarchy(
         let h = hierarchy::read(n, &r)?;
         hierarchy::embed(&h, dim, scale, md, k)
     })?;
-    let beyond = (!e.accurate).then(|| embed_tree_core::accurate_radius(md, e.scale));
-    let pts = Array2::from_shape_vec((n, e.width), e.points).expect("shape").into_pyarray(py);
-    Ok((pts.into_any().unbind(), e.scale, beyond))
+    Ok(embedded(py, n, e, md))
 }
 
 /// `tree_distances(kind, tree, n, root, pairs)`: hop counts, `(p,)` for the
