@@ -440,10 +440,6 @@ pub fn embed_joined(
                 } else {
                     w.copy_from_slice(cw);
                 }
-                for i in 0..d {
-                    b[i] = t * w[i];
-                }
-                *g_out = poincare::add_g(&one, xp, gp, b, gb, 1.0, p_out);
                 let joined = joins.map(|j| j.of(tree.bfs[q] as usize)).filter(|ps| ps.len() > 1);
                 let mean = joined.map(|ps| {
                     // from the Fréchet mean m of the parents: radially
@@ -459,16 +455,16 @@ pub fn embed_joined(
                             w.iter_mut().zip(&m).for_each(|(wi, mi)| *wi = mi / rm);
                         }
                     }
-                    for i in 0..d {
-                        b[i] = t * w[i];
-                    }
-                    *g_out = poincare::add_g(&one, &m, gm, b, gb, 1.0, p_out);
                     (m, gm)
                 });
                 let (xp, gp) = match &mean {
                     None => (xp, gp),
                     Some((m, gm)) => (&m[..], *gm),
                 };
+                for i in 0..d {
+                    b[i] = t * w[i];
+                }
+                *g_out = poincare::add_g(&one, xp, gp, b, gb, 1.0, p_out);
                 if tree.bfs_child[q + 1] > tree.bfs_child[q] {
                     poincare::gyration_g(&one, xp, gp, b, gb, w, a_out);
                     a_out.iter_mut().for_each(|x| *x = -*x);
