@@ -56,6 +56,21 @@ def _edge_array(edges: Any) -> np.ndarray:
     return np.ascontiguousarray(a, dtype=np.int64)
 
 
+def _edge_rows(edges: Any, n_nodes: Any, empty_ok: bool = False) -> Tuple[np.ndarray, int]:
+    """An ``(m, 2)`` array of node ids and the node count: ``n_nodes``, or
+    the largest id + 1 (a negative id named by its row). ``empty_ok``: no
+    rows are allowed when ``n_nodes`` is given."""
+    if empty_ok and n_nodes is not None and np.asarray(edges).size == 0:
+        return np.zeros((0, 2), dtype=np.int64), _args.count("n_nodes", n_nodes, 1)
+    e = _edge_array(edges)
+    if n_nodes is not None:
+        return e, _args.count("n_nodes", n_nodes, 1)
+    if int(e.min()) < 0:
+        i = int(np.argmax(e.min(axis=1) < 0))
+        raise ValueError(f"edges: row {i} ({e[i, 0]}, {e[i, 1]}) has a negative node id")
+    return e, int(e.max()) + 1
+
+
 def _progress_bar(progress: Any, total: int) -> Any:
     if progress is False:
         return None
@@ -271,15 +286,7 @@ def graph(
         if e.shape[0] == 0:
             raise ValueError("edges: the networkx graph has no edges")
     else:
-        e = _edge_array(edges)
-        if n_nodes is None:
-            lo = int(e.min())
-            if lo < 0:
-                i = int(np.argmax(e.min(axis=1) < 0))
-                raise ValueError(f"edges: row {i} ({e[i, 0]}, {e[i, 1]}) has a negative node id")
-            n = int(e.max()) + 1
-        else:
-            n = _args.count("n_nodes", n_nodes, 1)
+        e, n = _edge_rows(edges, n_nodes)
     dim = _args.count("dim", dim, 1)
     negatives = _args.count("negatives", negatives, 1)
     epochs = _args.count("epochs", epochs, 0)

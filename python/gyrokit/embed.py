@@ -172,7 +172,7 @@ def hierarchy(
     and ``scale``.
     """
     from . import _args, _native
-    from ._graph_embed import _edge_array, _from_networkx, _is_networkx
+    from ._graph_embed import _edge_rows, _from_networkx, _is_networkx
 
     if _is_networkx(edges):
         if n_nodes is not None:
@@ -182,18 +182,7 @@ def hierarchy(
         e, n = _from_networkx(edges)
         e = np.ascontiguousarray(e[:, ::-1])
     else:
-        e = np.asarray(edges)
-        if e.size == 0 and n_nodes is not None:
-            e = np.zeros((0, 2), dtype=np.int64)
-        else:
-            e = _edge_array(edges)
-        if n_nodes is None:
-            n = int(e.max()) + 1 if e.size else 0
-            if e.size and int(e.min()) < 0:
-                i = int(np.argmax(e.min(axis=1) < 0))
-                raise ValueError(f"edges: row {i} ({e[i, 0]}, {e[i, 1]}) has a negative node id")
-        else:
-            n = _args.count("n_nodes", n_nodes, 1)
+        e, n = _edge_rows(edges, n_nodes, empty_ok=True)
     dim = _args.count("dim", dim, 2)
     s = None if scale is None else _args.real("scale", scale)
     points, used, beyond = _native.embed_hierarchy(e, n, dim, s, model, _args.real("curvature", curvature))
