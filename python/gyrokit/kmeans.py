@@ -9,14 +9,22 @@ does not depend on the model the data is given in (up to rounding).
 
 Algorithm (per run; the best of ``n_init`` runs by inertia is kept):
 
-1. Seeding. ``init="k-means++"``: the first centre is a uniformly chosen
-   point; each further centre is a point drawn with probability
+1. Seeding. ``init="k-means++"`` (greedy k-means++): the first centre is a
+   uniformly chosen point; for each further centre, ``2 + floor(ln
+   n_clusters)`` candidate points are drawn, each with probability
    proportional to its squared hyperbolic distance to the nearest centre
-   chosen so far (D^2 sampling, Arthur & Vassilvitskii 2007). If every
-   point already coincides with a centre, the next one is drawn uniformly
-   from the points not chosen yet. ``init="random"``: ``n_clusters``
-   distinct points chosen uniformly. An ``(n_clusters, width)`` array:
-   those centres (then a single run).
+   chosen so far (D^2 sampling, Arthur & Vassilvitskii 2007), and the
+   candidate that leaves the smallest sum of those squared distances is
+   kept (the greedy variant the same paper suggests; the candidate count
+   is scikit-learn's). Plain D^2 sampling tends to pick far outliers in
+   hyperbolic data, whose volume grows exponentially with the radius (on
+   the benchmark's taxonomy it left seven of ten clusters with a single
+   point); the greedy choice seeds clusters of many points and lower
+   inertia, in fewer Lloyd iterations. If every point already coincides
+   with a centre, the next one is drawn uniformly from the points not
+   chosen yet. ``init="random"``: ``n_clusters`` distinct points chosen
+   uniformly. An ``(n_clusters, width)`` array: those centres (then a
+   single run).
 2. Assignment: every point goes to its nearest centre by exact hyperbolic
    distance, ties to the lower centre index (the ranking and the distances
    of :func:`gyrokit.knn`).
@@ -76,7 +84,7 @@ assignment of the kept run (``inertia_history_[-1] == inertia_``).
 
 from __future__ import annotations
 
-from typing import Any, Dict, Tuple
+from typing import Any, Dict, Optional, Tuple
 
 import numpy as np
 
@@ -249,12 +257,14 @@ class KMeans:
         return idx[:, 0], dist[:, 0]
 
     # ------------------------------------------------------------------ seeding
-    def _kmeanspp(self, X: Any, rng: np.random.Generator) -> np.ndarray:
+    def _kmeanspp(self, X: Any, rng: np.random.Generator, trials: Optional[int] = None) -> np.ndarray:
         """The k-means++ centres the core would seed a run with, for one seed
-        drawn from ``rng`` (the seeding alone, for inspection and tests)."""
+        drawn from ``rng`` (the seeding alone, for inspection and tests);
+        ``trials`` candidates per centre (default: the fit's greedy count;
+        1: plain D^2 sampling)."""
         X = self._array(X)
         seed = int(rng.integers(0, 2**64, dtype=np.uint64))
-        idx = _native.kmeans_plusplus(X, int(self.n_clusters), seed, self.model, float(self.curvature))
+        idx = _native.kmeans_plusplus(X, int(self.n_clusters), seed, self.model, float(self.curvature), trials)
         return np.array(X[idx], dtype=np.float64)
 
     # ------------------------------------------------------------------ API

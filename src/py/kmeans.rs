@@ -45,7 +45,7 @@ fn kmeans_fit(
         let init = match cd {
             Some(c) => kmeans::Init::Given(c),
             None if random => kmeans::Init::Random,
-            None => kmeans::Init::PlusPlus,
+            None => kmeans::Init::PlusPlus(kmeans::greedy_trials(n_clusters)),
         };
         kmeans::fit(md, k, &xd, init, &seeds, &p)
     })?;
@@ -53,9 +53,11 @@ fn kmeans_fit(
     Ok((c.into_any().unbind(), r.labels.into_pyarray(py).into_any().unbind(), r.inertia, r.n_iter, r.history))
 }
 
-/// The indices of the points chosen by k-means++ seeding.
+/// The indices of the points chosen by k-means++ seeding, with `trials`
+/// candidates per centre (`None`: the greedy default of the fit; 1: plain
+/// k-means++).
 #[pyfunction]
-#[pyo3(signature = (x, n_clusters, seed, model = "poincare", curvature = -1.0))]
+#[pyo3(signature = (x, n_clusters, seed, model = "poincare", curvature = -1.0, trials = None))]
 fn kmeans_plusplus(
     py: Python<'_>,
     x: &Bound<'_, PyAny>,
@@ -63,12 +65,15 @@ fn kmeans_plusplus(
     seed: u64,
     model: &str,
     curvature: f64,
+    trials: Option<usize>,
 ) -> PyResult<Py<PyAny>> {
     let k = Curvature::new(curvature)?;
     let md = Model::parse(model, "model")?;
     let xa = coerce(py, "X", x)?;
     let xd = xa.data();
-    let idx = py.detach(move || kmeans::plusplus_indices(md, k, &xd, n_clusters, seed))?;
+    let idx = py.detach(move || {
+        kmeans::plusplus_indices(md, k, &xd, n_clusters, trials.unwrap_or(kmeans::greedy_trials(n_clusters)), seed)
+    })?;
     let idx: Vec<i64> = idx.into_iter().map(|i| i as i64).collect();
     Ok(idx.into_pyarray(py).into_any().unbind())
 }

@@ -5,12 +5,14 @@
 //! their exact gaps ([`unit_points`], the hub representation shared with the
 //! centroids), whatever the input model. Then, per run:
 //!
-//! 1. Seeding ([`Init`]): k-means++ (D^2 sampling, Arthur & Vassilvitskii
-//!    2007: the first centre uniform, each further one drawn with probability
-//!    proportional to the squared distance to the nearest centre so far;
-//!    when every point already coincides with a centre, uniformly among the
-//!    points not chosen yet), `n_clusters` distinct points uniformly, or
-//!    given centres.
+//! 1. Seeding ([`Init`]): greedy k-means++ (the first centre uniform; for
+//!    each further one, [`greedy_trials`] candidates drawn by D^2 sampling,
+//!    Arthur & Vassilvitskii 2007: each with probability proportional to the
+//!    squared distance to the nearest centre so far; the candidate that
+//!    leaves the smallest sum of those squared distances is kept; one
+//!    candidate is plain k-means++; when every point already coincides with
+//!    a centre, uniformly among the points not chosen yet), `n_clusters`
+//!    distinct points uniformly, or given centres.
 //! 2. Assignment: every point to its nearest centre, ranked by the pair
 //!    quantity `h = sinh(d/2R)^2 = |x - c|^2 / (g_x g_c)` (unit ball; monotone
 //!    in the distance, evaluated in the order of `pairwise::scaled_h`, so a
@@ -109,7 +111,9 @@ pub use crate::numeric::rng::{splitmix64, Rng};
 
 /// How a run's first centres are chosen.
 pub enum Init<'a> {
-    PlusPlus,
+    /// k-means++ with this many candidates per centre ([`greedy_trials`] is
+    /// the default of `gyrokit.KMeans`; 1 is plain k-means++).
+    PlusPlus(usize),
     Random,
     /// `(n_clusters, width)` centres in the input model.
     Given(Data<'a>),
@@ -197,13 +201,33 @@ fn bad_points(model: Model, name: &str, e: Error) -> Error {
 
 // ---------------------------------------------------------------- seeding
 
-/// Squared unit distances to the nearest chosen centre, lowered by centre
-/// `c`; returns the fixed-chunk sums. The distances of 16 points at a time
-/// (transposed coordinates; the operations and order of [`nearest`], which
-/// are those of `knn`), then lowered and summed point by point in input
-/// order.
-fn lower_d2(soa: &Soa, d2: &mut [f64], c: &[f64], ac: f64) -> Vec<f64> {
+/// The squared unit distances of the 16 points `base..base + B` to the
+/// unit-ball point `c` with factor `ac` (transposed coordinates; the
+/// operations and order of [`nearest`], which are those of `knn`).
+#[inline(always)]
+fn block_d2(soa: &Soa, base: usize, c: &[f64], ac: f64) -> [f64; B] {
     let n = soa.n;
+    let mut acc = [0f64; B];
+    for (t, &ct) in c.iter().enumerate() {
+        let xt = row(&soa.x[t * n + base..], 0);
+        for l in 0..B {
+            let u = xt[l] - ct;
+            acc[l] = u.mul_add(u, acc[l]);
+        }
+    }
+    let ax = row(&soa.ax[base..], 0);
+    let mut tv = [0f64; B];
+    for l in 0..B {
+        let t = acosh1p2_fast(scaled_h(acc[l], ax[l], ac, 1.0));
+        tv[l] = t * t;
+    }
+    tv
+}
+
+/// Squared unit distances to the nearest chosen centre, lowered by centre
+/// `c`; returns the fixed-chunk sums (each summed point by point in input
+/// order).
+fn lower_d2(soa: &Soa, d2: &mut [f64], c: &[f64], ac: f64) -> Vec<f64> {
     d2.par_chunks_mut(SEED_CHUNK)
         .enumerate()
         .map(|(ci, ch)| {
@@ -214,21 +238,7 @@ fn lower_d2(soa: &Soa, d2: &mut [f64], c: &[f64], ac: f64) -> Vec<f64> {
                     let i0 = ci * SEED_CHUNK;
                     let mut s = 0.0;
                     for (bi, blk) in ch.chunks_mut(B).enumerate() {
-                        let base = i0 + bi * B;
-                        let mut acc = [0f64; B];
-                        for (t, &ct) in c.iter().enumerate() {
-                            let xt = row(&soa.x[t * n + base..], 0);
-                            for l in 0..B {
-                                let u = xt[l] - ct;
-                                acc[l] = u.mul_add(u, acc[l]);
-                            }
-                        }
-                        let ax = row(&soa.ax[base..], 0);
-                        let mut tv = [0f64; B];
-                        for l in 0..B {
-                            let t = acosh1p2_fast(scaled_h(acc[l], ax[l], ac, 1.0));
-                            tv[l] = t * t;
-                        }
+                        let tv = block_d2(soa, i0 + bi * B, c, ac);
                         for (v, &t2) in blk.iter_mut().zip(&tv) {
                             *v = v.min(t2);
                             s += *v;
@@ -239,6 +249,37 @@ fn lower_d2(soa: &Soa, d2: &mut [f64], c: &[f64], ac: f64) -> Vec<f64> {
             )
         })
         .collect()
+}
+
+/// The potential `sum_i min(d2[i], d(x_i, c)^2)` of each candidate centre
+/// `(c, 1/g)`, without changing `d2`: summed exactly as [`lower_d2`] sums
+/// (fixed chunks, point by point, then the chunks in order), so the chosen
+/// candidate's potential is the total of its [`lower_d2`] sums to the bit.
+fn potentials(soa: &Soa, d2: &[f64], cands: &[(&[f64], f64)]) -> Vec<f64> {
+    let parts: Vec<Vec<f64>> = d2
+        .par_chunks(SEED_CHUNK)
+        .enumerate()
+        .map(|(ci, ch)| {
+            dispatch(
+                has_fma(),
+                #[inline(always)]
+                || {
+                    let i0 = ci * SEED_CHUNK;
+                    let mut s = vec![0f64; cands.len()];
+                    for (bi, blk) in ch.chunks(B).enumerate() {
+                        for (sc, &(c, ac)) in s.iter_mut().zip(cands) {
+                            let tv = block_d2(soa, i0 + bi * B, c, ac);
+                            for (&v, &t2) in blk.iter().zip(&tv) {
+                                *sc += v.min(t2);
+                            }
+                        }
+                    }
+                    s
+                },
+            )
+        })
+        .collect();
+    (0..cands.len()).map(|t| parts.iter().fold(0.0, |a, p| a + p[t])).collect()
 }
 
 /// Index drawn with probability `d2[i] / sum d2` (the first `i` whose
@@ -282,19 +323,50 @@ fn nth_free(chosen: &[usize], m: usize) -> usize {
     i
 }
 
-/// k-means++ seeding: indices of the chosen points.
-fn plusplus(pts: &UnitPoints, soa: &Soa, k: usize, rng: &mut Rng) -> Vec<usize> {
+/// The candidates per centre of the greedy k-means++ seeding: `2 + floor(ln
+/// k)` (Arthur & Vassilvitskii 2007, section 6, suggest O(log k); this
+/// count is the common practice of scikit-learn's `kmeans_plusplus`).
+pub fn greedy_trials(k: usize) -> usize {
+    2 + (k.max(1) as f64).ln().floor() as usize
+}
+
+/// k-means++ seeding: indices of the chosen points. The first centre is
+/// uniform; each further one is the best of `trials` candidates drawn by
+/// D^2 sampling (each with probability proportional to its squared distance
+/// to the nearest centre so far): the one that leaves the smallest sum of
+/// those squared distances (the first on ties). One trial is plain k-means++
+/// (Arthur & Vassilvitskii 2007); when every point already coincides with a
+/// centre, the next is uniform among the points not chosen yet.
+fn plusplus(pts: &UnitPoints, soa: &Soa, k: usize, trials: usize, rng: &mut Rng) -> Vec<usize> {
     let n = pts.n;
     let d = pts.d;
+    let trials = trials.max(1);
     let mut chosen = vec![rng.below(n as u64) as usize];
     let mut d2 = vec![f64::INFINITY; n];
     let mut last = chosen[0];
+    let centre = |i: usize| {
+        let c = &pts.p[i * d..(i + 1) * d];
+        (c, recip_gap(c, pts.g[i]))
+    };
     for _ in 1..k {
-        let c = &pts.p[last * d..(last + 1) * d];
-        let sums = lower_d2(soa, &mut d2, c, recip_gap(c, pts.g[last]));
+        let (c, ac) = centre(last);
+        let sums = lower_d2(soa, &mut d2, c, ac);
         let total: f64 = sums.iter().sum();
         let i = if total > 0.0 {
-            draw_d2(&d2, &sums, rng.uniform())
+            let cand: Vec<usize> = (0..trials).map(|_| draw_d2(&d2, &sums, rng.uniform())).collect();
+            if trials == 1 {
+                cand[0]
+            } else {
+                let cs: Vec<(&[f64], f64)> = cand.iter().map(|&i| centre(i)).collect();
+                let pot = potentials(soa, &d2, &cs);
+                let mut b = 0;
+                for t in 1..trials {
+                    if pot[t] < pot[b] {
+                        b = t;
+                    }
+                }
+                cand[b]
+            }
         } else {
             nth_free(&chosen, rng.below((n - chosen.len()) as u64) as usize)
         };
@@ -1165,10 +1237,17 @@ fn check_params(p: &Params, n: usize) -> Result<()> {
 }
 
 /// k-means++ seeding alone: the indices of the chosen points of `x`.
-pub fn plusplus_indices(model: Model, k: Curvature, x: &Data, n_clusters: usize, seed: u64) -> Result<Vec<usize>> {
+pub fn plusplus_indices(
+    model: Model,
+    k: Curvature,
+    x: &Data,
+    n_clusters: usize,
+    trials: usize,
+    seed: u64,
+) -> Result<Vec<usize>> {
     let pts = unit_points(model, &k, "x", x).map_err(|e| bad_points(model, "X", e))?;
     check_params(&Params { n_clusters, max_iter: 1, tol: 0.0 }, pts.n)?;
-    Ok(plusplus(&pts, &Soa::new(&pts), n_clusters, &mut Rng::new(seed)))
+    Ok(plusplus(&pts, &Soa::new(&pts), n_clusters, trials, &mut Rng::new(seed)))
 }
 
 /// Fits k-means: one run per seed (one run for given centres), the run of
@@ -1209,8 +1288,8 @@ pub fn fit(model: Model, k: Curvature, x: &Data, init: Init, seeds: &[u64], p: &
             None => {
                 let mut rng = Rng::new(seeds[r]);
                 let idx = match &init {
-                    Init::Random => distinct(pts.n, p.n_clusters, &mut rng),
-                    _ => plusplus(&pts, &soa, p.n_clusters, &mut rng),
+                    Init::PlusPlus(trials) => plusplus(&pts, &soa, p.n_clusters, *trials, &mut rng),
+                    _ => distinct(pts.n, p.n_clusters, &mut rng),
                 };
                 let mut cen = Centres::new(d);
                 for &i in &idx {
@@ -1303,6 +1382,52 @@ mod tests {
                 assert_eq!(sums, want_sums);
             }
         }
+    }
+
+    #[test]
+    fn greedy_seeding_keeps_the_candidate_of_least_potential() {
+        // The seeding replayed with the scalar formula (h_point per pair,
+        // point-by-point sums in fixed chunks): the same generator draws the
+        // same candidates, and each step keeps the one whose potential
+        // sum_i min(d2_i, d(x_i, c)^2) is smallest (common practice, as in
+        // scikit-learn's greedy k-means++). One trial is plain k-means++.
+        let (n, d) = (5000, 3);
+        let x = crate::stats::test_ball(n, d, 6.0, 11);
+        let a = ndarray::ArrayView2::from_shape((n, d), &x[..]).unwrap().into_dyn();
+        let data = Data::F64(a);
+        let pts = unit_points(Model::Poincare, &Curvature::default(), "x", &data).unwrap();
+        let soa = Soa::new(&pts);
+        let t2 = |i: usize, c: usize| {
+            let cp = &pts.p[c * d..(c + 1) * d];
+            let t = acosh1p2_fast(h_point(&pts, i, cp, recip_gap(cp, pts.g[c])));
+            t * t
+        };
+        for (k, trials, seed) in [(8, 4, 5u64), (12, 1, 6), (5, 3, 7)] {
+            let got = plusplus(&pts, &soa, k, trials, &mut Rng::new(seed));
+            let mut rng = Rng::new(seed);
+            let mut want = vec![rng.below(n as u64) as usize];
+            let mut d2 = vec![f64::INFINITY; n];
+            let sums_of =
+                |v: &[f64]| -> Vec<f64> { v.chunks(SEED_CHUNK).map(|ch| ch.iter().fold(0.0, |a, b| a + b)).collect() };
+            for _ in 1..k {
+                let last = *want.last().unwrap();
+                (0..n).for_each(|i| d2[i] = d2[i].min(t2(i, last)));
+                let sums = sums_of(&d2);
+                let cand: Vec<usize> = (0..trials).map(|_| draw_d2(&d2, &sums, rng.uniform())).collect();
+                let pot: Vec<f64> = cand
+                    .iter()
+                    .map(|&c| sums_of(&(0..n).map(|i| d2[i].min(t2(i, c))).collect::<Vec<_>>()).iter().sum())
+                    .collect();
+                let b = (0..trials).fold(0, |b, t| if pot[t] < pot[b] { t } else { b });
+                want.push(cand[b]);
+            }
+            assert_eq!(got, want, "k {k}, trials {trials}");
+            let mut u = got.clone();
+            u.sort_unstable();
+            u.dedup();
+            assert_eq!(u.len(), k, "distinct centres");
+        }
+        assert_eq!((greedy_trials(1), greedy_trials(10), greedy_trials(100)), (2, 4, 6));
     }
 
     #[test]
