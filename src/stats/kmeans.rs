@@ -201,11 +201,11 @@ fn bad_points(model: Model, name: &str, e: Error) -> Error {
 
 // ---------------------------------------------------------------- seeding
 
-/// The squared unit distances of the 16 points `base..base + B` to the
-/// unit-ball point `c` with factor `ac` (transposed coordinates; the
-/// operations and order of [`nearest`], which are those of `knn`).
+/// `h` of the 16 points `base..base + B` and the unit-ball point `c` with
+/// factor `ac` (transposed coordinates; the operations and order of
+/// [`nearest`], which are those of `knn`).
 #[inline(always)]
-fn block_d2(soa: &Soa, base: usize, c: &[f64], ac: f64) -> [f64; B] {
+fn block_h(soa: &Soa, base: usize, c: &[f64], ac: f64) -> [f64; B] {
     let n = soa.n;
     let mut acc = [0f64; B];
     for (t, &ct) in c.iter().enumerate() {
@@ -216,32 +216,63 @@ fn block_d2(soa: &Soa, base: usize, c: &[f64], ac: f64) -> [f64; B] {
         }
     }
     let ax = row(&soa.ax[base..], 0);
-    let mut tv = [0f64; B];
+    let mut h = [0f64; B];
     for l in 0..B {
-        let t = acosh1p2_fast(scaled_h(acc[l], ax[l], ac, 1.0));
-        tv[l] = t * t;
+        h[l] = scaled_h(acc[l], ax[l], ac, 1.0);
     }
-    tv
+    h
 }
 
-/// Squared unit distances to the nearest chosen centre, lowered by centre
-/// `c`; returns the fixed-chunk sums (each summed point by point in input
-/// order).
-fn lower_d2(soa: &Soa, d2: &mut [f64], c: &[f64], ac: f64) -> Vec<f64> {
+/// A lane's squared distance can only drop below its nearest one if its `h`
+/// is below the nearest `h` times this: `d^2 = acosh(1 + 2h)^2` grows at
+/// least like `h^(2 / ln(4h))` (relative change above 2.8e-12 for a relative
+/// change of 1e-9 in `h`, up to the largest float), far more than the few
+/// ulps of rounding of `acosh1p2_fast`, so a block of lanes all above it
+/// keeps its values bit for bit without computing the distances.
+const SKIP_MARGIN: f64 = 1.0 + 1e-9;
+
+/// The squared unit distances of a block from its `h`, when some lane may
+/// lower its nearest one (`hn`, as many lanes as the block holds points).
+#[inline(always)]
+fn block_d2(h: &[f64; B], hn: &[f64]) -> Option<[f64; B]> {
+    let mut any = false;
+    for (hl, &nl) in h.iter().zip(hn) {
+        any |= *hl < nl * SKIP_MARGIN;
+    }
+    any.then(|| {
+        let mut tv = [0f64; B];
+        for l in 0..B {
+            let t = acosh1p2_fast(h[l]);
+            tv[l] = t * t;
+        }
+        tv
+    })
+}
+
+/// Squared unit distances to the nearest chosen centre (`d2`, and the
+/// nearest `h` in `hn`), lowered by centre `c`; returns the fixed-chunk sums
+/// (each summed point by point in input order).
+fn lower_d2(soa: &Soa, d2: &mut [f64], hn: &mut [f64], c: &[f64], ac: f64) -> Vec<f64> {
     d2.par_chunks_mut(SEED_CHUNK)
+        .zip(hn.par_chunks_mut(SEED_CHUNK))
         .enumerate()
-        .map(|(ci, ch)| {
+        .map(|(ci, (ch, hc))| {
             dispatch(
                 has_fma(),
                 #[inline(always)]
                 || {
                     let i0 = ci * SEED_CHUNK;
                     let mut s = 0.0;
-                    for (bi, blk) in ch.chunks_mut(B).enumerate() {
-                        let tv = block_d2(soa, i0 + bi * B, c, ac);
-                        for (v, &t2) in blk.iter_mut().zip(&tv) {
-                            *v = v.min(t2);
-                            s += *v;
+                    for (bi, (blk, hb)) in ch.chunks_mut(B).zip(hc.chunks_mut(B)).enumerate() {
+                        let h = block_h(soa, i0 + bi * B, c, ac);
+                        if let Some(tv) = block_d2(&h, hb) {
+                            for ((v, n), (&t2, &hl)) in blk.iter_mut().zip(hb.iter_mut()).zip(tv.iter().zip(&h)) {
+                                *v = v.min(t2);
+                                *n = n.min(hl);
+                            }
+                        }
+                        for &v in blk.iter() {
+                            s += v;
                         }
                     }
                     s
@@ -255,22 +286,24 @@ fn lower_d2(soa: &Soa, d2: &mut [f64], c: &[f64], ac: f64) -> Vec<f64> {
 /// `(c, 1/g)`, without changing `d2`: summed exactly as [`lower_d2`] sums
 /// (fixed chunks, point by point, then the chunks in order), so the chosen
 /// candidate's potential is the total of its [`lower_d2`] sums to the bit.
-fn potentials(soa: &Soa, d2: &[f64], cands: &[(&[f64], f64)]) -> Vec<f64> {
+fn potentials(soa: &Soa, d2: &[f64], hn: &[f64], cands: &[(&[f64], f64)]) -> Vec<f64> {
     let parts: Vec<Vec<f64>> = d2
         .par_chunks(SEED_CHUNK)
+        .zip(hn.par_chunks(SEED_CHUNK))
         .enumerate()
-        .map(|(ci, ch)| {
+        .map(|(ci, (ch, hc))| {
             dispatch(
                 has_fma(),
                 #[inline(always)]
                 || {
                     let i0 = ci * SEED_CHUNK;
                     let mut s = vec![0f64; cands.len()];
-                    for (bi, blk) in ch.chunks(B).enumerate() {
+                    for (bi, (blk, hb)) in ch.chunks(B).zip(hc.chunks(B)).enumerate() {
                         for (sc, &(c, ac)) in s.iter_mut().zip(cands) {
-                            let tv = block_d2(soa, i0 + bi * B, c, ac);
-                            for (&v, &t2) in blk.iter().zip(&tv) {
-                                *sc += v.min(t2);
+                            let h = block_h(soa, i0 + bi * B, c, ac);
+                            match block_d2(&h, hb) {
+                                Some(tv) => blk.iter().zip(&tv).for_each(|(&v, &t2)| *sc += v.min(t2)),
+                                None => blk.iter().for_each(|&v| *sc += v),
                             }
                         }
                     }
@@ -343,6 +376,7 @@ fn plusplus(pts: &UnitPoints, soa: &Soa, k: usize, trials: usize, rng: &mut Rng)
     let trials = trials.max(1);
     let mut chosen = vec![rng.below(n as u64) as usize];
     let mut d2 = vec![f64::INFINITY; n];
+    let mut hn = vec![f64::INFINITY; n];
     let mut last = chosen[0];
     let centre = |i: usize| {
         let c = &pts.p[i * d..(i + 1) * d];
@@ -350,7 +384,7 @@ fn plusplus(pts: &UnitPoints, soa: &Soa, k: usize, trials: usize, rng: &mut Rng)
     };
     for _ in 1..k {
         let (c, ac) = centre(last);
-        let sums = lower_d2(soa, &mut d2, c, ac);
+        let sums = lower_d2(soa, &mut d2, &mut hn, c, ac);
         let total: f64 = sums.iter().sum();
         let i = if total > 0.0 {
             let cand: Vec<usize> = (0..trials).map(|_| draw_d2(&d2, &sums, rng.uniform())).collect();
@@ -358,7 +392,7 @@ fn plusplus(pts: &UnitPoints, soa: &Soa, k: usize, trials: usize, rng: &mut Rng)
                 cand[0]
             } else {
                 let cs: Vec<(&[f64], f64)> = cand.iter().map(|&i| centre(i)).collect();
-                let pot = potentials(soa, &d2, &cs);
+                let pot = potentials(soa, &d2, &hn, &cs);
                 let mut b = 0;
                 for t in 1..trials {
                     if pot[t] < pot[b] {
@@ -1354,8 +1388,10 @@ mod tests {
     fn lower_d2_in_lanes_matches_the_point_by_point_formula() {
         // Regression against the scalar formula (h_point, acosh1p2_fast,
         // running sums in input order) that the seeding used before its
-        // lanes: the same bits, so the same draws. n is neither a multiple
-        // of the lane count nor of a seed chunk.
+        // lanes: the same bits, so the same draws, also where whole blocks
+        // skip the distances (`SKIP_MARGIN`: most blocks after the first few
+        // centres; a centre repeated skips every block). n is neither a
+        // multiple of the lane count nor of a seed chunk.
         for (n, d) in [(9001, 3), (37, 10), (4096 + 17, 2)] {
             let x = crate::stats::test_ball(n, d, 6.0, n as u64);
             let a = ndarray::ArrayView2::from_shape((n, d), &x[..]).unwrap().into_dyn();
@@ -1363,11 +1399,12 @@ mod tests {
             let pts = unit_points(Model::Poincare, &Curvature::default(), "x", &data).unwrap();
             let soa = Soa::new(&pts);
             let mut d2 = vec![f64::INFINITY; n];
+            let mut hn = vec![f64::INFINITY; n];
             let mut want = vec![f64::INFINITY; n];
-            for c in [0, n / 2, n - 1] {
+            for c in [0, n / 2, n - 1, n / 3, n / 2, 1, n / 5, n - 2, n / 7, 2] {
                 let cp = &pts.p[c * d..(c + 1) * d];
                 let ac = recip_gap(cp, pts.g[c]);
-                let sums = lower_d2(&soa, &mut d2, cp, ac);
+                let sums = lower_d2(&soa, &mut d2, &mut hn, cp, ac);
                 let mut want_sums = Vec::new();
                 for ch in 0..n.div_ceil(SEED_CHUNK) {
                     let mut s = 0.0;
