@@ -48,8 +48,10 @@
 //! block to every centre in registers; the statistics are summed per
 //! cluster over 16 members at a time (members grouped by a counting sort
 //! per chunk, done once in the assignment pass and kept for the update's
-//! passes), lane by lane, and the lanes added in order at the end of the
-//! chunk. On the benchmark's taxonomy (36 607 x 10, 45 iterations) the
+//! passes), lane by lane (the Hessian's entries in four lanes: a block's
+//! sixteen products summed in registers first, so each entry costs one
+//! load and one store per block), and the lanes added in order at the end
+//! of the chunk. On the benchmark's taxonomy (36 607 x 10, 45 iterations) the
 //! assignment passes gather nothing after the first update, and the fit
 //! makes 64 passes of statistics where it made the same 64 plus the
 //! statistics of all 45 assignment passes when every update started from
@@ -576,16 +578,25 @@ fn rank(s: &[f64; B], ax: &[f64; B], aj: f64, j: usize, bh: &mut [f64; B], bl: &
     }
 }
 
+/// Lanes of the Hessian accumulators: a block's 16 products of an entry
+/// are first summed into 4 (in registers), then added to the entry's 4
+/// running sums (one load and one store per entry and block, not four).
+const HL: usize = 4;
+
 /// Scratch of one chunk's statistics.
 struct Scratch {
-    /// Lane accumulators `[q * B + l]`, one row per entry of a cluster's sums.
+    /// Lane accumulators `[q * B + l]` of the weight, the two scalar sums
+    /// and the gradient (`3 + d` rows).
     acc: Vec<f64>,
+    /// The Hessian's upper triangle, `HL` lanes per entry `(r, s)`, `s >= r`,
+    /// row by row.
+    hacc: Vec<f64>,
     ys: Vec<f64>,
 }
 
 impl Scratch {
     fn new(d: usize) -> Scratch {
-        Scratch { acc: vec![0f64; (3 + d + d * d) * B], ys: vec![0f64; d * B] }
+        Scratch { acc: vec![0f64; (3 + d) * B], hacc: vec![0f64; d * (d + 1) / 2 * HL], ys: vec![0f64; d * B] }
     }
 }
 
@@ -682,6 +693,7 @@ fn chunk_stats(
         let mj = &mu[j * d..(j + 1) * d];
         let gm = gmu[j];
         sc.acc.iter_mut().for_each(|v| *v = 0.0);
+        sc.hacc.iter_mut().for_each(|v| *v = 0.0);
         for blk in members.chunks(B) {
             let m = blk.len();
             let mut idx = [0usize; B];
@@ -783,7 +795,10 @@ fn chunk_stats(
                     r[l] = fg[l].mul_add(yt[l], r[l]);
                 }
             }
-            // the upper triangle of sum fh y y^T
+            // the upper triangle of sum fh y y^T: each entry's 16 products
+            // summed into HL lanes (in order of the block's quarters), then
+            // added to its running sums
+            let mut e = 0;
             for r in 0..d {
                 let yr = *row(&sc.ys, r);
                 let mut hr = [0f64; B];
@@ -791,11 +806,21 @@ fn chunk_stats(
                     hr[l] = fh[l] * yr[l];
                 }
                 for s2 in r..d {
-                    let ys2 = *row(&sc.ys, s2);
-                    let acc = row_mut(&mut sc.acc, 3 + d + r * d + s2);
-                    for l in 0..B {
-                        acc[l] = hr[l].mul_add(ys2[l], acc[l]);
+                    let ys2 = row(&sc.ys, s2);
+                    let mut t = [0f64; HL];
+                    for q in 0..HL {
+                        t[q] = hr[q] * ys2[q];
                     }
+                    for g in 1..B / HL {
+                        for q in 0..HL {
+                            t[q] = hr[g * HL + q].mul_add(ys2[g * HL + q], t[q]);
+                        }
+                    }
+                    let acc: &mut [f64; HL] = (&mut sc.hacc[e * HL..(e + 1) * HL]).try_into().expect("HL lanes");
+                    for q in 0..HL {
+                        acc[q] += t[q];
+                    }
+                    e += 1;
                 }
             }
         }
@@ -804,11 +829,12 @@ fn chunk_stats(
         for q in 0..3 + d {
             out[q] += row(&sc.acc, q).iter().fold(0.0, |x, y| x + y);
         }
+        let mut e = 0;
         for r in 0..d {
             for s2 in r..d {
-                let q = 3 + d + r * d + s2;
-                let v = row(&sc.acc, q).iter().fold(0.0, |x, y| x + y);
-                out[q] += v;
+                let v = sc.hacc[e * HL..(e + 1) * HL].iter().fold(0.0, |x, y| x + y);
+                e += 1;
+                out[3 + d + r * d + s2] += v;
                 if s2 != r {
                     out[3 + d + s2 * d + r] += v;
                 }
