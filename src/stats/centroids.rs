@@ -225,7 +225,62 @@ impl Stats {
 /// Members per block of the statistics kernel: the long dependency chain of
 /// one point's terms (division, square root, logarithm) overlaps with 15
 /// others, and the sums run in 16 lanes.
-const LANES: usize = 16;
+pub(crate) const LANES: usize = 16;
+
+/// Lanes of the Hessian's accumulators: a block's 16 products of an entry
+/// are first summed into 4 (in registers), then added to the entry's 4
+/// running sums (one load and one store per entry and block, not four).
+pub(crate) const HL: usize = 4;
+
+/// Adds a block's `sum_l fh_l y_l y_l^T` to `hacc`: the upper triangle, row
+/// by row, `HL` lanes per entry (`d (d + 1) / 2 * HL` values); `ys` holds
+/// `y`'s coordinates, `LANES` lanes per row. Shared by the statistics
+/// kernels of the centroids and of k-means.
+#[inline(always)]
+pub(crate) fn add_hessian_block(fh: &[f64; LANES], ys: &[f64], d: usize, hacc: &mut [f64]) {
+    let row = |r: usize| -> &[f64; LANES] { ys[r * LANES..(r + 1) * LANES].try_into().expect("lanes") };
+    let mut e = 0;
+    for r in 0..d {
+        let yr = row(r);
+        let mut hr = [0f64; LANES];
+        for l in 0..LANES {
+            hr[l] = fh[l] * yr[l];
+        }
+        for s2 in r..d {
+            let ys2 = row(s2);
+            let mut t = [0f64; HL];
+            for q in 0..HL {
+                t[q] = hr[q] * ys2[q];
+            }
+            for g in 1..LANES / HL {
+                for q in 0..HL {
+                    t[q] = hr[g * HL + q].mul_add(ys2[g * HL + q], t[q]);
+                }
+            }
+            let acc: &mut [f64; HL] = (&mut hacc[e * HL..(e + 1) * HL]).try_into().expect("HL lanes");
+            for q in 0..HL {
+                acc[q] += t[q];
+            }
+            e += 1;
+        }
+    }
+}
+
+/// Adds the lane sums of `hacc` (see [`add_hessian_block`]) to the full
+/// `d x d` matrix `hout` (the lower triangle mirrors the upper).
+pub(crate) fn add_hessian_sums(hacc: &[f64], d: usize, hout: &mut [f64]) {
+    let mut e = 0;
+    for r in 0..d {
+        for s2 in r..d {
+            let v = hacc[e * HL..(e + 1) * HL].iter().fold(0.0, |x, y| x + y);
+            e += 1;
+            hout[r * d + s2] += v;
+            if s2 != r {
+                hout[s2 * d + r] += v;
+            }
+        }
+    }
+}
 
 /// Newton statistics of the members `idx` at `mu` (the gradient `sum w d/t
 /// y`, the Hessian's parts `sum w d coth d` and `sum w (1 - d coth d)/t^2
@@ -256,10 +311,11 @@ pub(crate) fn stats(pts: &UnitPoints, idx: &[usize], w: Option<&[f64]>, mu: &[f6
 fn lane_stats(pts: &UnitPoints, ch: &[usize], w: Option<&[f64]>, mu: &[f64], gmu: f64) -> Stats {
     const B: usize = LANES;
     let d = pts.d;
-    // lane accumulators: wsum, f, hscal, grad (d), upper triangle (d x d)
-    let rows = 3 + d + d * d;
-    let mut acc = vec![[0f64; B]; rows];
-    let mut ys = vec![[0f64; B]; d];
+    // lane accumulators: wsum, f, hscal, grad (d); the Hessian's upper
+    // triangle in `hacc`; `ys` flat, B lanes per coordinate
+    let mut acc = vec![[0f64; B]; 3 + d];
+    let mut hacc = vec![0f64; d * (d + 1) / 2 * HL];
+    let mut ys = vec![0f64; d * B];
     for blk in ch.chunks(B) {
         let m = blk.len();
         let mut idx = [0usize; B];
@@ -274,7 +330,7 @@ fn lane_stats(pts: &UnitPoints, ch: &[usize], w: Option<&[f64]>, mu: &[f64], gmu
         }
         // s = x - mu, |s|^2
         let mut ss = [0f64; B];
-        for (t, yt) in ys.iter_mut().enumerate() {
+        for (t, yt) in ys.chunks_exact_mut(B).enumerate() {
             let mt = mu[t];
             for l in 0..B {
                 let s = pts.p[idx[l] * d + t] - mt;
@@ -297,7 +353,7 @@ fn lane_stats(pts: &UnitPoints, ch: &[usize], w: Option<&[f64]>, mu: &[f64], gmu
             igy[l] = den * den * inv;
         }
         let mut t2 = [0f64; B];
-        for (t, yt) in ys.iter_mut().enumerate() {
+        for (t, yt) in ys.chunks_exact_mut(B).enumerate() {
             let mt = mu[t];
             for l in 0..B {
                 let y = a[l] * yt[l] - b[l] * mt;
@@ -331,26 +387,13 @@ fn lane_stats(pts: &UnitPoints, ch: &[usize], w: Option<&[f64]>, mu: &[f64], gmu
             }
         }
         for t in 0..d {
-            let yt = ys[t];
+            let yt = &ys[t * B..(t + 1) * B];
             let r = &mut acc[3 + t];
             for l in 0..B {
                 r[l] = fg[l].mul_add(yt[l], r[l]);
             }
         }
-        for r in 0..d {
-            let yr = ys[r];
-            let mut hr = [0f64; B];
-            for l in 0..B {
-                hr[l] = fh[l] * yr[l];
-            }
-            for s2 in r..d {
-                let ys2 = ys[s2];
-                let o = &mut acc[3 + d + r * d + s2];
-                for l in 0..B {
-                    o[l] = hr[l].mul_add(ys2[l], o[l]);
-                }
-            }
-        }
+        add_hessian_block(&fh, &ys, d, &mut hacc);
     }
     let sum = |v: &[f64; B]| v.iter().fold(0.0, |x, y| x + y);
     let mut st = Stats::zero(d);
@@ -360,13 +403,7 @@ fn lane_stats(pts: &UnitPoints, ch: &[usize], w: Option<&[f64]>, mu: &[f64], gmu
     for t in 0..d {
         st.grad[t] = sum(&acc[3 + t]);
     }
-    for r in 0..d {
-        for s2 in r..d {
-            let v = sum(&acc[3 + d + r * d + s2]);
-            st.hout[r * d + s2] = v;
-            st.hout[s2 * d + r] = v;
-        }
-    }
+    add_hessian_sums(&hacc, d, &mut st.hout);
     st
 }
 

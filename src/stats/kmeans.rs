@@ -66,7 +66,10 @@ use std::collections::HashMap;
 
 use rayon::prelude::*;
 
-use super::centroids::{frechet_group, stats, to_model, unit_points, Newton, Stats, UnitPoints};
+use super::centroids::{
+    add_hessian_block, add_hessian_sums, frechet_group, stats, to_model, unit_points, Newton, Stats, UnitPoints, HL,
+    LANES,
+};
 use crate::batch::Data;
 use crate::error::{Error, Result};
 use crate::models::ball::{checked_gap, Curvature};
@@ -88,7 +91,7 @@ const CHUNK: usize = 2048;
 /// (four AVX2 ones), so that the long dependency chain of one point's
 /// statistics (division, square root, logarithm) overlaps with 15 others
 /// (measured: 16 lanes take 0.6-0.75 of the time of 8, 32 lanes more than 16).
-const B: usize = 16;
+const B: usize = LANES;
 /// Gradient tolerance of the Newton iteration for each centre (the default
 /// of `frechet_mean`), and its iteration cap.
 const CENTRE_TOL: f64 = 1e-12;
@@ -578,11 +581,6 @@ fn rank(s: &[f64; B], ax: &[f64; B], aj: f64, j: usize, bh: &mut [f64; B], bl: &
     }
 }
 
-/// Lanes of the Hessian accumulators: a block's 16 products of an entry
-/// are first summed into 4 (in registers), then added to the entry's 4
-/// running sums (one load and one store per entry and block, not four).
-const HL: usize = 4;
-
 /// Scratch of one chunk's statistics.
 struct Scratch {
     /// Lane accumulators `[q * B + l]` of the weight, the two scalar sums
@@ -795,51 +793,14 @@ fn chunk_stats(
                     r[l] = fg[l].mul_add(yt[l], r[l]);
                 }
             }
-            // the upper triangle of sum fh y y^T: each entry's 16 products
-            // summed into HL lanes (in order of the block's quarters), then
-            // added to its running sums
-            let mut e = 0;
-            for r in 0..d {
-                let yr = *row(&sc.ys, r);
-                let mut hr = [0f64; B];
-                for l in 0..B {
-                    hr[l] = fh[l] * yr[l];
-                }
-                for s2 in r..d {
-                    let ys2 = row(&sc.ys, s2);
-                    let mut t = [0f64; HL];
-                    for q in 0..HL {
-                        t[q] = hr[q] * ys2[q];
-                    }
-                    for g in 1..B / HL {
-                        for q in 0..HL {
-                            t[q] = hr[g * HL + q].mul_add(ys2[g * HL + q], t[q]);
-                        }
-                    }
-                    let acc: &mut [f64; HL] = (&mut sc.hacc[e * HL..(e + 1) * HL]).try_into().expect("HL lanes");
-                    for q in 0..HL {
-                        acc[q] += t[q];
-                    }
-                    e += 1;
-                }
-            }
+            add_hessian_block(&fh, &sc.ys, d, &mut sc.hacc);
         }
         // lanes summed in order; the lower triangle mirrors the upper
         let out = &mut sums.v[j * w..(j + 1) * w];
         for q in 0..3 + d {
             out[q] += row(&sc.acc, q).iter().fold(0.0, |x, y| x + y);
         }
-        let mut e = 0;
-        for r in 0..d {
-            for s2 in r..d {
-                let v = sc.hacc[e * HL..(e + 1) * HL].iter().fold(0.0, |x, y| x + y);
-                e += 1;
-                out[3 + d + r * d + s2] += v;
-                if s2 != r {
-                    out[3 + d + s2 * d + r] += v;
-                }
-            }
-        }
+        add_hessian_sums(&sc.hacc, d, &mut out[3 + d..]);
     }
 }
 
