@@ -127,12 +127,13 @@ class KMeans:
         in a local optimum that merges two separated clusters; ``n_init=4``
         or more rarely keeps one, at that many times the cost. Cost of one
         run, 10 clusters, against scikit-learn's Euclidean ``KMeans`` with
-        the same parameters (``benches/bench_kmeans.py``, quiet machine,
-        figures in the README; NumPy's BLAS at one thread): with one thread
-        each 2.6 times its time on 36 607 points at d = 10 and 1.4 to 1.9
-        times on 1 000 000 points at d = 2; with two threads each 2.0 to 2.2
-        and 1.1 to 1.3 times (hyperbolic Lloyd also takes more iterations
-        than Euclidean Lloyd on these data).
+        the same parameters (``benches/bench_kmeans.py --seeds 10``, figures
+        in the README; NumPy's BLAS at one thread): with two threads each,
+        times summed over ten seeds, 1.6 to 1.9 times its time on 36 607
+        points at d = 10, and 1.3 to 1.5 times on 1 000 000 points at d = 2
+        (one seed); with one thread each (earlier build) 2.6 and 1.4 to 1.9
+        times. Hyperbolic Lloyd also takes more iterations than Euclidean
+        Lloyd on these data (27.6 against 19.3 on average with ``tol=0``).
     max_iter : int, default 100
         Maximum number of Lloyd updates per run.
     tol : float, default 1e-4
