@@ -611,7 +611,10 @@ class KMeans(_InMemoryKMeans):
     ``i`` with probability ``w_i / sum w`` (D^2 sampling, Arthur &
     Vassilvitskii 2007). The draws depend only on the seed and on the
     points' order, never on the chunking; they are not the draws of the
-    in-memory :class:`gyrokit.KMeans`, so seeded runs of the two differ. With
+    in-memory :class:`gyrokit.KMeans`, so seeded runs of the two differ.
+    This is plain k-means++, one candidate per centre: the in-memory
+    estimator keeps the best of ``2 + floor(ln n_clusters)`` candidates
+    (greedy k-means++), which would cost that many passes per centre here. With
     an array ``init`` (or identical seeds) the two give the same clusters;
     centres agree to about 1e-13 (sums grouped by chunk).
 
