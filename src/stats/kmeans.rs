@@ -1343,6 +1343,16 @@ pub fn fit(model: Model, k: Curvature, x: &Data, init: Init, seeds: &[u64], p: &
 mod tests {
     use super::*;
 
+    /// `n` points of `stats::test_ball` (`d`, radius `r`, `seed`), in the
+    /// unit ball with their gaps.
+    fn ball_points(n: usize, d: usize, r: f64, seed: u64) -> UnitPoints<'static> {
+        let x = crate::stats::test_ball(n, d, r, seed);
+        let a = ndarray::ArrayView2::from_shape((n, d), &x[..]).unwrap().into_dyn();
+        let data = Data::F64(a);
+        let u = unit_points(Model::Poincare, &Curvature::default(), "x", &data).unwrap();
+        UnitPoints { n: u.n, d: u.d, p: std::borrow::Cow::Owned(u.p.into_owned()), g: u.g }
+    }
+
     #[test]
     fn below_is_in_range_and_roughly_uniform() {
         let mut r = Rng::new(7);
@@ -1380,10 +1390,7 @@ mod tests {
         // centres; a centre repeated skips every block). n is neither a
         // multiple of the lane count nor of a seed chunk.
         for (n, d) in [(9001, 3), (37, 10), (4096 + 17, 2)] {
-            let x = crate::stats::test_ball(n, d, 6.0, n as u64);
-            let a = ndarray::ArrayView2::from_shape((n, d), &x[..]).unwrap().into_dyn();
-            let data = Data::F64(a);
-            let pts = unit_points(Model::Poincare, &Curvature::default(), "x", &data).unwrap();
+            let pts = ball_points(n, d, 6.0, n as u64);
             let soa = Soa::new(&pts);
             let mut d2 = vec![f64::INFINITY; n];
             let mut hn = vec![f64::INFINITY; n];
@@ -1416,10 +1423,7 @@ mod tests {
         // sum_i min(d2_i, d(x_i, c)^2) is smallest (common practice, as in
         // scikit-learn's greedy k-means++). One trial is plain k-means++.
         let (n, d) = (5000, 3);
-        let x = crate::stats::test_ball(n, d, 6.0, 11);
-        let a = ndarray::ArrayView2::from_shape((n, d), &x[..]).unwrap().into_dyn();
-        let data = Data::F64(a);
-        let pts = unit_points(Model::Poincare, &Curvature::default(), "x", &data).unwrap();
+        let pts = ball_points(n, d, 6.0, 11);
         let soa = Soa::new(&pts);
         let t2 = |i: usize, c: usize| {
             let cp = &pts.p[c * d..(c + 1) * d];
@@ -1462,10 +1466,7 @@ mod tests {
         // assignment ranks them four at a time, the rest one by one), including
         // ties (a centre repeated) and n not a multiple of a chunk.
         for (n, d) in [(2048 + 37, 1), (3001, 2), (500, 5), (777, 10)] {
-            let x = crate::stats::test_ball(n, d, 6.0, (n * d) as u64);
-            let a = ndarray::ArrayView2::from_shape((n, d), &x[..]).unwrap().into_dyn();
-            let data = Data::F64(a);
-            let pts = unit_points(Model::Poincare, &Curvature::default(), "x", &data).unwrap();
+            let pts = ball_points(n, d, 6.0, (n * d) as u64);
             let soa = Soa::new(&pts);
             let k = Curvature::default();
             for nc in 1..=11 {
@@ -1503,10 +1504,7 @@ mod tests {
         // intermediate centres promise (common practice: agreement of two
         // routes to one minimiser).
         let (n, d) = (5000, 4);
-        let x = crate::stats::test_ball(n, d, 3.0, 21);
-        let a = ndarray::ArrayView2::from_shape((n, d), &x[..]).unwrap().into_dyn();
-        let data = Data::F64(a);
-        let pts = unit_points(Model::Poincare, &Curvature::default(), "x", &data).unwrap();
+        let pts = ball_points(n, d, 3.0, 21);
         let soa = Soa::new(&pts);
         // two clusters by the sign of the first coordinate
         let labels: Vec<usize> = (0..n).map(|i| usize::from(pts.p[i * d] > 0.0)).collect();
