@@ -200,6 +200,23 @@ def test_best_of_n_init():
 # ------------------------------------------------------------------ seeding
 
 
+def _pair_counts(km, X, rng, runs, trials=None):
+    """How often each pair of rows of X is seeded, over ``runs`` seedings."""
+    counts = {}
+    for _ in range(runs):
+        c = km._kmeanspp(X, rng, trials=trials)
+        key = tuple(sorted(int(np.flatnonzero((X == row).all(axis=1))[0]) for row in c))
+        counts[key] = counts.get(key, 0) + 1
+    return counts
+
+
+def _assert_counts_match(counts, p, runs):
+    """Each pair's count within 5 binomial standard deviations of ``runs * p``."""
+    for key, prob in p.items():
+        sd = np.sqrt(runs * prob * (1 - prob))
+        assert abs(counts.get(key, 0) - runs * prob) < 5 * sd, (key, counts, p)
+
+
 def test_kmeanspp_samples_proportional_to_squared_distance():
     # Three points on a geodesic through the origin at hyperbolic positions 0, 1, 3.
     X = np.array([[0.0, 0.0], [np.tanh(0.5), 0.0], [np.tanh(1.5), 0.0]])
@@ -211,28 +228,12 @@ def test_kmeanspp_samples_proportional_to_squared_distance():
             if i != j:
                 key = tuple(sorted((i, j)))
                 p[key] = p.get(key, 0.0) + D2[i, j] / D2[i].sum() / 3
-    km = KMeans(2, n_init=1)
-    rng = np.random.default_rng(0)
-    trials = 6000
-    counts = {}
-    for _ in range(trials):
-        c = km._kmeanspp(X, rng, trials=1)  # one candidate per centre: plain D^2 sampling
-        key = tuple(sorted(int(np.flatnonzero((X == row).all(axis=1))[0]) for row in c))
-        counts[key] = counts.get(key, 0) + 1
-    for key, prob in p.items():
-        sd = np.sqrt(trials * prob * (1 - prob))
-        assert abs(counts.get(key, 0) - trials * prob) < 5 * sd, (key, counts, p)
+    runs = 6000
+    # one candidate per centre: plain D^2 sampling
+    counts = _pair_counts(KMeans(2, n_init=1), X, np.random.default_rng(0), runs, trials=1)
+    _assert_counts_match(counts, p, runs)
     # With D (not D^2) sampling the pair {0, 1} would have probability 0.37, not 0.28.
     assert p[(0, 1)] == pytest.approx((1 / 10 + 1 / 5) / 3, rel=1e-12)
-
-
-def _pair_counts(km, X, rng, runs):
-    counts = {}
-    for _ in range(runs):
-        c = km._kmeanspp(X, rng)
-        key = tuple(sorted(int(np.flatnonzero((X == row).all(axis=1))[0]) for row in c))
-        counts[key] = counts.get(key, 0) + 1
-    return counts
 
 
 def test_greedy_kmeanspp_keeps_the_candidate_of_least_potential():
@@ -263,9 +264,7 @@ def test_greedy_kmeanspp_keeps_the_candidate_of_least_potential():
     runs = 6000
     counts = _pair_counts(KMeans(2, n_init=1), X, np.random.default_rng(1), runs)
     assert set(counts) <= set(p)
-    for key, prob in p.items():
-        sd = np.sqrt(runs * prob * (1 - prob))
-        assert abs(counts.get(key, 0) - runs * prob) < 5 * sd, (key, counts, p)
+    _assert_counts_match(counts, p, runs)
 
 
 def test_greedy_kmeanspp_seeds_lower_potential_than_plain():
