@@ -29,9 +29,9 @@ iteration counts are then means): the number of Lloyd iterations depends
 on the seeding and varies several-fold between seeds for both libraries
 (taxonomy, ``tol=0``, seeds 0-19: gyrokit 11 to 69, scikit-learn 11 to
 32), so one seed compares luck as much as speed. Threads: gyrokit uses
-rayon (``RAYON_NUM_THREADS``), scikit-learn OpenMP (``OMP_NUM_THREADS``); both default to all cores, and
-``--threads N`` sets both to N (read before either library starts its
-threads). On a machine shared with another busy job, OpenMP's spinning
+rayon (``RAYON_NUM_THREADS``), scikit-learn OpenMP (``OMP_NUM_THREADS``);
+both default to all cores, and ``--threads N`` sets both to N (read before
+either library starts its threads). On a machine shared with another busy job, OpenMP's spinning
 threads lose much of their time when there are fewer free cores than
 threads: compare with ``--threads 1`` too.
 

@@ -614,9 +614,9 @@ class KMeans(_InMemoryKMeans):
     in-memory :class:`gyrokit.KMeans`, so seeded runs of the two differ.
     This is plain k-means++, one candidate per centre: the in-memory
     estimator keeps the best of ``2 + floor(ln n_clusters)`` candidates
-    (greedy k-means++), which would cost that many passes per centre here. With
-    an array ``init`` (or identical seeds) the two give the same clusters;
-    centres agree to about 1e-13 (sums grouped by chunk).
+    (greedy k-means++), which would cost that many passes per centre here.
+    With an array ``init`` (or identical seeds) the two give the same
+    clusters; centres agree to about 1e-13 (sums grouped by chunk).
 
     Differences from :class:`gyrokit.KMeans`: ``n_init`` defaults to 1 (each
     run costs passes over the data); ``labels_`` is a dask array (chunked

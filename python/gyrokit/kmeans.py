@@ -131,7 +131,7 @@ class KMeans:
         in the README; NumPy's BLAS at one thread): with two threads each,
         times summed over ten seeds, 1.6 to 1.9 times its time on 36 607
         points at d = 10, and 1.3 to 1.5 times on 1 000 000 points at d = 2
-        (one seed); with one thread each 2.5 to 2.8 and 1.8 to 2.3 times.
+        (one seed); with one thread each 2.3 to 2.8 and 1.8 to 2.3 times.
         Hyperbolic Lloyd also takes more iterations than Euclidean Lloyd on
         these data (27.6 against 19.3 on average with ``tol=0``).
     max_iter : int, default 100
