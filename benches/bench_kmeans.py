@@ -31,9 +31,9 @@ on the seeding and varies several-fold between seeds for both libraries
 32), so one seed compares luck as much as speed. Threads: gyrokit uses
 rayon (``RAYON_NUM_THREADS``), scikit-learn OpenMP (``OMP_NUM_THREADS``);
 both default to all cores, and ``--threads N`` sets both to N (read before
-either library starts its threads). On a machine shared with another busy job, OpenMP's spinning
-threads lose much of their time when there are fewer free cores than
-threads: compare with ``--threads 1`` too.
+either library starts its threads). On a machine shared with another busy
+job, OpenMP's spinning threads lose much of their time when there are
+fewer free cores than threads: compare with ``--threads 1`` too.
 
 BLAS threads: scikit-learn's k-means++ seeding computes its distances with
 BLAS (NumPy's OpenBLAS, all cores by default; its Lloyd steps limit BLAS to
